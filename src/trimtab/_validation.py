@@ -1,0 +1,66 @@
+"""Boundary checks shared by the public functions: labels, finiteness, shapes."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from trimtab.errors import InputError
+
+MAX_LISTED = 5
+
+
+def list_labels(labels: Iterable[Any], limit: int = MAX_LISTED) -> str:
+    """Format at most ``limit`` labels for an error message, with a count of the rest."""
+    items = list(labels)
+    shown = ", ".join(repr(x) if not isinstance(x, str) else x for x in items[:limit])
+    if len(items) > limit:
+        shown += f" (and {len(items) - limit} more)"
+    return shown
+
+
+def check_unique(index: pd.Index, what: str, owner: str) -> None:
+    """Raise if ``index`` holds duplicates, naming up to five of them."""
+    if not index.is_unique:
+        dups = index[index.duplicated()].unique()
+        raise InputError(f"{owner}: duplicate {what}: {list_labels(dups)}")
+
+
+def check_finite_frame(frame: pd.DataFrame, owner: str, *, allow_nan: bool = False) -> None:
+    """Raise if ``frame`` has non-numeric columns, infinities or (unless allowed) NaN."""
+    bad_cols = [c for c in frame.columns if not pd.api.types.is_numeric_dtype(frame[c])]
+    if bad_cols:
+        raise InputError(f"{owner}: non-numeric columns: {list_labels(bad_cols)}; expected numbers")
+    values = frame.to_numpy(dtype=float)
+    if np.isinf(values).any():
+        cols = frame.columns[np.isinf(values).any(axis=0)]
+        raise InputError(f"{owner}: infinite values in columns: {list_labels(cols)}")
+    if not allow_nan and np.isnan(values).any():
+        cols = frame.columns[np.isnan(values).any(axis=0)]
+        raise InputError(f"{owner}: missing (NaN) values in columns: {list_labels(cols)}")
+
+
+def check_finite_series(series: pd.Series, owner: str) -> None:
+    """Raise if ``series`` is non-numeric or holds NaN or infinite values, naming the labels."""
+    if not pd.api.types.is_numeric_dtype(series):
+        raise InputError(f"{owner}: expected numbers, got dtype {series.dtype}")
+    values = series.to_numpy(dtype=float)
+    bad = ~np.isfinite(values)
+    if bad.any():
+        raise InputError(f"{owner}: missing or infinite values for: {list_labels(series.index[bad])}")
+
+
+def as_float_array(values: Any, owner: str, shape: Sequence[int] | None = None) -> np.ndarray:
+    """Convert to a float64 ndarray, checking the shape (both shapes in the message) and finiteness."""
+    try:
+        arr = np.asarray(values, dtype=np.float64)
+    except (TypeError, ValueError) as err:
+        raise InputError(f"{owner}: expected numbers, could not convert: {err}") from err
+    if shape is not None and arr.shape != tuple(shape):
+        raise InputError(f"{owner}: expected shape {tuple(shape)}, got {arr.shape}")
+    if not np.isfinite(arr).all():
+        raise InputError(f"{owner}: contains NaN or infinite values")
+    return arr
