@@ -400,8 +400,8 @@ def test_settings_are_keyword_only_and_from_mapping() -> None:
 
 @pytest.fixture(scope="module")
 def ols_residuals(french_data: pd.DataFrame) -> tuple[pd.DataFrame, pd.Series]:
-    """Residuals of the 10 industry portfolios on the four factors (statsmodels OLS) and their SSR/(T−K−1)."""
-    industries = french_data.columns[5:15]
+    """Residuals of the industry portfolios on the four factors (statsmodels OLS) and their SSR/(T−K−1)."""
+    industries = french_data.loc[:, "NoDur":"Other"].columns
     X = sm.add_constant(french_data[FACTORS])
     residuals, variances = {}, {}
     for name in industries:
