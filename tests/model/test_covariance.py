@@ -445,6 +445,18 @@ def test_specific_variance_ewma_by_hand() -> None:
         assert got[name] == pytest.approx(weighted * n / (n - 2), rel=1e-13)
 
 
+def test_specific_variance_ewma_for_an_asset_that_stopped_long_ago() -> None:
+    # 0.5^(3000/1) underflows to 0 in float64; the weighted mean square must still be finite and right.
+    values = np.full((3010, 2), np.nan)
+    values[:, 0] = np.resize([0.01, -0.02], 3010)
+    values[:4, 1] = [0.03, -0.01, 0.02, 0.01]
+    e = pd.DataFrame(values, columns=["live", "gone"])
+    got = specific_variance(e, 0, CovarianceSettings(volatility_half_life=1.0))
+    raw = 0.5 ** (3 - np.arange(4))  # weights relative to the newest of the four dates
+    assert got["gone"] == pytest.approx((raw * values[:4, 1] ** 2).sum() / raw.sum(), rel=1e-13)
+    assert got["live"] == pytest.approx((1 * 0.02**2 + 0.5 * 0.01**2) / 1.5, rel=1e-6)
+
+
 def test_specific_variance_shrinkage_and_floor_by_hand() -> None:
     rng = np.random.default_rng(10)
     scales = np.array([0.5, 1.0, 2.0, 4.0])

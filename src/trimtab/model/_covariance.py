@@ -744,10 +744,17 @@ def specific_variance(
             f"{owner}: assets with no more observations than degrees of freedom: {list_labels(assets[short])}; "
             "need more dates than dof"
         )
-    w = ewma_weights(len(residuals.index), config.volatility_half_life)
     filled = np.where(observed, values, 0.0)
-    weight_sum = w @ observed
-    variance = (w @ (filled * filled)) / weight_sum * n_obs / (n_obs - dof_values)
+    if config.volatility_half_life is None:
+        mean_square = (filled * filled).sum(axis=0) / n_obs
+    else:
+        # Weights relative to each asset's newest observation (the ratio is scale-free), so an asset
+        # that stopped long ago does not underflow to 0/0: 0.5^((last_i − t)/h) ≤ 1, equal to 1 at last_i.
+        position = np.arange(len(residuals.index), dtype=np.float64)[:, None]
+        last = (len(residuals.index) - 1 - np.argmax(observed[::-1], axis=0)).astype(np.float64)
+        relative = np.where(observed, np.exp2(np.minimum(position - last, 0.0) / config.volatility_half_life), 0.0)
+        mean_square = (relative * filled * filled).sum(axis=0) / relative.sum(axis=0)
+    variance = mean_square * n_obs / (n_obs - dof_values)
     if config.specific_shrinkage > 0:
         target = _group_means(variance, assets, groups, owner)
         variance = (1.0 - config.specific_shrinkage) * variance + config.specific_shrinkage * target
