@@ -149,6 +149,25 @@ def test_does_not_flag_exact_factor_model_residuals() -> None:
     assert "not flagged" in result.summary()
 
 
+def test_flag_rule_needs_both_excess_count_and_small_p_value() -> None:
+    # 10 assets, 45 pairs, alpha 0.01: expected 0.45. Two planted pairs exceed twice that, but the
+    # binomial tail P(X >= 2) ≈ 0.074 is above alpha, so not flagged; five planted pairs are.
+    rng = np.random.default_rng(14)
+    base = rng.normal(size=(300, 10))
+    two = base.copy()
+    two[:, 1] += 2 * two[:, 0]
+    two[:, 3] += 2 * two[:, 2]
+    few = check_residuals(pd.DataFrame(two))
+    assert few.pairs_significant == 2 and few.pairs_significant > 2 * few.expected_significant
+    assert few.p_value == pytest.approx(stats.binom.sf(1, 45, 0.01), rel=1e-12) and few.p_value > 0.01
+    assert not few.flagged
+    five = base.copy()
+    for k in range(5):
+        five[:, 2 * k + 1] += 2 * five[:, 2 * k]
+    many = check_residuals(pd.DataFrame(five))
+    assert many.pairs_significant == 5 and many.p_value < 0.01 and many.flagged
+
+
 # --- check_residuals: sampled path --------------------------------------------------------------
 
 
