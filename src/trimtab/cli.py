@@ -1,0 +1,645 @@
+"""The ``trimtab`` command line: fit, risk, rebalance, compare, check and the demo.
+
+Exit codes: 0 ok; 1 infeasible (the relaxation table is printed); 2 bad input (one line on stderr
+naming the file, key or column); 3 solver failure; 4 an internal error (a bug: please report it).
+Everything printed goes through this module; the work is done by :mod:`trimtab.scenario`.
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import math
+import shutil
+import sys
+import tempfile
+import time
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Annotated, Any, TypeVar
+
+import numpy as np
+import pandas as pd
+import typer
+from rich.console import Console
+from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+from rich.table import Table
+
+from trimtab._version import __version__
+from trimtab.errors import InfeasibleError, InputError, SolverError, TrimtabError
+
+EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
+
+app = typer.Typer(
+    name="trimtab",
+    help=(
+        "Rebalance a fund to a risk budget on a factor risk model: fit the model, report a book's "
+        "risk, rebalance under a scenario's limits, compare scenarios. Start with `trimtab demo`."
+    ),
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    context_settings={"help_option_names": ["-h", "--help"]},
+)
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+# ---------------------------------------------------------------------- output and progress
+@dataclass
+class Ui:
+    """How to print: JSON on stdout, quiet, verbose; rich tables otherwise."""
+
+    json: bool = False
+    quiet: bool = False
+    verbose: bool = False
+    started: float = field(default_factory=time.perf_counter)
+
+    @functools.cached_property
+    def out(self) -> Console:
+        return Console(file=sys.stdout, width=_width(), highlight=False, soft_wrap=False)
+
+    @functools.cached_property
+    def err(self) -> Console:
+        return Console(file=sys.stderr, width=_width(), highlight=False)
+
+    @property
+    def chatty(self) -> bool:
+        """Human-readable output wanted on stdout."""
+        return not (self.json or self.quiet)
+
+    def say(self, text: str) -> None:
+        if self.chatty:
+            self.out.print(text)
+
+    def note(self, text: str) -> None:
+        """Detail shown with --verbose only (on stderr, so --json output stays clean)."""
+        if self.verbose:
+            self.err.print(f"[dim]{text}[/dim]")
+
+    def table(self, table: Table) -> None:
+        if self.chatty:
+            self.out.print(table)
+
+    def emit(self, document: Any) -> None:
+        if self.json:
+            sys.stdout.write(json.dumps(_jsonable(document), indent=2) + "\n")
+
+    @contextmanager
+    def progress(self, total: int | None = None) -> Iterator[Callable[[str], None]]:
+        """A rich spinner (or bar, with ``total``) on stderr; yields ``step(label)``."""
+        bar = Progress(
+            SpinnerColumn(),
+            TextColumn("{task.description}"),
+            *( [BarColumn()] if total else []),
+            TimeElapsedColumn(),
+            console=self.err,
+            transient=True,
+            disable=self.quiet or not self.err.is_terminal,
+        )
+        t0 = time.perf_counter()
+        with bar:
+            task = bar.add_task("starting", total=total)
+            last = [t0]
+
+            def step(label: str) -> None:
+                now = time.perf_counter()
+                self.note(f"  {label} (after {now - t0:.1f} s)")
+                bar.update(task, description=label, advance=1 if total else None)
+                last[0] = now
+
+            yield step
+
+
+def _width() -> int:
+    return max(100, shutil.get_terminal_size((120, 24)).columns)
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, dict):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, pd.DataFrame):
+        return _jsonable(value.reset_index().to_dict(orient="records"))
+    if isinstance(value, pd.Series):
+        return _jsonable(value.to_dict())
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return None if not math.isfinite(float(value)) else float(value)
+    if isinstance(value, (np.bool_,)):
+        return bool(value)
+    if isinstance(value, Path):
+        return str(value)
+    if isinstance(value, (str, int, bool)) or value is None:
+        return value
+    return str(value)
+
+
+def _ui(ctx: typer.Context) -> Ui:
+    root = ctx.find_root()
+    if not isinstance(root.obj, Ui):
+        root.obj = Ui()
+    return root.obj
+
+
+def _fail(message: str, code: int) -> None:
+    first = message.strip().splitlines()[0] if message.strip() else "unknown error"
+    sys.stderr.write(f"trimtab: error: {first}\n")
+    raise typer.Exit(code)
+
+
+def _guarded(fn: F) -> F:
+    """Turn trimtab's errors into one stderr line and their exit code; never a traceback."""
+
+    @functools.wraps(fn)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        ctx = next((a for a in [*args, *kwargs.values()] if isinstance(a, typer.Context)), None)
+        ui = _ui(ctx) if ctx is not None else Ui()
+        try:
+            return fn(*args, **kwargs)
+        except typer.Exit:
+            raise
+        except InfeasibleError as err:
+            _print_relaxation(ui, None, err)
+            _fail(str(err), EXIT_INFEASIBLE)
+        except TrimtabError as err:
+            _fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
+        except KeyboardInterrupt:
+            _fail("interrupted; nothing was written", 130)
+        except Exception as err:  # noqa: BLE001 - a bug: one line unless --verbose asks for the traceback
+            if ui.verbose:
+                raise
+            _fail(
+                f"internal error ({type(err).__name__}: {err}); this is a bug in trimtab, "
+                "rerun with --verbose for the traceback",
+                EXIT_INTERNAL,
+            )
+        return None
+
+    return wrapper  # type: ignore[return-value]
+
+
+def _version(value: bool) -> None:
+    if value:
+        sys.stdout.write(f"trimtab {__version__}\n")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    ctx: typer.Context,
+    json_output: Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.")] = False,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).")] = False,
+    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Print each step with its timing (on stderr).")] = False,
+    version: Annotated[
+        bool, typer.Option("--version", callback=_version, is_eager=True, help="Print the version and exit.")
+    ] = False,
+) -> None:
+    """Global options go before the command: `trimtab --json check base.yaml`."""
+    ctx.obj = Ui(json=json_output, quiet=quiet, verbose=verbose)
+
+
+# ---------------------------------------------------------------------- formatting helpers
+def _pct(value: Any, digits: int = 2) -> str:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    return "–" if not math.isfinite(v) else f"{100 * v:.{digits}f}%"
+
+
+def _num(value: Any, digits: int = 4) -> str:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    return "–" if not math.isfinite(v) else f"{v:.{digits}g}"
+
+
+def _frame_table(frame: pd.DataFrame, title: str, *, percent: Sequence[str] = (), max_rows: int = 20) -> Table:
+    table = Table(title=title, title_justify="left", show_lines=False, header_style="bold")
+    index_name = str(frame.index.name or "")
+    table.add_column(index_name)
+    for col in frame.columns:
+        table.add_column(str(col), justify="right")
+    for label, row in frame.head(max_rows).iterrows():
+        cells = []
+        for col in frame.columns:
+            value = row[col]
+            if isinstance(value, (float, np.floating)):
+                cells.append(_pct(value) if col in percent else _num(value))
+            else:
+                cells.append(str(value))
+        table.add_row(str(label), *cells)
+    if len(frame) > max_rows:
+        table.caption = f"{len(frame) - max_rows} more rows not shown"
+    return table
+
+
+def _print_relaxation(ui: Ui, name: str | None, err: InfeasibleError) -> None:
+    from trimtab.scenario._run import relaxation_frame
+
+    frame = relaxation_frame(err)
+    if ui.json:
+        return
+    if ui.quiet:
+        return
+    title = f"Infeasible{f' ({name})' if name else ''}: how far each conflicting limit must move"
+    if frame.empty:
+        ui.say(f"[bold]{title}[/bold]: the optimizer gave no relaxation table")
+    else:
+        ui.table(_frame_table(frame, title))
+
+
+def _report_module() -> Any:
+    from trimtab.scenario._run import _report
+
+    return _report()
+
+
+# ---------------------------------------------------------------------- check
+ScenarioArg = Annotated[Path, typer.Argument(help="A scenario YAML file.", metavar="SCENARIO.yaml", show_default=False)]
+
+
+@app.command()
+@_guarded
+def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
+    """Validate a scenario and every file it names, without solving.
+
+    Reads the scenario (and the files it extends), the model (or fits it, when the scenario gives
+    fit settings), the holdings, benchmark, alpha and attributes, aligns their asset ids to the
+    model and reports what was dropped or filled and why.
+    """
+    from trimtab.scenario import load_inputs, load_scenario
+    from trimtab.scenario._run import describe
+
+    ui = _ui(ctx)
+    with ui.progress() as step:
+        step("reading the scenario")
+        loaded = load_scenario(scenario)
+        inputs = load_inputs(loaded, step=step)
+    document = describe(inputs)
+    ui.emit({**document, "status": "ok"})
+    if not ui.chatty:
+        return
+    bases = f" (extends {', '.join(p.name for p in loaded.chain[1:])})" if len(loaded.chain) > 1 else ""
+    ui.say(f"[bold]Scenario {loaded.name}[/bold]{bases}: {loaded.spec.description or ''}")
+    model = inputs.model
+    ui.say(f"Model: {model.n_assets:,} assets × {model.n_factors} factors")
+    sizes = inputs.alignment.sizes.copy()
+    sizes.index.name = "input"
+    ui.table(_frame_table(sizes.astype(int), "Inputs aligned to the model's assets"))
+    if not inputs.alignment.table.empty:
+        ui.say(inputs.alignment.summary())
+    ui.say(f"Objective: {dict(loaded.spec.objective)}")
+    ui.say(f"Constraints: {', '.join(loaded.spec.constraints) or 'none'}")
+    ui.say(f"Outputs would go to {loaded.output_dir}")
+    ui.say("[green]OK[/green]: the scenario and its files are valid.")
+
+
+# ---------------------------------------------------------------------- fit
+@app.command()
+@_guarded
+def fit(
+    ctx: typer.Context,
+    config: Annotated[Path, typer.Argument(help="A fit config YAML file.", metavar="CONFIG.yaml", show_default=False)],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Folder to write the model into.", show_default=False)],
+    file_format: Annotated[str, typer.Option("--format", help="Table format of the saved model: parquet or csv.")] = "parquet",
+    overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace a model already saved in --out.")] = False,
+) -> None:
+    """Estimate a risk model from return files and save it to a folder."""
+    from trimtab.scenario import load_fit_config
+    from trimtab.scenario._fit import fit_model
+
+    ui = _ui(ctx)
+    if file_format not in ("parquet", "csv"):
+        raise InputError(f"--format: expected parquet or csv, got {file_format!r}")
+    with ui.progress() as step:
+        step("reading the fit config")
+        settings = load_fit_config(config)
+        _refuse_inputs_inside(out, [config, settings.returns.path, *(s.path for s in (settings.factor_returns, settings.exposures) if s)])
+        step(f"fitting a {settings.method} model")
+        model = fit_model(settings, config)
+        step("saving the model")
+        model.save(out, file_format=file_format, overwrite=overwrite)
+    document = _fit_document(model, out)
+    ui.emit(document)
+    if ui.chatty:
+        window = document.get("window")
+        when = f", {window[0]} to {window[1]}" if window else ""
+        ui.say(f"Fitted a {document['method']} model: {model.n_assets:,} assets × {model.n_factors} factors{when}")
+        if document.get("r_squared_median") is not None:
+            ui.say(f"R² of the asset regressions: median {document['r_squared_median']:.2f}")
+        dropped = document["dropped"]
+        if dropped:
+            ui.say(f"Dropped {len(dropped)} assets: " + "; ".join(f"{a} ({r})" for a, r in list(dropped.items())[:5]))
+        ui.say(f"Saved to {out}")
+
+
+def _refuse_inputs_inside(target: Path, inputs: Sequence[Any]) -> None:
+    resolved = Path(target).resolve()
+    for item in inputs:
+        p = Path(item).resolve()
+        if p == resolved or resolved in p.parents:
+            raise InputError(f"--out {target}: would replace the input file {p.name}; choose another folder")
+
+
+def _fit_document(model: Any, out: Path) -> dict[str, Any]:
+    report = model.fit_report
+    doc: dict[str, Any] = {
+        "model": str(out),
+        "method": report.method if report is not None else "unknown",
+        "n_assets": model.n_assets,
+        "n_factors": model.n_factors,
+        "factors": [str(f) for f in model.factors],
+        "window": list(report.window) if report is not None and report.window else None,
+        "dropped": {} if report is None else {str(k): str(v) for k, v in report.dropped.items()},
+        "r_squared_median": None,
+    }
+    if report is not None and "r_squared" in report.assets.columns:
+        doc["r_squared_median"] = float(report.assets["r_squared"].median())
+    return doc
+
+
+# ---------------------------------------------------------------------- risk
+@app.command()
+@_guarded
+def risk(
+    ctx: typer.Context,
+    model: Annotated[Path, typer.Option("--model", "-m", help="A model folder written by `trimtab fit`.", show_default=False)],
+    holdings: Annotated[Path, typer.Option("--holdings", help="Holdings file: asset, weight (or asset, shares with prices).", show_default=False)],
+    benchmark: Annotated[Path | None, typer.Option("--benchmark", help="Benchmark file: asset, weight. Gives active risk.")] = None,
+    attributes: Annotated[Path | None, typer.Option("--attributes", help="Attributes file (prices for shares; groups).")] = None,
+    top: Annotated[int, typer.Option("--top", help="How many top contributors to list.", min=1)] = 10,
+) -> None:
+    """Attribute a book's risk (active risk with --benchmark) to factors, groups and positions."""
+    from trimtab import FactorModel
+    from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
+    from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
+
+    ui = _ui(ctx)
+    with ui.progress() as step:
+        step("loading the model")
+        fm = FactorModel.load(model)
+        step("reading the holdings")
+        attrs = load_attributes(AttributesFile(path=str(attributes))) if attributes is not None else None
+        columns = set(read_table(holdings, what="holdings").columns)
+        kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
+        book = load_holdings(HoldingsFile(path=str(holdings), kind=kind), attrs)
+        bench = load_series(SeriesFile(path=str(benchmark)), "benchmark", "weight") if benchmark is not None else None
+        aligned = align_inputs(
+            fm.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
+            files={"holdings": str(holdings), "benchmark": str(benchmark)},
+        )
+        step("attributing risk")
+        attribution = fm.attribute(aligned.holdings, aligned.benchmark, attributes=aligned.attributes)
+    if ui.json:
+        ui.emit(
+            {
+                "kind": "active" if bench is not None else "total",
+                "headline": attribution.headline(),
+                "by_factor": attribution.by_factor,
+                "by_factor_group": attribution.by_factor_group,
+                "top_assets": attribution.top_assets(top),
+            }
+        )
+        return
+    if ui.chatty:
+        report = _optional_report()
+        if report is not None and hasattr(report, "print_attribution"):
+            report.print_attribution(attribution, console=ui.out, top=top)
+        else:
+            ui.out.print(attribution.summary(top=top).as_text())
+
+
+def _optional_report() -> Any:
+    try:
+        import trimtab.report as report
+    except ImportError:
+        return None
+    return report
+
+
+# ---------------------------------------------------------------------- rebalance
+OutOption = Annotated[
+    Path | None,
+    typer.Option("--out", "-o", help="Output folder (default: the scenario's output.dir, else results/<name> next to it).", show_default=False),
+]
+
+
+@app.command()
+@_guarded
+def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) -> None:
+    """Rebalance the book under a scenario: solve, verify every limit, write the trade list,
+    weights, constraint table, attributions, JSON and the HTML report."""
+    from trimtab.scenario import load_inputs, load_scenario
+    from trimtab.scenario._run import solve, write_rebalance
+
+    ui = _ui(ctx)
+    with ui.progress() as step:
+        step("reading the scenario")
+        loaded = load_scenario(scenario)
+        inputs = load_inputs(loaded, step=step)
+        step("solving")
+        run = solve(inputs)
+        if run.error is not None:
+            raise run.error
+        step("writing the outputs")
+        written = write_rebalance(run, out)
+    ui.emit({"scenario": loaded.name, "status": "solved", "output": str(written.folder), "files": written.files, **_result_document(run.result)})
+    if ui.chatty:
+        _print_result(ui, run.result)
+        ui.say(f"Wrote {len(written.files)} files to {written.folder}")
+
+
+def _result_document(result: Any) -> dict[str, Any]:
+    doc: dict[str, Any] = {}
+    for name in ("status", "solver"):
+        if hasattr(result, name):
+            doc[name] = getattr(result, name)
+    if hasattr(result, "constraints"):
+        doc["constraints"] = result.constraints
+    return doc
+
+
+def _print_result(ui: Ui, result: Any) -> None:
+    report = _optional_report()
+    if report is not None and hasattr(report, "print_rebalance"):
+        report.print_rebalance(result, console=ui.out)
+    else:
+        ui.out.print(str(result.summary()))
+
+
+# ---------------------------------------------------------------------- compare
+@app.command()
+@_guarded
+def compare(
+    ctx: typer.Context,
+    scenarios: Annotated[list[Path], typer.Argument(help="Two or more scenario YAML files.", metavar="SCENARIO.yaml...", show_default=False)],
+    out: Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/compare next to the first scenario).", show_default=False)] = None,
+) -> None:
+    """Run what-if scenarios side by side: one table and one HTML report.
+
+    An infeasible scenario does not stop the others; it shows as infeasible in the table, its
+    relaxation table is printed, and the exit code is 1.
+    """
+    from trimtab.scenario import load_scenario
+    from trimtab.scenario._run import comparison_table, load_all, solve, write_comparison
+
+    ui = _ui(ctx)
+    with ui.progress(total=None) as step:
+        step("reading the scenarios")
+        loaded = [load_scenario(s) for s in scenarios]
+        names = [s.name for s in loaded]
+        dup = {n for n in names if names.count(n) > 1}
+        if dup:
+            raise InputError(f"compare: scenario names must differ; {', '.join(sorted(dup))} appears twice (set name: in the files)")
+        all_inputs = load_all(loaded, step)
+        runs = []
+        for inputs in all_inputs:
+            step(f"solving {inputs.scenario.name}")
+            runs.append(solve(inputs))
+        step("writing the comparison")
+        target = out if out is not None else loaded[0].path.resolve().parent / "results" / "compare"
+        written = write_comparison(runs, target)
+    table = comparison_table(runs)
+    ui.emit({"scenarios": names, "status": {r.name: r.status for r in runs}, "comparison": table, "output": str(written.folder)})
+    if ui.chatty:
+        _print_comparison(ui, runs, table)
+        ui.say(f"Wrote the comparison to {written.folder}")
+    _exit_for(runs)
+
+
+def _print_comparison(ui: Ui, runs: Sequence[Any], table: pd.DataFrame) -> None:
+    report = _optional_report()
+    solved = {r.name: r.result for r in runs if r.result is not None}
+    if report is not None and hasattr(report, "print_comparison") and solved:
+        report.print_comparison(solved, console=ui.out)
+    else:
+        ui.table(_frame_table(table, "What-if comparison"))
+    for run in runs:
+        if isinstance(run.error, InfeasibleError):
+            _print_relaxation(ui, run.name, run.error)
+        elif run.error is not None:
+            ui.say(f"[red]{run.name}: solver failure[/red]: {run.error}")
+
+
+def _exit_for(runs: Sequence[Any]) -> None:
+    errors = [r.error for r in runs if r.error is not None]
+    if any(isinstance(e, SolverError) for e in errors):
+        _fail(next(f"{r.name}: {r.error}" for r in runs if isinstance(r.error, SolverError)), EXIT_SOLVER)
+    if errors:
+        bad = [r.name for r in runs if r.error is not None]
+        _fail(f"infeasible: {', '.join(bad)} (see the relaxation table above)", EXIT_INFEASIBLE)
+
+
+# ---------------------------------------------------------------------- demo
+@app.command()
+@_guarded
+def demo(
+    ctx: typer.Context,
+    out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the demo's data, model and reports.")] = Path("trimtab-demo"),
+    seed: Annotated[int, typer.Option("--seed", help="Seed of the simulation; the same seed gives the same fund.")] = 7,
+    n_assets: Annotated[int, typer.Option("--n-assets", help="Stocks in the invented universe.", min=50)] = 1500,
+) -> None:
+    """Simulate the invented demo fund and run the whole job on it: fit the risk model, report
+    pre-trade risk, rebalance, compare the demo scenarios and write the HTML reports."""
+    from trimtab.demo import DEMO_SCENARIOS, make_demo_fund
+    from trimtab.scenario import load_fit_config, load_scenario, output_folder, write_demo
+    from trimtab.scenario._fit import fit_model
+    from trimtab.scenario._run import load_all, solve, write_comparison, write_rebalance
+
+    ui = _ui(ctx)
+    t0 = time.perf_counter()
+    n_holdings = min(300, max(10, n_assets // 5))
+    steps = 6 + len(DEMO_SCENARIOS)
+    with ui.progress(total=steps) as step, output_folder(out) as tmp:
+        step("simulating the invented fund")
+        fund = make_demo_fund(n_assets=n_assets, n_holdings=n_holdings, seed=seed)
+        step("writing the data files")
+        write_demo(fund, tmp)
+        step("fitting the risk model")
+        model = fit_model(load_fit_config(tmp / "fit.yaml"), tmp / "fit.yaml")
+        model.save(tmp / "model")
+        step("reading the scenarios")
+        scenarios = [load_scenario(tmp / f"{name}.yaml") for name in DEMO_SCENARIOS]
+        all_inputs = load_all(scenarios)
+        base = all_inputs[0]
+        pre_trade = base.model.attribute(base.holdings, base.benchmark, attributes=base.attributes)
+        runs = []
+        for inputs in all_inputs:
+            step(f"rebalancing: {inputs.scenario.name}")
+            runs.append(solve(inputs))
+        step("writing the reports")
+        if runs[0].error is not None:
+            raise runs[0].error
+        write_rebalance(runs[0], tmp / "results" / "base")
+        write_comparison(runs, tmp / "results" / "compare")
+    elapsed = time.perf_counter() - t0
+    rows = _demo_rows(pre_trade, runs)
+    ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
+    if not ui.chatty:
+        return
+    ui.say(
+        f"[bold]trimtab demo[/bold]: an invented fund of {n_holdings} names in a universe of {n_assets:,} invented stocks "
+        f"(seed {seed}); the model was fitted on {len(fund.returns):,} days of simulated returns."
+    )
+    ui.say(f"Today's book: tracking error {_pct(pre_trade.risk)} against its cap-weighted benchmark.")
+    table = Table(title="Demo scenarios", title_justify="left", header_style="bold")
+    for col in ("scenario", "status", "tracking error", "alpha", "one-way turnover", "names held"):
+        table.add_column(col, justify="left" if col in ("scenario", "status") else "right")
+    for row in rows:
+        table.add_row(row["scenario"], row["status"], _pct(row["tracking_error"]), _pct(row["alpha"]), _pct(row["turnover"], 1), _num(row["names"], 4))
+    ui.table(table)
+    for run in runs:
+        if isinstance(run.error, InfeasibleError):
+            _print_relaxation(ui, run.name, run.error)
+    where = out
+    ui.say(f"\nFiles in {where}/:")
+    ui.say(f"  data/                    the invented fund (returns, holdings, benchmark, alpha, attributes)")
+    ui.say(f"  model/                   the fitted risk model")
+    ui.say(f"  results/base/report.html the base rebalance: trades, weights, constraints, risk before and after")
+    ui.say(f"  results/compare/report.html  the four scenarios side by side")
+    ui.say(f"  *.yaml                   the scenarios; try: trimtab rebalance {where}/low_turnover.yaml")
+    ui.say(f"Done in {elapsed:.1f} s.")
+
+
+def _demo_rows(pre_trade: Any, runs: Sequence[Any]) -> list[dict[str, Any]]:
+    rows = [{"scenario": "today's book", "status": "-", "tracking_error": pre_trade.risk, "alpha": float("nan"), "turnover": 0.0, "names": float(pre_trade.headline().get("n_positions", float("nan")))}]
+    for run in runs:
+        row: dict[str, Any] = {"scenario": run.name, "status": run.status, "tracking_error": float("nan"), "alpha": float("nan"), "turnover": float("nan"), "names": float("nan")}
+        if run.result is not None:
+            row.update(_result_figures(run.result))
+        rows.append(row)
+    return rows
+
+
+def _result_figures(result: Any) -> dict[str, float]:
+    post = getattr(result, "post_trade", None)
+    figures: dict[str, float] = {}
+    if post is not None:
+        figures["tracking_error"] = float(post.risk)
+    weights = getattr(result, "weights", None)
+    if isinstance(weights, pd.Series):
+        figures["names"] = float((weights.abs() > 1e-6).sum())
+    breakdown = getattr(result, "objective_breakdown", None)
+    if isinstance(breakdown, (pd.Series, dict)) and "alpha" in breakdown:
+        figures["alpha"] = float(breakdown["alpha"])
+    turnover = getattr(result, "turnover", None)
+    if turnover is not None:
+        figures["turnover"] = float(turnover)
+    return figures
+
+
+# ---------------------------------------------------------------------- entry point
+def main() -> None:
+    """Console-script entry point (``trimtab``)."""
+    app(prog_name="trimtab")
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

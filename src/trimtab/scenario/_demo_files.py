@@ -1,0 +1,63 @@
+"""Write the invented demo fund (:mod:`trimtab.demo`) as the data files and scenarios a user runs."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pandas as pd
+
+from trimtab.demo import DEMO_FILES, DemoFund
+
+
+def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
+    """Write the demo's data files, truth tables and config files into ``folder``.
+
+    Layout::
+
+        folder/fit.yaml, base.yaml, neutral_size_momentum.yaml, low_turnover.yaml, infeasible.yaml
+        folder/data/returns.parquet        dates × stocks (wide; empty before a stock listed)
+        folder/data/factor_returns.csv     dates × factors
+        folder/data/holdings.csv           asset, shares
+        folder/data/benchmark.csv          asset, weight
+        folder/data/alpha.csv              asset, alpha (annualised)
+        folder/data/attributes.csv         asset, industry, price, adv, spread_bps, market_cap
+        folder/data/characteristics.csv    asset, size, value, momentum, low_risk, industry
+        folder/data/truth/                 the simulated model: exposures, factor_covariance,
+                                           specific_variance (per day)
+
+    Returns
+    -------
+    dict
+        File label → path written.
+    """
+    root = Path(folder)
+    data = root / "data"
+    truth = data / "truth"
+    truth.mkdir(parents=True, exist_ok=True)
+    written: dict[str, Path] = {}
+
+    def csv(frame: pd.DataFrame, name: str, where: Path = data, index_label: str = "asset") -> None:
+        path = where / f"{name}.csv"
+        frame.to_csv(path, index_label=index_label, float_format="%.10g")
+        written[name] = path
+
+    returns = fund.returns.copy()
+    returns.index = returns.index.strftime("%Y-%m-%d")
+    returns.rename_axis("date").reset_index().to_parquet(data / "returns.parquet", index=False)
+    written["returns"] = data / "returns.parquet"
+    factor_returns = fund.factor_returns.copy()
+    factor_returns.index = factor_returns.index.strftime("%Y-%m-%d")
+    csv(factor_returns, "factor_returns", index_label="date")
+    csv(fund.shares.astype("int64").to_frame("shares"), "holdings")
+    csv(fund.benchmark.to_frame("weight"), "benchmark")
+    csv(fund.alpha.to_frame("alpha"), "alpha")
+    csv(fund.attributes, "attributes")
+    csv(fund.characteristics, "characteristics")
+    csv(fund.exposures, "exposures", truth)
+    csv(fund.factor_covariance, "factor_covariance", truth, index_label="factor")
+    csv(fund.specific_variance.to_frame("specific_variance"), "specific_variance", truth)
+    for name, text in DEMO_FILES.items():
+        path = root / name
+        path.write_text(text, encoding="utf-8")
+        written[name] = path
+    return written

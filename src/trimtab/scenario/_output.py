@@ -1,0 +1,73 @@
+"""Writing an output folder safely: under a temporary sibling name, renamed when complete.
+
+A target folder is only ever replaced when it is empty or carries the marker file this module writes
+(so a mistyped ``--out`` can never delete a folder of inputs), and never when an input file lies
+inside it.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import tempfile
+from collections.abc import Iterable, Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+from trimtab.errors import InputError
+
+#: Marker file in every folder trimtab writes; its presence allows the folder to be replaced.
+MARKER = ".trimtab-output"
+
+
+def check_target(target: Path, inputs: Iterable[str | Path] = ()) -> None:
+    """Raise if writing ``target`` could replace something that is not a trimtab output or an input."""
+    resolved = target.resolve()
+    for item in inputs:
+        p = Path(item).resolve()
+        if p == resolved or resolved in p.parents:
+            raise InputError(f"{target}: output folder would replace the input file {p.name}; choose another --out")
+    if target.exists():
+        if not target.is_dir():
+            raise InputError(f"{target}: exists and is not a folder; choose another --out")
+        if any(target.iterdir()) and not (target / MARKER).exists():
+            raise InputError(
+                f"{target}: folder exists and was not written by trimtab; refusing to replace it (choose another --out)"
+            )
+
+
+@contextmanager
+def output_folder(target: str | Path, inputs: Iterable[str | Path] = ()) -> Iterator[Path]:
+    """Yield a fresh temporary folder next to ``target``; on success it replaces ``target``.
+
+    On any error the temporary folder is removed and ``target`` is left as it was.
+    """
+    final = Path(target)
+    check_target(final, inputs)
+    final.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{final.name}.partial-", dir=final.parent))
+    try:
+        yield tmp
+        (tmp / MARKER).write_text("written by trimtab; this folder may be replaced by the next run\n", encoding="utf-8")
+        if final.exists():
+            old = Path(tempfile.mkdtemp(prefix=f".{final.name}.old-", dir=final.parent))
+            os.replace(final, old / final.name)
+            os.replace(tmp, final)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            os.replace(tmp, final)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+
+
+def write_text_atomic(path: Path, text: str) -> None:
+    """Write ``text`` to ``path`` through a temporary file in the same folder."""
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise

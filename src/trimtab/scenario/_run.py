@@ -1,0 +1,198 @@
+"""Running scenarios end to end: rebalance, what-if comparison, and the output folders they write.
+
+The command line calls these; they return results and write files, and never print.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+import yaml
+
+from trimtab.errors import InfeasibleError, SolverError
+from trimtab.model import FactorModel
+from trimtab.scenario._fit import require
+from trimtab.scenario._output import output_folder
+from trimtab.scenario._scenario import Scenario, ScenarioInputs, load_inputs, load_model_for
+
+
+@dataclass(frozen=True, eq=False)
+class ScenarioRun:
+    """One scenario's outcome: a result, or the infeasibility (with its relaxation table) or solver
+    failure it ended in."""
+
+    inputs: ScenarioInputs
+    result: Any = None
+    error: InfeasibleError | SolverError | None = None
+
+    @property
+    def name(self) -> str:
+        """The scenario's name."""
+        return self.inputs.scenario.name
+
+    @property
+    def status(self) -> str:
+        """``solved``, ``infeasible`` or ``solver failure``."""
+        if self.error is None:
+            return "solved"
+        return "infeasible" if isinstance(self.error, InfeasibleError) else "solver failure"
+
+
+def input_files(inputs: ScenarioInputs) -> list[Path]:
+    """Every file and folder the scenario reads (outputs must never replace them)."""
+    spec = inputs.scenario.spec
+    files = [inputs.scenario.path, *inputs.scenario.chain]
+    for item in (spec.data.holdings, spec.data.benchmark, spec.data.alpha, spec.data.attributes):
+        if item is not None:
+            files.append(Path(item.path))
+    if spec.model.path is not None:
+        files.append(Path(spec.model.path))
+    elif spec.model.fit is not None:
+        for item in (spec.model.fit.returns, spec.model.fit.factor_returns, spec.model.fit.exposures):
+            if item is not None:
+                files.append(Path(item.path))
+    return files
+
+
+def solve(inputs: ScenarioInputs) -> ScenarioRun:
+    """Rebalance one scenario; an infeasible problem or a solver failure is kept, not raised."""
+    rebalance = require("trimtab.construct", "rebalance")
+    try:
+        result = rebalance(inputs.model, inputs.scenario.rebalance_mapping(), **inputs.rebalance_kwargs())
+    except (InfeasibleError, SolverError) as err:
+        return ScenarioRun(inputs, error=err)
+    return ScenarioRun(inputs, result=result)
+
+
+def load_all(
+    scenarios: Sequence[Scenario], step: Callable[[str], None] | None = None
+) -> list[ScenarioInputs]:
+    """Read every scenario's inputs, loading or fitting each distinct model only once."""
+    models: dict[str, FactorModel] = {}
+    out = []
+    for scenario in scenarios:
+        section = scenario.spec.model
+        key = section.path if section.path is not None else json.dumps(section.fit.model_dump(), sort_keys=True, default=str)  # type: ignore[union-attr]
+        if key not in models:
+            if step is not None:
+                step(f"{scenario.name}: {'loading' if section.path else 'fitting'} the risk model")
+            models[key] = load_model_for(scenario)
+        out.append(load_inputs(scenario, model=models[key], step=step))
+    return out
+
+
+def relaxation_frame(error: InfeasibleError) -> pd.DataFrame:
+    """The error's relaxation table, or an empty frame when the optimizer gave none."""
+    table = getattr(error, "relaxation", None)
+    return table if isinstance(table, pd.DataFrame) else pd.DataFrame()
+
+
+def scenario_yaml(scenario: Scenario) -> str:
+    """The merged scenario as YAML (what actually ran), with the files it extends in a comment."""
+    chain = " ← ".join(p.name for p in scenario.chain)
+    body = yaml.safe_dump(scenario.mapping, sort_keys=False, allow_unicode=True)
+    return f"# scenario {scenario.name}, merged from {chain}\n{body}"
+
+
+@dataclass
+class Written:
+    """The files an output folder received."""
+
+    folder: Path
+    files: list[str] = field(default_factory=list)
+
+
+def write_rebalance(run: ScenarioRun, target: Path | None = None) -> Written:
+    """Write one solved scenario's tables, JSON and HTML report into its output folder."""
+    inputs = run.inputs
+    folder = Path(target) if target is not None else inputs.scenario.output_dir
+    settings = inputs.scenario.spec.output
+    with output_folder(folder, input_files(inputs)) as tmp:
+        write_run_files(run, tmp, tables=settings.tables, write_json=settings.write_json, html=settings.html)
+        names = sorted(p.name for p in tmp.rglob("*") if p.is_file())
+    return Written(folder, names)
+
+
+def write_run_files(run: ScenarioRun, folder: Path, *, tables: str, write_json: bool, html: bool) -> None:
+    """The files of one run, into an existing (temporary) folder."""
+    report = _report()
+    scenario = run.inputs.scenario
+    (folder / "scenario.yaml").write_text(scenario_yaml(scenario), encoding="utf-8")
+    alignment = run.inputs.alignment
+    if not alignment.table.empty:
+        alignment.table.to_csv(folder / "alignment.csv", index=False)
+    if run.error is not None:
+        relaxation_frame(run.error).to_csv(folder / "relaxation.csv")
+        return
+    if tables != "none":
+        report.write_tables(run.result, folder, file_format=tables)
+    if write_json:
+        report.write_json(run.result, folder / "result.json")
+    if html:
+        report.write_html(run.result, folder / "report.html", title=f"Rebalance: {scenario.name}")
+
+
+def write_comparison(runs: Sequence[ScenarioRun], target: Path, *, html: bool = True) -> Written:
+    """Write the what-if comparison: one table, one report, and each scenario's own files."""
+    report = _report()
+    inputs: list[Path] = []
+    for run in runs:
+        inputs.extend(input_files(run.inputs))
+    with output_folder(target, inputs) as tmp:
+        comparison_table(runs).to_csv(tmp / "comparison.csv")
+        solved = {run.name: run.result for run in runs if run.result is not None}
+        if html and solved:
+            report.write_html(solved, tmp / "report.html", title="What-if comparison")
+        for run in runs:
+            sub = tmp / run.name
+            sub.mkdir()
+            write_run_files(run, sub, tables="csv", write_json=True, html=False)
+        names = sorted(str(p.relative_to(tmp)) for p in tmp.rglob("*") if p.is_file())
+    return Written(target, names)
+
+
+def comparison_table(runs: Sequence[ScenarioRun]) -> pd.DataFrame:
+    """Headline figures, one column per scenario (infeasible ones carry their status only)."""
+    compare_many = require("trimtab.attribution", "compare_many")
+    solved = {run.name: run.result for run in runs if run.result is not None}
+    table = compare_many(solved) if solved else pd.DataFrame()
+    for run in runs:
+        if run.name not in table.columns:
+            table[run.name] = float("nan")
+    table = table[[run.name for run in runs]]
+    status = pd.DataFrame([[run.status for run in runs]], index=["status"], columns=table.columns)
+    return pd.concat([status, table.astype(object)])
+
+
+def _report() -> Any:
+    try:
+        import trimtab.report as report
+    except ImportError:
+        from trimtab.errors import TrimtabError
+
+        raise TrimtabError("trimtab.report is not available in this version of trimtab") from None
+    return report
+
+
+def describe(inputs: ScenarioInputs) -> Mapping[str, Any]:
+    """A JSON-ready description of a scenario's inputs (for ``trimtab check``)."""
+    spec = inputs.scenario.spec
+    model = inputs.model
+    return {
+        "scenario": inputs.scenario.name,
+        "file": str(inputs.scenario.path),
+        "extends": [str(p) for p in inputs.scenario.chain[1:]],
+        "model": {"n_assets": model.n_assets, "n_factors": model.n_factors, "factors": [str(f) for f in model.factors]},
+        "holdings": {"n_assets": int(len(inputs.holdings)), "invested": float(inputs.holdings.sum()), "nav": inputs.nav},
+        "benchmark": None if inputs.benchmark is None else {"n_assets": int(len(inputs.benchmark)), "sum": float(inputs.benchmark.sum())},
+        "alpha": None if inputs.alpha is None else {"n_scored": int((inputs.alpha != 0).sum())},
+        "attributes": None if inputs.attributes is None else [str(c) for c in inputs.attributes.columns],
+        "objective": dict(spec.objective),
+        "constraints": sorted(spec.constraints),
+        "alignment": inputs.alignment.sizes.reset_index(names="input").to_dict(orient="records"),
+    }

@@ -1,0 +1,143 @@
+"""The scenario file schema: pydantic models with unknown keys forbidden.
+
+Only the file-level sections are modelled here (data files, the model, output settings). The
+``objective`` and ``constraints`` sections are passed to :func:`trimtab.construct.validate_scenario`
+for their deep validation, so the optimizer owns its own vocabulary.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+FileFormat = Literal["auto", "csv", "parquet"]
+
+
+class _Strict(BaseModel):
+    """Base of every section: unknown keys are errors and parsed sections are immutable."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+
+class _FileSpec(_Strict):
+    """A table on disk; a bare string is shorthand for ``{path: <string>}``."""
+
+    path: str = Field(min_length=1, description="file path, relative to the scenario file")
+    format: FileFormat = Field("auto", description="csv or parquet; auto goes by the file extension")
+    asset_column: str = Field("asset", min_length=1, description="the column holding asset ids")
+
+    @model_validator(mode="before")
+    @classmethod
+    def _shorthand(cls, value: Any) -> Any:
+        return {"path": value} if isinstance(value, str) else value
+
+
+class ReturnsFile(_FileSpec):
+    """Returns, wide (first column the date, one column per asset) or long (date, asset, return)."""
+
+    layout: Literal["auto", "wide", "long"] = "auto"
+    date_column: str = Field("date", min_length=1)
+    value_column: str = Field("return", min_length=1, description="the return column of a long file")
+
+
+class SeriesFile(_FileSpec):
+    """One number per asset (alpha, benchmark weight): columns ``asset`` and ``column``."""
+
+    column: str | None = Field(None, min_length=1, description="the value column (default: alpha or weight)")
+
+
+class HoldingsFile(_FileSpec):
+    """Today's book, as weights of NAV or as share counts valued at prices."""
+
+    kind: Literal["weights", "shares"] = "weights"
+    column: str | None = Field(None, min_length=1, description="the weight or share-count column")
+    price_column: str = Field("price", min_length=1, description="price per share (holdings or attributes file)")
+    nav: float | None = Field(None, gt=0, description="net asset value; default: Σ shares·price + cash")
+    cash: float = Field(0.0, ge=0, description="cash held besides the positions, in currency")
+
+
+class AttributesFile(_FileSpec):
+    """Per-asset attributes: group labels (industry, country), price, average daily volume, costs."""
+
+
+class DataSection(_Strict):
+    """The input files of a rebalance."""
+
+    holdings: HoldingsFile
+    benchmark: SeriesFile | None = None
+    alpha: SeriesFile | None = None
+    attributes: AttributesFile | None = None
+    unknown_assets: Literal["error", "drop"] = Field(
+        "error", description="holdings or benchmark assets the model lacks: stop, or drop and report"
+    )
+
+
+class FitSettings(_Strict):
+    """How to estimate a risk model from return files (the ``trimtab fit`` config file)."""
+
+    method: Literal["time_series", "cross_section", "statistical"]
+    returns: ReturnsFile
+    factor_returns: ReturnsFile | None = Field(None, description="time_series: dates × factors")
+    exposures: _FileSpec | None = Field(None, description="cross_section: asset × characteristic table")
+    exposure_columns: list[str] | None = Field(None, description="cross_section: which characteristic columns")
+    industry_column: str | None = Field(None, description="cross_section: the industry column of exposures")
+    n_factors: int | None = Field(None, ge=1, description="statistical: the number of factors")
+    half_life: float | None = Field(None, gt=0, description="EWMA half-life in periods")
+    min_periods: int | None = Field(None, ge=2, description="fewest observations an asset needs")
+    periods_per_year: float = Field(252, gt=0)
+    factor_groups: dict[str, str] | None = Field(None, description="factor → group label for reports")
+    options: dict[str, Any] = Field(default_factory=dict, description="further estimator keywords")
+
+    @model_validator(mode="after")
+    def _method_inputs(self) -> FitSettings:
+        if self.method == "time_series" and self.factor_returns is None:
+            raise ValueError("method time_series needs factor_returns (a dates × factors file)")
+        if self.method == "cross_section" and self.exposures is None:
+            raise ValueError("method cross_section needs exposures (an asset × characteristic file)")
+        return self
+
+
+class FitConfig(FitSettings):
+    """A standalone fit config file: the fit settings plus an optional description."""
+
+    description: str | None = None
+
+
+class ModelSection(_Strict):
+    """The risk model: a saved model folder, or fit settings to estimate one on the fly."""
+
+    path: str | None = Field(None, min_length=1, description="a folder written by trimtab fit")
+    fit: FitSettings | None = None
+
+    @model_validator(mode="before")
+    @classmethod
+    def _shorthand(cls, value: Any) -> Any:
+        return {"path": value} if isinstance(value, str) else value
+
+    @model_validator(mode="after")
+    def _exactly_one(self) -> ModelSection:
+        if (self.path is None) == (self.fit is None):
+            raise ValueError("give exactly one of path (a saved model folder) or fit (fit settings)")
+        return self
+
+
+class OutputSection(_Strict):
+    """What ``trimtab rebalance`` and ``trimtab compare`` write."""
+
+    dir: str | None = Field(None, min_length=1, description="default: results/<name> next to the scenario")
+    tables: Literal["csv", "parquet", "none"] = "csv"
+    write_json: bool = Field(True, alias="json")
+    html: bool = True
+
+
+class ScenarioSpec(_Strict):
+    """A whole scenario file after ``extends`` has been merged."""
+
+    name: str = Field(min_length=1)
+    description: str | None = None
+    model: ModelSection
+    data: DataSection
+    objective: dict[str, Any]
+    constraints: dict[str, Any] = Field(default_factory=dict)
+    output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]

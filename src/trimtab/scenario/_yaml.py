@@ -1,0 +1,245 @@
+"""Reading scenario and fit-config YAML: ``extends`` chains, path anchoring, one-line errors.
+
+Every data path in a file is made absolute relative to the folder of the file that wrote it *before*
+files are merged, so a base scenario in another folder keeps pointing at its own data.
+"""
+
+from __future__ import annotations
+
+import os
+import types
+import typing
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+import yaml
+from pydantic import BaseModel, ValidationError
+
+from trimtab.errors import ScenarioError
+
+#: Key paths (within a scenario) whose value is a file path or a table spec with a ``path``.
+SCENARIO_PATHS: tuple[tuple[str, ...], ...] = (
+    ("model",),
+    ("model", "fit", "returns"),
+    ("model", "fit", "factor_returns"),
+    ("model", "fit", "exposures"),
+    ("data", "holdings"),
+    ("data", "benchmark"),
+    ("data", "alpha"),
+    ("data", "attributes"),
+    ("output", "dir"),
+)
+#: The same for a standalone fit config.
+FIT_PATHS: tuple[tuple[str, ...], ...] = (("returns",), ("factor_returns",), ("exposures",))
+
+#: Keys that belong to one file and are never inherited through ``extends``.
+NOT_INHERITED: tuple[tuple[str, ...], ...] = (("name",), ("output", "dir"))
+
+
+def read_yaml_mapping(path: Path, what: str = "scenario") -> dict[str, Any]:
+    """Parse ``path`` with ``yaml.safe_load``; the top level must be a mapping."""
+    if not path.exists():
+        raise ScenarioError(f"{path}: no such {what} file")
+    if path.is_dir():
+        raise ScenarioError(f"{path}: is a folder; expected a {what} YAML file")
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as err:
+        raise ScenarioError(f"{path}: could not read the {what} file: {err}") from None
+    try:
+        raw = yaml.safe_load(text)
+    except yaml.YAMLError as err:
+        mark = getattr(err, "problem_mark", None)
+        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
+        problem = getattr(err, "problem", None) or str(err).splitlines()[0]
+        raise ScenarioError(f"{path}: {where}not valid YAML: {problem}") from None
+    if raw is None:
+        raise ScenarioError(f"{path}: the {what} file is empty; expected a mapping of keys")
+    if not isinstance(raw, dict):
+        raise ScenarioError(f"{path}: expected a mapping of keys at the top level, got {type(raw).__name__}")
+    bad = [k for k in raw if not isinstance(k, str)]
+    if bad:
+        raise ScenarioError(f"{path}: keys must be text, got {bad[0]!r}")
+    return raw
+
+
+def anchor_paths(raw: dict[str, Any], folder: Path, key_paths: tuple[tuple[str, ...], ...]) -> dict[str, Any]:
+    """Return a copy of ``raw`` with every relative file path made absolute against ``folder``."""
+    out = _deep_copy(raw)
+    for key_path in key_paths:
+        parent: Any = out
+        for key in key_path[:-1]:
+            parent = parent.get(key) if isinstance(parent, dict) else None
+        if not isinstance(parent, dict) or key_path[-1] not in parent:
+            continue
+        last = key_path[-1]
+        value = parent[last]
+        if isinstance(value, str):
+            parent[last] = _absolute(value, folder)
+        elif isinstance(value, dict) and isinstance(value.get("path"), str):
+            value["path"] = _absolute(value["path"], folder)
+    return out
+
+
+def _absolute(value: str, folder: Path) -> str:
+    p = Path(os.path.expanduser(value))
+    return os.path.normpath(p if p.is_absolute() else folder / p)
+
+
+def _deep_copy(value: Any) -> Any:
+    if isinstance(value, dict):
+        return {k: _deep_copy(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_deep_copy(v) for v in value]
+    return value
+
+
+def deep_merge(base: Mapping[str, Any], child: Mapping[str, Any]) -> dict[str, Any]:
+    """Merge ``child`` over ``base``: mappings merge key by key, lists and scalars replace, and a
+    key set to null in the child removes it."""
+    out = _deep_copy(dict(base))
+    for key, value in child.items():
+        if value is None:
+            out.pop(key, None)
+        elif isinstance(value, dict) and isinstance(out.get(key), dict):
+            out[key] = deep_merge(out[key], value)
+        else:
+            out[key] = _deep_copy(value)
+    return out
+
+
+def _drop_key_path(raw: dict[str, Any], key_path: tuple[str, ...]) -> None:
+    parent: Any = raw
+    for key in key_path[:-1]:
+        parent = parent.get(key) if isinstance(parent, dict) else None
+    if isinstance(parent, dict):
+        parent.pop(key_path[-1], None)
+
+
+def _origins(raw: Mapping[str, Any], source: Path, prefix: tuple[str, ...] = ()) -> dict[tuple[str, ...], Path]:
+    out: dict[tuple[str, ...], Path] = {}
+    for key, value in raw.items():
+        out[prefix + (key,)] = source
+        if isinstance(value, dict):
+            out.update(_origins(value, source, prefix + (key,)))
+    return out
+
+
+def load_merged(path: Path) -> tuple[dict[str, Any], tuple[Path, ...], dict[tuple[str, ...], Path]]:
+    """Read ``path`` and its ``extends`` chain; return the merged mapping, the chain (the file
+    first, its furthest base last) and which file set each key path."""
+    chain: list[Path] = []
+    layers: list[dict[str, Any]] = []
+    current: Path | None = path.resolve() if path.exists() else path
+    while current is not None:
+        if current in chain:
+            via = " → ".join(p.name for p in [*chain, current])
+            raise ScenarioError(f"{chain[0]}: scenario {chain[0].name} extends itself (via {via})")
+        raw = read_yaml_mapping(current)
+        chain.append(current)
+        extends = raw.pop("extends", None)
+        layers.append(anchor_paths(raw, current.parent, SCENARIO_PATHS))
+        if extends is None:
+            current = None
+        elif not isinstance(extends, str) or not extends.strip():
+            raise ScenarioError(f"{current}: extends: expected the path of a base scenario file, got {extends!r}")
+        else:
+            base = Path(_absolute(extends, current.parent))
+            if not base.exists():
+                raise ScenarioError(f"{current}: extends: base scenario {extends!r} not found (looked at {base})")
+            current = base.resolve()
+    merged: dict[str, Any] = {}
+    origins: dict[tuple[str, ...], Path] = {}
+    for depth, (layer, source) in enumerate(zip(reversed(layers), reversed(chain))):
+        is_leaf = depth == len(layers) - 1
+        if not is_leaf:
+            layer = _deep_copy(layer)
+            for key_path in NOT_INHERITED:
+                _drop_key_path(layer, key_path)
+        merged = deep_merge(merged, layer)
+        origins.update(_origins(layer, source))
+    merged.setdefault("name", path.stem)
+    return merged, tuple(chain), origins
+
+
+# ---------------------------------------------------------------------- pydantic errors → one line
+def validate_model(
+    cls: type[BaseModel],
+    raw: Mapping[str, Any],
+    source: Path,
+    origins: Mapping[tuple[str, ...], Path] | None = None,
+) -> BaseModel:
+    """Validate ``raw`` against ``cls``; turn the first problem into one ScenarioError line."""
+    try:
+        return cls.model_validate(raw)
+    except ValidationError as err:
+        raise ScenarioError(describe_validation_error(err, cls, source, origins)) from None
+
+
+def describe_validation_error(
+    err: ValidationError,
+    cls: type[BaseModel],
+    source: Path,
+    origins: Mapping[tuple[str, ...], Path] | None = None,
+) -> str:
+    """``<file>: <key.path>: <what was expected>, got <value>`` for the first error, with a count."""
+    problems = err.errors(include_url=False)
+    first = problems[0]
+    loc = tuple(str(part) for part in first["loc"])
+    key_path = ".".join(loc) if loc else "(top level)"
+    kind = first["type"]
+    value = first.get("input")
+    if kind == "missing":
+        text = "required key missing"
+    elif kind == "extra_forbidden":
+        allowed = _allowed_keys(cls, loc[:-1])
+        text = "unknown key" + (f"; allowed here: {', '.join(allowed)}" if allowed else "")
+    else:
+        message = str(first["msg"])
+        for prefix in ("Value error, ", "Input should be "):
+            if message.startswith(prefix):
+                message = message[len(prefix):]
+        if kind.endswith("_type") or kind.startswith(("literal", "greater", "less", "string_too", "too_")):
+            message = f"expected {message}"
+        text = f"{message}, got {_short(value)}" if kind != "value_error" else message
+    file = source
+    if origins:
+        for n in range(len(loc), 0, -1):
+            if loc[:n] in origins:
+                file = origins[loc[:n]]
+                break
+    more = f" (and {len(problems) - 1} more problem{'s' if len(problems) > 2 else ''})" if len(problems) > 1 else ""
+    return f"{file}: {key_path}: {text}{more}"
+
+
+def _short(value: Any, limit: int = 60) -> str:
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
+def _allowed_keys(cls: type[BaseModel], loc: tuple[str, ...]) -> list[str]:
+    """The keys the model accepts at ``loc`` (walking nested models), by their file spelling."""
+    current: Any = cls
+    for part in loc:
+        model = _model_in(current)
+        if model is None or part not in _keys_of(model):
+            return []
+        current = _keys_of(model)[part]
+    model = _model_in(current)
+    return sorted(_keys_of(model)) if model is not None else []
+
+
+def _keys_of(model: type[BaseModel]) -> dict[str, Any]:
+    return {(f.alias or name): f.annotation for name, f in model.model_fields.items()}
+
+
+def _model_in(annotation: Any) -> type[BaseModel] | None:
+    if isinstance(annotation, type) and issubclass(annotation, BaseModel):
+        return annotation
+    if typing.get_origin(annotation) in (typing.Union, types.UnionType):
+        for arg in typing.get_args(annotation):
+            found = _model_in(arg)
+            if found is not None:
+                return found
+    return None
