@@ -1,0 +1,159 @@
+"""Boundary checks for the time-series estimator: the two return tables, their dates and the factors."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from trimtab._validation import check_unique, list_labels
+from trimtab.errors import InputError
+
+OWNER = "fit_time_series"
+
+#: Median spacing of the dates in days → periods per year, for :func:`infer_periods_per_year`.
+_SPACINGS: tuple[tuple[float, float, float, str], ...] = (
+    (0.5, 4.5, 252.0, "daily"),
+    (4.5, 9.5, 52.0, "weekly"),
+    (26.5, 32.5, 12.0, "monthly"),
+    (85.0, 95.0, 4.0, "quarterly"),
+    (360.0, 370.0, 1.0, "annual"),
+)
+
+
+def date_label(value: Any) -> str:
+    """A date as ISO text (just the day when there is no time of day), anything else as str."""
+    if isinstance(value, pd.Timestamp):
+        return str(value.date()) if value == value.normalize() else value.isoformat()
+    return str(value)
+
+
+def _check_frame(frame: Any, name: str, what: str) -> pd.DataFrame:
+    owner = f"{OWNER}: {name}"
+    if not isinstance(frame, pd.DataFrame):
+        raise InputError(f"{owner}: expected a DataFrame of dates × {what}, got {type(frame).__name__}")
+    if frame.shape[0] == 0 or frame.shape[1] == 0:
+        raise InputError(f"{owner} is empty (shape {frame.shape}); expected at least one date and one {what[:-1]}")
+    check_unique(frame.columns, what, owner)
+    check_unique(frame.index, "dates", owner)
+    index = frame.index
+    try:
+        increasing = bool(index.is_monotonic_increasing)
+    except TypeError:
+        raise InputError(f"{owner}: dates of mixed types cannot be ordered; expected increasing dates") from None
+    if not increasing:
+        values = index.to_numpy()
+        first = next(i for i in range(1, len(index)) if not values[i] > values[i - 1])
+        raise InputError(
+            f"{owner}: dates must be increasing; {date_label(index[first])} comes after "
+            f"{date_label(index[first - 1])} (sort with sort_index() first)"
+        )
+    bad = [c for c, dtype in zip(frame.columns, frame.dtypes) if not pd.api.types.is_numeric_dtype(dtype)]
+    if bad:
+        raise InputError(f"{owner}: non-numeric columns: {list_labels(bad)}; expected returns as numbers")
+    return frame
+
+
+def _cells(mask: np.ndarray, index: pd.Index, columns: pd.Index) -> str:
+    """'column on date' for the first few True cells of ``mask`` (rows = dates), date order."""
+    rows, cols = np.nonzero(mask)
+    cells = [f"{columns[c]} on {date_label(index[r])}" for r, c in zip(rows, cols)]
+    return list_labels(cells)
+
+
+def validated_returns(asset_returns: Any, factor_returns: Any) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Check both tables and return them on the common calendar (float64, same dates).
+
+    The calendar is every date on which at least one asset has a return; factor returns must exist
+    and be finite on each of those dates (their other dates are ignored).
+    """
+    assets = _check_frame(asset_returns, "asset_returns", "assets")
+    factors = _check_frame(factor_returns, "factor_returns", "factors")
+    values = assets.to_numpy(dtype=np.float64)
+    infinite = np.isinf(values)
+    if infinite.any():
+        raise InputError(
+            f"{OWNER}: asset_returns has infinite values: {_cells(infinite, assets.index, assets.columns)}; "
+            "expected finite returns (NaN marks a missing one)"
+        )
+    has_return = ~np.isnan(values).all(axis=1)
+    if not has_return.any():
+        raise InputError(f"{OWNER}: asset_returns has no returns at all (every value is NaN)")
+    calendar = assets.index[has_return]
+    common = calendar.intersection(factors.index)
+    if len(common) == 0:
+        raise InputError(
+            f"{OWNER}: asset_returns and factor_returns have no dates in common "
+            f"(asset dates {date_label(calendar[0])}…{date_label(calendar[-1])} [{calendar.dtype}], "
+            f"factor dates {date_label(factors.index[0])}…{date_label(factors.index[-1])} [{factors.index.dtype}])"
+        )
+    missing = calendar.difference(factors.index)
+    if len(missing):
+        raise InputError(
+            f"{OWNER}: factor_returns has no row for {len(missing)} date(s) with asset returns: "
+            f"{list_labels([date_label(d) for d in missing])}"
+        )
+    factor_values = factors.loc[calendar].astype(np.float64)
+    fv = factor_values.to_numpy()
+    bad = ~np.isfinite(fv)
+    if bad.any():
+        raise InputError(
+            f"{OWNER}: factor_returns has NaN or infinite values on dates with asset returns: "
+            f"{_cells(bad, calendar, factor_values.columns)}; factor returns must be complete"
+        )
+    if has_return.all():
+        asset_values = assets.astype(np.float64)
+    else:
+        asset_values = assets.loc[calendar].astype(np.float64)
+    return asset_values, factor_values
+
+
+def check_factor_rank(factors: np.ndarray, names: pd.Index, n_dates: int) -> None:
+    """Raise if a factor is constant or the factors are (numerically) collinear with the intercept."""
+    n_factors = factors.shape[1]
+    if n_dates < n_factors + 2:
+        raise InputError(
+            f"{OWNER}: {n_dates} dates with returns, fewer than the {n_factors + 2} needed for "
+            f"{n_factors} factors + intercept + 1 residual degree of freedom"
+        )
+    spread = np.ptp(factors, axis=0)
+    constant = names[spread == 0]
+    if len(constant):
+        raise InputError(
+            f"{OWNER}: factor_returns columns are constant over the {n_dates} dates used "
+            f"(collinear with the intercept): {list_labels(constant)}"
+        )
+    centred = factors - factors.mean(axis=0)
+    standardised = centred / np.sqrt(np.mean(centred**2, axis=0))
+    _, singular, vt = np.linalg.svd(standardised, full_matrices=False)
+    # condition number above 10⁶ on standardised columns: numerically collinear
+    null = singular < 1e-6 * singular[0]
+    if null.any():
+        involved = np.abs(vt[null]).max(axis=0) > 1e-6
+        raise InputError(
+            f"{OWNER}: factor_returns columns are perfectly collinear over the {n_dates} dates used "
+            f"(one is a linear combination of the others and the intercept): {list_labels(names[involved])}"
+        )
+
+
+def infer_periods_per_year(index: pd.Index) -> float:
+    """252, 52, 12, 4 or 1 from the median spacing of the dates; raise if it fits none of them."""
+    hint = "pass periods_per_year explicitly"
+    if not isinstance(index, pd.DatetimeIndex):
+        raise InputError(
+            f"{OWNER}: cannot infer periods_per_year from dates of type {index.dtype} "
+            f"(read dates with parse_dates, or {hint})"
+        )
+    if len(index) < 2:
+        raise InputError(f"{OWNER}: cannot infer periods_per_year from a single date; {hint}")
+    days = float(np.median((index[1:] - index[:-1]).total_seconds())) / 86_400.0
+    for low, high, per_year, _ in _SPACINGS:
+        if low <= days < high:
+            return per_year
+    known = ", ".join(f"{name} {per_year:g}" for _, _, per_year, name in _SPACINGS)
+    raise InputError(
+        f"{OWNER}: cannot infer periods_per_year from a median date spacing of {days:.3g} days "
+        f"(known: {known}); {hint}"
+    )
+
