@@ -1,0 +1,746 @@
+"""The fundamental (cross-sectional) factor model: one weighted regression of returns on exposures per date.
+
+Each date t solves r_t = X_t f_t + u_t by weighted least squares, with X_t = [market, industry
+dummies, style scores]. When both the market and a full set of industry dummies are present their
+columns are collinear; the industry factor returns are then tied by Σ_j c_j f_j = 0 with c_j the
+total regression weight of industry j on that date, imposed exactly through a restriction matrix.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import warnings
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+
+from trimtab._validation import check_unique, list_labels
+from trimtab._version import __version__
+from trimtab.errors import DataWarning, InputError
+from trimtab.model._covariance import CovarianceSettings, _check_frame, factor_covariance, specific_variance
+from trimtab.model._factor_model import FactorModel
+from trimtab.model._fit_report import FitReport
+
+OWNER = "fit_cross_section"
+
+#: Relative size of the smallest eigenvalue of the (diagonally scaled) normal matrix below which a
+#: date's exposures count as collinear.
+_COLLINEAR_TOL = 1e-10
+
+#: Median spacing of dates in days → periods per year (business-daily data has 1–4 day gaps).
+_SPACING_RULES = ((0.5, 4.5, 252.0), (5.5, 8.5, 52.0), (26.0, 33.0, 12.0), (85.0, 95.0, 4.0), (360.0, 370.0, 1.0))
+
+CONSTRAINT_TEXT = (
+    "sum_j c_j f_j = 0 over the industry factors on every date, c_j = total regression weight of "
+    "industry j on that date (imposed as f = R g; the pivot industry is the one with the largest c_j)"
+)
+
+
+# ---------------------------------------------------------------------------------------------
+# Helpers shared with the statistical estimator
+# ---------------------------------------------------------------------------------------------
+
+
+def check_returns_panel(asset_returns: Any, owner: str) -> pd.DataFrame:
+    """Validate a dates × assets return panel (NaN allowed) and return it as float64."""
+    _check_frame(asset_returns, f"{owner}: asset_returns", "assets", allow_nan=True)
+    if asset_returns.shape[1] == 0:
+        raise InputError(f"{owner}: asset_returns has no asset columns")
+    return asset_returns.astype(np.float64)
+
+
+def infer_periods_per_year(index: pd.Index, periods_per_year: Any, owner: str) -> float:
+    """``periods_per_year`` as given, or inferred from the median spacing of the dates.
+
+    Rules (common practice, no source): median gap ≤ 4 days → 252 (business-daily), 6–8 → 52,
+    26–33 → 12, 85–95 → 4, 360–370 → 1.
+    """
+    if periods_per_year is not None:
+        ok = isinstance(periods_per_year, (int, float, np.integer, np.floating)) and not isinstance(periods_per_year, bool)
+        if not ok or not np.isfinite(periods_per_year) or periods_per_year <= 0:
+            raise InputError(f"{owner}: periods_per_year must be a positive number or None, got {periods_per_year!r}")
+        return float(periods_per_year)
+    if isinstance(index, pd.PeriodIndex):
+        index = index.to_timestamp()
+    if not isinstance(index, pd.DatetimeIndex) or len(index) < 2:
+        raise InputError(
+            f"{owner}: cannot infer periods_per_year from an index of type {type(index).__name__} "
+            f"with {len(index)} entries; pass periods_per_year (252 daily, 52 weekly, 12 monthly)"
+        )
+    gap = float(np.median(np.diff(index.to_numpy()).astype("timedelta64[s]").astype(np.float64))) / 86_400.0
+    for low, high, value in _SPACING_RULES:
+        if low <= gap <= high:
+            return value
+    raise InputError(
+        f"{owner}: cannot infer periods_per_year from a median date spacing of {gap:g} days; pass periods_per_year"
+    )
+
+
+def iso_label(value: Any) -> str:
+    """A date as an ISO string (other labels as ``str``)."""
+    if isinstance(value, (pd.Timestamp, np.datetime64)):
+        stamp = pd.Timestamp(value)
+        return stamp.isoformat() if (stamp.hour or stamp.minute or stamp.second) else str(stamp.date())
+    return str(value)
+
+
+def settings_record(covariance: CovarianceSettings | None) -> dict[str, Any] | None:
+    """The covariance settings as a plain dict (for provenance and the manifest)."""
+    if covariance is None:
+        return None
+    if not isinstance(covariance, CovarianceSettings):
+        raise InputError(f"covariance: expected CovarianceSettings or None, got {type(covariance).__name__}")
+    return dataclasses.asdict(covariance)
+
+
+def observed_at_least(frame: pd.DataFrame, minimum: int) -> pd.Index:
+    """Columns of ``frame`` with at least ``minimum`` non-NaN values."""
+    counts = frame.notna().sum(axis=0).to_numpy()
+    return frame.columns[counts >= minimum]
+
+
+def per_asset_fit(returns: np.ndarray, residuals: np.ndarray) -> dict[str, np.ndarray]:
+    """n_observations, residual volatility and 1 − var(u)/var(r) per column over the observed dates.
+
+    Both inputs are T × N with NaN where the asset was not in the fit; variances use divisor n − 1.
+    """
+    observed = np.isfinite(residuals)
+    n_obs = observed.sum(axis=0)
+    safe = np.maximum(n_obs - 1, 1).astype(np.float64)
+
+    def _var(values: np.ndarray) -> np.ndarray:
+        filled = np.where(observed, values, 0.0)
+        mean = filled.sum(axis=0) / np.maximum(n_obs, 1)
+        centred = np.where(observed, values - mean, 0.0)
+        return (centred * centred).sum(axis=0) / safe
+
+    var_u, var_r = _var(residuals), _var(returns)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r_squared = np.where((n_obs > 1) & (var_r > 0), 1.0 - var_u / var_r, np.nan)
+    return {
+        "n_observations": n_obs.astype(np.int64),
+        "residual_volatility": np.where(n_obs > 1, np.sqrt(var_u), np.nan),
+        "r_squared": r_squared,
+    }
+
+
+def warn_dropped(dropped: pd.Series, owner: str) -> None:
+    """One DataWarning summarising the assets an estimator left out, by reason."""
+    if len(dropped) == 0:
+        return
+    parts = [f"{reason}: {list_labels(group.index)}" for reason, group in dropped.groupby(dropped, sort=True)]
+    warnings.warn(f"{owner}: {len(dropped)} assets left out ({'; '.join(parts)})", DataWarning, stacklevel=3)
+
+
+def assemble_model(
+    method: str,
+    exposures: pd.DataFrame,
+    factor_cov: pd.DataFrame,
+    specific: pd.Series,
+    report_parts: dict[str, Any],
+    *,
+    periods_per_year: float,
+    factor_groups: Mapping[str, str] | None,
+) -> FactorModel:
+    """The FactorModel with its FitReport and provenance (estimator, settings, window, version)."""
+    report = FitReport(method=method, **report_parts)
+    dates = report.residuals.index
+    return FactorModel(
+        exposures,
+        factor_cov,
+        specific,
+        periods_per_year=periods_per_year,
+        factor_groups=factor_groups,
+        fit_report=report,
+        provenance={
+            "estimator": method,
+            "settings": dict(report.settings),
+            "window": [iso_label(dates[0]), iso_label(dates[-1])],
+            "version": __version__,
+        },
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Exposures: static (assets × factors) or long (date, asset, factors…)
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class _Snapshot:
+    """Exposures known on one date (or for the whole window when static)."""
+
+    date: Any
+    assets: pd.Index
+    styles: np.ndarray  # n × S
+    codes: np.ndarray  # n industry codes (0..J−1), empty when there are no industries
+    weight: np.ndarray  # n regression weights
+
+
+def _label_column(
+    source: Any, frame: pd.DataFrame, assets: pd.Index, name: str, *, numeric: bool
+) -> tuple[np.ndarray | None, str | None]:
+    """Values of ``industry`` / ``weights`` aligned to ``assets`` and a description for settings."""
+    if source is None:
+        return None, None
+    if isinstance(source, str):
+        if source not in frame.columns:
+            raise InputError(f"{OWNER}: {name}={source!r} is not a column of exposures; columns: {list_labels(frame.columns)}")
+        values = frame[source].reset_index(drop=True)
+        values.index = assets
+        described = f"column {source}"
+    elif isinstance(source, pd.Series):
+        check_unique(source.index, "asset ids", f"{OWNER}: {name}")
+        missing = assets.difference(source.index, sort=False)
+        if len(missing):
+            raise InputError(f"{OWNER}: {name}: exposures missing for assets: {list_labels(missing)}")
+        values = source.reindex(assets)
+        described = "series"
+    else:
+        raise InputError(f"{OWNER}: {name} must be a Series by asset, a column name or None, got {type(source).__name__}")
+    blank = values.isna().to_numpy()
+    if blank.any():
+        raise InputError(f"{OWNER}: {name}: missing values for assets: {list_labels(assets[blank])}")
+    if not numeric:
+        return values.to_numpy(dtype=object), described
+    if not pd.api.types.is_numeric_dtype(values):
+        raise InputError(f"{OWNER}: {name}: expected positive numbers, got dtype {values.dtype}")
+    arr = values.to_numpy(dtype=np.float64)
+    bad = ~np.isfinite(arr) | (arr <= 0)
+    if bad.any():
+        raise InputError(f"{OWNER}: {name}: regression weights must be positive and finite; bad for assets: {list_labels(assets[bad])}")
+    return arr, described
+
+
+def _style_matrix(frame: pd.DataFrame, styles: list[Any], dates: pd.Series | None) -> np.ndarray:
+    bad = [c for c in styles if not pd.api.types.is_numeric_dtype(frame[c]) or pd.api.types.is_bool_dtype(frame[c])]
+    if bad:
+        raise InputError(f"{OWNER}: exposures: non-numeric columns: {list_labels(bad)}; expected numbers")
+    values = frame[styles].to_numpy(dtype=np.float64)
+    finite = np.isfinite(values)
+    if not finite.all():
+        rows, cols = np.nonzero(~finite)
+        assets = frame["asset"].to_numpy() if dates is not None else frame.index.to_numpy()
+        where = [
+            (f"{iso_label(dates.iloc[r])}/" if dates is not None else "") + f"{assets[r]}/{styles[c]}"
+            for r, c in zip(rows[:6], cols[:6])
+        ]
+        raise InputError(
+            f"{OWNER}: exposures: {len(rows)} NaN or infinite values, at {list_labels(where)} "
+            "(date/asset/column); every exposure must be a number"
+        )
+    return values
+
+
+def _parse_exposures(
+    exposures: Any, industry: Any, weights: Any, date_index: pd.Index
+) -> tuple[list[_Snapshot], list[str], list[Any], dict[str, Any]]:
+    """Snapshots in date order, industry labels, style names and a description of the inputs."""
+    if not isinstance(exposures, pd.DataFrame):
+        raise InputError(f"{OWNER}: exposures must be a DataFrame (assets × factors, or long with date and asset columns), got {type(exposures).__name__}")
+    check_unique(exposures.columns, "columns", f"{OWNER}: exposures")
+    long = "date" in exposures.columns and "asset" in exposures.columns
+    special = {c for c in (industry, weights) if isinstance(c, str)}
+    if long:
+        frame = exposures.reset_index(drop=True)
+        dates = frame["date"]
+        if isinstance(date_index, pd.DatetimeIndex):
+            try:
+                dates = pd.to_datetime(dates)
+            except (TypeError, ValueError) as err:
+                raise InputError(f"{OWNER}: exposures: the date column cannot be read as dates: {err}") from err
+        pairs = pd.MultiIndex.from_arrays([dates, frame["asset"]])
+        if not pairs.is_unique:
+            dups = [f"{iso_label(d)}/{a}" for d, a in pairs[pairs.duplicated()].unique()]
+            raise InputError(f"{OWNER}: exposures: duplicate (date, asset) rows: {list_labels(dups)}")
+        assets_all = pd.Index(frame["asset"])
+        styles = [c for c in frame.columns if c not in {"date", "asset"} | special]
+    else:
+        frame = exposures
+        check_unique(frame.index, "asset ids", f"{OWNER}: exposures")
+        dates = None
+        assets_all = frame.index
+        styles = [c for c in frame.columns if c not in special]
+    style_values = _style_matrix(frame, styles, dates)
+    labels, industry_desc = _label_column(industry, frame, assets_all, "industry", numeric=False)
+    weight_values, weight_desc = _label_column(weights, frame, assets_all, "weights", numeric=True)
+    if weight_values is None:
+        weight_values = np.ones(len(assets_all))
+    if labels is None:
+        industries: list[Any] = []
+        codes = np.zeros(0, dtype=np.int64)
+    else:
+        industries = sorted(pd.unique(labels), key=str)
+        codes = pd.Index(industries).get_indexer(labels).astype(np.int64)
+    snapshots: list[_Snapshot] = []
+    if dates is None:
+        snapshots.append(_Snapshot(None, pd.Index(assets_all), style_values, codes, weight_values))
+    else:
+        try:
+            order = np.argsort(dates.to_numpy(), kind="stable")
+        except TypeError as err:
+            raise InputError(f"{OWNER}: exposures: dates cannot be ordered: {err}") from err
+        sorted_dates = dates.to_numpy()[order]
+        unique_dates, starts = np.unique(sorted_dates, return_index=True)
+        bounds = list(starts) + [len(order)]
+        for j, date in enumerate(unique_dates):
+            rows = order[bounds[j]:bounds[j + 1]]
+            snapshots.append(
+                _Snapshot(
+                    pd.Timestamp(date) if isinstance(date, np.datetime64) else date,
+                    pd.Index(assets_all[rows]),
+                    style_values[rows],
+                    codes[rows] if len(codes) else codes,
+                    weight_values[rows],
+                )
+            )
+    described = {
+        "exposure_format": "long" if long else "static",
+        "industry": industry_desc,
+        "weights": weight_desc or "equal",
+    }
+    return snapshots, industries, styles, described
+
+
+# ---------------------------------------------------------------------------------------------
+# The restricted weighted least squares core (ndarray in, ndarray out)
+# ---------------------------------------------------------------------------------------------
+
+
+def restriction_matrix(industry_weight: np.ndarray, n_before: int, n_styles: int) -> tuple[np.ndarray, int]:
+    """R (p × p−1) with f = R g satisfying Σ_j c_j f_j = 0, and the pivot industry's position.
+
+    The industry columns sit at ``n_before … n_before + J − 1``. The pivot industry J* (largest c_j)
+    is expressed through the others, f_J* = −Σ_{j≠J*} (c_j / c_J*) f_j; every other factor return is
+    a free parameter.
+    """
+    n_industries = len(industry_weight)
+    p = n_before + n_industries + n_styles
+    pivot = n_before + int(np.argmax(industry_weight))
+    keep = [i for i in range(p) if i != pivot]
+    R = np.eye(p)[:, keep]
+    industry_cols = [keep.index(n_before + j) for j in range(n_industries) if n_before + j != pivot]
+    others = [j for j in range(n_industries) if n_before + j != pivot]
+    R[pivot, industry_cols] = -industry_weight[others] / industry_weight[pivot - n_before]
+    return R, pivot
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class _BlockFit:
+    factor_returns: np.ndarray  # p × T_g
+    residuals: np.ndarray  # n × T_g
+    t_stats: np.ndarray  # p × T_g
+    r_squared: np.ndarray  # T_g
+    industry_weight: np.ndarray  # J
+
+
+def _dense(product: Any) -> np.ndarray:
+    return product.toarray() if sp.issparse(product) else np.asarray(product)
+
+
+def restricted_wls(
+    styles: np.ndarray,
+    codes: np.ndarray,
+    n_industries: int,
+    weight: np.ndarray,
+    Y: np.ndarray,
+    market: bool,
+) -> _BlockFit:
+    """Weighted cross-sectional regressions sharing one design, for a block of dates.
+
+    Parameters
+    ----------
+    styles : (n, S) style scores; codes : (n,) industry codes in 0..J−1 (ignored when J = 0);
+    weight : (n,) positive regression weights; Y : (n, T_g) returns, one column per date;
+    market : whether a column of ones leads the design.
+
+    The normal matrix G = XᵀWX is assembled blockwise, with the industry dummies as a sparse
+    matrix (their block of G is diag(c)), so the cost is O(n·S² + n·T_g·(S + 1)), not O(n·p²).
+    """
+    n, n_styles = styles.shape
+    m = int(market)
+    parts: list[Any] = [np.ones((n, 1))] if market else []
+    if n_industries:
+        parts.append(sp.csr_matrix((np.ones(n), (np.arange(n), codes)), shape=(n, n_industries)))
+    if n_styles:
+        parts.append(styles)
+    weighted = [sp.csr_matrix(part.multiply(weight[:, None])) if sp.issparse(part) else weight[:, None] * part for part in parts]
+    G = np.block([[_dense(a.T @ b) for b in weighted] for a in parts])
+    wY = weight[:, None] * Y
+    b = np.vstack([_dense(a.T @ wY) for a in parts])
+    c = np.bincount(codes, weights=weight, minlength=n_industries) if n_industries else np.zeros(0)
+    p = G.shape[0]
+    if m and n_industries:
+        R, _ = restriction_matrix(c, m, n_styles)
+    else:
+        R = np.eye(p)
+    q = R.shape[1]
+    G_r = R.T @ G @ R
+    scale = 1.0 / np.sqrt(np.diag(G_r))
+    G_scaled = G_r * np.outer(scale, scale)
+    values, vectors = np.linalg.eigh(G_scaled)
+    if values[0] <= _COLLINEAR_TOL * values[-1]:
+        raise np.linalg.LinAlgError("collinear")
+    inverse = (vectors / values) @ vectors.T * np.outer(scale, scale)
+    g = inverse @ (R.T @ b)
+    f = R @ g
+    fitted = styles @ f[m + n_industries:]
+    if m:
+        fitted += f[0]
+    if n_industries:
+        fitted += f[m:m + n_industries][codes]
+    u = Y - fitted
+    ssr = (weight[:, None] * u * u).sum(axis=0)
+    s2 = ssr / (n - q)
+    cov_diag = np.einsum("ij,jk,ik->i", R, inverse, R)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t_stats = f / np.sqrt(np.outer(cov_diag, s2))
+        if m or n_industries:
+            mean = wY.sum(axis=0) / weight.sum()
+            tss = (weight[:, None] * (Y - mean) ** 2).sum(axis=0)
+        else:
+            tss = (wY * Y).sum(axis=0)
+        r_squared = 1.0 - ssr / tss
+    return _BlockFit(f, u, t_stats, r_squared, c)
+
+
+# ---------------------------------------------------------------------------------------------
+# The public estimator
+# ---------------------------------------------------------------------------------------------
+
+
+def _date_blocks(
+    returns: np.ndarray, dates: pd.Index, snapshots: list[_Snapshot], columns: list[np.ndarray]
+) -> tuple[dict[tuple[int, bytes], list[int]], list[Any]]:
+    """Group the dates that share a design: the same snapshot and the same assets with a return."""
+    blocks: dict[tuple[int, bytes], list[int]] = {}
+    skipped: list[Any] = []
+    if snapshots[0].date is None:
+        snap_of = np.zeros(len(dates), dtype=np.int64)
+    else:
+        snap_dates = np.array([s.date for s in snapshots], dtype=object)
+        try:
+            snap_of = np.searchsorted(pd.Index(list(snap_dates)), dates, side="left") - 1
+        except TypeError as err:
+            raise InputError(f"{OWNER}: exposures: dates cannot be compared with the return dates: {err}") from err
+    for t in range(len(dates)):
+        s = int(snap_of[t])
+        if s < 0:
+            skipped.append(dates[t])
+            continue
+        cols = columns[s]
+        present = cols >= 0
+        present[present] = np.isfinite(returns[t, cols[present]])
+        if not present.any():
+            skipped.append(dates[t])
+            continue
+        blocks.setdefault((s, np.packbits(present).tobytes()), []).append(t)
+    return blocks, skipped
+
+
+def _check_blocks(
+    blocks: dict[tuple[int, bytes], list[int]],
+    snapshots: list[_Snapshot],
+    dates: pd.Index,
+    industries: list[Any],
+    styles: list[Any],
+    market: bool,
+    min_assets: int,
+    n_free: int,
+) -> dict[tuple[int, bytes], np.ndarray]:
+    """Rows of each block's regression; raises on too few assets, empty industries, constant styles."""
+    rows_of: dict[tuple[int, bytes], np.ndarray] = {}
+    few: list[Any] = []
+    empty: dict[Any, list[Any]] = {}
+    constant: dict[Any, list[Any]] = {}
+    for key, ts in blocks.items():
+        snap = snapshots[key[0]]
+        present = np.unpackbits(np.frombuffer(key[1], dtype=np.uint8), count=len(snap.assets)).astype(bool)
+        rows = np.flatnonzero(present)
+        rows_of[key] = rows
+        first = dates[ts[0]]
+        if len(rows) < min_assets:
+            few.extend(dates[t] for t in ts)
+            continue
+        if industries:
+            counts = np.bincount(snap.codes[rows], minlength=len(industries))
+            for j in np.flatnonzero(counts == 0):
+                empty.setdefault(industries[j], []).append(first)
+        if (market or industries) and len(styles):
+            spread = np.ptp(snap.styles[rows], axis=0)
+            for k in np.flatnonzero(spread == 0):
+                constant.setdefault(styles[k], []).append(first)
+    if few:
+        raise InputError(
+            f"{OWNER}: fewer assets with a return and exposures than min_assets={min_assets} "
+            f"(the regression has {n_free} free factor returns) on dates: {list_labels([iso_label(d) for d in sorted(few)])}"
+        )
+    if empty:
+        name, on = next(iter(empty.items()))
+        raise InputError(
+            f"{OWNER}: industry {name!r} has no member with a return on dates: "
+            f"{list_labels([iso_label(d) for d in on])}; merge it into another industry or drop it"
+        )
+    if constant:
+        name, on = next(iter(constant.items()))
+        raise InputError(
+            f"{OWNER}: style column {name!r} is constant across assets (collinear with the market or industry "
+            f"factors) on dates: {list_labels([iso_label(d) for d in on])}"
+        )
+    return rows_of
+
+
+def _dropped_assets(
+    returned: pd.Index, exposed: pd.Index, latest: pd.Index, enough: pd.Index, keep: pd.Index
+) -> pd.Series:
+    """Asset → reason for every asset seen in the inputs but not in the model (first reason that applies)."""
+    universe = returned.append(exposed.difference(returned, sort=False))
+    out = universe[~universe.isin(keep)]
+    reasons = np.select(
+        [~out.isin(exposed), ~out.isin(returned), ~out.isin(latest)],
+        ["no exposures", "no returns", "no exposures on the latest exposure date"],
+        default="fewer than 2 specific returns",
+    )
+    return pd.Series(reasons, index=out, dtype=object, name="reason")
+
+
+def fit_cross_section(
+    asset_returns: pd.DataFrame,
+    exposures: pd.DataFrame,
+    *,
+    industry: pd.Series | str | None = None,
+    weights: pd.Series | str | None = None,
+    market: bool = True,
+    covariance: CovarianceSettings | None = None,
+    min_assets: int | None = None,
+    periods_per_year: float | None = None,
+    factor_groups: Mapping[str, str] | None = None,
+) -> FactorModel:
+    """Fit a fundamental factor model by weighted cross-sectional regression, date by date.
+
+    Parameters
+    ----------
+    asset_returns : pandas.DataFrame
+        Dates × assets per-period returns, dates increasing; NaN where an asset has no return (the
+        asset is left out of that date's regression).
+    exposures : pandas.DataFrame
+        Either static exposures, assets × style factors (index = asset ids), used on every date; or
+        a long table with columns ``date``, ``asset`` and one column per style factor, of exposures
+        as known at the close of ``date``.
+    industry : pandas.Series, str or None
+        Asset → industry label, or the name of a column of ``exposures`` holding it (time-varying in
+        the long form). Each label becomes a 0/1 industry factor. None: no industry factors.
+    weights : pandas.Series, str or None
+        Asset → positive regression weight (or a column of ``exposures``). Common practice (no
+        source): the square root of market capitalisation, which down-weights the noisy small
+        stocks. None: equal weights (ordinary least squares).
+    market : bool, default True
+        Lead the design with a column of ones, the market factor.
+    covariance : CovarianceSettings, optional
+        Refinements for F and d (:func:`trimtab.model.factor_covariance`,
+        :func:`trimtab.model.specific_variance`); None gives the sample estimates.
+    min_assets : int, optional
+        Fewest assets a date's regression may use; default (and minimum) the number of free factor
+        returns plus one.
+    periods_per_year : float, optional
+        Inferred from the median spacing of the dates when None.
+    factor_groups : Mapping[str, str], optional
+        Factor → group; default ``market`` → "market", styles → "style", industries → "industry".
+
+    Returns
+    -------
+    FactorModel
+        Exposures of the latest snapshot (market = 1, industry dummies, style scores), F from the
+        estimated factor returns, d from the specific returns, and a :class:`FitReport` with
+        ``factor_returns``, ``residuals`` (specific returns), per-asset ``n_observations``,
+        ``residual_volatility`` and ``r_squared`` = 1 − var(u_i)/var(r_i), and ``extra`` holding
+        ``r_squared_by_date``, ``t_stats_by_date``, ``industry_weights`` (c_j by date),
+        ``constraint`` and ``skipped_dates``.
+
+    Raises
+    ------
+    InputError
+        For duplicate dates or assets, non-numeric or NaN exposures, asset ids that do not match
+        between exposures and returns, missing industry labels or weights, an industry with no member
+        on a date, a style column that is constant across assets, collinear exposures, or fewer
+        assets than ``min_assets`` on a date.
+
+    Warns
+    -----
+    DataWarning
+        When assets are left out (no exposures, no returns, too few specific returns; all listed in
+        ``fit_report.dropped``) or dates are skipped (no returns, or no exposures known before them).
+
+    Notes
+    -----
+    On each date t, with W_t = diag(w) over the assets that have a return and exposures,
+
+        f̂_t = argmin (r_t − X_t f)ᵀ W_t (r_t − X_t f),   X_t = [1, D_t, S_t].
+
+    When ``market`` and industries are both present, 1 = D_t·1 and the industry returns are
+    identified by Σ_j c_j f_j = 0 with c_j = Σ_{i ∈ j} w_i (the weighted industry returns net out
+    and the market factor is the weighted mean return). It is imposed exactly: f = R g with R
+    expressing the largest industry through the others, ĝ = (RᵀXᵀWXR)⁻¹RᵀXᵀWr, f̂ = Rĝ. This is
+    restricted least squares (Greene, ch. 5); the fitted values and residuals equal those of the
+    unconstrained regression with one industry dummy dropped (same column space).
+
+    Lag convention: the return of date t (from the close of t−1 to the close of t) is regressed on
+    the exposures known at the start of the period — with static exposures, the given ones; with a
+    long table, those of the latest exposure date strictly before t. Dates before the first
+    exposure date are skipped (reported).
+
+    Specific returns u_it feed :func:`specific_variance` with dof = 0: they are residuals of
+    cross-sectional regressions, which spend q parameters on n_t assets per date, not of per-asset
+    time-series fits, so no per-asset degrees of freedom are lost. Industry labels of the latest
+    snapshot are the groups for specific-variance shrinkage.
+
+    Per-date t-statistics use s²_t = Σ w u²/(n_t − q) and cov(f̂) = s²_t R(RᵀXᵀWXR)⁻¹Rᵀ.
+    ``r_squared_by_date`` is the weighted R², centred when the market or industries are present.
+
+    References
+    ----------
+    Greene, W. H. (2012). Econometric Analysis, 7th ed., section 5.3 (restricted least squares).
+    Fama, E. F. and MacBeth, J. D. (1973). Risk, return, and equilibrium: empirical tests. Journal
+    of Political Economy 81(3), 607–636 (period-by-period cross-sectional regressions).
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> rng = np.random.default_rng(0)
+    >>> assets = [f"A{i}" for i in range(30)]
+    >>> X = pd.DataFrame({"size": rng.normal(size=30)}, index=assets)
+    >>> R = pd.DataFrame(rng.normal(0, 0.01, (60, 30)), columns=assets,
+    ...                  index=pd.bdate_range("2024-01-01", periods=60))
+    >>> model = fit_cross_section(R, X, industry=pd.Series(["a", "b"] * 15, index=assets))
+    >>> list(model.factors)
+    ['market', 'a', 'b', 'size']
+    """
+    returns = check_returns_panel(asset_returns, OWNER)
+    if not isinstance(market, bool):
+        raise InputError(f"{OWNER}: market must be True or False, got {market!r}")
+    settings = settings_record(covariance)
+    ppy = infer_periods_per_year(returns.index, periods_per_year, OWNER)
+    snapshots, industries, styles, described = _parse_exposures(exposures, industry, weights, returns.index)
+    industry_names = [str(j) for j in industries]
+    factors = (["market"] if market else []) + industry_names + [str(s) for s in styles]
+    if len(set(factors)) != len(factors):
+        clash = pd.Index(factors)[pd.Index(factors).duplicated()]
+        raise InputError(f"{OWNER}: factor names used twice (market, industry labels and style columns): {list_labels(clash)}")
+    if not factors:
+        raise InputError(f"{OWNER}: no factors: give style columns, an industry or market=True")
+    n_free = len(factors) - int(market and len(industries) > 0)
+    if min_assets is None:
+        min_assets = n_free + 1
+    elif not isinstance(min_assets, (int, np.integer)) or isinstance(min_assets, bool) or min_assets < n_free + 1:
+        raise InputError(f"{OWNER}: min_assets must be a whole number >= {n_free + 1} (free factor returns + 1), got {min_assets!r}")
+
+    all_exposed = pd.Index(pd.unique(np.concatenate([s.assets.to_numpy(dtype=object) for s in snapshots])))
+    common = returns.columns.intersection(all_exposed, sort=False)
+    if len(common) == 0:
+        raise InputError(
+            f"{OWNER}: asset ids do not match between exposures ({list_labels(all_exposed)}) and "
+            f"asset_returns ({list_labels(returns.columns)})"
+        )
+    values = returns.to_numpy()
+    columns = [returns.columns.get_indexer(s.assets) for s in snapshots]
+    blocks, skipped = _date_blocks(values, returns.index, snapshots, columns)
+    if not blocks:
+        raise InputError(f"{OWNER}: no date has both returns and exposures known before it")
+    rows_of = _check_blocks(
+        blocks, snapshots, returns.index, industries, styles, market, int(min_assets), n_free
+    )
+
+    n_dates, n_factors, n_industries = len(returns.index), len(factors), len(industries)
+    f_all = np.full((n_dates, n_factors), np.nan)
+    t_all = np.full((n_dates, n_factors), np.nan)
+    r2_all = np.full(n_dates, np.nan)
+    c_all = np.full((n_dates, n_industries), np.nan)
+    u_all = np.full(values.shape, np.nan)
+    for key, ts in blocks.items():
+        snap, rows = snapshots[key[0]], rows_of[key]
+        cols = columns[key[0]][rows]
+        codes = snap.codes[rows] if n_industries else snap.codes
+        try:
+            fit = restricted_wls(snap.styles[rows], codes, n_industries, snap.weight[rows], values[np.ix_(ts, cols)].T, market)
+        except np.linalg.LinAlgError:
+            raise InputError(
+                f"{OWNER}: exposures are collinear on date {iso_label(returns.index[ts[0]])}: some style "
+                f"columns {list_labels(styles)} are linear combinations of the others or of the industry dummies"
+            ) from None
+        f_all[ts] = fit.factor_returns.T
+        t_all[ts] = fit.t_stats.T
+        r2_all[ts] = fit.r_squared
+        if n_industries:
+            c_all[ts] = fit.industry_weight
+        u_all[np.ix_(ts, cols)] = fit.residuals.T
+
+    used = np.isfinite(r2_all)
+    used_dates = returns.index[used]
+    if used.sum() < 2:
+        raise InputError(f"{OWNER}: need at least 2 dates with a regression, got {int(used.sum())}")
+    if skipped:
+        warnings.warn(
+            f"{OWNER}: skipped {len(skipped)} dates with no returns or no exposures known before them: "
+            f"{list_labels([iso_label(d) for d in skipped])}",
+            DataWarning,
+            stacklevel=2,
+        )
+    factor_returns = pd.DataFrame(f_all[used], index=used_dates, columns=factors)
+    fitted_assets = returns.columns[np.isfinite(u_all[used]).any(axis=0)]
+    residuals = pd.DataFrame(u_all[used], index=used_dates, columns=returns.columns)[fitted_assets]
+
+    latest = snapshots[-1]
+    enough = observed_at_least(residuals, 2)
+    keep = latest.assets[latest.assets.isin(enough)]
+    dropped = _dropped_assets(returns.columns, all_exposed, latest.assets, enough, keep)
+    warn_dropped(dropped, OWNER)
+    if len(keep) == 0:
+        raise InputError(f"{OWNER}: no asset has both exposures on the latest date and at least 2 specific returns")
+
+    pos = latest.assets.get_indexer(keep)
+    B = np.zeros((len(keep), n_factors))
+    if market:
+        B[:, 0] = 1.0
+    if n_industries:
+        B[np.arange(len(keep)), int(market) + latest.codes[pos]] = 1.0
+    B[:, int(market) + n_industries:] = latest.styles[pos]
+    model_exposures = pd.DataFrame(B, index=keep, columns=factors)
+    groups = pd.Series(np.asarray(industries, dtype=object)[latest.codes[pos]], index=keep) if n_industries else None
+    F = factor_covariance(factor_returns, covariance)
+    d = specific_variance(residuals[keep], 0, covariance, groups=groups)
+
+    stats = per_asset_fit(returns[fitted_assets].to_numpy()[used], residuals.to_numpy())
+    asset_table = pd.DataFrame(stats, index=fitted_assets).loc[keep]
+    if factor_groups is None:
+        factor_groups = {**({"market": "market"} if market else {}), **dict.fromkeys(industry_names, "industry"),
+                         **dict.fromkeys([str(s) for s in styles], "style")}
+    record = {
+        "market": market,
+        "min_assets": int(min_assets),
+        "periods_per_year": ppy,
+        "covariance": settings,
+        "specific_dof": 0,
+        "lag": "exposures known at the start of each period",
+        "exposure_date": None if latest.date is None else iso_label(latest.date),
+        **described,
+    }
+    report_parts = {
+        "assets": asset_table,
+        "residuals": residuals,
+        "dropped": dropped,
+        "factor_returns": factor_returns,
+        "settings": record,
+        "extra": {
+            "r_squared_by_date": pd.Series(r2_all[used], index=used_dates, name="r_squared"),
+            "t_stats_by_date": pd.DataFrame(t_all[used], index=used_dates, columns=factors),
+            "industry_weights": pd.DataFrame(c_all[used], index=used_dates, columns=industry_names),
+            "constraint": CONSTRAINT_TEXT if (market and n_industries) else "none",
+            "skipped_dates": pd.Index(skipped),
+        },
+    }
+    return assemble_model(
+        "cross_section", model_exposures, F, d, report_parts, periods_per_year=ppy, factor_groups=factor_groups
+    )
