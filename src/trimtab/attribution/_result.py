@@ -407,7 +407,12 @@ _ACTIVE_LABELS = {
 
 
 def format_figure(value: Any, unit: str) -> str:
-    """Format a figure by its unit: fractions as percentages with two decimals, counts as integers."""
+    """Format a figure by its unit.
+
+    Units: "fraction" (0.0123 → 1.23%), "percent" (12.3 → 12.3%), "count" and "amount" (with thousands
+    separators), "exposure" (signed, three decimals), "bp" (a fraction in basis points), otherwise four
+    significant digits. NaN and None give "n/a".
+    """
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return "n/a"
     value = float(value)
@@ -415,8 +420,12 @@ def format_figure(value: Any, unit: str) -> str:
         return f"{100.0 * value:.2f}%"
     if unit == "percent":
         return f"{value:.1f}%"
-    if unit == "count":
+    if unit in ("count", "amount"):
         return f"{value:,.0f}"
+    if unit == "exposure":
+        return f"{value:+.3f}"
+    if unit == "bp":
+        return f"{1e4 * value:.1f} bp"
     return f"{value:.4g}"
 
 

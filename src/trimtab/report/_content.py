@@ -1,0 +1,321 @@
+"""What a report shows, gathered once from a rebalance result or an attribution for every writer.
+
+The writers (terminal, files, HTML) only lay out what this module hands them; the figures themselves
+come from :mod:`trimtab.attribution` and from the rebalance result. Results are read duck-typed
+(``getattr`` with defaults), so any object with the agreed fields of ``RebalanceResult`` works.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from trimtab.attribution import (
+    HEADLINE_FIGURES,
+    RiskAttribution,
+    compare,
+    contribution_changes,
+    exposure_changes,
+    figure_label,
+)
+from trimtab.errors import InputError
+
+#: The caution printed by every writer: terminal, JSON and HTML.
+CAUTION = (
+    "These figures are model forecasts, not investment advice. Verify every trade before trading. "
+    "Your firm's compliance rules and applicable regulation govern."
+)
+
+#: Constraint names (or kinds) read as the risk budget, in order of preference.
+RISK_BUDGET_NAMES = ("tracking_error", "active_risk", "total_risk")
+
+#: Columns of a constraint table, in display order.
+CONSTRAINT_COLUMNS = ("name", "kind", "value", "lower", "upper", "unit", "slack", "binding", "shadow_price", "soft")
+
+
+@dataclass(frozen=True, eq=False)
+class RiskBudget:
+    """The risk limit and its use before and after: ``used`` is post / cap."""
+
+    name: str
+    cap: float
+    pre: float | None
+    post: float
+    used: float
+
+
+@dataclass(frozen=True, eq=False)
+class ReportContent:
+    """Everything a writer shows about one rebalance result or one attribution."""
+
+    kind: str
+    pre: RiskAttribution | None
+    post: RiskAttribution
+    headline: pd.DataFrame
+    risk_budget: RiskBudget | None
+    exposures: pd.DataFrame
+    contributions: pd.DataFrame
+    groups: pd.DataFrame
+    split: pd.DataFrame
+    top_assets: pd.DataFrame
+    run: dict[str, Any] = field(default_factory=dict)
+    trade_summary: pd.DataFrame | None = None
+    trades: pd.DataFrame | None = None
+    top_trades: pd.DataFrame | None = None
+    constraints: pd.DataFrame | None = None
+    objective: pd.Series | None = None
+    verification: pd.DataFrame | None = None
+    provenance: dict[str, Any] = field(default_factory=dict)
+    scenario: dict[str, Any] = field(default_factory=dict)
+    caution: str = CAUTION
+
+    @property
+    def is_rebalance(self) -> bool:
+        return self.kind == "rebalance"
+
+    @property
+    def binding_constraints(self) -> pd.DataFrame | None:
+        """Rows of the constraint table marked binding (None without a table)."""
+        if self.constraints is None or "binding" not in self.constraints.columns:
+            return None
+        return self.constraints[self.constraints["binding"].fillna(False).astype(bool)]
+
+
+def gather(subject: Any, *, top: int = 10) -> ReportContent:
+    """Collect the content of a report on a rebalance result or a :class:`RiskAttribution`.
+
+    Raises
+    ------
+    InputError
+        If ``subject`` is neither an attribution nor an object with a ``post_trade`` attribution (or
+        ``weights`` and nothing to attribute them with).
+    """
+    if isinstance(subject, RiskAttribution):
+        return _attribution_content(subject, top)
+    post = getattr(subject, "post_trade", None)
+    if not isinstance(post, RiskAttribution):
+        raise InputError(
+            "report: expected a RiskAttribution or a rebalance result with a post_trade attribution, "
+            f"got {type(subject).__name__}"
+        )
+    pre = getattr(subject, "pre_trade", None)
+    pre = pre if isinstance(pre, RiskAttribution) else None
+    headline = _headline(pre, post)
+    trades = _frame_or_none(getattr(subject, "trades", None))
+    constraints = _constraints(getattr(subject, "constraints", None))
+    scenario = _plain_mapping(getattr(subject, "scenario", None))
+    return ReportContent(
+        kind="rebalance",
+        pre=pre,
+        post=post,
+        headline=headline,
+        risk_budget=_risk_budget(constraints, scenario, pre, post),
+        exposures=_exposures(pre, post),
+        contributions=_contributions(pre, post),
+        groups=_groups(pre, post),
+        split=_split(pre, post),
+        top_assets=post.top_assets(top),
+        run=_run(subject),
+        trade_summary=_trade_summary(trades),
+        trades=trades,
+        top_trades=_top_trades(trades, top),
+        constraints=constraints,
+        objective=_objective(getattr(subject, "objective", None)),
+        verification=_frame_or_none(getattr(subject, "verification", None)),
+        provenance=_plain_mapping(getattr(subject, "provenance", None)),
+        scenario=scenario,
+    )
+
+
+def gather_many(subjects: Mapping[str, Any], *, top: int = 10) -> dict[str, ReportContent]:
+    """:func:`gather` for each scenario of a mapping name → result, keeping its order."""
+    if not isinstance(subjects, Mapping) or not subjects:
+        raise InputError("report: expected a non-empty mapping scenario name → rebalance result or attribution")
+    out: dict[str, ReportContent] = {}
+    for name, subject in subjects.items():
+        try:
+            out[str(name)] = gather(subject, top=top)
+        except InputError as err:
+            raise InputError(f"report: scenario {name!r}: {str(err).removeprefix('report: ')}") from None
+    return out
+
+
+def labelled(headline: pd.DataFrame, kind: str) -> pd.DataFrame:
+    """Add the reader's label and unit of each figure to a headline table."""
+    out = headline.copy()
+    out.insert(0, "unit", [HEADLINE_FIGURES[k][1] for k in out.index])
+    out.insert(0, "label", [figure_label(k, kind) for k in out.index])
+    return out
+
+
+# ---------------------------------------------------------------------- pieces
+def _attribution_content(attr: RiskAttribution, top: int) -> ReportContent:
+    return ReportContent(
+        kind="attribution",
+        pre=None,
+        post=attr,
+        headline=_headline(None, attr),
+        risk_budget=None,
+        exposures=_exposures(None, attr),
+        contributions=_contributions(None, attr),
+        groups=_groups(None, attr),
+        split=_split(None, attr),
+        top_assets=attr.top_assets(top),
+        provenance=_plain_mapping(getattr(attr.model, "provenance", None)),
+    )
+
+
+def _headline(pre: RiskAttribution | None, post: RiskAttribution) -> pd.DataFrame:
+    if pre is None:
+        table = post.headline().to_frame("post")
+    else:
+        table = compare(pre, post)
+        # A change below rounding (1e-12 of the figure) reads as noise like 2.2e-16: show it as zero.
+        scale = table[["pre", "post"]].abs().max(axis=1).clip(lower=1.0)
+        table.loc[table["change"].abs() <= 1e-12 * scale, "change"] = 0.0
+    table = table[table.notna().any(axis=1)]
+    return labelled(table, post.kind)
+
+
+def _exposures(pre: RiskAttribution | None, post: RiskAttribution) -> pd.DataFrame:
+    if pre is None:
+        table = post.by_factor[["group", "active_exposure"]].rename(columns={"active_exposure": "post"})
+        return table.reindex(table["post"].abs().sort_values(ascending=False, kind="stable").index)
+    return exposure_changes(pre, post)
+
+
+def _contributions(pre: RiskAttribution | None, post: RiskAttribution) -> pd.DataFrame:
+    if pre is None:
+        table = post.by_factor[["group", "contribution"]].rename(columns={"contribution": "post"})
+        return table.reindex(table["post"].abs().sort_values(ascending=False, kind="stable").index)
+    return contribution_changes(pre, post)
+
+
+def _groups(pre: RiskAttribution | None, post: RiskAttribution) -> pd.DataFrame:
+    table = pd.DataFrame({"post": post.by_factor_group["contribution"]})
+    if pre is not None:
+        table.insert(0, "pre", pre.by_factor_group["contribution"])
+    table.index.name = "group"
+    return table
+
+
+def _split(pre: RiskAttribution | None, post: RiskAttribution) -> pd.DataFrame:
+    """Factor and specific Euler contributions (they add up to the risk), one row per state."""
+    states = [("Before", pre), ("After", post)] if pre is not None else [("Portfolio", post)]
+    return pd.DataFrame(
+        {
+            "factor": [a.factor_contribution for _, a in states],
+            "specific": [a.specific_contribution for _, a in states],
+            "risk": [a.risk for _, a in states],
+        },
+        index=pd.Index([name for name, _ in states], name="state"),
+    )
+
+
+def _risk_budget(
+    constraints: pd.DataFrame | None, scenario: Mapping[str, Any], pre: RiskAttribution | None, post: RiskAttribution
+) -> RiskBudget | None:
+    """The tracking-error (or total-risk) cap from the constraint table, else from the scenario."""
+    for name in RISK_BUDGET_NAMES:
+        cap = _cap_from_table(constraints, name)
+        if cap is None:
+            cap = _cap_from_scenario(scenario, name)
+        if cap is None or not np.isfinite(cap) or cap <= 0:
+            continue
+        if name == "total_risk":
+            pre_value = None if pre is None else pre.portfolio_risk
+            post_value = post.portfolio_risk
+        else:
+            pre_value = None if pre is None else pre.risk
+            post_value = post.risk
+        return RiskBudget(name=name, cap=float(cap), pre=pre_value, post=post_value, used=post_value / cap)
+    return None
+
+
+def _cap_from_table(constraints: pd.DataFrame | None, name: str) -> float | None:
+    if constraints is None or "upper" not in constraints.columns:
+        return None
+    for column in ("name", "kind"):
+        if column in constraints.columns:
+            rows = constraints[constraints[column].astype(str).str.lower() == name]
+            if len(rows):
+                return float(rows["upper"].iloc[0])
+    return None
+
+
+def _cap_from_scenario(scenario: Mapping[str, Any], name: str) -> float | None:
+    section = scenario.get("constraints", {})
+    entry = section.get(name) if isinstance(section, Mapping) else None
+    if isinstance(entry, Mapping) and isinstance(entry.get("max"), (int, float)):
+        return float(entry["max"])
+    return None
+
+
+def _run(subject: Any) -> dict[str, Any]:
+    keys = ("status", "solver", "iterations", "solve_time", "build_time")
+    return {k: getattr(subject, k) for k in keys if getattr(subject, k, None) is not None}
+
+
+def _trade_summary(trades: pd.DataFrame | None) -> pd.DataFrame | None:
+    """Counts and sums over the trade list; turnover is one-way, ½·Σ|trade|."""
+    if trades is None or "trade" not in trades.columns:
+        return None
+    trade = trades["trade"].astype(float)
+    rows: list[tuple[str, str, float]] = [
+        ("Assets traded", "count", float((trade != 0).sum())),
+        ("Buys", "count", float((trade > 0).sum())),
+        ("Sells", "count", float((trade < 0).sum())),
+        ("Weight bought", "fraction", float(trade[trade > 0].sum())),
+        ("Weight sold", "fraction", float(-trade[trade < 0].sum())),
+        ("Turnover, one-way (½·Σ|trade|)", "fraction", 0.5 * float(trade.abs().sum())),
+        ("Largest single trade", "fraction", float(trade.abs().max()) if len(trade) else 0.0),
+    ]
+    if "notional" in trades.columns:
+        rows.append(("Notional traded (Σ|notional|)", "amount", float(trades["notional"].abs().sum())))
+    if "cost" in trades.columns:
+        rows.append(("Estimated cost (of NAV)", "bp", float(trades["cost"].sum())))
+    if "adv_fraction" in trades.columns:
+        rows.append(("Largest fraction of daily volume", "fraction", float(trades["adv_fraction"].abs().max())))
+    return pd.DataFrame(rows, columns=["label", "unit", "value"])
+
+
+def _top_trades(trades: pd.DataFrame | None, top: int) -> pd.DataFrame | None:
+    if trades is None or "trade" not in trades.columns:
+        return None
+    moved = trades[trades["trade"] != 0]
+    order = moved["trade"].abs().sort_values(ascending=False, kind="stable").index
+    return moved.loc[order[:top]]
+
+
+def _constraints(table: Any) -> pd.DataFrame | None:
+    """The constraint table with binding rows first (stable otherwise) and known columns in order."""
+    table = _frame_or_none(table)
+    if table is None:
+        return None
+    columns = [c for c in CONSTRAINT_COLUMNS if c in table.columns] + [
+        c for c in table.columns if c not in CONSTRAINT_COLUMNS
+    ]
+    table = table[columns]
+    if "binding" in table.columns:
+        table = table.iloc[np.argsort(~table["binding"].fillna(False).astype(bool).to_numpy(), kind="stable")]
+    return table.reset_index(drop="name" in table.columns)
+
+
+def _objective(value: Any) -> pd.Series | None:
+    if isinstance(value, Mapping) and value:
+        return pd.Series({str(k): v for k, v in value.items()}, name="value")
+    return None
+
+
+def _frame_or_none(value: Any) -> pd.DataFrame | None:
+    return value if isinstance(value, pd.DataFrame) else None
+
+
+def _plain_mapping(value: Any) -> dict[str, Any]:
+    return {str(k): v for k, v in value.items()} if isinstance(value, Mapping) else {}
+
+

@@ -1,0 +1,375 @@
+"""One self-contained HTML file: inline CSS, inline SVG charts, no scripts, no network."""
+
+from __future__ import annotations
+
+import datetime as _dt
+import html
+import json
+from collections.abc import Mapping, Sequence
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from trimtab._version import __version__
+from trimtab.attribution import compare_many, format_figure
+from trimtab.report import _charts
+from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled
+from trimtab.report._files import atomic_write_text
+
+#: Headline figures shown as cards at the top of each report, in order.
+KEY_FIGURES = ("risk", "factor_percent", "beta", "value_at_risk_99_1d")
+
+_TRADE_UNITS = {
+    "initial_weight": "fraction",
+    "target_weight": "fraction",
+    "trade": "fraction",
+    "shares": "count",
+    "notional": "amount",
+    "adv_fraction": "fraction",
+    "cost": "bp",
+}
+_CONSTRAINT_UNITS = {
+    "kind": "text",
+    "value": "ratio",
+    "lower": "ratio",
+    "upper": "ratio",
+    "unit": "text",
+    "slack": "ratio",
+    "shadow_price": "ratio",
+    "soft": "flag",
+}
+_ASSET_UNITS = {
+    "weight": "fraction",
+    "benchmark_weight": "fraction",
+    "active_weight": "fraction",
+    "marginal_contribution": "ratio",
+    "contribution": "fraction",
+    "percent": "percent",
+}
+
+
+def write_html(
+    subject: Any, path: str | Path, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25
+) -> Path:
+    """Write one self-contained HTML report (inline CSS and SVG charts; opens offline, prints cleanly).
+
+    Parameters
+    ----------
+    subject : RebalanceResult, RiskAttribution, or Mapping[str, either]
+        One result, or several scenarios by name (a comparison table first, then one part each).
+    path : str or Path
+        The file to write; written under a temporary name, then renamed.
+    title : str
+        The page title.
+    top : int, default 10
+        Rows in the top-contributor and exposure charts and tables.
+    max_trades : int, default 25
+        Largest trades listed (the full list goes to :func:`write_tables` / :func:`write_json`).
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    InputError
+        If ``subject`` is not a result, an attribution or a non-empty mapping of them.
+    """
+    document = render_html(subject, title=title, top=top, max_trades=max_trades)
+    return atomic_write_text(Path(path), document)
+
+
+def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25) -> str:
+    """The HTML document of :func:`write_html` as a string."""
+    if isinstance(subject, Mapping):
+        contents = gather_many(subject, top=max(top, max_trades))
+        parts = [_comparison_section(subject, contents)]
+        parts += [
+            f'<article id="scenario-{i}"><h2 class="scenario">Scenario: {_e(name)}</h2>'
+            + _report_body(content, f"s{i}", top, max_trades, level=3)
+            + "</article>"
+            for i, (name, content) in enumerate(contents.items())
+        ]
+        nav = _nav([(f"scenario-{i}", f"Scenario: {name}") for i, name in enumerate(contents)], comparison=True)
+        body = "".join(parts)
+    else:
+        content = gather(subject, top=max(top, max_trades))
+        body = "<article>" + _report_body(content, "r", top, max_trades, level=2) + "</article>"
+        nav = ""
+    created = _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
+    css = resources.files("trimtab.report").joinpath("report.css").read_text(encoding="utf-8")
+    return (
+        "<!DOCTYPE html>\n"
+        '<html lang="en"><head><meta charset="utf-8">'
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f"<title>{_e(title)}</title><style>{css}</style></head><body><main>"
+        f"<header><h1>{_e(title)}</h1>"
+        f'<p class="meta">Written by trimtab {_e(__version__)} on {created}.</p>'
+        f'<p class="caution" id="caution"><strong>Caution.</strong> {_e(CAUTION)}</p></header>'
+        f"{nav}{body}"
+        f'<footer><p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p></footer>'
+        "</main></body></html>\n"
+    )
+
+
+# ---------------------------------------------------------------------- sections
+def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *, level: int) -> str:
+    h = f"h{level}"
+    post, pre = content.post, content.pre
+    parts = [_run_line(content), _key_figures(content)]
+    parts.append(f"<{h}>Headline figures</{h}>" + _headline_table(content))
+    if content.risk_budget is not None:
+        budget = content.risk_budget
+        parts.append(
+            f"<{h}>Risk budget</{h}>"
+            f"<p>{_e(budget.name.replace('_', ' ').capitalize())} after the trades is "
+            f"<strong>{format_figure(budget.post, 'fraction')}</strong> against a cap of "
+            f"{format_figure(budget.cap, 'fraction')}: {format_figure(budget.used, 'fraction')} of the budget used.</p>"
+            + _figure(_charts.risk_budget_chart(budget, salt=f"{key}-risk-budget"), "Risk before and after, and the cap.")
+        )
+    kind_word = "active" if post.kind == "active" else "total"
+    parts.append(
+        f"<{h}>Factor and specific risk</{h}>"
+        + _figure(
+            _charts.split_chart(content.split, salt=f"{key}-factor-specific"),
+            f"Euler contributions to {kind_word} risk: the factor and specific parts add up to the risk.",
+        )
+    )
+    exposure_title = "Active factor exposures" if post.kind == "active" else "Factor exposures"
+    parts.append(
+        f"<{h}>{exposure_title}</{h}>"
+        + _figure(
+            _charts.paired_bars(content.exposures, xlabel="exposure", salt=f"{key}-exposures", max_rows=top),
+            "Largest changes first." if pre is not None else "Largest exposures first.",
+        )
+        + _table(
+            content.exposures.head(top),
+            {"group": "text", "pre": "exposure", "post": "exposure", "change": "exposure"},
+            "Factor",
+        )
+    )
+    parts.append(
+        f"<{h}>Risk contribution by factor group</{h}>"
+        + _figure(
+            _charts.paired_bars(content.groups, xlabel="contribution to risk", salt=f"{key}-groups", percent=True),
+            "The groups and the specific row add up to the risk.",
+        )
+    )
+    weight_units = {k: v for k, v in _ASSET_UNITS.items() if k in content.top_assets.columns}
+    top_assets = content.top_assets.head(top)
+    parts.append(
+        f"<{h}>Largest risk contributions by position</{h}>"
+        + _figure(
+            _charts.paired_bars(
+                top_assets[["contribution"]].rename(columns={"contribution": "post"}),
+                xlabel="contribution to risk, after",
+                salt=f"{key}-positions",
+                percent=True,
+                max_rows=top,
+            ),
+            "After the trades; contributions of all positions add up to the risk.",
+        )
+        + _table(top_assets, weight_units, "Asset")
+    )
+    if content.trade_summary is not None:
+        trades_table = ""
+        if content.top_trades is not None and len(content.top_trades):
+            units = {k: v for k, v in _TRADE_UNITS.items() if k in content.top_trades.columns}
+            trades_table = _table(
+                content.top_trades.head(max_trades), units, "Asset",
+                caption=f"Largest {min(max_trades, len(content.top_trades))} trades by size; the full list is in the table files.",
+            )
+        parts.append(
+            f"<{h}>Trades</{h}>"
+            + _table(content.trade_summary.set_index("label")[["value"]], {"value": "row"}, "",
+                     units=list(content.trade_summary["unit"]))
+            + trades_table
+        )
+    if content.constraints is not None:
+        parts.append(f"<{h}>Constraints</{h}>" + _constraint_table(content.constraints))
+    if content.objective is not None:
+        parts.append(
+            f"<{h}>Objective</{h}>" + _table(content.objective.to_frame("value"), {"value": "ratio"}, "Term")
+        )
+    parts.append(f"<{h}>Provenance</{h}>" + _provenance(content))
+    return "".join(f"<section>{p}</section>" for p in parts)
+
+
+def _comparison_section(subjects: Mapping[str, Any], contents: Mapping[str, ReportContent]) -> str:
+    table = compare_many(subjects)
+    first = next(iter(contents.values())).post
+    table = labelled(table[table.notna().any(axis=1)], first.kind)
+    rows = []
+    for _, row in table.iterrows():
+        cells = "".join(f'<td class="num">{format_figure(row[c], row["unit"])}</td>' for c in table.columns[2:])
+        rows.append(f"<tr><td>{_e(row['label'])}</td>{cells}</tr>")
+    budget_cells = "".join(
+        f'<td class="num">{format_figure(c.risk_budget.used, "fraction") if c.risk_budget else "n/a"}</td>'
+        for c in contents.values()
+    )
+    rows.append(f"<tr><td>Risk budget used</td>{budget_cells}</tr>")
+    head = "".join(f'<th class="num">{_e(c)}</th>' for c in table.columns[2:])
+    return (
+        '<section id="comparison"><h2>Scenarios side by side</h2>'
+        "<p>After-trade figures of each scenario.</p>"
+        f"<table><thead><tr><th>Figure</th>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table></section>"
+    )
+
+
+def _nav(items: Sequence[tuple[str, str]], *, comparison: bool) -> str:
+    links = ['<li><a href="#comparison">Scenarios side by side</a></li>'] if comparison else []
+    links += [f'<li><a href="#{anchor}">{_e(text)}</a></li>' for anchor, text in items]
+    return f"<nav><ol>{''.join(links)}</ol></nav>"
+
+
+def _run_line(content: ReportContent) -> str:
+    if not content.run:
+        what = "Active risk" if content.post.kind == "active" else "Total risk"
+        return f'<p class="meta">{what} attribution of one portfolio (no rebalance).</p>'
+    run = content.run
+    status = str(run.get("status", "unknown"))
+    css = "ok" if status.lower().startswith("optimal") else "bad"
+    bits = [f'Status <span class="status {css}">{_e(status)}</span>']
+    if "solver" in run:
+        bits.append(f"solver {_e(run['solver'])}")
+    if "iterations" in run:
+        bits.append(f"{_e(run['iterations'])} iterations")
+    for key, label in (("build_time", "build"), ("solve_time", "solve")):
+        if isinstance(run.get(key), (int, float)):
+            bits.append(f"{label} {run[key]:.3f} s")
+    return f'<p class="meta">{" · ".join(bits)}</p>'
+
+
+def _key_figures(content: ReportContent) -> str:
+    headline = content.headline
+    cards = []
+    for key in KEY_FIGURES:
+        if key not in headline.index:
+            continue
+        row = headline.loc[key]
+        was = ""
+        if "pre" in headline.columns:
+            was = f'<div class="was">before {format_figure(row["pre"], row["unit"])}</div>'
+        cards.append(
+            f'<div class="keyfigure"><div class="label">{_e(row["label"])}</div>'
+            f'<div class="value">{format_figure(row["post"], row["unit"])}</div>{was}</div>'
+        )
+    if content.risk_budget is not None:
+        budget = content.risk_budget
+        cards.insert(
+            1,
+            '<div class="keyfigure"><div class="label">Risk budget used</div>'
+            f'<div class="value">{format_figure(budget.used, "fraction")}</div>'
+            f'<div class="was">cap {format_figure(budget.cap, "fraction")}</div></div>',
+        )
+    note = ""
+    if content.post.is_zero_risk:
+        note = '<p class="note">The portfolio has zero risk: contributions are undefined and shown as n/a.</p>'
+    return f'<div class="keyfigures">{"".join(cards)}</div>{note}'
+
+
+def _headline_table(content: ReportContent) -> str:
+    table = content.headline
+    columns = [c for c in ("pre", "post", "change") if c in table.columns]
+    names = {"pre": "Before", "post": "After" if "pre" in columns else "Value", "change": "Change"}
+    head = "".join(f'<th class="num">{names[c]}</th>' for c in columns)
+    rows = []
+    for _, row in table.iterrows():
+        cells = "".join(f'<td class="num">{format_figure(row[c], row["unit"])}</td>' for c in columns)
+        rows.append(f"<tr><td>{_e(row['label'])}</td>{cells}</tr>")
+    note = ""
+    if "change" in columns:
+        note = '<caption>Changes of percentages are in percentage points.</caption>'
+    return f"<table>{note}<thead><tr><th>Figure</th>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+
+
+def _constraint_table(table: pd.DataFrame) -> str:
+    columns = [c for c in _CONSTRAINT_UNITS if c in table.columns]
+    head = "<th>Constraint</th>" + "".join(
+        f'<th class="{"num" if _CONSTRAINT_UNITS[c] == "ratio" else ""}">{_e(_header(c))}</th>' for c in columns
+    ) + "<th>Binding</th>"
+    rows = []
+    for i, row in table.iterrows():
+        binding = bool(row.get("binding", False)) if pd.notna(row.get("binding", False)) else False
+        name = row["name"] if "name" in table.columns else i
+        cells = "".join(
+            "<td></td>" if _CONSTRAINT_UNITS[c] == "ratio" and pd.isna(row[c]) else _cell(row[c], _CONSTRAINT_UNITS[c])
+            for c in columns
+        )
+        flag = "<td>yes</td>" if binding else "<td></td>"
+        rows.append(f'<tr class="{"binding" if binding else ""}"><td>{_e(name)}</td>{cells}{flag}</tr>')
+    return (
+        "<table><caption>Binding constraints first (shaded). Shadow price: objective given up per unit of limit.</caption>"
+        f"<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+    )
+
+
+def _provenance(content: ReportContent) -> str:
+    items = [("package", f"trimtab {__version__}")]
+    items += [(str(k), v) for k, v in content.provenance.items()]
+    entries = "".join(f"<dt>{_e(k)}</dt><dd>{_e(_plain(v))}</dd>" for k, v in items)
+    scenario = ""
+    if content.scenario:
+        scenario = "<h3>Scenario settings</h3><pre>" + _e(json.dumps(content.scenario, indent=2, default=str)) + "</pre>"
+    return f'<dl class="provenance">{entries}</dl>{scenario}'
+
+
+# ---------------------------------------------------------------------- helpers
+def _figure(svg: str, caption: str) -> str:
+    return f"<figure>{svg}<figcaption>{_e(caption)}</figcaption></figure>"
+
+
+def _table(
+    frame: pd.DataFrame,
+    columns: Mapping[str, str],
+    index_label: str,
+    *,
+    caption: str | None = None,
+    units: Sequence[str] | None = None,
+) -> str:
+    """A table of ``frame``'s index and ``columns`` (name → unit; unit "row" takes it from ``units``)."""
+    shown = [c for c in columns if c in frame.columns]
+    head = f"<th>{_e(index_label)}</th>" + "".join(
+        f'<th class="{"" if columns[c] == "text" else "num"}">{_e(_header(c)) if columns[c] != "row" else ""}</th>'
+        for c in shown
+    )
+    rows = []
+    for position, (label, row) in enumerate(frame.iterrows()):
+        cells = "".join(
+            _cell(row[c], units[position] if columns[c] == "row" and units is not None else columns[c]) for c in shown
+        )
+        rows.append(f"<tr><td>{_e(label)}</td>{cells}</tr>")
+    cap = f"<caption>{_e(caption)}</caption>" if caption else ""
+    return f"<table>{cap}<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+
+
+def _header(column: str) -> str:
+    text = _HEADERS.get(column, column.replace("_", " "))
+    return text[:1].upper() + text[1:]
+
+
+_HEADERS = {"pre": "before", "post": "after", "adv_fraction": "of daily volume", "marginal_contribution": "marginal"}
+
+
+def _cell(value: Any, unit: str) -> str:
+    if unit == "text":
+        return f"<td>{_e('' if value is None or (isinstance(value, float) and value != value) else value)}</td>"
+    if unit == "flag":
+        return f"<td>{'soft' if bool(value) and pd.notna(value) else 'hard'}</td>"
+    try:
+        return f'<td class="num">{format_figure(value, unit)}</td>'
+    except (TypeError, ValueError):
+        return f"<td>{_e(value)}</td>"
+
+
+def _plain(value: Any) -> str:
+    if isinstance(value, (Mapping, list, tuple)):
+        return json.dumps(value, default=str, sort_keys=True)
+    return str(value)
+
+
+def _e(value: Any) -> str:
+    return html.escape(str(value), quote=True)

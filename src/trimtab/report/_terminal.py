@@ -1,0 +1,173 @@
+"""Compact terminal tables with rich: key risk numbers first, then contributors, exposures, constraints."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import pandas as pd
+from rich.console import Console
+from rich.table import Table
+
+from trimtab.attribution import compare_many, format_figure
+from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled
+
+
+def print_attribution(attr: Any, console: Console | None = None, *, top: int = 10) -> None:
+    """Print a risk attribution: headline figures, factor groups, top factors and top positions.
+
+    Parameters
+    ----------
+    attr : RiskAttribution
+    console : rich.console.Console, optional
+        Where to print; a new Console on standard output by default.
+    top : int, default 10
+        Rows in the contributor tables.
+
+    Raises
+    ------
+    InputError
+        If ``attr`` is not an attribution or a result carrying one.
+    """
+    content = gather(attr, top=top)
+    out = console or Console()
+    out.print(_headline_table(content, "Risk"))
+    _print_body(out, content, top)
+    out.print(f"[italic]{CAUTION}[/italic]")
+
+
+def print_rebalance(result: Any, console: Console | None = None, top: int = 10) -> None:
+    """Print a rebalance: status, key risk numbers before/after, top contributors, exposures that
+    changed most, binding constraints and the trade summary.
+
+    Parameters
+    ----------
+    result : RebalanceResult
+        Any object with the agreed fields (read with defaults, so missing parts are skipped).
+    console : rich.console.Console, optional
+    top : int, default 10
+
+    Raises
+    ------
+    InputError
+        If ``result`` has no post-trade attribution.
+    """
+    content = gather(result, top=top)
+    out = console or Console()
+    if content.run:
+        run = content.run
+        bits = [f"status [bold]{run.get('status', 'unknown')}[/bold]"]
+        if "solver" in run:
+            bits.append(f"solver {run['solver']}")
+        if isinstance(run.get("solve_time"), (int, float)):
+            bits.append(f"solve {run['solve_time']:.3f} s")
+        out.print("Rebalance: " + ", ".join(bits))
+    if content.risk_budget is not None:
+        budget = content.risk_budget
+        out.print(
+            f"Risk budget ({budget.name.replace('_', ' ')}): {format_figure(budget.post, 'fraction')} of "
+            f"{format_figure(budget.cap, 'fraction')} cap, {format_figure(budget.used, 'fraction')} used"
+        )
+    out.print(_headline_table(content, "Risk before and after"))
+    _print_body(out, content, top)
+    binding = content.binding_constraints
+    if binding is not None:
+        table = Table(title="Binding constraints", title_justify="left")
+        for column in ("name", "value", "lower", "upper", "shadow_price"):
+            if column in binding.columns:
+                table.add_column(column.replace("_", " "), justify="left" if column == "name" else "right")
+        for _, row in binding.iterrows():
+            table.add_row(
+                *[str(row[c]) if c == "name" else format_figure(row[c], "ratio") for c in
+                  ("name", "value", "lower", "upper", "shadow_price") if c in binding.columns]
+            )
+        if len(binding) == 0:
+            out.print("No binding constraints.")
+        else:
+            out.print(table)
+    if content.trade_summary is not None:
+        table = Table(title="Trades", title_justify="left", show_header=False)
+        table.add_column("figure")
+        table.add_column("value", justify="right")
+        for _, row in content.trade_summary.iterrows():
+            table.add_row(str(row["label"]), format_figure(row["value"], row["unit"]))
+        out.print(table)
+    out.print(f"[italic]{CAUTION}[/italic]")
+
+
+def print_comparison(results: Mapping[str, Any], console: Console | None = None) -> None:
+    """Print the headline figures of several scenarios, one column each, with their risk-budget use.
+
+    Raises
+    ------
+    InputError
+        If the mapping is empty or a value has no attribution.
+    """
+    contents = gather_many(results)
+    out = console or Console()
+    frame = compare_many(results)
+    first = next(iter(contents.values())).post
+    frame = labelled(frame[frame.notna().any(axis=1)], first.kind)
+    table = Table(title="Scenarios side by side (after trades)", title_justify="left")
+    table.add_column("figure")
+    for name in contents:
+        table.add_column(name, justify="right")
+    for _, row in frame.iterrows():
+        table.add_row(str(row["label"]), *[format_figure(row[name], row["unit"]) for name in contents])
+    table.add_row(
+        "Risk budget used",
+        *[format_figure(c.risk_budget.used, "fraction") if c.risk_budget else "n/a" for c in contents.values()],
+    )
+    out.print(table)
+    out.print(f"[italic]{CAUTION}[/italic]")
+
+
+def _headline_table(content: ReportContent, title: str) -> Table:
+    headline = content.headline
+    columns = [c for c in ("pre", "post", "change") if c in headline.columns]
+    names = {"pre": "before", "post": "after" if "pre" in columns else "value", "change": "change"}
+    table = Table(title=title, title_justify="left")
+    table.add_column("figure")
+    for column in columns:
+        table.add_column(names[column], justify="right")
+    for _, row in headline.iterrows():
+        table.add_row(str(row["label"]), *[format_figure(row[c], row["unit"]) for c in columns])
+    return table
+
+
+def _print_body(out: Console, content: ReportContent, top: int) -> None:
+    if content.post.is_zero_risk:
+        out.print("Zero risk: contributions are undefined (shown as n/a).")
+    groups = Table(title="Contribution by factor group", title_justify="left")
+    groups.add_column("group")
+    for column in content.groups.columns:
+        groups.add_column("before" if column == "pre" else "after" if "pre" in content.groups else "contribution",
+                          justify="right")
+    for name, row in content.groups.iterrows():
+        groups.add_row(str(name), *[format_figure(v, "fraction") for v in row])
+    out.print(groups)
+
+    assets = content.top_assets.head(top)
+    weight = "active_weight" if "active_weight" in assets.columns else "weight"
+    table = Table(title=f"Top {len(assets)} risk contributors" + (" (after)" if content.pre is not None else ""),
+                  title_justify="left")
+    for column, justify in (("asset", "left"), (weight.replace("_", " "), "right"), ("contribution", "right"),
+                            ("percent", "right")):
+        table.add_column(column, justify=justify)
+    for name, row in assets.iterrows():
+        table.add_row(str(name), format_figure(row[weight], "fraction"), format_figure(row["contribution"], "fraction"),
+                      format_figure(row["percent"], "percent"))
+    out.print(table)
+
+    exposures = content.exposures.head(top)
+    title = "Exposures that changed most" if "change" in exposures.columns else "Largest factor exposures"
+    table = Table(title=title, title_justify="left")
+    table.add_column("factor")
+    for column in ("pre", "post", "change"):
+        if column in exposures.columns:
+            table.add_column({"pre": "before", "post": "after" if "pre" in exposures else "exposure",
+                              "change": "change"}[column], justify="right")
+    for name, row in exposures.iterrows():
+        table.add_row(str(name), *[f"{row[c]:+.3f}" if pd.notna(row[c]) else "n/a" for c in
+                                   ("pre", "post", "change") if c in exposures.columns])
+    out.print(table)
