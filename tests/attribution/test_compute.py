@@ -84,6 +84,22 @@ def test_every_figure_matches_dense_numpy(seed: int, active: bool) -> None:
         assert "benchmark_weight" not in attr.by_asset.columns
 
 
+@pytest.mark.parametrize("n_held", [1, 3, 29, 30], ids=lambda n: f"held{n}")
+def test_diversification_ratio_for_sparse_and_full_books(n_held: int) -> None:
+    # Choueifaty & Coignard (2008): DR = Σ|wᵢ|σᵢ / σ_p, with σᵢ from the dense Σ diagonal (numpy); a single
+    # asset has DR = 1 exactly.
+    model = random_model(n_assets=30, n_factors=4, seed=9)
+    rng = np.random.default_rng(10)
+    w = pd.Series(rng.dirichlet(np.ones(n_held)), index=model.assets[:n_held])
+    S = dense(model)
+    wv = model.weights_array(w)
+    expected = np.abs(wv) @ np.sqrt(252 * np.diag(S)) / np.sqrt(252 * wv @ S @ wv)
+    ratio = attribute(model, w).diversification_ratio
+    assert ratio == pytest.approx(expected, rel=1e-12)
+    if n_held == 1:
+        assert ratio == pytest.approx(1.0, rel=1e-12)
+
+
 @pytest.mark.parametrize("active", [False, True], ids=["total", "active"])
 def test_euler_sums_and_percentages(active: bool) -> None:
     model = random_model(n_assets=60, n_factors=6, seed=7)

@@ -166,8 +166,16 @@ class RiskAttribution:
             return float("nan")
         active = self.active_weights.to_numpy()
         held = np.flatnonzero(active)
-        B = self.model._B[held]
-        diag = np.einsum("ik,ik->i", B @ self.model._F, B) + self.model._d[held]
+        if 2 * held.size > active.size:
+            # Most assets held: reuse the model's cached U = B·L (F = L·Lᵀ), so (BFBᵀ)ᵢᵢ = ‖Uᵢ‖²
+            # costs O(N·K) on every later attribution with the same model.
+            U = self.model._scaled_exposures
+            U = U if held.size == active.size else U[held]
+            systematic = np.einsum("ik,ik->i", U, U)
+        else:
+            B = self.model._B[held]
+            systematic = np.einsum("ik,ik->i", B @ self.model._F, B)
+        diag = systematic + self.model._d[held]
         asset_vol = np.sqrt(np.clip(diag, 0.0, None) * self.periods_per_year)
         return float(np.abs(active[held]) @ asset_vol / self.risk)
 
