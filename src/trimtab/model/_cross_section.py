@@ -140,13 +140,19 @@ def assemble_model(
     exposures: pd.DataFrame,
     factor_cov: pd.DataFrame,
     specific: pd.Series,
-    report_parts: dict[str, Any],
+    fit: tuple[pd.DataFrame, pd.DataFrame, pd.Series, pd.DataFrame],
+    settings: Mapping[str, Any],
+    extra: Mapping[str, Any],
     *,
     periods_per_year: float,
     factor_groups: Mapping[str, str] | None,
 ) -> FactorModel:
-    """The FactorModel with its FitReport and provenance (estimator, settings, window, version)."""
-    report = FitReport(method=method, **report_parts)
+    """The FactorModel with its FitReport and provenance (estimator, settings, window, version).
+
+    ``fit`` is (per-asset table, residuals, dropped assets, factor returns).
+    """
+    assets, residuals, dropped, factor_returns = fit
+    report = FitReport(method, assets, residuals, dropped, factor_returns, settings=settings, extra=extra)
     dates = report.residuals.index
     return FactorModel(
         exposures,
@@ -727,20 +733,14 @@ def fit_cross_section(
         "exposure_date": None if latest.date is None else iso_label(latest.date),
         **described,
     }
-    report_parts = {
-        "assets": asset_table,
-        "residuals": residuals,
-        "dropped": dropped,
-        "factor_returns": factor_returns,
-        "settings": record,
-        "extra": {
-            "r_squared_by_date": pd.Series(r2_all[used], index=used_dates, name="r_squared"),
-            "t_stats_by_date": pd.DataFrame(t_all[used], index=used_dates, columns=factors),
-            "industry_weights": pd.DataFrame(c_all[used], index=used_dates, columns=industry_names),
-            "constraint": CONSTRAINT_TEXT if (market and n_industries) else "none",
-            "skipped_dates": pd.Index(skipped),
-        },
+    extra = {
+        "r_squared_by_date": pd.Series(r2_all[used], index=used_dates, name="r_squared"),
+        "t_stats_by_date": pd.DataFrame(t_all[used], index=used_dates, columns=factors),
+        "industry_weights": pd.DataFrame(c_all[used], index=used_dates, columns=industry_names),
+        "constraint": CONSTRAINT_TEXT if (market and n_industries) else "none",
+        "skipped_dates": pd.Index(skipped),
     }
     return assemble_model(
-        "cross_section", model_exposures, F, d, report_parts, periods_per_year=ppy, factor_groups=factor_groups
+        "cross_section", model_exposures, F, d, (asset_table, residuals, dropped, factor_returns), record, extra,
+        periods_per_year=ppy, factor_groups=factor_groups
     )
