@@ -22,6 +22,9 @@ import scipy.linalg
 #: (condition number of the standardised regressors above about 3·10⁶).
 GRAM_RATIO_FLOOR = 1e-13
 
+#: Columns per batched solve for patterns shared by few columns (bounds memory to chunk × p² floats).
+_SOLVE_CHUNK = 512
+
 
 @dataclass(frozen=True, eq=False)
 class BatchedFit:
@@ -117,8 +120,10 @@ def batched_least_squares(
     intercept, divided by their weighted standard deviation), which leaves the fitted values
     unchanged and keeps the normal equations well conditioned; coefficients and their covariance
     are mapped back with θ = A·θ̃, Cov(θ) = A·Cov(θ̃)·Aᵀ. Each distinct Gram matrix G = Z̃ᵀWⱼZ̃ is
-    factored once by Cholesky. Cost: O(T·p·N) for the two big products plus O(g·T·p²) for g
-    distinct observation masks.
+    formed once; a pattern shared by many columns is solved by one Cholesky factorisation with
+    all their right-hand sides, the rest by batched LU solves. A Gram matrix whose eigenvalue ratio
+    is below :data:`GRAM_RATIO_FLOOR` marks its columns not estimable. Cost: O(T·p·N) for the two
+    big products plus O(g·T·p²) for g distinct observation masks.
     """
     X = np.asarray(regressors, dtype=np.float64)
     Y = np.asarray(responses, dtype=np.float64)
@@ -142,18 +147,20 @@ def batched_least_squares(
 
     theta = np.full((p, n_cols), np.nan)
     cov_diag = np.full((p, n_cols), np.nan)
-    order = np.argsort(group_of, kind="stable")
-    starts = np.searchsorted(group_of[order], np.arange(len(grams) + 1))
-    identity = np.eye(p)
-    for g in np.flatnonzero(group_ok):
-        members = order[starts[g] : starts[g + 1]]
-        chol = scipy.linalg.cho_factor(grams[g], lower=True)
-        inverse = scipy.linalg.cho_solve(chol, identity)
-        if len(members) > p:
-            theta[:, members] = scipy.linalg.cho_solve(chol, moments[:, members])
-        else:
-            theta[:, members] = inverse @ moments[:, members]
-        cov_diag[:, members] = np.einsum("ij,jk,ik->i", transform, inverse, transform)[:, None]
+    ok = np.flatnonzero(group_ok)
+    # diag(A G⁻¹ Aᵀ) per pattern, all patterns at once
+    inverses = np.linalg.inv(grams[ok])
+    cov_by_group = np.full((len(grams), p), np.nan)
+    cov_by_group[ok] = np.einsum("ij,gjk,ik->gi", transform, inverses, transform)
+    cov_diag[:] = cov_by_group[group_of].T
+    sizes = np.bincount(group_of, minlength=len(grams))
+    for g in ok[sizes[ok] > p]:  # large groups: one Cholesky solve with many right-hand sides
+        members = np.flatnonzero(group_of == g)
+        theta[:, members] = scipy.linalg.cho_solve(scipy.linalg.cho_factor(grams[g], lower=True), moments[:, members])
+    small = np.flatnonzero(group_ok[group_of] & (sizes[group_of] <= p))
+    for chunk in np.array_split(small, max(1, len(small) // _SOLVE_CHUNK)):  # batched LU solves
+        if len(chunk):
+            theta[:, chunk] = np.linalg.solve(grams[group_of[chunk]], moments[:, chunk].T[..., None])[..., 0].T
 
     estimable = group_ok[group_of]
     n_obs = observed.sum(axis=0)
