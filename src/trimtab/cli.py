@@ -14,6 +14,7 @@ import shutil
 import sys
 import tempfile
 import time
+import warnings
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -157,10 +158,15 @@ def _guarded(fn: F) -> F:
 
     @functools.wraps(fn)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
-        ctx = next((a for a in [*args, *kwargs.values()] if isinstance(a, typer.Context)), None)
+        ctx = next((a for a in [*args, *kwargs.values()] if hasattr(a, "find_root")), None)
         ui = _ui(ctx) if ctx is not None else Ui()
         try:
-            return fn(*args, **kwargs)
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                try:
+                    return fn(*args, **kwargs)
+                finally:
+                    _show_warnings(caught)
         except typer.Exit:
             raise
         except InfeasibleError as err:
@@ -181,6 +187,12 @@ def _guarded(fn: F) -> F:
         return None
 
     return wrapper  # type: ignore[return-value]
+
+
+def _show_warnings(caught: Sequence[warnings.WarningMessage]) -> None:
+    """Each distinct warning once, as one line on stderr."""
+    for text in dict.fromkeys(str(w.message).strip().splitlines()[0] for w in caught if str(w.message).strip()):
+        sys.stderr.write(f"trimtab: warning: {text}\n")
 
 
 def _version(value: bool) -> None:
@@ -375,6 +387,7 @@ def risk(
     benchmark: Annotated[Path | None, typer.Option("--benchmark", help="Benchmark file: asset, weight. Gives active risk.")] = None,
     attributes: Annotated[Path | None, typer.Option("--attributes", help="Attributes file (prices for shares; groups).")] = None,
     top: Annotated[int, typer.Option("--top", help="How many top contributors to list.", min=1)] = 10,
+    out: Annotated[Path | None, typer.Option("--out", "-o", help="Also write the tables, JSON and HTML report to this folder.")] = None,
 ) -> None:
     """Attribute a book's risk (active risk with --benchmark) to factors, groups and positions."""
     from trimtab import FactorModel
@@ -397,6 +410,9 @@ def risk(
         )
         step("attributing risk")
         attribution = fm.attribute(aligned.holdings, aligned.benchmark, attributes=aligned.attributes)
+        if out is not None:
+            step("writing the report")
+            _write_attribution(attribution, out, [model, holdings, *(p for p in (benchmark, attributes) if p)])
     if ui.json:
         ui.emit(
             {
@@ -414,6 +430,18 @@ def risk(
             report.print_attribution(attribution, console=ui.out, top=top)
         else:
             ui.out.print(attribution.summary(top=top).as_text())
+        if out is not None:
+            ui.say(f"Wrote the tables, result.json and report.html to {out}")
+
+
+def _write_attribution(attribution: Any, out: Path, inputs: Sequence[Path]) -> None:
+    from trimtab.scenario import output_folder
+
+    report = _report_module()
+    with output_folder(out, inputs) as tmp:
+        report.write_tables(attribution, tmp, file_format="csv")
+        report.write_json(attribution, tmp / "result.json")
+        report.write_html(attribution, tmp / "report.html", title="Risk report")
 
 
 def _optional_report() -> Any:

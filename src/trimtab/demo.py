@@ -199,8 +199,9 @@ def make_demo_fund(
     returns_arr = f @ B.T + t * np.sqrt(d)
     n_late = max(1, n_assets // 50)
     late = rng.choice(n_assets, size=n_late, replace=False)
+    shortest, longest = min(260, n_days // 2), min(750, n_days - 50)
     for i in late:
-        history = int(rng.integers(260, 751))
+        history = int(rng.integers(shortest, longest + 1))
         returns_arr[: n_days - history, i] = np.nan
     returns = pd.DataFrame(returns_arr, index=dates, columns=assets)
 
@@ -216,7 +217,7 @@ def make_demo_fund(
             "price": price,
             "adv": adv,
             "spread_bps": spread_bps,
-            "market_cap": np.round(cap, -5),
+            "market_cap": np.round(cap, -5).clip(1e5, None),
         },
         index=assets,
     )
@@ -225,7 +226,8 @@ def make_demo_fund(
         index=assets,
     )
 
-    benchmark = pd.Series(cap / cap.sum(), index=assets, name="weight")
+    listed_cap = attributes["market_cap"].to_numpy()
+    benchmark = pd.Series(listed_cap / listed_cap.sum(), index=assets, name="weight")
 
     # --- the fund: cap^0.6 targets on 300 names, drifted with the last 126 days of returns
     listed_all_along = np.setdiff1d(np.arange(n_assets), late)

@@ -108,7 +108,7 @@ def test_holdings_as_weights_and_as_shares(tmp_path: Path) -> None:
 def test_holdings_errors(tmp_path: Path) -> None:
     (tmp_path / "s.csv").write_text("asset,shares\nAAA,100\nZZZ,5\n", encoding="utf-8")
     spec = HoldingsFile(path=str(tmp_path / "s.csv"), kind="shares")
-    with pytest.raises(InputError, match=r"s\.csv: holdings given as shares need prices: add a 'price' column"):
+    with pytest.raises(InputError, match=r"s\.csv: holdings given as shares need prices: add a 'price' column to this file or give an attributes file"):
         load_holdings(spec)
     attrs = pd.DataFrame({"price": [10.0]}, index=["AAA"])
     with pytest.raises(InputError, match=r"s\.csv: no price for held assets ZZZ"):

@@ -193,8 +193,8 @@ def load_holdings(spec: HoldingsFile, attributes: pd.DataFrame | None = None) ->
         )
     else:
         raise InputError(
-            f"{path}: holdings given as shares need prices: add a {spec.price_column!r} column here "
-            "or to the attributes file (or set price_column)"
+            f"{path}: holdings given as shares need prices: add a {spec.price_column!r} column to this file "
+            "or give an attributes file that has one"
         )
     bad = prices.index[~(prices.to_numpy() > 0)]
     if len(bad):

@@ -1,0 +1,184 @@
+"""The command line: every command, every exit code, one-line errors, and no partial output."""
+
+from __future__ import annotations
+
+import json
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from tests.demo_helpers import make_demo_folder
+from trimtab.cli import EXIT_BAD_INPUT, EXIT_INTERNAL, app
+from trimtab.scenario import MARKER
+
+runner = CliRunner()
+
+
+@pytest.fixture(scope="module")
+def demo_folder(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return make_demo_folder(tmp_path_factory.mktemp("demo"))
+
+
+@pytest.fixture
+def work(demo_folder: Path, tmp_path: Path) -> Path:
+    """A private copy of the small demo folder (tests may add files to it)."""
+    target = tmp_path / "demo"
+    shutil.copytree(demo_folder, target)
+    return target
+
+
+def invoke(*args: str | Path) -> "object":
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def one_error_line(result: object, pattern: str) -> None:
+    """stderr is exactly one line 'trimtab: error: …' matching ``pattern``, and no traceback."""
+    import re
+
+    lines = result.stderr.strip().splitlines()  # type: ignore[attr-defined]
+    assert len(lines) == 1, result.stderr  # type: ignore[attr-defined]
+    assert lines[0].startswith("trimtab: error: ")
+    assert re.search(pattern, lines[0]), lines[0]
+    assert "Traceback" not in result.output  # type: ignore[attr-defined]
+
+
+# ---------------------------------------------------------------------- check
+def test_check_ok_prints_alignment_and_json(work: Path) -> None:
+    result = invoke("check", work / "base.yaml")
+    assert result.exit_code == 0, result.output
+    assert "Model: 600 assets × 15 factors" in result.stdout
+    assert "alpha: 570 of 570 assets kept; 30 filled (no alpha score, set to 0" in result.stdout
+    assert "OK: the scenario and its files are valid." in result.stdout
+    result = invoke("--json", "check", work / "low_turnover.yaml")
+    assert result.exit_code == 0
+    document = json.loads(result.stdout)
+    assert document["status"] == "ok" and document["scenario"] == "low_turnover"
+    assert document["extends"][0].endswith("base.yaml")
+    assert document["model"]["n_assets"] == 600
+    assert {row["input"]: row["filled"] for row in document["alignment"]}["alpha"] == 30
+
+
+@pytest.mark.parametrize(
+    ("edit", "pattern"),
+    [
+        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: constraints, data"),
+        (lambda t: t.replace("kind: shares", "kind: lots"), r"data\.holdings\.kind: expected 'weights' or 'shares', got 'lots'"),
+        (lambda t: t.replace("model: model", "model: missing_model"), r"missing_model: no such model folder"),
+        (lambda t: t.replace("data/alpha.csv", "data/alpha.txt"), r"alpha\.txt: alpha file not found"),
+        (lambda t: t.replace("objective:\n  maximize: alpha\n", "objective: [\n"), r"base\.yaml: line \d+, column \d+: not valid YAML"),
+    ],
+)
+def test_check_bad_input_exits_2_with_one_line(work: Path, edit, pattern: str) -> None:  # type: ignore[no-untyped-def]
+    path = work / "base.yaml"
+    path.write_text(edit(path.read_text(encoding="utf-8")), encoding="utf-8")
+    result = invoke("check", path)
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, pattern)
+
+
+def test_check_bad_data_files(work: Path) -> None:
+    (work / "data" / "benchmark.csv").write_text("asset,weight\nNOPE,1.0\n", encoding="utf-8")
+    result = invoke("check", work / "base.yaml")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"benchmark\.csv: 1 benchmark asset not in the risk model: NOPE; add them to the model or set data\.unknown_assets: drop")
+    (work / "data" / "holdings.csv").write_text("asset,shares\nAAA,\x00\x01broken", encoding="utf-8")
+    result = invoke("check", work / "base.yaml")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"holdings\.csv: ")
+
+
+def test_check_extends_itself(work: Path) -> None:
+    (work / "loop.yaml").write_text("extends: loop2.yaml\n", encoding="utf-8")
+    (work / "loop2.yaml").write_text("extends: loop.yaml\n", encoding="utf-8")
+    result = invoke("check", work / "loop.yaml")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"scenario loop\.yaml extends itself \(via loop\.yaml → loop2\.yaml → loop\.yaml\)")
+
+
+def test_usage_errors_exit_2(work: Path) -> None:
+    assert invoke("check").exit_code == 2
+    assert invoke("rebalance", work / "base.yaml", "--colour").exit_code == 2
+    assert invoke("fit", work / "fit.yaml").exit_code == 2  # --out is required
+    result = invoke("--version")
+    assert result.exit_code == 0 and result.stdout.startswith("trimtab ")
+
+
+# ---------------------------------------------------------------------- fit
+def test_fit_writes_a_model_and_refuses_to_clobber(work: Path) -> None:
+    result = invoke("fit", work / "fit.yaml", "--out", work / "model2")
+    assert result.exit_code == 0, result.output
+    assert "Fitted a time_series model: 600 assets × 15 factors, 2022-01-03 to" in result.stdout
+    assert (work / "model2" / "manifest.json").exists()
+    again = invoke("fit", work / "fit.yaml", "--out", work / "model2")
+    assert again.exit_code == EXIT_BAD_INPUT
+    one_error_line(again, r"already holds a model; pass overwrite=True")
+    assert invoke("--json", "fit", work / "fit.yaml", "--out", work / "model2", "--overwrite", "--format", "csv").exit_code == 0
+    assert (work / "model2" / "exposures.csv").exists()
+    # an output folder holding the inputs is refused, and nothing in it changes
+    before = sorted(p.name for p in (work / "data").iterdir())
+    result = invoke("fit", work / "fit.yaml", "--out", work / "data")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"--out .*data: would replace the input file returns\.parquet; choose another folder")
+    assert sorted(p.name for p in (work / "data").iterdir()) == before
+    result = invoke("fit", work / "fit.yaml", "--out", work / "m", "--format", "xlsx")
+    one_error_line(result, r"--format: expected parquet or csv, got 'xlsx'")
+
+
+def test_fit_bad_config(work: Path) -> None:
+    (work / "fit.yaml").write_text("method: time_series\nreturns: data/returns.parquet\n", encoding="utf-8")
+    result = invoke("fit", work / "fit.yaml", "--out", work / "m")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"fit\.yaml: \(top level\): method time_series needs factor_returns")
+    assert not (work / "m").exists()
+
+
+# ---------------------------------------------------------------------- risk
+def test_risk_active_and_total(work: Path) -> None:
+    args = ("risk", "--model", work / "model", "--holdings", work / "data" / "holdings.csv", "--attributes", work / "data" / "attributes.csv")
+    result = invoke(*args, "--benchmark", work / "data" / "benchmark.csv")
+    assert result.exit_code == 0, result.output
+    assert "Active risk (tracking error)" in result.stdout
+    result = invoke("--json", *args, "--out", work / "risk")
+    assert result.exit_code == 0, result.output
+    document = json.loads(result.stdout)
+    assert document["kind"] == "total"
+    figures = {row["figure"]: row for row in document["headline"]} if isinstance(document["headline"], list) else document["headline"]
+    assert figures
+    assert {"report.html", "result.json", MARKER} <= {p.name for p in (work / "risk").iterdir()}
+
+
+def test_risk_errors(work: Path) -> None:
+    result = invoke("risk", "--model", work / "model", "--holdings", work / "data" / "holdings.csv")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"holdings\.csv: holdings given as shares need prices")
+    (work / "w.csv").write_text("asset,weight\nNOTAREALCODE,1.0\n", encoding="utf-8")
+    result = invoke("risk", "--model", work / "model", "--holdings", work / "w.csv")
+    one_error_line(result, r"w\.csv: 1 holdings asset not in the risk model: NOTAREALCODE")
+    result = invoke("risk", "--model", work / "nothing", "--holdings", work / "w.csv")
+    one_error_line(result, r"nothing: no such model folder")
+
+
+def test_internal_errors_are_one_line_without_verbose(work: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    import trimtab.scenario
+
+    def broken(*args: object, **kwargs: object) -> None:
+        raise ZeroDivisionError("simulated bug")
+
+    monkeypatch.setattr(trimtab.scenario, "load_scenario", broken)
+    result = invoke("check", work / "base.yaml")
+    assert result.exit_code == EXIT_INTERNAL
+    one_error_line(result, r"internal error \(ZeroDivisionError: simulated bug\); this is a bug in trimtab, rerun with --verbose")
+    result = invoke("--verbose", "check", work / "base.yaml")
+    assert isinstance(result.exception, ZeroDivisionError)
+
+
+def test_entry_point_subprocess(work: Path) -> None:
+    # the installed console script and `python -m trimtab.cli` behave the same way
+    done = subprocess.run([sys.executable, "-m", "trimtab.cli", "check", str(work / "nope.yaml")], capture_output=True, text=True, check=False)
+    assert done.returncode == EXIT_BAD_INPUT
+    assert done.stderr.strip().endswith("nope.yaml: no such scenario file")
+    assert done.stdout == ""
