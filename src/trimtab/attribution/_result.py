@@ -22,14 +22,14 @@ TRADING_DAYS_PER_YEAR = 252
 #: Group label for assets without a value for the attribute in :meth:`RiskAttribution.by_group`.
 UNASSIGNED = "unassigned"
 
-#: Headline figures: key → (label, unit). Units: "fraction" (shown as %), "percent", "ratio", "count".
+#: Headline figures: key → (label, unit); units as in :func:`format_figure`.
 HEADLINE_FIGURES: dict[str, tuple[str, str]] = {
     "risk": ("Risk (annualised volatility)", "fraction"),
     "factor_risk": ("Factor risk", "fraction"),
     "specific_risk": ("Specific risk", "fraction"),
     "factor_percent": ("Factor share of variance", "percent"),
     "specific_percent": ("Specific share of variance", "percent"),
-    "variance": ("Variance (annualised)", "ratio"),
+    "variance": ("Variance (annualised)", "variance"),
     "portfolio_risk": ("Portfolio total risk", "fraction"),
     "benchmark_risk": ("Benchmark total risk", "fraction"),
     "beta": ("Predicted beta to benchmark", "ratio"),
@@ -418,7 +418,8 @@ def format_figure(value: Any, unit: str) -> str:
     """Format a figure by its unit.
 
     Units: "fraction" (0.0123 → 1.23%), "percent" (12.3 → 12.3%), "count" and "amount" (with thousands
-    separators), "exposure" (signed, three decimals), "bp" (a fraction in basis points), otherwise four
+    separators), "exposure" (signed, three decimals), "variance" (six decimals), "bp" (a fraction in basis
+    points), otherwise four
     significant digits. NaN and None give "n/a".
     """
     if value is None or (isinstance(value, float) and math.isnan(value)):
@@ -432,8 +433,10 @@ def format_figure(value: Any, unit: str) -> str:
         return f"{value:,.0f}"
     if unit == "exposure":
         return f"{value:+.3f}"
+    if unit == "variance":
+        return f"{value:.6f}"
     if unit == "bp":
-        return f"{1e4 * value:.1f} bp"
+        return f"{1e4 * value:.2f} bp"
     return f"{value:.4g}"
 
 

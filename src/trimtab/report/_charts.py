@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
-from matplotlib.ticker import FuncFormatter
+from matplotlib.ticker import PercentFormatter
 
 from trimtab.report._content import RiskBudget
 
@@ -50,7 +50,7 @@ def _svg(fig: Figure, salt: str) -> str:
     buffer = io.StringIO()
     with matplotlib.rc_context({**_STYLE, "svg.hashsalt": f"trimtab-{salt}"}):
         fig.tight_layout()
-        fig.savefig(buffer, format="svg", metadata={"Date": None, "Creator": None})
+        fig.savefig(buffer, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None})
     text = buffer.getvalue()
     text = _prefix_ids(text[text.index("<svg") :], salt)
     text = re.sub(r'<svg([^>]*?) width="[^"]*" height="[^"]*"', r'<svg\1 class="chart" role="img"', text, count=1)
@@ -65,7 +65,7 @@ def _prefix_ids(svg: str, prefix: str) -> str:
 
 
 def _percent_axis(ax: object) -> None:
-    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{100 * v:.1f}%"))  # type: ignore[attr-defined]
+    ax.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))  # type: ignore[attr-defined]
 
 
 def _draw(values: pd.Series) -> np.ndarray:
@@ -114,7 +114,7 @@ def split_chart(rows: pd.DataFrame, salt: str = "factor-specific") -> str:
         ax.set_xlim(0, 1.45 * max(float((factor + specific).max()), 1e-12))
         _percent_axis(ax)
         ax.set_xlabel("contribution to risk (annualised)")
-        ax.legend(loc="lower right", frameon=False, ncols=2)
+        ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.0), frameon=False, ncols=2)
         return _svg(fig, salt)
 
 

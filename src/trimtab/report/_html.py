@@ -45,7 +45,7 @@ _ASSET_UNITS = {
     "benchmark_weight": "fraction",
     "active_weight": "fraction",
     "marginal_contribution": "ratio",
-    "contribution": "fraction",
+    "contribution": "bp",
     "percent": "percent",
 }
 
@@ -149,6 +149,7 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
             content.exposures.head(top),
             {"group": "text", "pre": "exposure", "post": "exposure", "change": "exposure"},
             "Factor",
+            headers=None if pre is not None else {"post": "exposure"},
         )
     )
     parts.append(
@@ -165,12 +166,12 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
         + _figure(
             _charts.paired_bars(
                 top_assets[["contribution"]].rename(columns={"contribution": "post"}),
-                xlabel="contribution to risk, after",
+                xlabel="contribution to risk" + (", after" if pre is not None else ""),
                 salt=f"{key}-positions",
                 percent=True,
                 max_rows=top,
             ),
-            "After the trades; contributions of all positions add up to the risk.",
+            ("After the trades; c" if pre is not None else "C") + "ontributions of all positions add up to the risk.",
         )
         + _table(top_assets, weight_units, "Asset")
     )
@@ -329,11 +330,12 @@ def _table(
     *,
     caption: str | None = None,
     units: Sequence[str] | None = None,
+    headers: Mapping[str, str] | None = None,
 ) -> str:
     """A table of ``frame``'s index and ``columns`` (name → unit; unit "row" takes it from ``units``)."""
     shown = [c for c in columns if c in frame.columns]
     head = f"<th>{_e(index_label)}</th>" + "".join(
-        f'<th class="{"" if columns[c] == "text" else "num"}">{_e(_header(c)) if columns[c] != "row" else ""}</th>'
+        f'<th class="{"" if columns[c] == "text" else "num"}">{_e(_header(c, headers)) if columns[c] != "row" else ""}</th>'
         for c in shown
     )
     rows = []
@@ -346,12 +348,18 @@ def _table(
     return f"<table>{cap}<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
 
 
-def _header(column: str) -> str:
-    text = _HEADERS.get(column, column.replace("_", " "))
+def _header(column: str, headers: Mapping[str, str] | None = None) -> str:
+    text = (headers or {}).get(column) or _HEADERS.get(column, column.replace("_", " "))
     return text[:1].upper() + text[1:]
 
 
-_HEADERS = {"pre": "before", "post": "after", "adv_fraction": "of daily volume", "marginal_contribution": "marginal"}
+_HEADERS = {
+    "pre": "before",
+    "post": "after",
+    "adv_fraction": "of daily volume",
+    "marginal_contribution": "marginal",
+    "contribution": "contribution (bp)",
+}
 
 
 def _cell(value: Any, unit: str) -> str:
