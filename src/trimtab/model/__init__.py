@@ -2,5 +2,35 @@
 
 from trimtab.model._factor_model import DENSE_LIMIT, FactorModel
 from trimtab.model._fit_report import FitReport
+from trimtab.model._time_series import fit_time_series
+from trimtab.model._cross_section import fit_cross_section
+from trimtab.model._statistical import fit_statistical
 
-__all__ = ["DENSE_LIMIT", "FactorModel", "FitReport"]
+from trimtab.model._covariance import (
+    CovarianceSettings,
+    eigenvalue_floor,
+    ewma_covariance,
+    ewma_weights,
+    factor_covariance,
+    ledoit_wolf,
+    newey_west,
+    specific_variance,
+)
+from trimtab.model._diagnostics import BiasResult, ResidualCheck, bias_statistic, check_residuals
+
+__all__ = [
+    "BiasResult",
+    "CovarianceSettings",
+    "ResidualCheck",
+    "bias_statistic",
+    "fit_cross_section",
+    "fit_statistical",
+    "check_residuals",
+    "eigenvalue_floor",
+    "ewma_covariance",
+    "ewma_weights",
+    "factor_covariance",
+    "ledoit_wolf",
+    "newey_west",
+    "specific_variance",
+    "DENSE_LIMIT", "FactorModel", "FitReport", "fit_time_series"]
