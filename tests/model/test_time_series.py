@@ -159,6 +159,19 @@ def test_gls_second_pass_matches_statsmodels_wls(french_data) -> None:
     np.testing.assert_allclose(weights * v, 1.0 / len(v), rtol=1e-12)
 
 
+def test_gls_date_without_kept_assets(french_data) -> None:
+    excess, factors = french_data
+    data = excess.iloc[:, :6].copy()
+    data.iloc[:5, 1:] = np.nan  # on the first five months only the short asset NoDur... has returns
+    data.iloc[5:, 0] = np.nan  # ...and it is dropped (5 returns)
+    with pytest.warns(DataWarning, match="dropped 1 of 6"):
+        model = fit_time_series(data, factors, gls=True)
+    v = model.fit_report.extra["date_variance"]
+    # no kept asset on those dates: v̂ₜ = 1 there (documented), the rest from the kept assets
+    assert (v.iloc[:5] == 1.0).all()
+    np.testing.assert_allclose(v.iloc[5:], first_pass_date_variance(data.iloc[:, 1:], factors).iloc[5:], rtol=1e-8)
+
+
 # ---------------------------------------------------------------------------------- simulation
 
 
@@ -330,6 +343,9 @@ def test_bad_labels_and_dates() -> None:
         fit_time_series(shuffled, factors)
     with pytest.raises(InputError, match=r"factor_returns: dates must be increasing"):
         fit_time_series(returns, factors.iloc[::-1])
+    mixed = returns.set_axis(pd.Index([pd.Timestamp("2009-12-31"), "2010", *returns.index[2:]], dtype=object))
+    with pytest.raises(InputError, match=r"asset_returns: dates of mixed types cannot be ordered"):
+        fit_time_series(mixed, factors)
     with pytest.raises(InputError, match=r"no dates in common"):
         fit_time_series(returns, factors.set_index(factors.index + pd.Timedelta(days=1)))
     with pytest.raises(InputError, match=r"factor_returns has no row for 6 date\(s\) with asset returns: 2010-01-31, .* \(and 1 more\)"):

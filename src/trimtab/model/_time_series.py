@@ -117,7 +117,8 @@ def fit_time_series(
 
     GLS step: the errors are taken as eᵢₜ ~ (0, σᵢ² vₜ), a date-level variance multiplier vₜ
     shared by all assets (turbulent dates). From the first pass,
-    v̂ₜ = mean over assets observed on t of eᵢₜ²/σ̂ᵢ², floored at 10⁻⁸ of its mean, and the second
+    v̂ₜ = mean over assets observed on t of eᵢₜ²/σ̂ᵢ², floored at 10⁻⁸ of its mean (1 on a date
+    where no kept asset has a return: its weight does not matter), and the second
     pass re-weights the dates by wₜ/v̂ₜ: a feasible weighted least squares that down-weights
     turbulent dates. Coefficients, t-statistics and R² are those of the second pass; d and the
     reported residual volatility use its residuals with the ``half_life`` weights only, so they

@@ -38,13 +38,12 @@ def _check_frame(frame: Any, name: str, what: str) -> pd.DataFrame:
     check_unique(frame.columns, what, owner)
     check_unique(frame.index, "dates", owner)
     index = frame.index
-    try:
-        increasing = bool(index.is_monotonic_increasing)
-    except TypeError:
-        raise InputError(f"{owner}: dates of mixed types cannot be ordered; expected increasing dates") from None
-    if not increasing:
+    if not index.is_monotonic_increasing:
         values = index.to_numpy()
-        first = next(i for i in range(1, len(index)) if not values[i] > values[i - 1])
+        try:
+            first = next(i for i in range(1, len(index)) if not values[i] > values[i - 1])
+        except TypeError:
+            raise InputError(f"{owner}: dates of mixed types cannot be ordered; expected increasing dates") from None
         raise InputError(
             f"{owner}: dates must be increasing; {date_label(index[first])} comes after "
             f"{date_label(index[first - 1])} (sort with sort_index() first)"
@@ -145,8 +144,6 @@ def infer_periods_per_year(index: pd.Index) -> float:
             f"{OWNER}: cannot infer periods_per_year from dates of type {index.dtype} "
             f"(read dates with parse_dates, or {hint})"
         )
-    if len(index) < 2:
-        raise InputError(f"{OWNER}: cannot infer periods_per_year from a single date; {hint}")
     days = float(np.median((index[1:] - index[:-1]).total_seconds())) / 86_400.0
     for low, high, per_year, _ in _SPACINGS:
         if low <= days < high:
