@@ -410,3 +410,17 @@ def test_exposure_dates_that_do_not_order(dates, message):
     long = pd.DataFrame({"date": dates, "asset": assets, "size": rng.normal(size=20)})
     with pytest.raises(InputError, match=message):
         fit_cross_section(returns, long, periods_per_year=12)
+
+
+def test_industry_and_weights_as_columns_match_the_series_form():
+    returns, styles, industry, weights = _panel()
+    by_series = _fit(returns, styles, industry=industry, weights=weights)
+    static = styles.assign(sector=industry, cap_weight=weights)
+    by_column = _fit(returns, static, industry="sector", weights="cap_weight")
+    long = pd.concat([static.assign(date=returns.index[0] - pd.Timedelta(days=1)).rename_axis("asset").reset_index()])
+    by_long = _fit(returns, long, industry="sector", weights="cap_weight")
+    for other in (by_column, by_long):
+        pd.testing.assert_frame_equal(other.fit_report.factor_returns, by_series.fit_report.factor_returns, rtol=1e-12)
+        pd.testing.assert_frame_equal(other.exposures, by_series.exposures)
+    assert by_long.provenance["settings"]["exposure_format"] == "long"
+    assert by_column.provenance["settings"]["weights"] == "column cap_weight"

@@ -262,7 +262,7 @@ def _parse_exposures(
         if not pairs.is_unique:
             dups = [f"{iso_label(d)}/{a}" for d, a in pairs[pairs.duplicated()].unique()]
             raise InputError(f"{OWNER}: exposures: duplicate (date, asset) rows: {list_labels(dups)}")
-        assets_all = pd.Index(frame["asset"])
+        assets_all = pd.Index(frame["asset"]).rename(None)
         styles = [c for c in frame.columns if c not in {"date", "asset"} | special]
     else:
         frame = exposures
@@ -467,34 +467,34 @@ def _check_blocks(
         present = np.unpackbits(np.frombuffer(key[1], dtype=np.uint8), count=len(snap.assets)).astype(bool)
         rows = np.flatnonzero(present)
         rows_of[key] = rows
-        first = dates[ts[0]]
+        on = [dates[t] for t in ts]
         if len(rows) < min_assets:
-            few.extend(dates[t] for t in ts)
+            few.extend(on)
             continue
         if industries:
             counts = np.bincount(snap.codes[rows], minlength=len(industries))
             for j in np.flatnonzero(counts == 0):
-                empty.setdefault(industries[j], []).append(first)
+                empty.setdefault(industries[j], []).extend(on)
         if (market or industries) and len(styles):
             spread = np.ptp(snap.styles[rows], axis=0)
             for k in np.flatnonzero(spread == 0):
-                constant.setdefault(styles[k], []).append(first)
+                constant.setdefault(styles[k], []).extend(on)
     if few:
         raise InputError(
             f"{OWNER}: fewer assets with a return and exposures than min_assets={min_assets} "
             f"(the regression has {n_free} free factor returns) on dates: {list_labels([iso_label(d) for d in sorted(few)])}"
         )
     if empty:
-        name, on = next(iter(empty.items()))
+        name, where = next(iter(empty.items()))
         raise InputError(
             f"{OWNER}: industry {name!r} has no member with a return on dates: "
-            f"{list_labels([iso_label(d) for d in on])}; merge it into another industry or drop it"
+            f"{list_labels([iso_label(d) for d in sorted(where)])}; merge it into another industry or drop it"
         )
     if constant:
-        name, on = next(iter(constant.items()))
+        name, where = next(iter(constant.items()))
         raise InputError(
             f"{OWNER}: style column {name!r} is constant across assets (collinear with the market or industry "
-            f"factors) on dates: {list_labels([iso_label(d) for d in on])}"
+            f"factors) on dates: {list_labels([iso_label(d) for d in sorted(where)])}"
         )
     return rows_of
 
