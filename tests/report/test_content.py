@@ -66,6 +66,18 @@ def test_risk_budget_from_scenario_when_the_table_has_no_row(result: StandInResu
     assert budget.name == "total_risk" and budget.post == result.post_trade.portfolio_risk
 
 
+def test_binding_flags_with_missing_values_and_tiny_trades(result: StandInResult) -> None:
+    table = result.constraints.assign(binding=pd.Series([None, True, np.nan, False], dtype=object))
+    trades = result.trades.copy()
+    trades.iloc[0, trades.columns.get_loc("trade")] = 1e-13  # below TRADE_TOLERANCE: solver noise
+    content = gather(dataclasses.replace(result, constraints=table, trades=trades))
+    assert content.binding_constraints["name"].tolist() == ["tracking_error"]
+    assert content.constraints["name"].iloc[0] == "tracking_error"
+    summary = content.trade_summary.set_index("label")["value"]
+    assert summary["Assets traded"] == len(trades) - 1
+    assert trades.index[0] not in content.top_trades.index
+
+
 def test_duck_typed_minimal_result(report_model: FactorModel) -> None:
     post = attribute(report_model, pd.Series({"A0001": 1.0}))
     content = gather(SimpleNamespace(post_trade=post))

@@ -33,6 +33,9 @@ CAUTION = (
 #: Constraint names (or kinds) read as the risk budget, in order of preference.
 RISK_BUDGET_NAMES = ("tracking_error", "active_risk", "total_risk")
 
+#: Trades smaller than this (a fraction of NAV) are solver noise and not counted as trades.
+TRADE_TOLERANCE = 1e-10
+
 #: Columns of a constraint table, in display order.
 CONSTRAINT_COLUMNS = ("name", "kind", "value", "lower", "upper", "unit", "slack", "binding", "shadow_price", "soft")
 
@@ -82,7 +85,7 @@ class ReportContent:
         """Rows of the constraint table marked binding (None without a table)."""
         if self.constraints is None or "binding" not in self.constraints.columns:
             return None
-        return self.constraints[self.constraints["binding"].fillna(False).astype(bool)]
+        return self.constraints[flags(self.constraints["binding"])]
 
 
 def gather(subject: Any, *, top: int = 10) -> ReportContent:
@@ -265,6 +268,7 @@ def _trade_summary(trades: pd.DataFrame | None) -> pd.DataFrame | None:
     if trades is None or "trade" not in trades.columns:
         return None
     trade = trades["trade"].astype(float)
+    trade = trade.where(trade.abs() > TRADE_TOLERANCE, 0.0)
     rows: list[tuple[str, str, float]] = [
         ("Assets traded", "count", float((trade != 0).sum())),
         ("Buys", "count", float((trade > 0).sum())),
@@ -286,7 +290,7 @@ def _trade_summary(trades: pd.DataFrame | None) -> pd.DataFrame | None:
 def _top_trades(trades: pd.DataFrame | None, top: int) -> pd.DataFrame | None:
     if trades is None or "trade" not in trades.columns:
         return None
-    moved = trades[trades["trade"] != 0]
+    moved = trades[trades["trade"].abs() > TRADE_TOLERANCE]
     order = moved["trade"].abs().sort_values(ascending=False, kind="stable").index
     return moved.loc[order[:top]]
 
@@ -301,8 +305,13 @@ def _constraints(table: Any) -> pd.DataFrame | None:
     ]
     table = table[columns]
     if "binding" in table.columns:
-        table = table.iloc[np.argsort(~table["binding"].fillna(False).astype(bool).to_numpy(), kind="stable")]
+        table = table.iloc[np.argsort(~flags(table["binding"]).to_numpy(), kind="stable")]
     return table.reset_index(drop="name" in table.columns)
+
+
+def flags(values: pd.Series) -> pd.Series:
+    """A column of yes/no values as booleans; missing values count as no."""
+    return values.map(lambda v: False if v is None or (isinstance(v, float) and np.isnan(v)) else bool(v)).astype(bool)
 
 
 def _objective(value: Any) -> pd.Series | None:
