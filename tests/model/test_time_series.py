@@ -383,7 +383,8 @@ def test_degenerate_factors() -> None:
         ({"min_periods": 3}, r"min_periods must be a whole number >= 4 \(K \+ 2 for 2 factors\), got 3"),
         ({"min_periods": 30.5}, r"min_periods must be a whole number"),
         ({"gls": "yes"}, r"gls must be True or False"),
-        ({"covariance": {"shrinkage": "ledoit_wolf"}}, r"covariance must be a CovarianceSettings or None, got dict"),
+        ({"covariance": "ledoit_wolf"}, r"covariance must be a CovarianceSettings, a mapping of its fields or None, got str"),
+        ({"covariance": {"shrink": "ledoit_wolf"}}, r"fit_time_series: covariance: unknown keys shrink"),
         ({"rolling_window": 10}, r"rolling_window must be a whole number of dates >= min_periods=24, got 10"),
         ({"rolling_window": 50}, r"rolling_window=50 exceeds the 40 dates with returns"),
         ({"exposure_half_life": 6, "half_life": 6}, r"exposure_half_life cannot be combined"),
@@ -422,6 +423,8 @@ def test_covariance_settings_are_passed_through(french_data, tmp_path) -> None:
     assert np.trace(model.factor_covariance) == pytest.approx(np.trace(plain.factor_covariance), rel=1e-12)
     assert (model.specific_variance >= 0.002).all()
     np.testing.assert_allclose(model.exposures, plain.exposures, rtol=1e-14)
+    from_mapping = fit_time_series(excess, factors, covariance={"shrinkage": "ledoit_wolf", "specific_floor": 0.002})
+    np.testing.assert_allclose(from_mapping.factor_covariance, model.factor_covariance, rtol=1e-15)
     assert model.provenance["settings"]["covariance"]["shrinkage"] == "ledoit_wolf"
     # the provenance survives a save/load round trip (JSON manifest)
     loaded = FactorModel.load(model.save(tmp_path / "model", file_format="csv"))

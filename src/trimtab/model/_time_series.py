@@ -33,7 +33,7 @@ def fit_time_series(
     half_life: float | None = None,
     min_periods: int | None = None,
     gls: bool = False,
-    covariance: CovarianceSettings | None = None,
+    covariance: CovarianceSettings | Mapping[str, Any] | None = None,
     rolling_window: int | None = None,
     exposure_half_life: float | None = None,
     exposure_step: int | None = None,
@@ -59,9 +59,10 @@ def fit_time_series(
         max(24, 3(K+1)); at least K+2.
     gls : bool, default False
         Add a second, date-weighted pass (a feasible GLS step, see Notes).
-    covariance : CovarianceSettings, optional
-        Refinements of the factor covariance F and specific variances d. Default: the sample
-        estimates, EWMA-weighted with ``half_life`` when one is given.
+    covariance : CovarianceSettings or Mapping, optional
+        Refinements of the factor covariance F and specific variances d (a mapping is read with
+        ``CovarianceSettings.from_mapping``). Default: the sample estimates, EWMA-weighted with
+        ``half_life`` when one is given.
     rolling_window : int, optional
         Re-estimate the exposures on trailing windows of this many dates, every ``exposure_step``
         dates; the model is the fit on the last window (see Notes).
@@ -171,7 +172,12 @@ def fit_time_series(
     if settings["exposure_step"] is None:
         settings["exposure_step"] = max(1, int(round(settings["periods_per_year"] / 12)))
     regression_half_life = half_life if half_life is not None else exposure_half_life
-    cov_settings = covariance if covariance is not None else CovarianceSettings(volatility_half_life=regression_half_life)
+    if covariance is None:
+        cov_settings = CovarianceSettings(volatility_half_life=regression_half_life)
+    elif isinstance(covariance, CovarianceSettings):
+        cov_settings = covariance
+    else:
+        cov_settings = CovarianceSettings.from_mapping(covariance, owner=f"{OWNER}: covariance")
     settings["covariance"] = asdict(cov_settings)
     min_obs = settings["min_periods"]
 
@@ -332,8 +338,11 @@ def _checked_settings(n_factors: int, n_dates: int, **given: Any) -> dict[str, A
     if not isinstance(given["gls"], (bool, np.bool_)):
         raise InputError(f"{OWNER}: gls must be True or False, got {given['gls']!r}")
     covariance = given["covariance"]
-    if covariance is not None and not isinstance(covariance, CovarianceSettings):
-        raise InputError(f"{OWNER}: covariance must be a CovarianceSettings or None, got {type(covariance).__name__}")
+    if covariance is not None and not isinstance(covariance, (CovarianceSettings, Mapping)):
+        raise InputError(
+            f"{OWNER}: covariance must be a CovarianceSettings, a mapping of its fields or None, "
+            f"got {type(covariance).__name__}"
+        )
     floor = n_factors + 2
     min_periods = given["min_periods"]
     if min_periods is None:
