@@ -424,3 +424,13 @@ def test_industry_and_weights_as_columns_match_the_series_form():
         pd.testing.assert_frame_equal(other.exposures, by_series.exposures)
     assert by_long.provenance["settings"]["exposure_format"] == "long"
     assert by_column.provenance["settings"]["weights"] == "column cap_weight"
+
+
+def test_saved_model_round_trips_with_its_provenance(fitted, tmp_path):
+    model = fitted[-1]
+    loaded = type(model).load(model.save(tmp_path / "cross_section_model"))
+    pd.testing.assert_frame_equal(loaded.exposures, model.exposures, check_names=False)
+    np.testing.assert_allclose(loaded.factor_covariance.to_numpy(), model.factor_covariance.to_numpy(), rtol=1e-15)
+    assert loaded.provenance["estimator"] == "cross_section"
+    assert loaded.provenance["settings"]["lag"] == "exposures known at the start of each period"
+    assert loaded.fit_report.method == "cross_section"

@@ -227,3 +227,12 @@ def test_assets_with_too_few_observations_for_the_degrees_of_freedom_are_left_ou
         model = fit_statistical(panel, n_factors=3, min_periods=4)
     assert "no more than 4 observations (the degrees of freedom): A004" in " | ".join(str(r.message) for r in record)
     assert "A004" not in model.assets
+
+
+def test_saved_model_round_trips_with_its_provenance(panel, tmp_path):
+    model = fit_statistical(panel, max_factors=6)
+    loaded = type(model).load(model.save(tmp_path / "statistical_model"))
+    np.testing.assert_allclose(loaded.exposures.to_numpy(), model.exposures.to_numpy(), rtol=1e-15)
+    assert loaded.provenance["settings"]["criterion"] == "IC_p2"
+    assert loaded.provenance["window"] == model.provenance["window"]
+    assert loaded.fit_report.method == "statistical"
