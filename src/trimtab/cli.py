@@ -306,7 +306,7 @@ def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
     sizes.index.name = "input"
     ui.table(_frame_table(sizes.astype(int), "Inputs aligned to the model's assets"))
     if not inputs.alignment.table.empty:
-        ui.say(inputs.alignment.summary())
+        ui.say(inputs.alignment.summary(changes_only=True))
     ui.say(f"Objective: {dict(loaded.spec.objective)}")
     ui.say(f"Constraints: {', '.join(loaded.spec.constraints) or 'none'}")
     ui.say(f"Outputs would go to {loaded.output_dir}")

@@ -283,6 +283,16 @@ min_periods: 126
 factor_groups:
 {_GROUP_LINES}
 """,
+    "fit_cross_section.yaml": """\
+# The alternative risk model: the demo's stock characteristics (size, value, momentum, low_risk and
+# the industry) as exposures, factor returns estimated date by date by cross-sectional regression.
+# `trimtab fit fit_cross_section.yaml --out model_cross_section` writes it; the demo uses fit.yaml.
+method: cross_section
+returns: data/returns.parquet
+exposures: data/characteristics.csv
+exposure_columns: [size, value, momentum, low_risk]
+industry_column: industry
+""",
     "base.yaml": """\
 # Rebalance the demo fund to a 3% tracking-error budget: maximise alpha inside the budget and the
 # mandate (long only, fully invested, position and industry bands), with a turnover cap and a

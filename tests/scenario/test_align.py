@@ -37,6 +37,8 @@ def test_rules_and_report() -> None:
     assert sizes.loc["alpha"].to_dict() == {"read": 2, "kept": 1, "dropped": 1, "filled": 3}
     summary = aligned.report.summary()
     assert "holdings: 2 of 3 assets kept; 1 dropped (dropped by the model fit: fewer than 126 observations: X)" in summary
+    assert "benchmark: 4 of 4 assets kept" in summary
+    assert "benchmark" not in aligned.report.summary(changes_only=True)
 
 
 def test_unknown_holdings_are_an_error_by_default() -> None:

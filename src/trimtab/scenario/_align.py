@@ -46,10 +46,15 @@ class AlignmentReport:
         """Rows dropped over all inputs."""
         return int((self.table["action"] == "dropped").sum())
 
-    def summary(self) -> str:
-        """One line per input: kept, dropped (with the reasons) and filled counts."""
+    def summary(self, *, changes_only: bool = False) -> str:
+        """One line per input: kept, dropped (with the reasons) and filled counts.
+
+        With ``changes_only``, inputs kept whole are left out.
+        """
         lines = []
         for name, row in self.sizes.iterrows():
+            if changes_only and not (row["dropped"] or row["filled"]):
+                continue
             text = f"{name}: {int(row['kept'])} of {int(row['read'])} assets kept"
             sub = self.table[self.table["input"] == name]
             for (action, reason), group in sub.groupby(["action", "reason"], sort=False):

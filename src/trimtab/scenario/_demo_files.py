@@ -14,7 +14,7 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
 
     Layout::
 
-        folder/fit.yaml, base.yaml, neutral_size_momentum.yaml, low_turnover.yaml, infeasible.yaml
+        folder/fit.yaml, fit_cross_section.yaml, base.yaml, neutral_size_momentum.yaml, low_turnover.yaml, infeasible.yaml
         folder/data/returns.parquet        dates × stocks (wide; empty before a stock listed)
         folder/data/factor_returns.csv     dates × factors
         folder/data/holdings.csv           asset, shares
