@@ -87,12 +87,12 @@ def iso_label(value: Any) -> str:
     return str(value)
 
 
-def settings_record(covariance: CovarianceSettings | None) -> dict[str, Any] | None:
+def settings_record(covariance: CovarianceSettings | None, owner: str) -> dict[str, Any] | None:
     """The covariance settings as a plain dict (for provenance and the manifest)."""
     if covariance is None:
         return None
     if not isinstance(covariance, CovarianceSettings):
-        raise InputError(f"covariance: expected CovarianceSettings or None, got {type(covariance).__name__}")
+        raise InputError(f"{owner}: covariance: expected CovarianceSettings or None, got {type(covariance).__name__}")
     return dataclasses.asdict(covariance)
 
 
@@ -627,7 +627,7 @@ def fit_cross_section(
     returns = check_returns_panel(asset_returns, OWNER)
     if not isinstance(market, bool):
         raise InputError(f"{OWNER}: market must be True or False, got {market!r}")
-    settings = settings_record(covariance)
+    settings = settings_record(covariance, OWNER)
     ppy = infer_periods_per_year(returns.index, periods_per_year, OWNER)
     snapshots, industries, styles, described = _parse_exposures(exposures, industry, weights, returns.index)
     industry_names = [str(j) for j in industries]
@@ -665,6 +665,7 @@ def fit_cross_section(
     r2_all = np.full(n_dates, np.nan)
     c_all = np.full((n_dates, n_industries), np.nan)
     u_all = np.full(values.shape, np.nan)
+    used = np.zeros(n_dates, dtype=bool)
     for key, ts in blocks.items():
         snap, rows = snapshots[key[0]], rows_of[key]
         cols = columns[key[0]][rows]
@@ -682,8 +683,8 @@ def fit_cross_section(
         if n_industries:
             c_all[ts] = fit.industry_weight
         u_all[np.ix_(ts, cols)] = fit.residuals.T
+        used[ts] = True
 
-    used = np.isfinite(r2_all)
     used_dates = returns.index[used]
     if used.sum() < 2:
         raise InputError(f"{OWNER}: need at least 2 dates with a regression, got {int(used.sum())}")

@@ -235,7 +235,7 @@ def fit_statistical(
     """
     _check_arguments(n_factors, max_factors, criterion, demean, min_periods)
     returns = check_returns_panel(asset_returns, OWNER)
-    settings = settings_record(covariance)
+    settings = settings_record(covariance, OWNER)
     ppy = infer_periods_per_year(returns.index, periods_per_year, OWNER)
     panel, dropped, dropped_dates, min_periods = _clean_panel(returns, min_periods)
     n_dates, n_assets = panel.shape
