@@ -31,7 +31,7 @@ def check_unique(index: pd.Index, what: str, owner: str) -> None:
 
 def check_finite_frame(frame: pd.DataFrame, owner: str, *, allow_nan: bool = False) -> None:
     """Raise if ``frame`` has non-numeric columns, infinities or (unless allowed) NaN."""
-    bad_cols = [c for c in frame.columns if not pd.api.types.is_numeric_dtype(frame[c])]
+    bad_cols = [c for c, dtype in zip(frame.columns, frame.dtypes) if not pd.api.types.is_numeric_dtype(dtype)]
     if bad_cols:
         raise InputError(f"{owner}: non-numeric columns: {list_labels(bad_cols)}; expected numbers")
     values = frame.to_numpy(dtype=float)
