@@ -182,3 +182,21 @@ def test_entry_point_subprocess(work: Path) -> None:
     assert done.returncode == EXIT_BAD_INPUT
     assert done.stderr.strip().endswith("nope.yaml: no such scenario file")
     assert done.stdout == ""
+
+
+def test_quiet_prints_nothing_and_warnings_are_one_line_each(work: Path) -> None:
+    import pandas as pd
+
+    result = invoke("--quiet", "check", work / "base.yaml")
+    assert result.exit_code == 0 and result.stdout == "" and result.stderr == ""
+    # an asset with only 20 observations is dropped by the fit: a warning line, still exit 0
+    returns = pd.read_parquet(work / "data" / "returns.parquet")
+    returns.iloc[:-20, 1] = float("nan")
+    returns.to_parquet(work / "data" / "returns.parquet", index=False)
+    dropped = returns.columns[1]
+    result = invoke("--json", "fit", work / "fit.yaml", "--out", work / "model3")
+    assert result.exit_code == 0, result.output
+    warnings = result.stderr.strip().splitlines()
+    assert len(warnings) == 1 and warnings[0].startswith("trimtab: warning: fit_time_series: dropped 1 of 600 assets")
+    document = json.loads(result.stdout)  # stdout stays pure JSON
+    assert list(document["dropped"]) == [dropped]

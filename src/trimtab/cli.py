@@ -277,7 +277,6 @@ def _report_module() -> Any:
 ScenarioArg = Annotated[Path, typer.Argument(help="A scenario YAML file.", metavar="SCENARIO.yaml", show_default=False)]
 
 
-@app.command()
 @_guarded
 def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
     """Validate a scenario and every file it names, without solving.
@@ -314,7 +313,6 @@ def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
 
 
 # ---------------------------------------------------------------------- fit
-@app.command()
 @_guarded
 def fit(
     ctx: typer.Context,
@@ -378,7 +376,6 @@ def _fit_document(model: Any, out: Path) -> dict[str, Any]:
 
 
 # ---------------------------------------------------------------------- risk
-@app.command()
 @_guarded
 def risk(
     ctx: typer.Context,
@@ -459,11 +456,14 @@ OutOption = Annotated[
 ]
 
 
-@app.command()
 @_guarded
 def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) -> None:
-    """Rebalance the book under a scenario: solve, verify every limit, write the trade list,
-    weights, constraint table, attributions, JSON and the HTML report."""
+    """Rebalance the book under a scenario and write the trade list and reports.
+
+    Solves, verifies every limit on the returned weights, and writes the weights, trades, constraint
+    table, pre- and post-trade attributions, result.json and report.html. An infeasible scenario
+    prints its relaxation table, writes nothing and exits with 1.
+    """
     from trimtab.scenario import load_inputs, load_scenario
     from trimtab.scenario._run import solve, write_rebalance
 
@@ -503,7 +503,6 @@ def _print_result(ui: Ui, result: Any) -> None:
 
 
 # ---------------------------------------------------------------------- compare
-@app.command()
 @_guarded
 def compare(
     ctx: typer.Context,
@@ -566,7 +565,6 @@ def _exit_for(runs: Sequence[Any]) -> None:
 
 
 # ---------------------------------------------------------------------- demo
-@app.command()
 @_guarded
 def demo(
     ctx: typer.Context,
@@ -574,8 +572,11 @@ def demo(
     seed: Annotated[int, typer.Option("--seed", help="Seed of the simulation; the same seed gives the same fund.")] = 7,
     n_assets: Annotated[int, typer.Option("--n-assets", help="Stocks in the invented universe.", min=50)] = 1500,
 ) -> None:
-    """Simulate the invented demo fund and run the whole job on it: fit the risk model, report
-    pre-trade risk, rebalance, compare the demo scenarios and write the HTML reports."""
+    """Simulate the invented demo fund and run the whole job on it.
+
+    Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them and
+    writes the HTML reports; prints the headline table and where the files went.
+    """
     from trimtab.demo import DEMO_SCENARIOS, make_demo_fund
     from trimtab.scenario import load_fit_config, load_scenario, output_folder, write_demo
     from trimtab.scenario._fit import fit_model
@@ -661,6 +662,11 @@ def _result_figures(result: Any) -> dict[str, float]:
     if turnover is not None:
         figures["turnover"] = float(turnover)
     return figures
+
+
+# ---------------------------------------------------------------------- registration, in the order of --help
+for _command in (demo, check, fit, risk, rebalance, compare):
+    app.command()(_command)
 
 
 # ---------------------------------------------------------------------- entry point
