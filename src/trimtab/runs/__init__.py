@@ -1,0 +1,9 @@
+"""Many runs at once: executors, parameter sweeps, frontiers and walk-forward backtests.
+
+Runs are dispatched through one seam, :func:`get_executor` (in process, a local process pool, or a
+``dask.distributed`` cluster); results stream back as :class:`Outcome` objects.
+"""
+
+from trimtab.runs._executors import Executor, Outcome, get_executor
+
+__all__ = ["Executor", "Outcome", "get_executor"]

@@ -1,0 +1,316 @@
+"""The one seam where many runs are dispatched: in this process, a local process pool, or Dask.
+
+Every sweep point, frontier point and backtest scenario path goes through :func:`get_executor`.
+An executor's :meth:`~Executor.map` streams :class:`Outcome` objects back as the runs complete; a run
+that raises is reported with its parameters and the error text, and the other runs go on.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import multiprocessing
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from dataclasses import dataclass
+from typing import Any, Literal
+
+from trimtab.errors import InputError
+
+ExecutorKind = Literal["inprocess", "processes", "dask"]
+KINDS: tuple[str, ...] = ("inprocess", "processes", "dask")
+DISTRIBUTED_HINT = 'pip install "trimtab[distributed]"'
+
+
+@dataclass(frozen=True, eq=False)
+class Outcome:
+    """One run's outcome.
+
+    Attributes
+    ----------
+    label : str
+        The run's label (its position when no labels were given).
+    value : Any
+        What the function returned; None when it failed.
+    error : str or None
+        ``"ErrorType: message"`` (first line) when the run raised, else None.
+    params : Any
+        The item the function was called with, so a failure can be re-run or reported.
+    index : int
+        The item's position in the input.
+    """
+
+    label: str
+    value: Any
+    error: str | None
+    params: Any
+    index: int
+
+    @property
+    def ok(self) -> bool:
+        """True when the run returned a value."""
+        return self.error is None
+
+
+def _describe(err: BaseException) -> str:
+    text = str(err).strip().splitlines()
+    return f"{type(err).__name__}: {text[0]}" if text else type(err).__name__
+
+
+def call_safely(func: Callable[[Any], Any], item: Any) -> tuple[bool, Any]:
+    """Run ``func(item)``; return ``(True, value)`` or ``(False, "Type: message")``.
+
+    Runs where the work runs (a pool process, a Dask worker), so an exception that does not pickle
+    still comes back as text.
+    """
+    try:
+        return True, func(item)
+    except Exception as err:  # noqa: BLE001 - every failure becomes a reported outcome
+        return False, _describe(err)
+
+
+class Executor:
+    """Base class: dispatch ``func`` over items and stream :class:`Outcome` objects back.
+
+    Use as a context manager (or call :meth:`close`) so pools and clusters are shut down.
+    """
+
+    kind: str = "inprocess"
+
+    def __enter__(self) -> Executor:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def close(self) -> None:
+        """Release workers (nothing to do in process)."""
+
+    @property
+    def n_workers(self) -> int:
+        """How many runs can go at once."""
+        return 1
+
+    def map(
+        self,
+        func: Callable[[Any], Any],
+        items: Iterable[Any],
+        *,
+        labels: Sequence[str] | None = None,
+        progress: Callable[[Outcome], None] | None = None,
+    ) -> Iterator[Outcome]:
+        """Run ``func`` on every item; yield each :class:`Outcome` as it completes.
+
+        Parameters
+        ----------
+        func : callable
+            A function of one argument; for ``processes`` and ``dask`` it must be importable by
+            name (a module-level function) and its items and results picklable.
+        items : iterable
+            The parameters of each run.
+        labels : sequence of str, optional
+            One label per item (default: the positions ``"0"``, ``"1"``, ...).
+        progress : callable, optional
+            Called with each outcome as it arrives (a progress bar's ``advance``).
+
+        Returns
+        -------
+        iterator of Outcome
+            In completion order (in input order in process).
+
+        Raises
+        ------
+        InputError
+            If ``labels`` does not have one label per item.
+        """
+        listed = list(items)
+        names = _labels(labels, len(listed))
+        for outcome in self._run(func, listed, names):
+            if progress is not None:
+                progress(outcome)
+            yield outcome
+
+    def _run(self, func: Callable[[Any], Any], items: list[Any], labels: list[str]) -> Iterator[Outcome]:
+        for i, item in enumerate(items):
+            ok, value = call_safely(func, item)
+            yield _outcome(labels, items, i, ok, value)
+
+
+def _labels(labels: Sequence[str] | None, n_items: int) -> list[str]:
+    if labels is None:
+        return [str(i) for i in range(n_items)]
+    names = [str(x) for x in labels]
+    if len(names) != n_items:
+        raise InputError(f"Executor.map: labels must have one entry per item ({n_items}), got {len(names)}")
+    return names
+
+
+def _outcome(labels: list[str], items: list[Any], i: int, ok: bool, value: Any) -> Outcome:
+    return Outcome(labels[i], value if ok else None, None if ok else str(value), items[i], i)
+
+
+class InProcessExecutor(Executor):
+    """Runs one after another in this process: no start-up cost, easiest to debug."""
+
+    kind = "inprocess"
+
+
+class ProcessPoolRunner(Executor):
+    """A local :class:`concurrent.futures.ProcessPoolExecutor` (spawned processes, one run each)."""
+
+    kind = "processes"
+
+    def __init__(self, workers: int | None = None) -> None:
+        self._workers = workers or max(1, multiprocessing.cpu_count())
+        # spawn, not fork: the parent may hold solver or BLAS threads that a fork would copy mid-state
+        self._pool = cf.ProcessPoolExecutor(max_workers=self._workers, mp_context=multiprocessing.get_context("spawn"))
+
+    @property
+    def n_workers(self) -> int:
+        return self._workers
+
+    def close(self) -> None:
+        self._pool.shutdown(wait=True, cancel_futures=True)
+
+    def _run(self, func: Callable[[Any], Any], items: list[Any], labels: list[str]) -> Iterator[Outcome]:
+        futures = {self._pool.submit(call_safely, func, item): i for i, item in enumerate(items)}
+        for future in cf.as_completed(futures):
+            i = futures[future]
+            try:
+                ok, value = future.result()
+            except Exception as err:  # noqa: BLE001 - a dead worker or an unpicklable item or result
+                ok, value = False, _describe(err)
+            yield _outcome(labels, items, i, ok, value)
+
+
+class DaskRunner(Executor):
+    """A ``dask.distributed`` client: a new LocalCluster, or an existing scheduler by address."""
+
+    kind = "dask"
+
+    def __init__(self, workers: int | None = None, scheduler: str | None = None, *, connect_timeout: float = 10.0) -> None:
+        distributed = _import_distributed()
+        self._cluster = None
+        if scheduler is not None:
+            try:
+                self._client = distributed.Client(scheduler, timeout=f"{connect_timeout}s")
+            except (OSError, TimeoutError) as err:
+                raise InputError(f"--scheduler {scheduler}: could not connect to a Dask scheduler ({_describe(err)})") from None
+        else:
+            self._cluster = distributed.LocalCluster(
+                n_workers=workers or 2, threads_per_worker=1, processes=True, dashboard_address=None,
+                host="127.0.0.1",
+            )
+            self._client = distributed.Client(self._cluster)
+        self._as_completed = distributed.as_completed
+
+    @property
+    def client(self) -> Any:
+        """The ``distributed.Client`` in use."""
+        return self._client
+
+    @property
+    def n_workers(self) -> int:
+        return max(1, len(self._client.scheduler_info().get("workers", {})))
+
+    def close(self) -> None:
+        self._client.close()
+        if self._cluster is not None:
+            self._cluster.close()
+
+    def _run(self, func: Callable[[Any], Any], items: list[Any], labels: list[str]) -> Iterator[Outcome]:
+        futures = [self._client.submit(call_safely, func, item, pure=False, key=f"trimtab-{labels[i]}-{id(self)}-{i}") for i, item in enumerate(items)]
+        index = {f.key: i for i, f in enumerate(futures)}
+        for future in self._as_completed(futures):
+            i = index[future.key]
+            try:
+                ok, value = future.result()
+            except Exception as err:  # noqa: BLE001 - a lost worker or a pickling failure
+                ok, value = False, _describe(err)
+            future.release()
+            yield _outcome(labels, items, i, ok, value)
+
+
+def _import_distributed() -> Any:
+    try:
+        import distributed
+    except ImportError:
+        raise InputError(f"--executor dask needs dask.distributed, which is not installed; run: {DISTRIBUTED_HINT}") from None
+    return distributed
+
+
+def get_executor(
+    kind: str = "inprocess", *, workers: int | None = None, scheduler: str | None = None, connect_timeout: float = 10.0
+) -> Executor:
+    """The executor that dispatches runs: in process, a process pool, or a Dask cluster.
+
+    Parameters
+    ----------
+    kind : {"inprocess", "processes", "dask"}
+        Where the runs go.
+    workers : int, optional
+        ``processes``: pool size (default: the CPU count). ``dask``: the number of worker processes
+        of a new LocalCluster (one thread each; default 2).
+    scheduler : str, optional
+        ``dask`` only: the address of an existing scheduler (``tcp://host:8786``); no cluster is
+        started. Cannot be combined with ``workers``.
+    connect_timeout : float, default 10
+        ``dask`` with ``scheduler``: seconds to wait for the scheduler.
+
+    Returns
+    -------
+    Executor
+        Use it as a context manager so the pool or cluster is shut down.
+
+    Raises
+    ------
+    InputError
+        On an unknown kind, a non-positive worker count, a scheduler with a kind other than dask or
+        together with workers, when dask.distributed is not installed, or when the scheduler cannot be
+        reached.
+
+    Examples
+    --------
+    >>> with get_executor("inprocess") as ex:
+    ...     [o.value for o in ex.map(abs, [-1, 2])]
+    [1, 2]
+    """
+    if kind not in KINDS:
+        raise InputError(f"--executor: expected one of {', '.join(KINDS)}, got {kind!r}")
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
+        raise InputError(f"--workers: expected a whole number ≥ 1, got {workers!r}")
+    if scheduler is not None and kind != "dask":
+        raise InputError(f"--scheduler: only used with --executor dask, got --executor {kind}")
+    if scheduler is not None and workers is not None:
+        raise InputError("--scheduler and --workers: give one (an existing cluster has its own workers), not both")
+    if kind == "inprocess":
+        return InProcessExecutor()
+    if kind == "processes":
+        return ProcessPoolRunner(workers)
+    return DaskRunner(workers, scheduler, connect_timeout=connect_timeout)
+
+
+def resolve_kind(executor: str | None, workers: int | None, scheduler: str | None) -> str:
+    """The command line's rule: ``--scheduler`` or ``--workers`` alone mean Dask; default in process."""
+    if executor is not None:
+        return executor
+    if scheduler is not None or workers is not None:
+        return "dask"
+    return "inprocess"
+
+
+def format_failure(outcome: Outcome) -> str:
+    """One line for a failed run: its label, parameters and error."""
+    return f"{outcome.label} (parameters {outcome.params!r}): {outcome.error}"
+
+
+__all__ = [
+    "DISTRIBUTED_HINT",
+    "DaskRunner",
+    "Executor",
+    "InProcessExecutor",
+    "Outcome",
+    "ProcessPoolRunner",
+    "call_safely",
+    "format_failure",
+    "get_executor",
+    "resolve_kind",
+]

@@ -1,0 +1,126 @@
+"""The executor seam: the same outcomes in process, in a process pool and on a two-worker Dask cluster."""
+
+from __future__ import annotations
+
+import sys
+
+import pytest
+
+from tests.runs._tasks import portfolio_risk
+from trimtab.errors import InputError
+from trimtab.runs import Outcome, get_executor
+from trimtab.runs._executors import format_failure, resolve_kind
+
+SEEDS = [0, 1, -3, 2, 3]  # -3 raises inside the task
+
+
+def _collect(executor) -> dict[str, Outcome]:
+    labels = [f"seed{s}" for s in SEEDS]
+    seen: list[str] = []
+    outcomes = {o.label: o for o in executor.map(portfolio_risk, SEEDS, labels=labels, progress=lambda o: seen.append(o.label))}
+    assert sorted(seen) == sorted(labels)  # the progress callback saw every run once
+    return outcomes
+
+
+def _check(outcomes: dict[str, Outcome]) -> None:
+    assert set(outcomes) == {f"seed{s}" for s in SEEDS}
+    bad = outcomes["seed-3"]
+    assert not bad.ok and bad.value is None and bad.params == -3 and bad.index == 2
+    assert bad.error == "InputError: portfolio_risk: seed must be ≥ 0, got -3"
+    assert "seed-3 (parameters -3): InputError" in format_failure(bad)
+    for s in (0, 1, 2, 3):
+        o = outcomes[f"seed{s}"]
+        assert o.ok and o.params == s
+        # w'Σw from the factor form equals the dense quadratic form (textbook identity Σ = BFBᵀ + D)
+        assert o.value["variance"] == pytest.approx(o.value["dense"], rel=1e-12)
+
+
+@pytest.fixture(scope="module")
+def reference() -> dict[str, Outcome]:
+    with get_executor("inprocess") as ex:
+        outcomes = _collect(ex)
+    _check(outcomes)
+    return outcomes
+
+
+def _same(outcomes: dict[str, Outcome], reference: dict[str, Outcome]) -> None:
+    _check(outcomes)
+    for label, ref in reference.items():
+        assert outcomes[label].value == ref.value
+        assert outcomes[label].error == ref.error
+
+
+def test_inprocess_streams_in_input_order(reference: dict[str, Outcome]) -> None:
+    with get_executor("inprocess") as ex:
+        order = [o.index for o in ex.map(portfolio_risk, SEEDS)]
+        assert ex.n_workers == 1
+    assert order == list(range(len(SEEDS)))
+
+
+def test_process_pool_gives_identical_outcomes(reference: dict[str, Outcome]) -> None:
+    with get_executor("processes", workers=2) as ex:
+        assert ex.n_workers == 2
+        _same(_collect(ex), reference)
+
+
+def test_dask_cluster_on_loopback_gives_identical_outcomes(reference: dict[str, Outcome]) -> None:
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, host="127.0.0.1"
+    ) as cluster:
+        with get_executor("dask", scheduler=cluster.scheduler_address) as ex:
+            assert ex.n_workers == 2
+            _same(_collect(ex), reference)
+            hosts = {w.split("://")[1].rsplit(":", 1)[0] for w in ex.client.scheduler_info()["workers"]}
+            assert hosts == {"127.0.0.1"}
+
+
+def test_labels_must_match_items() -> None:
+    with get_executor() as ex, pytest.raises(InputError, match=r"labels must have one entry per item \(2\), got 1"):
+        list(ex.map(abs, [1, 2], labels=["a"]))
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "message"),
+    [
+        ({"kind": "threads"}, r"--executor: expected one of inprocess, processes, dask, got 'threads'"),
+        ({"kind": "processes", "workers": 0}, r"--workers: expected a whole number ≥ 1, got 0"),
+        ({"kind": "processes", "scheduler": "tcp://127.0.0.1:1"}, r"--scheduler: only used with --executor dask"),
+        ({"kind": "dask", "scheduler": "tcp://127.0.0.1:1", "workers": 2}, r"--scheduler and --workers: give one"),
+    ],
+)
+def test_bad_settings(kwargs: dict, message: str) -> None:
+    with pytest.raises(InputError, match=message):
+        get_executor(**kwargs)
+
+
+def test_missing_dask_names_the_extra(monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setitem(sys.modules, "distributed", None)  # makes `import distributed` raise ImportError
+    with pytest.raises(InputError, match=r'needs dask.distributed.*pip install "trimtab\[distributed\]"'):
+        get_executor("dask", workers=1)
+
+
+def test_unreachable_scheduler_is_an_input_error() -> None:
+    pytest.importorskip("distributed")
+    # port 9 on loopback (discard) has no scheduler: the connection is refused or times out
+    with pytest.raises(InputError, match=r"--scheduler tcp://127.0.0.1:9: could not connect to a Dask scheduler"):
+        get_executor("dask", scheduler="tcp://127.0.0.1:9", connect_timeout=1)
+
+
+def test_resolve_kind_rule() -> None:
+    assert resolve_kind(None, None, None) == "inprocess"
+    assert resolve_kind(None, 2, None) == "dask"
+    assert resolve_kind(None, None, "tcp://127.0.0.1:8786") == "dask"
+    assert resolve_kind("processes", 2, None) == "processes"
+
+
+def test_dask_with_workers_starts_and_stops_its_own_cluster(reference: dict[str, Outcome]) -> None:
+    pytest.importorskip("distributed")
+    ex = get_executor("dask", workers=1)
+    try:
+        assert ex.n_workers == 1
+        values = {o.label: o.value for o in ex.map(portfolio_risk, [0, 1], labels=["seed0", "seed1"])}
+    finally:
+        ex.close()
+    assert values == {"seed0": reference["seed0"].value, "seed1": reference["seed1"].value}
+    assert ex.client.status == "closed"
