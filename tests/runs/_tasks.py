@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
 from tests.conftest import random_model
 from trimtab.errors import InputError
@@ -15,3 +16,33 @@ def portfolio_risk(seed: int) -> dict[str, float]:
     model = random_model(n_assets=30, n_factors=4, seed=seed)
     w = np.random.default_rng(seed + 1000).dirichlet(np.ones(model.n_assets))
     return {"variance": float(model.variance(w)), "dense": float(w @ model.covariance() @ w)}
+
+
+class ClosedFormResult:
+    """What the backtest reads from a rebalance result: the target weights."""
+
+    def __init__(self, weights: pd.Series) -> None:
+        self.weights = weights
+
+
+def closed_form_rebalance(model, scenario, *, holdings, benchmark, alpha, **_: object) -> ClosedFormResult:
+    """Mean-variance utility with only the budget constraint, in closed form (Markowitz).
+
+    max αᵀa − λ·P·aᵀΣa subject to 1ᵀa = 0 (a = w − b, P periods a year, α annualised) has the
+    Lagrange solution a = Σ⁻¹(α − γ1)/(2λP), γ = 1ᵀΣ⁻¹α / 1ᵀΣ⁻¹1 (textbook first-order conditions of an
+    equality-constrained quadratic programme).
+    """
+    lam = float(scenario["objective"]["risk_aversion"])
+    ones = np.ones(model.n_assets)
+    inv_alpha = model.solve(alpha.to_numpy())
+    inv_ones = model.solve(ones)
+    gamma = float(ones @ inv_alpha) / float(ones @ inv_ones)
+    active = (inv_alpha - gamma * inv_ones) / (2.0 * lam * model.periods_per_year)
+    return ClosedFormResult(pd.Series(benchmark.to_numpy() + active, index=model.assets))
+
+
+def fit_without_value(returns: pd.DataFrame, factors: pd.DataFrame):
+    """A deliberately misspecified fit: the value factor is left out of the regressions."""
+    from trimtab.model import fit_time_series
+
+    return fit_time_series(returns, factors.drop(columns="value"))

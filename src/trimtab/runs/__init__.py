@@ -5,5 +5,6 @@ Runs are dispatched through one seam, :func:`get_executor` (in process, a local 
 """
 
 from trimtab.runs._executors import Executor, Outcome, get_executor
+from trimtab.runs._backtest import AsOf, BacktestResult, backtest
 
-__all__ = ["Executor", "Outcome", "get_executor"]
+__all__ = ["AsOf", "BacktestResult", "Executor", "Outcome", "backtest", "get_executor"]
