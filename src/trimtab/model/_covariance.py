@@ -1,21 +1,28 @@
 """Covariance refinements for the factor risk model: EWMA, Newey–West, Ledoit–Wolf, floors.
 
 The estimators call :func:`factor_covariance` on their factor returns and :func:`specific_variance`
-on their residuals; both take one :class:`CovarianceSettings`. With no settings they return the
-plain sample estimates, so an estimator without refinements matches the textbook numbers exactly.
+(in ``_specific_variance``) on their residuals; both take one :class:`CovarianceSettings` (in
+``_covariance_settings``, re-exported here). With no settings they return the plain sample
+estimates, so an estimator without refinements matches the textbook numbers exactly.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
-from dataclasses import dataclass, fields
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from trimtab._validation import check_finite_frame, check_unique, list_labels
+from trimtab._validation import check_finite_frame, list_labels
 from trimtab.errors import InputError, ScenarioError
+from trimtab.model._arguments import is_whole_number
+from trimtab.model._covariance_settings import (
+    CovarianceSettings,
+    check_parameters,
+    settings_or_default,
+)
+from trimtab.model._panel import check_date_frame
+from trimtab.model._specific_variance import specific_variance
 
 __all__ = [
     "CovarianceSettings",
@@ -27,149 +34,6 @@ __all__ = [
     "newey_west",
     "specific_variance",
 ]
-
-SHRINKAGE_METHODS = ("ledoit_wolf",)
-SPECIFIC_FLOOR_MODES = ("absolute", "relative")
-
-
-def _is_real(value: Any) -> bool:
-    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
-
-
-def _positive_or_none(value: Any) -> bool:
-    return value is None or (_is_real(value) and np.isfinite(value) and value > 0)
-
-
-def _non_negative_int(value: Any) -> bool:
-    return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and value >= 0
-
-
-def _unit_interval(value: Any) -> bool:
-    return _is_real(value) and 0.0 <= value <= 1.0
-
-
-def _floor_fraction_or_none(value: Any) -> bool:
-    return value is None or (_is_real(value) and 0.0 < value <= 1.0)
-
-
-def _non_negative_or_none(value: Any) -> bool:
-    return value is None or (_is_real(value) and np.isfinite(value) and value >= 0)
-
-
-#: Parameter → (test, what is allowed). Checked by :func:`_check_parameters`.
-_CONSTRAINTS: dict[str, tuple[Callable[[Any], bool], str]] = {
-    "volatility_half_life": (_positive_or_none, "a positive number of periods or None"),
-    "correlation_half_life": (_positive_or_none, "a positive number of periods or None"),
-    "newey_west_lags": (_non_negative_int, "a whole number of lags >= 0"),
-    "shrinkage": (lambda v: v is None or v in SHRINKAGE_METHODS, f"None or one of {list(SHRINKAGE_METHODS)}"),
-    "eigenvalue_floor": (_floor_fraction_or_none, "a fraction of the mean eigenvalue in (0, 1] or None"),
-    "specific_shrinkage": (_unit_interval, "an intensity in [0, 1]"),
-    "specific_floor": (_non_negative_or_none, "a non-negative variance (or fraction) or None"),
-    "specific_floor_mode": (lambda v: v in SPECIFIC_FLOOR_MODES, f"one of {list(SPECIFIC_FLOOR_MODES)}"),
-    # Argument names of the public helpers.
-    "half_life": (_positive_or_none, "a positive number of periods or None"),
-    "lags": (_non_negative_int, "a whole number of lags >= 0"),
-    "floor": (lambda v: v is not None and _floor_fraction_or_none(v), "a fraction of the mean eigenvalue in (0, 1]"),
-}
-
-
-def _check_parameters(owner: str, values: Mapping[str, Any]) -> None:
-    """Raise ScenarioError for the first value that breaks its constraint in :data:`_CONSTRAINTS`."""
-    for name, value in values.items():
-        test, allowed = _CONSTRAINTS[name]
-        if not test(value):
-            raise ScenarioError(f"{owner}: {name} must be {allowed}, got {value!r}")
-
-
-@dataclass(frozen=True, kw_only=True)
-class CovarianceSettings:
-    """How to refine the factor covariance F and the specific variances d.
-
-    Parameters
-    ----------
-    volatility_half_life : float, optional
-        Half-life, in periods, of the EWMA weights for variances (of factors and of residuals).
-        None gives equal weights.
-    correlation_half_life : float, optional
-        Half-life of the EWMA weights for factor correlations. None uses ``volatility_half_life``
-        (so one half-life gives one plain EWMA covariance).
-    newey_west_lags : int, default 0
-        Lags of the Bartlett-kernel Newey–West adjustment of F for serial correlation.
-    shrinkage : {None, "ledoit_wolf"}, default None
-        Shrink F toward a scaled identity with the Ledoit–Wolf (2004) intensity.
-    eigenvalue_floor : float, optional
-        Raise eigenvalues of F below ``eigenvalue_floor`` × mean eigenvalue to that level.
-    specific_shrinkage : float, default 0.0
-        Intensity κ in [0, 1] of shrinking each specific variance toward the mean of its group
-        (or of all assets).
-    specific_floor : float, optional
-        Lower bound for the specific variances: an absolute per-period variance, or (with
-        ``specific_floor_mode="relative"``) a fraction of their cross-sectional median.
-    specific_floor_mode : {"absolute", "relative"}, default "absolute"
-        How ``specific_floor`` is read.
-
-    Raises
-    ------
-    ScenarioError
-        If a value is outside what its parameter allows (the message names both).
-
-    Examples
-    --------
-    >>> CovarianceSettings(volatility_half_life=36, correlation_half_life=120, newey_west_lags=2)
-    CovarianceSettings(volatility_half_life=36, correlation_half_life=120, newey_west_lags=2)
-    """
-
-    volatility_half_life: float | None = None
-    correlation_half_life: float | None = None
-    newey_west_lags: int = 0
-    shrinkage: str | None = None
-    eigenvalue_floor: float | None = None
-    specific_shrinkage: float = 0.0
-    specific_floor: float | None = None
-    specific_floor_mode: str = "absolute"
-
-    def __post_init__(self) -> None:
-        _check_parameters("CovarianceSettings", {f.name: getattr(self, f.name) for f in fields(self)})
-        if self.specific_floor_mode == "relative" and self.specific_floor is not None and self.specific_floor > 1:
-            raise ScenarioError(
-                "CovarianceSettings: specific_floor must be a fraction in [0, 1] of the median when "
-                f"specific_floor_mode='relative', got {self.specific_floor!r}"
-            )
-
-    def __repr__(self) -> str:
-        changed = [f"{f.name}={getattr(self, f.name)!r}" for f in fields(self) if getattr(self, f.name) != f.default]
-        return f"CovarianceSettings({', '.join(changed)})"
-
-    @classmethod
-    def from_mapping(cls, values: Mapping[str, Any], owner: str = "covariance settings") -> CovarianceSettings:
-        """Build settings from a mapping (for instance a scenario section), rejecting unknown keys."""
-        known = {f.name for f in fields(cls)}
-        unknown = [k for k in values if k not in known]
-        if unknown:
-            raise ScenarioError(f"{owner}: unknown keys {list_labels(unknown)}; allowed: {list_labels(sorted(known), 10)}")
-        return cls(**dict(values))
-
-    @property
-    def refines_factor_covariance(self) -> bool:
-        """True if any setting changes F away from the sample covariance."""
-        return (
-            self.volatility_half_life is not None
-            or self.correlation_half_life is not None
-            or self.newey_west_lags > 0
-            or self.shrinkage is not None
-            or self.eigenvalue_floor is not None
-        )
-
-
-_DEFAULT = CovarianceSettings()
-
-
-def _settings(settings: CovarianceSettings | None, owner: str) -> CovarianceSettings:
-    if settings is None:
-        return _DEFAULT
-    if not isinstance(settings, CovarianceSettings):
-        raise ScenarioError(f"{owner}: settings must be a CovarianceSettings or None, got {type(settings).__name__}")
-    return settings
 
 
 # ---------------------------------------------------------------------------------------------
@@ -208,9 +72,9 @@ def ewma_weights(n_periods: int, half_life: float | None) -> np.ndarray:
     >>> ewma_weights(3, 1.0).round(4)
     array([0.1429, 0.2857, 0.5714])
     """
-    if not _non_negative_int(n_periods) or n_periods < 1:
+    if not is_whole_number(n_periods) or n_periods < 1:
         raise ScenarioError(f"ewma_weights: n_periods must be a whole number >= 1, got {n_periods!r}")
-    _check_parameters("ewma_weights", {"half_life": half_life})
+    check_parameters("ewma_weights", {"half_life": half_life})
     if half_life is None:
         return np.full(n_periods, 1.0 / n_periods)
     age = np.arange(n_periods - 1, -1, -1, dtype=np.float64)
@@ -266,7 +130,7 @@ def _weighted_long_run(X: np.ndarray, w: np.ndarray, lags: int) -> np.ndarray:
 
 
 def _check_lags(lags: int, n_periods: int, owner: str, name: str = "newey_west_lags") -> None:
-    _check_parameters(owner, {name: lags})
+    check_parameters(owner, {name: lags})
     if lags >= n_periods:
         raise InputError(f"{owner}: {name} must be below the number of periods {n_periods}, got {lags}")
 
@@ -408,7 +272,7 @@ def ewma_covariance(
     (3, 3)
     """
     arr, _, labels = _as_matrix(X, "ewma_covariance")
-    _check_parameters(
+    check_parameters(
         "ewma_covariance",
         {"volatility_half_life": volatility_half_life, "correlation_half_life": correlation_half_life},
     )
@@ -524,7 +388,7 @@ def eigenvalue_floor(F: Any, floor: float) -> Any:
     >>> bool(np.linalg.eigvalsh(G).min() >= 0.1 - 1e-12)
     True
     """
-    _check_parameters("eigenvalue_floor", {"floor": floor})
+    check_parameters("eigenvalue_floor", {"floor": floor})
     labels = None
     if isinstance(F, pd.DataFrame):
         check_finite_frame(F, "eigenvalue_floor")
@@ -547,27 +411,10 @@ def _floor_core(arr: np.ndarray, floor: float) -> np.ndarray:
     return 0.5 * (floored + floored.T)
 
 
+
 # ---------------------------------------------------------------------------------------------
 # Boundary functions used by the estimators
 # ---------------------------------------------------------------------------------------------
-
-
-def _check_dates(index: pd.Index, owner: str) -> None:
-    check_unique(index, "dates", owner)
-    if not index.is_monotonic_increasing:
-        try:
-            first = next(index[i] for i in range(1, len(index)) if not index[i] > index[i - 1])
-        except TypeError:
-            raise InputError(f"{owner}: dates cannot be ordered; expected increasing dates") from None
-        raise InputError(f"{owner}: dates must be in increasing order; {first!r} comes after a later date")
-
-
-def _check_frame(frame: Any, owner: str, what: str, *, allow_nan: bool) -> None:
-    if not isinstance(frame, pd.DataFrame):
-        raise InputError(f"{owner}: expected a DataFrame of dates × {what}, got {type(frame).__name__}")
-    check_unique(frame.columns, what, owner)
-    _check_dates(frame.index, owner)
-    check_finite_frame(frame, owner, allow_nan=allow_nan)
 
 
 def factor_covariance(returns: pd.DataFrame, settings: CovarianceSettings | None = None) -> pd.DataFrame:
@@ -617,8 +464,8 @@ def factor_covariance(returns: pd.DataFrame, settings: CovarianceSettings | None
     True
     """
     owner = "factor_covariance"
-    _check_frame(returns, owner, "factors", allow_nan=False)
-    config = _settings(settings, owner)
+    check_date_frame(returns, owner, "factors")
+    config = settings_or_default(settings, owner)
     arr = returns.to_numpy(dtype=np.float64)
     n_periods = arr.shape[0]
     if n_periods < 2:
@@ -637,132 +484,3 @@ def factor_covariance(returns: pd.DataFrame, settings: CovarianceSettings | None
     if config.eigenvalue_floor is not None:
         F = _floor_core(F, config.eigenvalue_floor)
     return pd.DataFrame(F, index=returns.columns, columns=returns.columns)
-
-
-def _dof_vector(dof: Any, assets: pd.Index, owner: str) -> np.ndarray:
-    if isinstance(dof, pd.Series):
-        missing = assets.difference(dof.index, sort=False)
-        if len(missing):
-            raise InputError(f"{owner}: dof has no value for assets: {list_labels(missing)}")
-        values = dof.reindex(assets)
-        if not pd.api.types.is_numeric_dtype(values):
-            raise InputError(f"{owner}: dof must be numbers, got dtype {values.dtype}")
-        arr = values.to_numpy(dtype=np.float64)
-        bad = ~np.isfinite(arr) | (arr < 0)
-        if bad.any():
-            raise InputError(f"{owner}: dof must be finite and >= 0; bad for assets: {list_labels(assets[bad])}")
-        return arr
-    if not _is_real(dof) or not np.isfinite(dof) or dof < 0:
-        raise InputError(f"{owner}: dof must be a number >= 0 or a Series by asset, got {dof!r}")
-    return np.full(len(assets), float(dof))
-
-
-def _group_means(values: np.ndarray, assets: pd.Index, groups: Any, owner: str) -> np.ndarray:
-    """Mean of ``values`` over each asset's group (or over all assets when ``groups`` is None)."""
-    if groups is None:
-        return np.full(len(values), values.mean())
-    labels = pd.Series(groups) if not isinstance(groups, pd.Series) else groups
-    missing = assets.difference(labels.index, sort=False)
-    if len(missing):
-        raise InputError(f"{owner}: groups has no group for assets: {list_labels(missing)}")
-    aligned = labels.reindex(assets)
-    if aligned.isna().any():
-        raise InputError(f"{owner}: groups has a missing group for assets: {list_labels(assets[aligned.isna().to_numpy()])}")
-    means = pd.Series(values, index=assets).groupby(aligned.to_numpy()).transform("mean")
-    return means.to_numpy(dtype=np.float64)
-
-
-def specific_variance(
-    residuals: pd.DataFrame,
-    dof: pd.Series | int = 0,
-    settings: CovarianceSettings | None = None,
-    *,
-    groups: pd.Series | Mapping[Any, Any] | None = None,
-) -> pd.Series:
-    """Specific (residual) variance per asset, with the EWMA, shrinkage and floor in ``settings``.
-
-    Parameters
-    ----------
-    residuals : pandas.DataFrame
-        Dates × assets, dates increasing; NaN means the asset was not observed that date.
-    dof : int or pandas.Series, default 0
-        Degrees of freedom used per asset (a Series by asset, or one number for all); a
-        time-series OLS with K factors and an intercept passes K + 1.
-    settings : CovarianceSettings, optional
-        Uses ``volatility_half_life``, ``specific_shrinkage``, ``specific_floor`` and
-        ``specific_floor_mode``.
-    groups : pandas.Series or Mapping, optional
-        Asset → group label; the shrinkage target is then the mean specific variance of the
-        asset's group instead of all assets.
-
-    Returns
-    -------
-    pandas.Series
-        Specific variances dᵢ ≥ 0 per period, indexed by asset (name ``specific_variance``).
-
-    Raises
-    ------
-    InputError
-        On non-numeric columns, infinite values, duplicate or unsorted dates, duplicate assets, a
-        bad ``dof``, an asset with no more observations than degrees of freedom, or assets missing
-        from ``groups``.
-    ScenarioError
-        If ``settings`` is not a CovarianceSettings.
-
-    Notes
-    -----
-    With Tᵢ observed dates of asset i and EWMA weights wₜ (:func:`ewma_weights` over all dates;
-    equal without a half-life), residuals not demeaned (they come from fits with an intercept):
-
-        dᵢ = [Σₜ wₜ eᵢₜ² / Σₜ wₜ] × Tᵢ/(Tᵢ − dofᵢ)      (sums over observed dates)
-
-    which is SSRᵢ/(Tᵢ − dofᵢ) with equal weights. Then shrinkage with intensity κ toward the
-    group mean d̄_g, dᵢ ← (1 − κ) dᵢ + κ d̄_g(i), and the floor dᵢ ← max(dᵢ, floor) (absolute) or
-    max(dᵢ, floor × median(d)) (relative). Shrinking specific variances toward a cross-sectional
-    mean is common practice (no source).
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> e = pd.DataFrame({"AAA": [0.01, -0.02, 0.01], "BBB": [0.02, None, -0.02]})
-    >>> specific_variance(e, dof=1).round(6).tolist()
-    [0.0003, 0.0008]
-    """
-    owner = "specific_variance"
-    _check_frame(residuals, owner, "assets", allow_nan=True)
-    config = _settings(settings, owner)
-    assets = residuals.columns
-    if len(assets) == 0:
-        raise InputError(f"{owner}: no asset columns")
-    dof_values = _dof_vector(dof, assets, owner)
-    values = residuals.to_numpy(dtype=np.float64)
-    observed = np.isfinite(values)
-    n_obs = observed.sum(axis=0).astype(np.float64)
-    short = n_obs <= dof_values
-    if short.any():
-        raise InputError(
-            f"{owner}: assets with no more observations than degrees of freedom: {list_labels(assets[short])}; "
-            "need more dates than dof"
-        )
-    filled = np.where(observed, values, 0.0)
-    if config.volatility_half_life is None:
-        mean_square = (filled * filled).sum(axis=0) / n_obs
-    else:
-        # Weights relative to each asset's newest observation (the ratio is scale-free), so an asset
-        # that stopped long ago does not underflow to 0/0: 0.5^((last_i − t)/h) ≤ 1, equal to 1 at last_i.
-        position = np.arange(len(residuals.index), dtype=np.float64)[:, None]
-        last = (len(residuals.index) - 1 - np.argmax(observed[::-1], axis=0)).astype(np.float64)
-        relative = np.where(observed, np.exp2(np.minimum(position - last, 0.0) / config.volatility_half_life), 0.0)
-        mean_square = (relative * filled * filled).sum(axis=0) / relative.sum(axis=0)
-    variance = mean_square * n_obs / (n_obs - dof_values)
-    if config.specific_shrinkage > 0:
-        target = _group_means(variance, assets, groups, owner)
-        variance = (1.0 - config.specific_shrinkage) * variance + config.specific_shrinkage * target
-    elif groups is not None:
-        _group_means(variance, assets, groups, owner)
-    if config.specific_floor is not None:
-        level = config.specific_floor
-        if config.specific_floor_mode == "relative":
-            level = config.specific_floor * float(np.median(variance))
-        variance = np.maximum(variance, level)
-    return pd.Series(variance, index=assets, name="specific_variance")

@@ -18,11 +18,19 @@ import pandas as pd
 import scipy.sparse as sp
 
 from trimtab._validation import check_unique, list_labels
-from trimtab._version import __version__
 from trimtab.errors import DataWarning, InputError
-from trimtab.model._covariance import CovarianceSettings, _check_frame, factor_covariance, specific_variance
+from trimtab.model._covariance import CovarianceSettings, factor_covariance, specific_variance
 from trimtab.model._factor_model import FactorModel
-from trimtab.model._fit_report import FitReport
+from trimtab.model._panel import (
+    assemble_model,
+    check_returns_panel,
+    date_label,
+    infer_periods_per_year,
+    observed_at_least,
+    per_asset_fit,
+    settings_record,
+    warn_dropped,
+)
 
 OWNER = "fit_cross_section"
 
@@ -30,144 +38,10 @@ OWNER = "fit_cross_section"
 #: date's exposures count as collinear.
 _COLLINEAR_TOL = 1e-10
 
-#: Median spacing of dates in days → periods per year (business-daily data has 1–4 day gaps).
-_SPACING_RULES = ((0.5, 4.5, 252.0), (5.5, 8.5, 52.0), (26.0, 33.0, 12.0), (85.0, 95.0, 4.0), (360.0, 370.0, 1.0))
-
 CONSTRAINT_TEXT = (
     "sum_j c_j f_j = 0 over the industry factors on every date, c_j = total regression weight of "
     "industry j on that date (imposed as f = R g; the pivot industry is the one with the largest c_j)"
 )
-
-
-# ---------------------------------------------------------------------------------------------
-# Helpers shared with the statistical estimator
-# ---------------------------------------------------------------------------------------------
-
-
-def check_returns_panel(asset_returns: Any, owner: str) -> pd.DataFrame:
-    """Validate a dates × assets return panel (NaN allowed) and return it as float64."""
-    _check_frame(asset_returns, f"{owner}: asset_returns", "assets", allow_nan=True)
-    if asset_returns.shape[1] == 0:
-        raise InputError(f"{owner}: asset_returns has no asset columns")
-    return asset_returns.astype(np.float64)
-
-
-def infer_periods_per_year(index: pd.Index, periods_per_year: Any, owner: str) -> float:
-    """``periods_per_year`` as given, or inferred from the median spacing of the dates.
-
-    Rules (common practice, no source): median gap ≤ 4 days → 252 (business-daily), 6–8 → 52,
-    26–33 → 12, 85–95 → 4, 360–370 → 1.
-    """
-    if periods_per_year is not None:
-        ok = isinstance(periods_per_year, (int, float, np.integer, np.floating)) and not isinstance(periods_per_year, bool)
-        if not ok or not np.isfinite(periods_per_year) or periods_per_year <= 0:
-            raise InputError(f"{owner}: periods_per_year must be a positive number or None, got {periods_per_year!r}")
-        return float(periods_per_year)
-    if isinstance(index, pd.PeriodIndex):
-        index = index.to_timestamp()
-    if not isinstance(index, pd.DatetimeIndex) or len(index) < 2:
-        raise InputError(
-            f"{owner}: cannot infer periods_per_year from an index of type {type(index).__name__} "
-            f"with {len(index)} entries; pass periods_per_year (252 daily, 52 weekly, 12 monthly)"
-        )
-    gap = float(np.median(np.diff(index.to_numpy()).astype("timedelta64[s]").astype(np.float64))) / 86_400.0
-    for low, high, value in _SPACING_RULES:
-        if low <= gap <= high:
-            return value
-    raise InputError(
-        f"{owner}: cannot infer periods_per_year from a median date spacing of {gap:g} days; pass periods_per_year"
-    )
-
-
-def iso_label(value: Any) -> str:
-    """A date as an ISO string (other labels as ``str``)."""
-    if isinstance(value, (pd.Timestamp, np.datetime64)):
-        stamp = pd.Timestamp(value)
-        return stamp.isoformat() if (stamp.hour or stamp.minute or stamp.second) else str(stamp.date())
-    return str(value)
-
-
-def settings_record(covariance: CovarianceSettings | None, owner: str) -> dict[str, Any] | None:
-    """The covariance settings as a plain dict (for provenance and the manifest)."""
-    if covariance is None:
-        return None
-    if not isinstance(covariance, CovarianceSettings):
-        raise InputError(f"{owner}: covariance: expected CovarianceSettings or None, got {type(covariance).__name__}")
-    return dataclasses.asdict(covariance)
-
-
-def observed_at_least(frame: pd.DataFrame, minimum: int) -> pd.Index:
-    """Columns of ``frame`` with at least ``minimum`` non-NaN values."""
-    counts = frame.notna().sum(axis=0).to_numpy()
-    return frame.columns[counts >= minimum]
-
-
-def per_asset_fit(returns: np.ndarray, residuals: np.ndarray) -> dict[str, np.ndarray]:
-    """n_observations, residual volatility and 1 − var(u)/var(r) per column over the observed dates.
-
-    Both inputs are T × N with NaN where the asset was not in the fit; variances use divisor n − 1.
-    """
-    observed = np.isfinite(residuals)
-    n_obs = observed.sum(axis=0)
-    safe = np.maximum(n_obs - 1, 1).astype(np.float64)
-
-    def _var(values: np.ndarray) -> np.ndarray:
-        filled = np.where(observed, values, 0.0)
-        mean = filled.sum(axis=0) / np.maximum(n_obs, 1)
-        centred = np.where(observed, values - mean, 0.0)
-        return (centred * centred).sum(axis=0) / safe
-
-    var_u, var_r = _var(residuals), _var(returns)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        r_squared = np.where((n_obs > 1) & (var_r > 0), 1.0 - var_u / var_r, np.nan)
-    return {
-        "n_observations": n_obs.astype(np.int64),
-        "residual_volatility": np.where(n_obs > 1, np.sqrt(var_u), np.nan),
-        "r_squared": r_squared,
-    }
-
-
-def warn_dropped(dropped: pd.Series, owner: str) -> None:
-    """One DataWarning summarising the assets an estimator left out, by reason."""
-    if len(dropped) == 0:
-        return
-    parts = [f"{reason}: {list_labels(group.index)}" for reason, group in dropped.groupby(dropped, sort=True)]
-    warnings.warn(f"{owner}: {len(dropped)} assets left out ({'; '.join(parts)})", DataWarning, stacklevel=3)
-
-
-def assemble_model(
-    method: str,
-    exposures: pd.DataFrame,
-    factor_cov: pd.DataFrame,
-    specific: pd.Series,
-    fit: tuple[pd.DataFrame, pd.DataFrame, pd.Series, pd.DataFrame],
-    settings: Mapping[str, Any],
-    extra: Mapping[str, Any],
-    *,
-    periods_per_year: float,
-    factor_groups: Mapping[str, str] | None,
-) -> FactorModel:
-    """The FactorModel with its FitReport and provenance (estimator, settings, window, version).
-
-    ``fit`` is (per-asset table, residuals, dropped assets, factor returns).
-    """
-    assets, residuals, dropped, factor_returns = fit
-    report = FitReport(method, assets, residuals, dropped, factor_returns, settings=settings, extra=extra)
-    dates = report.residuals.index
-    return FactorModel(
-        exposures,
-        factor_cov,
-        specific,
-        periods_per_year=periods_per_year,
-        factor_groups=factor_groups,
-        fit_report=report,
-        provenance={
-            "estimator": method,
-            "settings": dict(report.settings),
-            "window": [iso_label(dates[0]), iso_label(dates[-1])],
-            "version": __version__,
-        },
-    )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -231,7 +105,7 @@ def _style_matrix(frame: pd.DataFrame, styles: list[Any], dates: pd.Series | Non
         rows, cols = np.nonzero(~finite)
         assets = frame["asset"].to_numpy() if dates is not None else frame.index.to_numpy()
         where = [
-            (f"{iso_label(dates.iloc[r])}/" if dates is not None else "") + f"{assets[r]}/{styles[c]}"
+            (f"{date_label(dates.iloc[r])}/" if dates is not None else "") + f"{assets[r]}/{styles[c]}"
             for r, c in zip(rows[:6], cols[:6])
         ]
         raise InputError(
@@ -260,7 +134,7 @@ def _parse_exposures(
                 raise InputError(f"{OWNER}: exposures: the date column cannot be read as dates: {err}") from err
         pairs = pd.MultiIndex.from_arrays([dates, frame["asset"]])
         if not pairs.is_unique:
-            dups = [f"{iso_label(d)}/{a}" for d, a in pairs[pairs.duplicated()].unique()]
+            dups = [f"{date_label(d)}/{a}" for d, a in pairs[pairs.duplicated()].unique()]
             raise InputError(f"{OWNER}: exposures: duplicate (date, asset) rows: {list_labels(dups)}")
         assets_all = pd.Index(frame["asset"]).rename(None)
         styles = [c for c in frame.columns if c not in {"date", "asset"} | special]
@@ -482,19 +356,19 @@ def _check_blocks(
     if few:
         raise InputError(
             f"{OWNER}: fewer assets with a return and exposures than min_assets={min_assets} "
-            f"(the regression has {n_free} free factor returns) on dates: {list_labels([iso_label(d) for d in sorted(few)])}"
+            f"(the regression has {n_free} free factor returns) on dates: {list_labels([date_label(d) for d in sorted(few)])}"
         )
     if empty:
         name, where = next(iter(empty.items()))
         raise InputError(
             f"{OWNER}: industry {name!r} has no member with a return on dates: "
-            f"{list_labels([iso_label(d) for d in sorted(where)])}; merge it into another industry or drop it"
+            f"{list_labels([date_label(d) for d in sorted(where)])}; merge it into another industry or drop it"
         )
     if constant:
         name, where = next(iter(constant.items()))
         raise InputError(
             f"{OWNER}: style column {name!r} is constant across assets (collinear with the market or industry "
-            f"factors) on dates: {list_labels([iso_label(d) for d in sorted(where)])}"
+            f"factors) on dates: {list_labels([date_label(d) for d in sorted(where)])}"
         )
     return rows_of
 
@@ -674,7 +548,7 @@ def fit_cross_section(
             fit = restricted_wls(snap.styles[rows], codes, n_industries, snap.weight[rows], values[np.ix_(ts, cols)].T, market)
         except np.linalg.LinAlgError:
             raise InputError(
-                f"{OWNER}: exposures are collinear on date {iso_label(returns.index[ts[0]])}: some style "
+                f"{OWNER}: exposures are collinear on date {date_label(returns.index[ts[0]])}: some style "
                 f"columns {list_labels(styles)} are linear combinations of the others or of the industry dummies"
             ) from None
         f_all[ts] = fit.factor_returns.T
@@ -691,7 +565,7 @@ def fit_cross_section(
     if skipped:
         warnings.warn(
             f"{OWNER}: skipped {len(skipped)} dates with no returns or no exposures known before them: "
-            f"{list_labels([iso_label(d) for d in skipped])}",
+            f"{list_labels([date_label(d) for d in skipped])}",
             DataWarning,
             stacklevel=2,
         )
@@ -731,7 +605,7 @@ def fit_cross_section(
         "covariance": settings,
         "specific_dof": 0,
         "lag": "exposures known at the start of each period",
-        "exposure_date": None if latest.date is None else iso_label(latest.date),
+        "exposure_date": None if latest.date is None else date_label(latest.date),
         **described,
     }
     extra = {

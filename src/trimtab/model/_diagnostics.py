@@ -17,6 +17,7 @@ from scipy import stats
 
 from trimtab._validation import check_finite_frame, check_finite_series, check_unique, list_labels
 from trimtab.errors import InputError
+from trimtab.model._arguments import is_number, is_whole_number
 
 __all__ = ["BiasResult", "ResidualCheck", "bias_statistic", "check_residuals"]
 
@@ -112,11 +113,8 @@ class ResidualCheck:
 
 def _check_options(alpha: Any, max_pairs: Any, block_size: Any, seed: Any, n_worst: Any) -> None:
     owner = "check_residuals"
-
-    def whole(value: Any) -> bool:
-        return isinstance(value, (int, np.integer)) and not isinstance(value, bool)
-
-    if not isinstance(alpha, (int, float, np.floating)) or isinstance(alpha, bool) or not 0 < alpha < 1:
+    whole = is_whole_number
+    if not is_number(alpha) or not 0 < alpha < 1:
         raise InputError(f"{owner}: alpha must be a probability strictly between 0 and 1, got {alpha!r}")
     if max_pairs is not None and (not whole(max_pairs) or max_pairs < 1):
         raise InputError(f"{owner}: max_pairs must be a whole number >= 1 or None, got {max_pairs!r}")

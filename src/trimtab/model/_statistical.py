@@ -15,18 +15,19 @@ import pandas as pd
 
 from trimtab._validation import list_labels
 from trimtab.errors import DataWarning, InputError
+from trimtab.model._arguments import is_whole_number
 from trimtab.model._covariance import CovarianceSettings, factor_covariance, specific_variance
-from trimtab.model._cross_section import (
+from trimtab.model._factor_model import FactorModel
+from trimtab.model._panel import (
     assemble_model,
     check_returns_panel,
+    date_label,
     infer_periods_per_year,
-    iso_label,
     observed_at_least,
     per_asset_fit,
     settings_record,
     warn_dropped,
 )
-from trimtab.model._factor_model import FactorModel
 
 OWNER = "fit_statistical"
 
@@ -35,10 +36,6 @@ ROUTES = ("auto", "svd", "gram")
 
 #: Fewest dates a principal-component fit accepts.
 MIN_DATES = 3
-
-
-def _is_whole(value: Any) -> bool:
-    return isinstance(value, (int, np.integer)) and not isinstance(value, bool)
 
 
 def principal_components(X: np.ndarray, n_components: int, route: str = "auto") -> dict[str, Any]:
@@ -110,15 +107,15 @@ def information_criteria(singular_values: np.ndarray, total: float, n_dates: int
 
 
 def _check_arguments(n_factors: Any, max_factors: Any, criterion: Any, demean: Any, min_periods: Any) -> None:
-    if n_factors is not None and (not _is_whole(n_factors) or n_factors < 1):
+    if n_factors is not None and (not is_whole_number(n_factors) or n_factors < 1):
         raise InputError(f"{OWNER}: n_factors must be a whole number >= 1 or None, got {n_factors!r}")
-    if not _is_whole(max_factors) or max_factors < 1:
+    if not is_whole_number(max_factors) or max_factors < 1:
         raise InputError(f"{OWNER}: max_factors must be a whole number >= 1, got {max_factors!r}")
     if criterion not in CRITERIA:
         raise InputError(f"{OWNER}: criterion must be one of {list_labels(CRITERIA)}, got {criterion!r}")
     if not isinstance(demean, bool):
         raise InputError(f"{OWNER}: demean must be True or False, got {demean!r}")
-    if min_periods is not None and (not _is_whole(min_periods) or min_periods < 2):
+    if min_periods is not None and (not is_whole_number(min_periods) or min_periods < 2):
         raise InputError(f"{OWNER}: min_periods must be a whole number >= 2 or None, got {min_periods!r}")
 
 
@@ -285,7 +282,7 @@ def fit_statistical(
     if dropped_dates:
         warnings.warn(
             f"{OWNER}: dropped {len(dropped_dates)} dates with no return at all: "
-            f"{list_labels([iso_label(d) for d in dropped_dates])}",
+            f"{list_labels([date_label(d) for d in dropped_dates])}",
             DataWarning,
             stacklevel=2,
         )

@@ -11,19 +11,13 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import list_labels
-from trimtab._version import __version__
 from trimtab.errors import DataWarning, InputError
+from trimtab.model._arguments import is_positive_number, is_whole_number
 from trimtab.model._covariance import CovarianceSettings, ewma_weights, factor_covariance, specific_variance
 from trimtab.model._factor_model import FactorModel
-from trimtab.model._fit_report import FitReport
+from trimtab.model._panel import assemble_model, infer_periods_per_year
 from trimtab.model._time_series_estimate import estimate, exposure_history, normalised_residual_variance
-from trimtab.model._time_series_input import (
-    OWNER,
-    check_factor_rank,
-    date_label,
-    infer_periods_per_year,
-    validated_returns,
-)
+from trimtab.model._time_series_input import OWNER, check_factor_rank, validated_returns
 
 
 def fit_time_series(
@@ -167,8 +161,7 @@ def fit_time_series(
         exposure_step=exposure_step,
         periods_per_year=periods_per_year,
     )
-    if settings["periods_per_year"] is None:
-        settings["periods_per_year"] = infer_periods_per_year(returns.index)
+    settings["periods_per_year"] = infer_periods_per_year(returns.index, settings["periods_per_year"], OWNER)
     if settings["exposure_step"] is None:
         settings["exposure_step"] = max(1, int(round(settings["periods_per_year"] / 12)))
     regression_half_life = half_life if half_life is not None else exposure_half_life
@@ -262,31 +255,19 @@ def fit_time_series(
     }
     if result.date_variance is not None:
         extra["date_variance"] = pd.Series(result.date_variance, index=dates, name="date_variance")
-    report = FitReport(
-        method="time_series",
-        assets=table,
-        residuals=residuals,
-        dropped=dropped,
-        factor_returns=window_factors,
-        exposure_history=history,
-        settings=dict(settings),
-        extra=extra,
-    )
-    provenance = {
-        "estimator": "fit_time_series",
-        "settings": dict(settings),
-        "window": [date_label(dates[0]), date_label(dates[-1])],
-        "version": __version__,
-        "n_dropped": len(dropped),
-    }
-    return FactorModel(
+    return assemble_model(
+        "time_series",
         exposures,
         F,
         d,
+        (table, residuals, dropped, window_factors),
+        settings,
+        extra,
         periods_per_year=settings["periods_per_year"],
         factor_groups=factor_groups,
-        fit_report=report,
-        provenance=provenance,
+        exposure_history=history,
+        estimator="fit_time_series",
+        provenance={"n_dropped": len(dropped)},
     )
 
 
@@ -316,24 +297,11 @@ def _asset_table(
     return pd.DataFrame(columns, index=assets)
 
 
-def _is_positive(value: Any) -> bool:
-    return (
-        isinstance(value, (int, float, np.integer, np.floating))
-        and not isinstance(value, bool)
-        and bool(np.isfinite(value))
-        and value > 0
-    )
-
-
-def _is_whole(value: Any) -> bool:
-    return isinstance(value, (int, np.integer)) and not isinstance(value, bool)
-
-
 def _checked_settings(n_factors: int, n_dates: int, **given: Any) -> dict[str, Any]:
     """Validate the keyword parameters; return them as a settings dict with min_periods resolved."""
     for name in ("half_life", "exposure_half_life", "periods_per_year"):
         value = given[name]
-        if value is not None and not _is_positive(value):
+        if value is not None and not is_positive_number(value):
             raise InputError(f"{OWNER}: {name} must be a positive number of periods or None, got {value!r}")
     if not isinstance(given["gls"], (bool, np.bool_)):
         raise InputError(f"{OWNER}: gls must be True or False, got {given['gls']!r}")
@@ -347,13 +315,13 @@ def _checked_settings(n_factors: int, n_dates: int, **given: Any) -> dict[str, A
     min_periods = given["min_periods"]
     if min_periods is None:
         min_periods = max(24, 3 * (n_factors + 1))
-    elif not _is_whole(min_periods) or min_periods < floor:
+    elif not is_whole_number(min_periods) or min_periods < floor:
         raise InputError(
             f"{OWNER}: min_periods must be a whole number >= {floor} (K + 2 for {n_factors} factors), got {min_periods!r}"
         )
     rolling_window = given["rolling_window"]
     if rolling_window is not None:
-        if not _is_whole(rolling_window) or rolling_window < min_periods:
+        if not is_whole_number(rolling_window) or rolling_window < min_periods:
             raise InputError(
                 f"{OWNER}: rolling_window must be a whole number of dates >= min_periods={min_periods}, "
                 f"got {rolling_window!r}"
@@ -366,7 +334,7 @@ def _checked_settings(n_factors: int, n_dates: int, **given: Any) -> dict[str, A
             "use rolling_window with half_life for weighted trailing windows"
         )
     step = given["exposure_step"]
-    if step is not None and (not _is_whole(step) or step < 1):
+    if step is not None and (not is_whole_number(step) or step < 1):
         raise InputError(f"{OWNER}: exposure_step must be a whole number >= 1, got {step!r}")
     settings = {k: v for k, v in given.items() if k != "covariance"}
     settings["gls"] = bool(given["gls"])

@@ -7,51 +7,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._validation import check_unique, list_labels
+from trimtab._validation import list_labels
 from trimtab.errors import InputError
+from trimtab.model._panel import check_date_frame, date_label
 
 OWNER = "fit_time_series"
-
-#: Median spacing of the dates in days → periods per year, for :func:`infer_periods_per_year`.
-_SPACINGS: tuple[tuple[float, float, float, str], ...] = (
-    (0.5, 4.5, 252.0, "daily"),
-    (4.5, 9.5, 52.0, "weekly"),
-    (26.5, 32.5, 12.0, "monthly"),
-    (85.0, 95.0, 4.0, "quarterly"),
-    (360.0, 370.0, 1.0, "annual"),
-)
-
-
-def date_label(value: Any) -> str:
-    """A date as ISO text (just the day when there is no time of day), anything else as str."""
-    if isinstance(value, pd.Timestamp):
-        return str(value.date()) if value == value.normalize() else value.isoformat()
-    return str(value)
-
-
-def _check_frame(frame: Any, name: str, what: str) -> pd.DataFrame:
-    owner = f"{OWNER}: {name}"
-    if not isinstance(frame, pd.DataFrame):
-        raise InputError(f"{owner}: expected a DataFrame of dates × {what}, got {type(frame).__name__}")
-    if frame.shape[0] == 0 or frame.shape[1] == 0:
-        raise InputError(f"{owner} is empty (shape {frame.shape}); expected at least one date and one {what[:-1]}")
-    check_unique(frame.columns, what, owner)
-    check_unique(frame.index, "dates", owner)
-    index = frame.index
-    if not index.is_monotonic_increasing:
-        values = index.to_numpy()
-        try:
-            first = next(i for i in range(1, len(index)) if not values[i] > values[i - 1])
-        except TypeError:
-            raise InputError(f"{owner}: dates of mixed types cannot be ordered; expected increasing dates") from None
-        raise InputError(
-            f"{owner}: dates must be increasing; {date_label(index[first])} comes after "
-            f"{date_label(index[first - 1])} (sort with sort_index() first)"
-        )
-    bad = [c for c, dtype in zip(frame.columns, frame.dtypes) if not pd.api.types.is_numeric_dtype(dtype)]
-    if bad:
-        raise InputError(f"{owner}: non-numeric columns: {list_labels(bad)}; expected returns as numbers")
-    return frame
 
 
 def _cells(mask: np.ndarray, index: pd.Index, columns: pd.Index) -> str:
@@ -67,8 +27,9 @@ def validated_returns(asset_returns: Any, factor_returns: Any) -> tuple[pd.DataF
     The calendar is every date on which at least one asset has a return; factor returns must exist
     and be finite on each of those dates (their other dates are ignored).
     """
-    assets = _check_frame(asset_returns, "asset_returns", "assets")
-    factors = _check_frame(factor_returns, "factor_returns", "factors")
+    # Values are checked here, cell by cell: asset returns may be NaN, factor returns only off the calendar.
+    assets = check_date_frame(asset_returns, f"{OWNER}: asset_returns", "assets", finite=False, nonempty=True)
+    factors = check_date_frame(factor_returns, f"{OWNER}: factor_returns", "factors", finite=False, nonempty=True)
     values = assets.to_numpy(dtype=np.float64)
     infinite = np.isinf(values)
     if infinite.any():
@@ -134,23 +95,3 @@ def check_factor_rank(factors: np.ndarray, names: pd.Index, n_dates: int) -> Non
             f"{OWNER}: factor_returns columns are perfectly collinear over the {n_dates} dates used "
             f"(one is a linear combination of the others and the intercept): {list_labels(names[involved])}"
         )
-
-
-def infer_periods_per_year(index: pd.Index) -> float:
-    """252, 52, 12, 4 or 1 from the median spacing of the dates; raise if it fits none of them."""
-    hint = "pass periods_per_year explicitly"
-    if not isinstance(index, pd.DatetimeIndex):
-        raise InputError(
-            f"{OWNER}: cannot infer periods_per_year from dates of type {index.dtype} "
-            f"(read dates with parse_dates, or {hint})"
-        )
-    days = float(np.median((index[1:] - index[:-1]).total_seconds())) / 86_400.0
-    for low, high, per_year, _ in _SPACINGS:
-        if low <= days < high:
-            return per_year
-    known = ", ".join(f"{name} {per_year:g}" for _, _, per_year, name in _SPACINGS)
-    raise InputError(
-        f"{OWNER}: cannot infer periods_per_year from a median date spacing of {days:.3g} days "
-        f"(known: {known}); {hint}"
-    )
-
