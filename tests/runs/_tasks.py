@@ -46,3 +46,47 @@ def fit_without_value(returns: pd.DataFrame, factors: pd.DataFrame):
     from trimtab.model import fit_time_series
 
     return fit_time_series(returns, factors.drop(columns="value"))
+
+
+BUILDS: list[str] = []  # one entry per ClosedFormProblem built in this process
+
+
+class ClosedFormProblem:
+    """A built problem with closed-form solutions and the optimizer's re-solve entry point.
+
+    Budget constraint only (1ᵀa = 0, a = w − b), α̃ = α − γ1 with γ = 1ᵀΣ⁻¹α / 1ᵀΣ⁻¹1:
+    utility  max αᵀa − λP·aᵀΣa            → a = Σ⁻¹α̃ / (2λP);
+    alpha    max αᵀa s.t. P·aᵀΣa ≤ σ̄²    → a = σ̄·Σ⁻¹α̃ / √(P·α̃ᵀΣ⁻¹α̃)
+    (Lagrange conditions of an equality- or norm-constrained linear/quadratic programme; textbook).
+    """
+
+    def __init__(self, model, scenario, *, holdings, benchmark, alpha, **_: object) -> None:
+        BUILDS.append(str(scenario["objective"]))
+        extra = set(scenario.get("constraints", {})) - {"tracking_error", "fully_invested"}
+        if extra:
+            raise InputError(f"ClosedFormProblem: no closed form with constraints {sorted(extra)}")
+        self.model, self.benchmark = model, benchmark
+        self.objective = dict(scenario["objective"])
+        self.cap = scenario.get("constraints", {}).get("tracking_error", {}).get("max")
+        ones = np.ones(model.n_assets)
+        inv_alpha, inv_ones = model.solve(alpha.to_numpy()), model.solve(ones)
+        gamma = float(ones @ inv_alpha) / float(ones @ inv_ones)
+        self.direction = inv_alpha - gamma * inv_ones  # Σ⁻¹α̃
+
+    def resolve(self, *, risk_aversion=None, limits=None) -> ClosedFormResult:
+        from trimtab.errors import InfeasibleError
+
+        limits = dict(limits or {})
+        unknown = set(limits) - {"tracking_error.max"}
+        if unknown:
+            raise InputError(f"resolve: limits not re-solvable: {sorted(unknown)}")
+        cap = limits.get("tracking_error.max", self.cap)
+        periods = self.model.periods_per_year
+        if self.objective.get("maximize") == "alpha":
+            if cap is None or cap < 0.001:
+                raise InfeasibleError(f"tracking_error.max {cap} is below the smallest reachable 0.001")
+            scale = float(cap) / np.sqrt(periods * float(self.direction @ self.model.covariance_dot(self.direction)))
+        else:
+            lam = float(risk_aversion if risk_aversion is not None else self.objective["risk_aversion"])
+            scale = 1.0 / (2.0 * lam * periods)
+        return ClosedFormResult(pd.Series(self.benchmark.to_numpy() + scale * self.direction, index=self.model.assets))

@@ -1,0 +1,207 @@
+"""Charts (inline SVG) and one plain, printable HTML page for sweeps, frontiers and backtests.
+
+The charts lay out tables computed elsewhere; they compute nothing but cumulative sums for display.
+Drawn with matplotlib on an Agg canvas (no pyplot, no global state).
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import html
+import io
+import re
+from collections.abc import Mapping, Sequence
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+import matplotlib
+import numpy as np
+import pandas as pd
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.ticker import PercentFormatter
+
+from trimtab._version import __version__
+from trimtab.report import CAUTION
+
+PALETTE = ("#2a6f77", "#d49a3a", "#6b4c9a", "#b23a3a", "#4d7f3a", "#8a939b", "#1d2125")
+_STYLE = {
+    "svg.fonttype": "none",
+    "font.family": "sans-serif",
+    "font.size": 10.5,
+    "axes.edgecolor": "#8a939b",
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+}
+
+
+def _figure(height_in: float = 3.4) -> tuple[Figure, Any]:
+    fig = Figure(figsize=(9.3, height_in))
+    FigureCanvasAgg(fig)
+    return fig, fig.add_subplot()
+
+
+def _svg(fig: Figure, name: str) -> str:
+    """An inline <svg> element: no XML prolog, ids prefixed by ``name`` so charts can share a page."""
+    buffer = io.StringIO()
+    with matplotlib.rc_context({**_STYLE, "svg.hashsalt": f"trimtab-{name}"}):
+        fig.tight_layout()
+        fig.savefig(buffer, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None})
+    text = buffer.getvalue()
+    text = text[text.index("<svg") :]
+    text = re.sub(r'\bid="([^"]+)"', rf'id="{name}-\1"', text)
+    text = re.sub(r"url\(#([^)]+)\)", rf"url(#{name}-\1)", text)
+    text = re.sub(r'href="#([^"]+)"', rf'href="#{name}-\1"', text)
+    text = re.sub(r'<svg([^>]*?) width="[^"]*" height="[^"]*"', r'<svg\1 class="chart" role="img"', text, count=1)
+    return text.replace("<svg", f'<svg aria-label="{html.escape(name.replace("-", " "))}"', 1)
+
+
+def _percent(ax: Any, axis: str = "y") -> None:
+    target = ax.yaxis if axis == "y" else ax.xaxis
+    target.set_major_formatter(PercentFormatter(xmax=1.0))
+
+
+def frontier_chart(table: pd.DataFrame, *, x: str = "tracking_error", y: str = "expected_alpha", name: str = "frontier") -> str:
+    """Expected active return against ``x`` (tracking error or turnover), solved points only.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        A frontier or sweep table with columns ``x``, ``y`` and ``status``.
+    x, y : str
+        The columns on the axes (fractions, shown as percentages).
+    name : str
+        Prefix of the SVG ids (unique per page).
+
+    Returns
+    -------
+    str
+        An ``<svg>`` element.
+    """
+    fig, ax = _figure()
+    solved = table[table["status"] == "solved"].sort_values(x)
+    ax.plot(solved[x], solved[y], marker="o", color=PALETTE[0], linewidth=1.6)
+    failed = table[table["status"] != "solved"]
+    if "limit" in table.columns and len(failed):
+        for value in failed["limit"]:
+            ax.axvline(float(value), color=PALETTE[3], linestyle=":", linewidth=1)
+    ax.set_xlabel(x.replace("_", " ") + (" (forecast, annualised)" if x == "tracking_error" else " (one-way)"))
+    ax.set_ylabel("expected active return (annualised)")
+    _percent(ax, "x")
+    _percent(ax, "y")
+    ax.grid(alpha=0.3)
+    return _svg(fig, name)
+
+
+def lines_chart(frame: pd.DataFrame, *, ylabel: str, name: str, percent: bool = True, dashed: pd.DataFrame | None = None) -> str:
+    """One line per column against the index (dates); optional dashed companions of the same colour."""
+    fig, ax = _figure()
+    for i, column in enumerate(frame.columns):
+        colour = PALETTE[i % len(PALETTE)]
+        ax.plot(frame.index, frame[column].to_numpy(dtype=float), color=colour, linewidth=1.5, label=str(column))
+        if dashed is not None and column in dashed.columns:
+            ax.plot(dashed.index, dashed[column].to_numpy(dtype=float), color=colour, linewidth=1.2, linestyle="--", label=f"{column} (realised)")
+    ax.set_ylabel(ylabel)
+    if percent:
+        _percent(ax)
+    ax.grid(alpha=0.3)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=9)
+    fig.autofmt_xdate()
+    return _svg(fig, name)
+
+
+def backtest_charts(result: Any, *, rolling: int = 12) -> dict[str, str]:
+    """The backtest's charts: forecast against realised TE, cumulative active return after costs,
+    turnover, and the first scenario's active factor exposures.
+
+    Realised TE is the rolling standard deviation of the last ``rolling`` holding-period active
+    returns, annualised with the mean holding period: a display aid, not a test.
+    """
+    history = result.history
+    forecast = history["forecast_te"].unstack("scenario")
+    per_year = float(result.settings.get("periods_per_year", 252)) / max(float(history["n_periods"].mean()), 1.0)
+    realised = history["realised_active"].unstack("scenario").rolling(rolling, min_periods=max(3, rolling // 2)).std() * np.sqrt(per_year)
+    cumulative = (1 + history["net_active"].unstack("scenario").fillna(0.0)).cumprod() - 1
+    charts = {
+        "Forecast (solid) and realised rolling (dashed) tracking error": lines_chart(
+            forecast, ylabel="tracking error (annualised)", name="bt-te", dashed=realised
+        ),
+        "Cumulative active return after costs": lines_chart(cumulative, ylabel="active return", name="bt-cum"),
+        "One-way turnover at each rebalance": lines_chart(history["turnover"].unstack("scenario"), ylabel="turnover", name="bt-turnover"),
+    }
+    first = result.scenarios[0]
+    exposures = result.exposures.loc[first]
+    top = exposures.abs().mean().sort_values(ascending=False).index[:6]
+    charts[f"Active factor exposures ({first}; the six largest)"] = lines_chart(
+        exposures[top], ylabel="active exposure", name="bt-exposures", percent=False
+    )
+    return charts
+
+
+# ---------------------------------------------------------------------------------------------
+# HTML
+# ---------------------------------------------------------------------------------------------
+def _css() -> str:
+    try:
+        return resources.files("trimtab.report").joinpath("report.css").read_text(encoding="utf-8")
+    except (FileNotFoundError, ModuleNotFoundError):
+        return "body{font-family:sans-serif;max-width:62rem;margin:auto;padding:1.5rem}"
+
+
+def _cell(value: Any, column: str, percent_columns: Sequence[str]) -> str:
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if isinstance(value, (int, np.integer)):
+        return f"{int(value):,}"
+    if isinstance(value, (float, np.floating)):
+        if not np.isfinite(value):
+            return "–"
+        return f"{100 * value:.2f}%" if column in percent_columns else f"{value:.4g}"
+    return html.escape(str(value))
+
+
+def html_table(frame: pd.DataFrame, *, percent_columns: Sequence[str] = (), max_rows: int = 200) -> str:
+    """A plain HTML table of ``frame`` (index as the first column)."""
+    index_name = " / ".join(str(n) for n in frame.index.names if n is not None)
+    head = "".join(f"<th>{html.escape(str(c))}</th>" for c in [index_name, *frame.columns])
+    rows = []
+    for label, row in frame.head(max_rows).iterrows():
+        label_text = " / ".join(str(x) for x in label) if isinstance(label, tuple) else str(label)
+        cells = "".join(f'<td class="num">{_cell(row[c], str(c), percent_columns)}</td>' for c in frame.columns)
+        rows.append(f"<tr><th scope=\"row\">{html.escape(label_text)}</th>{cells}</tr>")
+    more = f'<p class="note">{len(frame) - max_rows} more rows in the CSV file.</p>' if len(frame) > max_rows else ""
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>{more}"
+
+
+def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = ()) -> str:
+    """One self-contained page: title, caution, then (heading, HTML body) sections. No scripts."""
+    when = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    parts = [
+        "<!DOCTYPE html>",
+        '<html lang="en"><head><meta charset="utf-8">',
+        f"<title>{html.escape(title)}</title>",
+        f"<style>{_css()}</style></head><body><main>",
+        f"<h1>{html.escape(title)}</h1>",
+        f'<p class="meta">trimtab {html.escape(__version__)} · written {when}</p>',
+        f'<p class="caution">{html.escape(CAUTION)}</p>',
+    ]
+    parts += [f'<p class="note">{html.escape(n)}</p>' for n in notes]
+    for heading, body in sections:
+        parts.append(f"<section><h2>{html.escape(heading)}</h2>{body}</section>")
+    parts.append("</main></body></html>")
+    return "\n".join(parts)
+
+
+def figure_block(charts: Mapping[str, str]) -> str:
+    """Charts with captions, as <figure> elements."""
+    return "".join(f"<figure>{svg}<figcaption>{html.escape(caption)}</figcaption></figure>" for caption, svg in charts.items())
+
+
+def write_page(path: str | Path, title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = ()) -> Path:
+    """Write :func:`render_page` to ``path`` through a temporary file."""
+    from trimtab.scenario import write_text_atomic
+
+    target = Path(path)
+    write_text_atomic(target, render_page(title, sections, notes=notes))
+    return target

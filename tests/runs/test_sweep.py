@@ -1,0 +1,136 @@
+"""Sweeps: key paths, grids, build-once-then-re-solve, failed points kept, the table's figures."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from tests.conftest import random_model
+from tests.runs import _tasks
+from tests.runs._tasks import ClosedFormProblem
+from trimtab.errors import InputError
+from trimtab.runs import get_executor
+from trimtab.runs._sweep import apply_point, chunks, grid_points, key_path, point_label, sweep
+
+UTILITY = {"objective": {"maximize": "utility", "risk_aversion": 10.0}, "constraints": {"fully_invested": True}}
+
+
+@pytest.fixture(scope="module")
+def book():
+    model = random_model(n_assets=40, n_factors=4, seed=5)
+    rng = np.random.default_rng(11)
+    bench = pd.Series(rng.dirichlet(np.ones(40)), index=model.assets)
+    alpha = pd.Series(rng.normal(scale=0.03, size=40), index=model.assets)
+    return model, bench, alpha
+
+
+def run(book, scenario, grid, **kwargs):
+    model, bench, alpha = book
+    return sweep(model, scenario, grid, holdings=bench, benchmark=bench, alpha=alpha, build=ClosedFormProblem, **kwargs)
+
+
+def test_key_paths() -> None:
+    assert key_path("risk_aversion") == ("objective", "risk_aversion")
+    assert key_path("tracking_error.max") == ("constraints", "tracking_error", "max")
+    assert key_path("constraints.turnover.max") == ("constraints", "turnover", "max")
+    assert key_path("objective.cost_aversion") == ("objective", "cost_aversion")
+    for bad, message in [("", "dotted key paths"), ("a..b", "dotted key paths"), ("objective", "names a whole section")]:
+        with pytest.raises(InputError, match=message):
+            key_path(bad)
+
+
+def test_apply_point_sets_nested_values_and_list_positions() -> None:
+    scenario = {"objective": {"risk_aversion": 1}, "constraints": {"factor_exposure": {"bounds": {"size": [-0.1, 0.1]}}}}
+    out = apply_point(scenario, {"factor_exposure.bounds.size.1": 0.05, "turnover.max": 0.2, "risk_aversion": 4})
+    assert out["constraints"]["factor_exposure"]["bounds"]["size"] == [-0.1, 0.05]
+    assert out["constraints"]["turnover"] == {"max": 0.2}
+    assert out["objective"]["risk_aversion"] == 4
+    assert scenario["constraints"]["factor_exposure"]["bounds"]["size"] == [-0.1, 0.1]  # the input is untouched
+    with pytest.raises(InputError, match=r"sweep: parameter factor_exposure.bounds.size.7: '7' is not a position in a list of 2"):
+        apply_point(scenario, {"factor_exposure.bounds.size.7": 0.0})
+    with pytest.raises(InputError, match=r"sweep: parameter risk_aversion.max: objective.risk_aversion is a value, not a section"):
+        apply_point(scenario, {"risk_aversion.max": 0.0})
+
+
+def test_grid_points() -> None:
+    points = grid_points({"risk_aversion": [1, 2], "tracking_error.max": [0.01, 0.02, 0.03]})
+    assert len(points) == 6 and points[0] == {"risk_aversion": 1, "tracking_error.max": 0.01}
+    assert point_label(points[-1]) == "risk_aversion=2, tracking_error.max=0.03"
+    assert grid_points([{"turnover.max": 0.1}]) == [{"turnover.max": 0.1}]
+    for bad, message in [
+        ({}, r"the grid is empty"),
+        ({"risk_aversion": []}, r"grid\['risk_aversion'\] must be a non-empty list of values, got \[\]"),
+        ({"risk_aversion": "5"}, r"must be a non-empty list of values, got '5'"),
+        ([], r"a non-empty list of points"),
+        ([{"risk_aversion": 1}, {"risk_aversion": 1}], r"the grid repeats points: risk_aversion=1"),
+    ]:
+        with pytest.raises(InputError, match=message):
+            grid_points(bad)
+
+
+def test_chunks_keep_neighbours_together() -> None:
+    points = [{"x": i} for i in range(7)]
+    parts = chunks(points, 3)
+    assert [len(p) for p in parts] == [2, 3, 2]
+    assert [p["x"] for part in parts for p in part] == list(range(7))
+    assert chunks(points[:1], 4) == [tuple(points[:1])]
+
+
+def test_risk_aversion_sweep_builds_once_and_scales_as_one_over_lambda(book) -> None:
+    _tasks.BUILDS.clear()
+    lambdas = [2.0, 5.0, 10.0, 40.0]
+    result = run(book, UTILITY, {"risk_aversion": lambdas})
+    assert len(_tasks.BUILDS) == 1
+    table = result.table
+    assert table["built"].tolist() == [True, False, False, False]
+    assert list(table.index) == [f"risk_aversion={x}" for x in lambdas]
+    assert (table["status"] == "solved").all()
+    # a = Σ⁻¹α̃/(2λP): TE and expected alpha are both ∝ 1/λ (closed form of mean-variance with a budget)
+    np.testing.assert_allclose(table["tracking_error"] * table["risk_aversion"], table["tracking_error"].iloc[0] * 2.0, rtol=1e-12)
+    np.testing.assert_allclose(table["expected_alpha"] * table["risk_aversion"], table["expected_alpha"].iloc[0] * 2.0, rtol=1e-12)
+    # first-order condition: αᵀa = α̃ᵀa (1ᵀa = 0) = 2λP·aᵀΣa = 2λ·TE²
+    np.testing.assert_allclose(table["expected_alpha"], 2.0 * table["risk_aversion"] * table["tracking_error"] ** 2, rtol=1e-10)
+    assert result.parameters == ["risk_aversion"]
+    assert "4 points; 4 solved" in result.summary()
+
+
+def test_failed_points_are_kept_with_their_parameters(book) -> None:
+    scenario = {"objective": {"maximize": "alpha"}, "constraints": {"tracking_error": {"max": 0.02}}}
+    result = run(book, scenario, {"tracking_error.max": [0.0005, 0.01, 0.02]}, keep_results=True)
+    table = result.table
+    assert table["status"].tolist() == ["infeasible", "solved", "solved"]
+    assert table.loc["tracking_error.max=0.0005", "error"] == "tracking_error.max 0.0005 is below the smallest reachable 0.001"
+    # the TE cap binds: the forecast TE equals each cap (closed form a = σ̄Σ⁻¹α̃/√(Pα̃ᵀΣ⁻¹α̃))
+    np.testing.assert_allclose(table["tracking_error"].iloc[1:], [0.01, 0.02], rtol=1e-12)
+    assert set(result.results) == {"tracking_error.max=0.01", "tracking_error.max=0.02"}
+    assert len(result.failed) == 1
+    # a limit the built problem cannot re-solve is a failed row naming the error, not a crash
+    bad = run(book, scenario, [{"tracking_error.max": 0.01}, {"turnover.max": 0.1}])
+    assert bad.table["status"].tolist() == ["solved", "failed"]
+    assert bad.table["error"].iloc[1] == "InputError: resolve: limits not re-solvable: ['turnover.max']"
+
+
+def test_without_reuse_every_point_is_built(book) -> None:
+    _tasks.BUILDS.clear()
+    reused = run(book, UTILITY, {"risk_aversion": [3.0, 6.0, 9.0]})
+    fresh = run(book, UTILITY, {"risk_aversion": [3.0, 6.0, 9.0]}, reuse=False)
+    assert len(_tasks.BUILDS) == 4
+    assert fresh.table["built"].all()
+    columns = ["tracking_error", "turnover", "expected_alpha"]
+    pd.testing.assert_frame_equal(reused.table[columns], fresh.table[columns], rtol=1e-12)
+
+
+def test_chunks_through_a_process_pool_match_in_process(book) -> None:
+    grid = {"risk_aversion": [1.0, 2.0, 4.0, 8.0]}
+    local = run(book, UTILITY, grid)
+    with get_executor("processes", workers=2) as pool:
+        remote = run(book, UTILITY, grid, executor=pool)
+    assert remote.table["built"].tolist() == [True, False, True, False]  # two chunks, one build each
+    columns = ["tracking_error", "total_risk", "turnover", "expected_alpha", "status"]
+    pd.testing.assert_frame_equal(local.table[columns], remote.table[columns])
+
+
+def test_bad_scenario(book) -> None:
+    with pytest.raises(InputError, match=r"sweep: scenario must be a mapping with an objective section"):
+        run(book, {"constraints": {}}, {"risk_aversion": [1.0]})
