@@ -262,7 +262,8 @@ def ewma_covariance(
 
     References
     ----------
-    RiskMetrics Technical Document (J.P. Morgan/Reuters, 1996), section 5.2 (exponential weighting).
+    Roberts, S. W. (1959). Control chart tests based on geometric moving averages. Technometrics
+    1(3), 239–250 (exponentially weighted moving averages; cited from memory).
 
     Examples
     --------
