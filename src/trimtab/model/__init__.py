@@ -6,16 +6,16 @@ from trimtab.model._time_series import fit_time_series
 from trimtab.model._cross_section import fit_cross_section
 from trimtab.model._statistical import fit_statistical
 
+from trimtab.model._covariance_settings import CovarianceSettings
 from trimtab.model._covariance import (
-    CovarianceSettings,
     eigenvalue_floor,
     ewma_covariance,
     ewma_weights,
     factor_covariance,
     ledoit_wolf,
     newey_west,
-    specific_variance,
 )
+from trimtab.model._specific_variance import specific_variance
 from trimtab.model._diagnostics import BiasResult, ResidualCheck, bias_statistic, check_residuals
 
 __all__ = [

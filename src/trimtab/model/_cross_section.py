@@ -19,7 +19,8 @@ import scipy.sparse as sp
 
 from trimtab._validation import check_unique, list_labels
 from trimtab.errors import DataWarning, InputError
-from trimtab.model._covariance import CovarianceSettings, factor_covariance, specific_variance
+from trimtab.model._covariance import factor_covariance
+from trimtab.model._covariance_settings import CovarianceSettings
 from trimtab.model._factor_model import FactorModel
 from trimtab.model._panel import (
     assemble_model,
@@ -31,6 +32,7 @@ from trimtab.model._panel import (
     settings_record,
     warn_dropped,
 )
+from trimtab.model._specific_variance import specific_variance
 
 OWNER = "fit_cross_section"
 

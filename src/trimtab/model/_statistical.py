@@ -16,7 +16,8 @@ import pandas as pd
 from trimtab._validation import list_labels
 from trimtab.errors import DataWarning, InputError
 from trimtab.model._arguments import is_whole_number
-from trimtab.model._covariance import CovarianceSettings, factor_covariance, specific_variance
+from trimtab.model._covariance import factor_covariance
+from trimtab.model._covariance_settings import CovarianceSettings
 from trimtab.model._factor_model import FactorModel
 from trimtab.model._panel import (
     assemble_model,
@@ -28,6 +29,7 @@ from trimtab.model._panel import (
     settings_record,
     warn_dropped,
 )
+from trimtab.model._specific_variance import specific_variance
 
 OWNER = "fit_statistical"
 

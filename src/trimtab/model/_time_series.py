@@ -13,9 +13,11 @@ import pandas as pd
 from trimtab._validation import list_labels
 from trimtab.errors import DataWarning, InputError
 from trimtab.model._arguments import is_positive_number, is_whole_number
-from trimtab.model._covariance import CovarianceSettings, ewma_weights, factor_covariance, specific_variance
+from trimtab.model._covariance import ewma_weights, factor_covariance
+from trimtab.model._covariance_settings import CovarianceSettings
 from trimtab.model._factor_model import FactorModel
 from trimtab.model._panel import assemble_model, infer_periods_per_year
+from trimtab.model._specific_variance import specific_variance
 from trimtab.model._time_series_estimate import estimate, exposure_history, normalised_residual_variance
 from trimtab.model._time_series_input import OWNER, check_factor_rank, validated_returns
 
