@@ -42,7 +42,7 @@ def test_rules_and_report() -> None:
 
 
 def test_unknown_holdings_are_an_error_by_default() -> None:
-    with pytest.raises(InputError, match=r"h\.csv: 2 holdings assets not in the risk model: X, Y; add them to the model or set data\.unknown_assets: drop"):
+    with pytest.raises(InputError, match=r"h\.csv: 2 holdings assets not in the risk model: X, Y; add them to the model or set data\.unknown_assets: drop \(or zero\)"):
         align_inputs(UNIVERSE, holdings=pd.Series({"A": 0.5, "X": 0.3, "Y": 0.2}), files={"holdings": "h.csv"})
     with pytest.raises(InputError, match=r"1 benchmark asset not in the risk model: Q \(the model fit dropped Q: too short\)"):
         align_inputs(
@@ -51,5 +51,22 @@ def test_unknown_holdings_are_an_error_by_default() -> None:
             benchmark=pd.Series({"A": 0.5, "Q": 0.5}),
             model_dropped=pd.Series({"Q": "too short"}),
         )
-    with pytest.raises(InputError, match=r"align_inputs: unknown_assets must be 'error' or 'drop', got 'keep'"):
+    with pytest.raises(InputError, match=r"align_inputs: unknown_assets must be 'error', 'drop' or 'zero', got 'keep'"):
         align_inputs(UNIVERSE, holdings=pd.Series({"A": 1.0}), unknown_assets="keep")
+
+
+def test_zero_policy_sells_outside_and_a_dropped_benchmark_keeps_its_total() -> None:
+    aligned = align_inputs(
+        UNIVERSE,
+        holdings=pd.Series({"A": 0.5, "X": 0.3, "B": 0.2}),
+        benchmark=pd.Series({"A": 0.3, "B": 0.3, "C": 0.2, "W": 0.2}),
+        unknown_assets="zero",
+    )
+    assert aligned.holdings.to_dict() == {"A": 0.5, "B": 0.2}
+    assert aligned.sold_outside.to_dict() == {"X": 0.3}
+    # the benchmark without W is scaled back to its total of 1: 0.3/0.8 = 0.375, 0.2/0.8 = 0.25
+    assert aligned.benchmark is not None
+    pd.testing.assert_series_equal(aligned.benchmark, pd.Series({"A": 0.375, "B": 0.375, "C": 0.25}))
+    table = aligned.report.table.set_index("asset")
+    assert table.loc["X", "action"] == "sold" and table.loc["W", "action"] == "dropped"
+    assert "1 sold to zero outside the optimizer (not in the risk model: X)" in aligned.report.summary()

@@ -4,7 +4,9 @@ The model's assets are the universe. What happens to every other id is a documen
 application of a rule is a row in the :class:`AlignmentReport`:
 
 * holdings or benchmark assets the model lacks: an error naming them (``unknown_assets: error``,
-  the default), or dropped with their weight reported (``unknown_assets: drop``);
+  the default); or dropped with their weight reported (``drop``: a dropped benchmark is scaled back
+  to its original total); or, for holdings, sold to zero outside the optimizer (``zero``: the sale
+  counts as turnover);
 * alpha scores for assets the model lacks: dropped; model assets without a score: alpha 0;
 * attribute rows for assets the model lacks: dropped; model assets without a row: reported (a
   constraint that needs the attribute then names them).
@@ -13,7 +15,7 @@ application of a rule is a row in the :class:`AlignmentReport`:
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cached_property
 
 import pandas as pd
@@ -32,8 +34,8 @@ class AlignmentReport:
     ----------
     table : pandas.DataFrame
         Columns ``input`` (holdings, benchmark, alpha, attributes), ``asset``, ``action``
-        (``dropped`` or ``filled``), ``reason`` and ``weight`` (the weight dropped, for holdings and
-        benchmark rows).
+        (``dropped``, ``filled`` or ``sold``), ``reason`` and ``weight`` (the weight dropped or sold,
+        for holdings and benchmark rows).
     sizes : pandas.DataFrame
         Per input: rows read, rows kept, rows dropped, model assets filled.
     """
@@ -58,7 +60,7 @@ class AlignmentReport:
             text = f"{name}: {int(row['kept'])} of {int(row['read'])} assets kept"
             sub = self.table[self.table["input"] == name]
             for (action, reason), group in sub.groupby(["action", "reason"], sort=False):
-                verb = "dropped" if action == "dropped" else "filled"
+                verb = {"dropped": "dropped", "filled": "filled", "sold": "sold to zero outside the optimizer"}[action]
                 text += f"; {len(group)} {verb} ({reason}: {list_labels(group['asset'], 3)})"
             lines.append(text)
         return "\n".join(lines)
@@ -86,6 +88,7 @@ class AlignedInputs:
     alpha: pd.Series | None
     attributes: pd.DataFrame | None
     report: AlignmentReport
+    sold_outside: pd.Series = field(default_factory=lambda: pd.Series(dtype=float))
 
 
 def align_inputs(
@@ -111,8 +114,9 @@ def align_inputs(
         Annualised alpha by asset.
     attributes : pandas.DataFrame, optional
         Attributes by asset.
-    unknown_assets : {"error", "drop"}
-        What to do with holdings and benchmark assets the model lacks.
+    unknown_assets : {"error", "drop", "zero"}
+        What to do with holdings and benchmark assets the model lacks (``zero`` applies to holdings;
+        a benchmark is then dropped and scaled as with ``drop``).
     files : Mapping[str, str], optional
         Input name → file, for messages.
     model_dropped : pandas.Series, optional
@@ -127,8 +131,8 @@ def align_inputs(
     InputError
         ``unknown_assets="error"`` and holdings or benchmark name assets the model lacks.
     """
-    if unknown_assets not in ("error", "drop"):
-        raise InputError(f"align_inputs: unknown_assets must be 'error' or 'drop', got {unknown_assets!r}")
+    if unknown_assets not in ("error", "drop", "zero"):
+        raise InputError(f"align_inputs: unknown_assets must be 'error', 'drop' or 'zero', got {unknown_assets!r}")
     files = dict(files or {})
     universe = pd.Index(model_assets)
     pieces: list[pd.DataFrame] = []
@@ -145,11 +149,14 @@ def align_inputs(
                 because = f" (the model fit dropped {known[0]}: {dropped_by_fit[known[0]]})"
             raise InputError(
                 f"{where}: {len(unknown)} {name} asset{'s' if len(unknown) > 1 else ''} not in the risk model: "
-                f"{list_labels(unknown)}{because}; add them to the model or set data.unknown_assets: drop"
+                f"{list_labels(unknown)}{because}; add them to the model or set data.unknown_assets: drop (or zero)"
             )
+        action = "sold" if unknown_assets == "zero" and name == "holdings" else "dropped"
         for reason_assets, reason in _split_by_fit(unknown, dropped_by_fit):
-            pieces.append(_rows(name, reason_assets, "dropped", reason, series))
+            pieces.append(_rows(name, reason_assets, action, reason, series))
         kept = series.drop(unknown)
+        if name == "benchmark" and len(unknown) and kept.sum() != 0:
+            kept = kept * (series.sum() / kept.sum())
         sizes[name] = {"read": len(series), "kept": len(kept), "dropped": len(unknown), "filled": 0}
         return kept
 
@@ -178,7 +185,8 @@ def align_inputs(
 
     table = pd.concat(pieces, ignore_index=True) if pieces else pd.DataFrame(columns=_COLUMNS)
     size_table = pd.DataFrame.from_dict(sizes, orient="index", columns=["read", "kept", "dropped", "filled"])
-    return AlignedInputs(held, bench, scores, attrs, AlignmentReport(table, size_table))
+    sold = holdings.loc[holdings.index.difference(universe, sort=False)] if unknown_assets == "zero" else pd.Series(dtype=float)
+    return AlignedInputs(held, bench, scores, attrs, AlignmentReport(table, size_table), sold)
 
 
 def _split_by_fit(unknown: pd.Index, dropped_by_fit: pd.Series) -> list[tuple[pd.Index, str]]:

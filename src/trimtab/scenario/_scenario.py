@@ -151,16 +151,25 @@ class ScenarioInputs:
     nav: float | None
     book: Holdings
     alignment: AlignmentReport
+    sold_outside: pd.Series | None = None
 
     def rebalance_kwargs(self) -> dict[str, Any]:
-        """Keyword arguments for :func:`trimtab.rebalance` besides the model and the mapping."""
-        return {
+        """Keyword arguments for :func:`trimtab.rebalance` besides the model and the mapping.
+
+        Holdings the model lacks under ``unknown_assets: zero`` are passed on with
+        ``unknown_assets="zero"``, so the optimizer counts their sale as turnover.
+        """
+        kwargs: dict[str, Any] = {
             "holdings": self.holdings,
             "benchmark": self.benchmark,
             "alpha": self.alpha,
             "attributes": self.attributes,
             "nav": self.nav,
         }
+        if self.sold_outside is not None and len(self.sold_outside):
+            kwargs["holdings"] = pd.concat([self.holdings, self.sold_outside])
+            kwargs["unknown_assets"] = "zero"
+        return kwargs
 
 
 def load_model_for(scenario: Scenario) -> FactorModel:
@@ -224,4 +233,5 @@ def load_inputs(
         nav=book.nav,
         book=book,
         alignment=aligned.report,
+        sold_outside=aligned.sold_outside,
     )

@@ -68,8 +68,8 @@ class DataSection(_Strict):
     benchmark: SeriesFile | None = None
     alpha: SeriesFile | None = None
     attributes: AttributesFile | None = None
-    unknown_assets: Literal["error", "drop"] = Field(
-        "error", description="holdings or benchmark assets the model lacks: stop, or drop and report"
+    unknown_assets: Literal["error", "drop", "zero"] = Field(
+        "error", description="holdings or benchmark assets the model lacks: stop, drop, or sell to zero"
     )
 
 
