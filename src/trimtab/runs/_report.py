@@ -184,7 +184,7 @@ def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Seque
         f"<style>{_css()}</style></head><body><main>",
         f"<h1>{html.escape(title)}</h1>",
         f'<p class="meta">trimtab {html.escape(__version__)} · written {when}</p>',
-        f'<p class="caution">{html.escape(CAUTION)}</p>',
+        f'<p class="caution">{html.escape(CAUTION, quote=False)}</p>',
     ]
     parts += [f'<p class="note">{html.escape(n)}</p>' for n in notes]
     for heading, body in sections:
@@ -205,3 +205,98 @@ def write_page(path: str | Path, title: str, sections: Sequence[tuple[str, str]]
     target = Path(path)
     write_text_atomic(target, render_page(title, sections, notes=notes))
     return target
+
+
+# ---------------------------------------------------------------------------------------------
+# Output folders
+# ---------------------------------------------------------------------------------------------
+_PERCENT = ("tracking_error", "total_risk", "turnover", "expected_alpha", "limit", "forecast_te", "realised_te",
+            "mean_forecast_te", "active_return", "net_active_return", "total_cost", "mean_turnover")
+
+
+def _write_tables(folder: Path, tables: Mapping[str, pd.DataFrame | None]) -> None:
+    import json
+
+    document = {}
+    for name, table in tables.items():
+        if table is None:
+            continue
+        table.to_csv(folder / f"{name}.csv")
+        document[name] = json.loads(table.reset_index().to_json(orient="records", date_format="iso"))
+    (folder / "result.json").write_text(json.dumps(document, indent=2), encoding="utf-8")
+
+
+def sweep_charts(result: Any) -> dict[str, str]:
+    """Expected active return against TE across the grid and, for one parameter, TE and turnover against it."""
+    table = result.table
+    charts = {"Expected active return against forecast tracking error, across the grid": frontier_chart(table, name="sweep-te")}
+    if len(result.parameters) == 1:
+        key = result.parameters[0]
+        solved = table[table["status"] == "solved"]
+        values = pd.to_numeric(solved[key], errors="coerce")
+        if values.notna().all() and len(solved):
+            frame = pd.DataFrame({"tracking error": solved["tracking_error"].to_numpy(), "turnover": solved["turnover"].to_numpy(),
+                                  "expected alpha": solved["expected_alpha"].to_numpy()}, index=values.to_numpy())
+            fig, ax = _figure()
+            for i, column in enumerate(frame.columns):
+                ax.plot(frame.index, frame[column], marker="o", color=PALETTE[i], label=column)
+            ax.set_xlabel(key)
+            _percent(ax)
+            ax.grid(alpha=0.3)
+            ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=9)
+            charts[f"Tracking error, turnover and expected alpha against {key}"] = _svg(fig, "sweep-param")
+    return charts
+
+
+def write_sweep(result: Any, target: str | Path, *, inputs: Sequence[str | Path] = (), title: str = "Sweep") -> Path:
+    """sweep.csv, result.json and report.html into ``target`` (a temporary folder, then renamed)."""
+    from trimtab.scenario import output_folder
+
+    with output_folder(Path(target), inputs) as tmp:
+        _write_tables(tmp, {"sweep": result.table})
+        sections = [
+            ("Summary", f"<p>{html.escape(result.summary())}</p>"),
+            ("Charts", figure_block(sweep_charts(result))),
+            ("Points", html_table(result.table.drop(columns=[c for c in ("seconds",) if c in result.table.columns]), percent_columns=_PERCENT)),
+        ]
+        write_page(tmp / "report.html", title, sections, notes=["Figures recomputed from each point's weights; turnover is one-way, ½·Σ|trade|."])
+    return Path(target)
+
+
+def write_frontier(result: Any, target: str | Path, *, inputs: Sequence[str | Path] = (), title: str = "Frontier") -> Path:
+    """frontier_te.csv (and frontier_turnover.csv), result.json and report.html into ``target``."""
+    from trimtab.scenario import output_folder
+
+    with output_folder(Path(target), inputs) as tmp:
+        _write_tables(tmp, {"frontier_te": result.tracking_error, "frontier_turnover": result.turnover})
+        sections = [("Summary", f"<p>{html.escape(result.summary())}</p>"), ("Charts", figure_block(result.charts()))]
+        sections.append(("Against tracking error", html_table(result.tracking_error.set_index("limit"), percent_columns=_PERCENT)))
+        if result.turnover is not None:
+            sections.append(("Against turnover", html_table(result.turnover.set_index("limit"), percent_columns=_PERCENT)))
+        write_page(tmp / "report.html", title, sections, notes=["Each point maximises expected active return with the other limits in force."])
+    return Path(target)
+
+
+def write_backtest(result: Any, target: str | Path, *, inputs: Sequence[str | Path] = (), title: str = "Backtest") -> Path:
+    """history.csv, exposures.csv, risk_contributions.csv, bias.csv, totals.csv, result.json and
+    report.html into ``target``."""
+    from trimtab.scenario import output_folder
+
+    with output_folder(Path(target), inputs) as tmp:
+        _write_tables(tmp, {
+            "history": result.history, "exposures": result.exposures, "risk_contributions": result.risk_contributions,
+            "bias": result.bias, "totals": result.totals,
+        })
+        failures = "".join(f"<li>{html.escape(k)}: {html.escape(v)}</li>" for k, v in result.failures.items())
+        sections = [
+            ("Summary", f"<pre>{html.escape(result.summary())}</pre>" + (f"<p>Failed:</p><ul>{failures}</ul>" if failures else "")),
+            ("Realised against forecast risk", html_table(result.bias)
+             + '<p class="note">Bias statistic b = std(rₜ/σₜ) over the holding periods; inside 1 ± √(2/T) the forecasts held.</p>'),
+            ("Totals", html_table(result.totals, percent_columns=_PERCENT)),
+            ("Charts", figure_block(backtest_charts(result))),
+        ]
+        write_page(tmp / "report.html", title, sections, notes=[
+            "Each date: the model re-fitted on the trailing window only, the book rebalanced from its drifted weights, "
+            "then held to the next date with realised returns and costs.",
+        ])
+    return Path(target)
