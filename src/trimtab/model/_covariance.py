@@ -412,9 +412,8 @@ def _floor_core(arr: np.ndarray, floor: float) -> np.ndarray:
     return 0.5 * (floored + floored.T)
 
 
-
 # ---------------------------------------------------------------------------------------------
-# Boundary functions used by the estimators
+# The boundary function the estimators call for F
 # ---------------------------------------------------------------------------------------------
 
 
