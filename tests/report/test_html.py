@@ -8,6 +8,7 @@ import warnings
 from pathlib import Path
 
 import html5lib
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -65,6 +66,16 @@ def test_many_scenarios_and_attribution_only(result: StandInResult, report_model
     headings = [h.text for h in tree.iter("h2")]
     assert "Risk budget" not in headings and "Trades" not in headings and "Factor exposures" in headings
     assert len(tree.findall(f".//{SVG}")) == 4
+
+
+def test_missing_and_infinite_bounds_show_blank(result: StandInResult) -> None:
+    import dataclasses
+
+    table = result.constraints.assign(lower=[1.0, -np.inf, np.nan, -np.inf])
+    text = render_html(dataclasses.replace(result, constraints=table))
+    constraints = text.split("<h2>Constraints</h2>", 1)[1].split("</table>", 1)[0]
+    assert "inf" not in constraints and "n/a" not in constraints
+    assert constraints.count("<td></td>") >= 3
 
 
 def test_zero_risk_report_renders_without_warnings(report_model: FactorModel) -> None:

@@ -309,6 +309,14 @@ def _constraints(table: Any) -> pd.DataFrame | None:
     return table.reset_index(drop="name" in table.columns)
 
 
+def no_bound(value: Any) -> bool:
+    """True for a missing or infinite number: a bound that is not there."""
+    try:
+        return not np.isfinite(float(value))
+    except (TypeError, ValueError):
+        return value is None
+
+
 def flags(values: pd.Series) -> pd.Series:
     """A column of yes/no values as booleans; missing values count as no."""
     return values.map(lambda v: False if v is None or (isinstance(v, float) and np.isnan(v)) else bool(v)).astype(bool)

@@ -15,7 +15,7 @@ import pandas as pd
 from trimtab._version import __version__
 from trimtab.attribution import compare_many, format_figure
 from trimtab.report import _charts
-from trimtab.report._content import CAUTION, ReportContent, flags, gather, gather_many, labelled
+from trimtab.report._content import CAUTION, ReportContent, flags, gather, gather_many, labelled, no_bound
 from trimtab.report._files import atomic_write_text
 
 #: Headline figures shown as cards at the top of each report, in order.
@@ -297,7 +297,7 @@ def _constraint_table(table: pd.DataFrame) -> str:
         binding = bool(flags(pd.Series([row.get("binding", False)], dtype=object)).iloc[0])
         name = row["name"] if "name" in table.columns else i
         cells = "".join(
-            "<td></td>" if _CONSTRAINT_UNITS[c] == "ratio" and pd.isna(row[c]) else _cell(row[c], _CONSTRAINT_UNITS[c])
+            "<td></td>" if _CONSTRAINT_UNITS[c] == "ratio" and no_bound(row[c]) else _cell(row[c], _CONSTRAINT_UNITS[c])
             for c in columns
         )
         flag = "<td>yes</td>" if binding else "<td></td>"

@@ -10,7 +10,7 @@ from rich.console import Console
 from rich.table import Table
 
 from trimtab.attribution import compare_many, format_figure
-from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled
+from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled, no_bound
 
 
 def print_attribution(attr: Any, console: Console | None = None, *, top: int = 10) -> None:
@@ -78,8 +78,8 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
                 table.add_column(column.replace("_", " "), justify="left" if column == "name" else "right")
         for _, row in binding.iterrows():
             table.add_row(
-                *[str(row[c]) if c == "name" else format_figure(row[c], "ratio") for c in
-                  ("name", "value", "lower", "upper", "shadow_price") if c in binding.columns]
+                *[str(row[c]) if c == "name" else "" if no_bound(row[c]) else format_figure(row[c], "ratio")
+                  for c in ("name", "value", "lower", "upper", "shadow_price") if c in binding.columns]
             )
         if len(binding) == 0:
             out.print("No binding constraints.")
