@@ -1,0 +1,408 @@
+"""The ``trimtab sweep``, ``trimtab frontier`` and ``trimtab backtest`` commands.
+
+:func:`register` adds them to the main command-line app. They follow its conventions: exit codes
+0 ok, 1 infeasible, 2 bad input, 3 solver failure; one line on stderr naming the file or key and
+what was expected, never a traceback; outputs written to a temporary folder, then renamed;
+``--json`` and ``--quiet``; a progress bar on stderr; ``--executor``, ``--workers``, ``--scheduler``.
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import math
+import sys
+import warnings
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Annotated, Any, TypeVar
+
+import numpy as np
+import pandas as pd
+import typer
+import yaml
+
+from trimtab.errors import InputError, TrimtabError
+from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
+
+EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER = 0, 1, 2, 3
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+# ---------------------------------------------------------------------------------------------
+# Conventions shared by the three commands
+# ---------------------------------------------------------------------------------------------
+def _flags(ctx: typer.Context, json_output: bool, quiet: bool) -> tuple[bool, bool]:
+    """--json / --quiet given to the command or to the main app before it."""
+    root = ctx.find_root().obj
+    return json_output or bool(getattr(root, "json", False)), quiet or bool(getattr(root, "quiet", False))
+
+
+def _fail(message: str, code: int) -> None:
+    lines = message.strip().splitlines()
+    sys.stderr.write(f"trimtab: error: {lines[0] if lines else 'unknown error'}\n")
+    raise typer.Exit(code)
+
+
+def guarded(fn: F) -> F:
+    """Turn trimtab's errors into one line on stderr and their exit code; warnings once each."""
+
+    @functools.wraps(fn)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                try:
+                    return fn(*args, **kwargs)
+                finally:
+                    for text in dict.fromkeys(str(w.message).strip().splitlines()[0] for w in caught if str(w.message).strip()):
+                        sys.stderr.write(f"trimtab: warning: {text}\n")
+        except typer.Exit:
+            raise
+        except TrimtabError as err:
+            _fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
+        except KeyboardInterrupt:
+            _fail("interrupted; nothing was written", 130)
+        return None
+
+    return wrapper  # type: ignore[return-value]
+
+
+@contextmanager
+def progress_bar(total: int, label: str, quiet: bool) -> Iterator[Callable[[Outcome], None]]:
+    """A rich progress bar on stderr (off with --quiet or when stderr is not a terminal)."""
+    from rich.console import Console
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    console = Console(file=sys.stderr)
+    bar = Progress(
+        TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+        console=console, transient=True, disable=quiet or not console.is_terminal,
+    )
+    with bar:
+        task = bar.add_task(label, total=total)
+        yield lambda outcome: bar.update(task, advance=1, description=f"{label}: {outcome.label}")
+
+
+def _executor(executor: str | None, workers: int | None, scheduler: str | None) -> Executor:
+    return get_executor(resolve_kind(executor, workers, scheduler), workers=workers, scheduler=scheduler)
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, Mapping):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, pd.DataFrame):
+        return _jsonable(value.reset_index().to_dict(orient="records"))
+    if isinstance(value, pd.Series):
+        return _jsonable(value.to_dict())
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return None if not math.isfinite(float(value)) else float(value)
+    if isinstance(value, (str, type(None))):
+        return value
+    if isinstance(value, pd.Timestamp):
+        return value.isoformat()
+    return str(value)
+
+
+def _emit(document: Mapping[str, Any]) -> None:
+    sys.stdout.write(json.dumps(_jsonable(document), indent=2) + "\n")
+
+
+def _say(text: str, chatty: bool) -> None:
+    if chatty:
+        from rich.console import Console
+
+        Console(file=sys.stdout, highlight=False, width=max(100, Console().width)).print(text, markup=False)
+
+
+def _default_out(scenario: Any, command: str) -> Path:
+    return scenario.path.resolve().parent / "results" / f"{command}-{scenario.name}"
+
+
+# ---------------------------------------------------------------------------------------------
+# Parsing grids
+# ---------------------------------------------------------------------------------------------
+def parse_values(text: str, owner: str) -> list[Any]:
+    """``a:b:n`` (n evenly spaced values), ``[v1, v2]`` (a YAML list) or ``v1,v2,…`` (YAML scalars)."""
+    body = text.strip()
+    if not body:
+        raise InputError(f"{owner}: no values given; expected v1,v2,… or start:stop:count or [v1, v2]")
+    try:
+        if body.startswith("["):
+            values = yaml.safe_load(body)
+            if not isinstance(values, list) or not values:
+                raise InputError(f"{owner}: expected a non-empty YAML list, got {body!r}")
+            return values
+        if ":" in body and "," not in body:
+            parts = body.split(":")
+            if len(parts) != 3:
+                raise InputError(f"{owner}: a range is start:stop:count, got {body!r}")
+            start, stop, count = float(parts[0]), float(parts[1]), int(parts[2])
+            if count < 2:
+                raise InputError(f"{owner}: a range needs a count ≥ 2, got {count}")
+            return [float(x) for x in np.linspace(start, stop, count)]
+        return [yaml.safe_load(part.strip()) for part in body.split(",")]
+    except (ValueError, yaml.YAMLError) as err:
+        raise InputError(f"{owner}: could not read {body!r} as values ({str(err).splitlines()[0]})") from None
+
+
+def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[Any]] | list[dict[str, Any]]:
+    """``--grid KEY=VALUES`` options (every combination), or a grid file (a mapping or a list of points)."""
+    if grid_file is not None:
+        if items:
+            raise InputError("--grid and --grid-file: give one, not both")
+        try:
+            loaded = yaml.safe_load(Path(grid_file).read_text(encoding="utf-8"))
+        except OSError as err:
+            raise InputError(f"{grid_file}: cannot read the grid file ({err.strerror})") from None
+        except yaml.YAMLError as err:
+            raise InputError(f"{grid_file}: not valid YAML ({str(err).splitlines()[0]})") from None
+        if not isinstance(loaded, (dict, list)) or not loaded:
+            raise InputError(f"{grid_file}: expected a mapping parameter → list of values, or a list of points")
+        return loaded
+    if not items:
+        raise InputError("sweep: give at least one --grid KEY=VALUES (for example --grid tracking_error.max=0.01:0.05:5)")
+    grid: dict[str, list[Any]] = {}
+    for item in items:
+        key, sep, values = item.partition("=")
+        if not sep or not key.strip():
+            raise InputError(f"--grid {item}: expected KEY=VALUES, for example risk_aversion=1,5,10")
+        grid[key.strip()] = parse_values(values, f"--grid {key.strip()}")
+    return grid
+
+
+def _check_floats(values: list[Any], owner: str) -> list[float]:
+    try:
+        return [float(v) for v in values]
+    except (TypeError, ValueError):
+        raise InputError(f"{owner}: expected numbers, got {values!r}") from None
+
+
+# ---------------------------------------------------------------------------------------------
+# Shared options
+# ---------------------------------------------------------------------------------------------
+ScenarioArg = Annotated[Path, typer.Argument(help="A scenario YAML file.", metavar="SCENARIO.yaml", show_default=False)]
+OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/<command>-<name> next to the scenario).", show_default=False)]
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.")]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).")]
+ExecutorOpt = Annotated[str | None, typer.Option("--executor", help="inprocess, processes or dask (default: dask with --workers/--scheduler, else inprocess).", show_default=False)]
+WorkersOpt = Annotated[int | None, typer.Option("--workers", help="Worker processes (a local Dask cluster unless --executor processes).", min=1, show_default=False)]
+SchedulerOpt = Annotated[str | None, typer.Option("--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786.", show_default=False)]
+
+
+def _load(scenario: Path) -> Any:
+    from trimtab.scenario import load_inputs, load_scenario
+
+    return load_inputs(load_scenario(scenario))
+
+
+def _exit_for_points(table: pd.DataFrame) -> None:
+    """0 when any point solved; else 1 (all infeasible), 3 (a solver failure) or 2."""
+    if (table["status"] == "solved").any():
+        return
+    first = table.iloc[0]
+    code = {"infeasible": EXIT_INFEASIBLE, "solver failure": EXIT_SOLVER}.get(str(first["status"]), EXIT_BAD_INPUT)
+    _fail(f"no point solved; first: {table.index[0]}: {first['status']}: {first['error']}", code)
+
+
+def _report_failures(table: pd.DataFrame) -> None:
+    for label, row in table[table["status"] != "solved"].head(5).iterrows():
+        sys.stderr.write(f"trimtab: warning: {label}: {row['status']}: {row['error']}\n")
+    extra = int((table["status"] != "solved").sum()) - 5
+    if extra > 0:
+        sys.stderr.write(f"trimtab: warning: and {extra} more points did not solve (see the table)\n")
+
+
+# ---------------------------------------------------------------------------------------------
+# sweep
+# ---------------------------------------------------------------------------------------------
+@guarded
+def sweep_command(
+    ctx: typer.Context,
+    scenario: ScenarioArg,
+    grid: Annotated[list[str] | None, typer.Option("--grid", "-g", help="KEY=VALUES, repeatable: v1,v2,… or start:stop:count or [v1, v2]. Every combination is solved.", show_default=False)] = None,
+    grid_file: Annotated[Path | None, typer.Option("--grid-file", help="YAML: parameter → list of values, or a list of points.", show_default=False)] = None,
+    out: OutOpt = None,
+    executor: ExecutorOpt = None,
+    workers: WorkersOpt = None,
+    scheduler: SchedulerOpt = None,
+    json_output: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Solve a scenario over a grid of parameter values (risk aversion, TE cap, turnover cap, any
+    limit by its dotted key): one table and one HTML report across the grid."""
+    from trimtab.runs._report import write_sweep
+    from trimtab.runs._sweep import grid_points, sweep
+
+    as_json, quiet = _flags(ctx, json_output, quiet)
+    parsed = parse_grid(grid or [], grid_file)
+    n_points = len(grid_points(parsed))
+    inputs = _load(scenario)
+    with _executor(executor, workers, scheduler) as runner, progress_bar(min(n_points, runner.n_workers), "sweep", quiet) as tick:
+        result = sweep(inputs.model, inputs.scenario.rebalance_mapping(), parsed, executor=runner, progress=tick, **inputs.rebalance_kwargs())
+    target = out if out is not None else _default_out(inputs.scenario, "sweep")
+    write_sweep(result, target, inputs=[scenario], title=f"Sweep: {inputs.scenario.name}")
+    if as_json:
+        _emit({"scenario": inputs.scenario.name, "output": str(target), "parameters": result.parameters, "table": result.table})
+    _say(result.summary(), not (as_json or quiet))
+    if not (as_json or quiet):
+        columns = [*result.parameters, "status", "tracking_error", "turnover", "expected_alpha"]
+        _say(result.table[columns].to_string(float_format=lambda v: f"{v:.4g}"), True)
+        _say(f"Wrote the table and report to {target}", True)
+    _report_failures(result.table)
+    _exit_for_points(result.table)
+
+
+# ---------------------------------------------------------------------------------------------
+# frontier
+# ---------------------------------------------------------------------------------------------
+@guarded
+def frontier_command(
+    ctx: typer.Context,
+    scenario: ScenarioArg,
+    tracking_error: Annotated[str | None, typer.Option("--te", help="TE caps: v1,v2,… or start:stop:count (default: ¼ to 2× the scenario's cap).", show_default=False)] = None,
+    turnover: Annotated[str | None, typer.Option("--turnover", help="One-way turnover caps for a second frontier.", show_default=False)] = None,
+    points: Annotated[int, typer.Option("--points", help="Points of the default TE grid.", min=2)] = 10,
+    out: OutOpt = None,
+    executor: ExecutorOpt = None,
+    workers: WorkersOpt = None,
+    scheduler: SchedulerOpt = None,
+    json_output: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Expected active return against tracking error (and against turnover) under the scenario's
+    other limits: tables and a report with the charts."""
+    from trimtab.runs._report import write_frontier
+    from trimtab.runs._frontier import frontier
+
+    as_json, quiet = _flags(ctx, json_output, quiet)
+    te = _check_floats(parse_values(tracking_error, "--te"), "--te") if tracking_error else None
+    caps = _check_floats(parse_values(turnover, "--turnover"), "--turnover") if turnover else None
+    inputs = _load(scenario)
+    kwargs = inputs.rebalance_kwargs()
+    if kwargs.get("alpha") is None:
+        raise InputError(f"{scenario}: data.alpha: the frontier needs an alpha file (expected return is αᵀ(w − b))")
+    with _executor(executor, workers, scheduler) as runner, progress_bar(2 * runner.n_workers, "frontier", quiet) as tick:
+        result = frontier(inputs.model, inputs.scenario.rebalance_mapping(), tracking_errors=te, turnovers=caps,
+                          n_points=points, executor=runner, progress=tick, **kwargs)
+    target = out if out is not None else _default_out(inputs.scenario, "frontier")
+    write_frontier(result, target, inputs=[scenario], title=f"Frontier: {inputs.scenario.name}")
+    if as_json:
+        _emit({"scenario": inputs.scenario.name, "output": str(target), "tracking_error": result.tracking_error, "turnover": result.turnover})
+    if not (as_json or quiet):
+        _say(result.summary(), True)
+        _say(result.tracking_error.drop(columns=["error"]).to_string(float_format=lambda v: f"{v:.4g}"), True)
+        _say(f"Wrote the tables and report to {target}", True)
+    _report_failures(result.tracking_error.set_index("limit"))
+    _exit_for_points(result.tracking_error.set_index("limit"))
+
+
+# ---------------------------------------------------------------------------------------------
+# backtest
+# ---------------------------------------------------------------------------------------------
+def fit_settings_mapping(settings: Any) -> dict[str, Any]:
+    """Estimator keywords from validated fit settings, for a per-window re-fit."""
+    if settings.method not in ("time_series", "statistical"):
+        raise InputError(f"fit method {settings.method}: the backtest re-fits time_series or statistical models only")
+    out: dict[str, Any] = {"method": settings.method, "periods_per_year": settings.periods_per_year}
+    for name in ("half_life", "min_periods", "factor_groups"):
+        if getattr(settings, name) is not None:
+            out[name] = getattr(settings, name)
+    if settings.method == "statistical" and settings.n_factors is not None:
+        out["n_factors"] = settings.n_factors
+    out.update(settings.options)
+    return out
+
+
+@guarded
+def backtest_command(
+    ctx: typer.Context,
+    scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files, run side by side.", metavar="SCENARIO.yaml...", show_default=False)],
+    fit: Annotated[Path | None, typer.Option("--fit", help="Fit config (returns, factor returns, estimator); default: the first scenario's model.fit.", show_default=False)] = None,
+    alpha_history: Annotated[Path | None, typer.Option("--alpha-history", help="Dates × assets alpha file (annualised); default: each scenario's alpha at every date.", show_default=False)] = None,
+    window: Annotated[int, typer.Option("--window", help="Rows in the trailing estimation window.", min=2)] = 250,
+    every: Annotated[int, typer.Option("--every", help="Rebalance every n-th row.", min=1)] = 21,
+    start: Annotated[str | None, typer.Option("--start", help="First rebalance on or after this date (YYYY-MM-DD).", show_default=False)] = None,
+    max_dates: Annotated[int | None, typer.Option("--max-dates", help="At most this many rebalance dates.", min=1, show_default=False)] = None,
+    cost_bps: Annotated[float, typer.Option("--cost-bps", help="Linear cost per unit traded, basis points.", min=0)] = 10.0,
+    out: Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/backtest next to the first scenario).", show_default=False)] = None,
+    executor: ExecutorOpt = None,
+    workers: WorkersOpt = None,
+    scheduler: SchedulerOpt = None,
+    json_output: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Walk-forward backtest: at each date re-fit the model on the trailing window, rebalance
+    each scenario from its drifted book, hold to the next date; realised against forecast TE
+    (the bias statistic), turnover, costs, exposures and risk contributions through time."""
+    from trimtab.runs._backtest import backtest
+    from trimtab.runs._report import write_backtest
+    from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
+    from trimtab.scenario._schema import ReturnsFile
+
+    as_json, quiet = _flags(ctx, json_output, quiet)
+    loaded = [load_scenario(s) for s in scenarios]
+    names = [s.name for s in loaded]
+    if len(set(names)) != len(names):
+        dup = sorted({n for n in names if names.count(n) > 1})
+        raise InputError(f"backtest: scenario names must differ; {', '.join(dup)} appears twice (set name: in the files)")
+    if fit is not None:
+        settings = load_fit_config(fit)
+    elif loaded[0].spec.model.fit is not None:
+        settings = loaded[0].spec.model.fit
+    else:
+        raise InputError(f"{scenarios[0]}: model is a saved folder; give --fit CONFIG.yaml (the returns and estimator to re-fit with)")
+    returns = load_returns(settings.returns, what="returns")
+    factors = load_returns(settings.factor_returns, what="factor returns") if settings.factor_returns is not None else None
+    first = load_inputs(loaded[0])
+    inputs = [first] + [load_inputs(s, model=first.model) for s in loaded[1:]]
+    if alpha_history is not None:
+        alpha = load_returns(ReturnsFile(path=str(alpha_history)), what="alpha history")
+    else:
+        if first.alpha is None:
+            raise InputError(f"{scenarios[0]}: data.alpha: give an alpha file or --alpha-history")
+        alpha = pd.DataFrame([first.alpha], index=returns.index[:1])
+    schedule = list(returns.index[window - 1 :: every])
+    if start is not None:
+        try:
+            begin = pd.Timestamp(start)
+        except ValueError:
+            raise InputError(f"--start: expected a date YYYY-MM-DD, got {start!r}") from None
+        schedule = [d for d in schedule if d >= begin]
+    if max_dates is not None:
+        schedule = schedule[:max_dates]
+    if not schedule:
+        raise InputError(f"--start {start}: no rebalance date left (the returns end {returns.index[-1].date()})")
+    mappings = {i.scenario.name: i.scenario.rebalance_mapping() for i in inputs}
+    with _executor(executor, workers, scheduler) as runner, progress_bar(len(mappings), "backtest", quiet) as tick:
+        result = backtest(
+            returns, alpha, mappings, window=window, rebalance_dates=schedule, factor_returns=factors,
+            fit=fit_settings_mapping(settings), benchmark=first.benchmark, initial_holdings=first.holdings,
+            attributes=first.attributes, nav=first.nav, costs=cost_bps / 1e4, executor=runner, progress=tick,
+        )
+    target = out if out is not None else loaded[0].path.resolve().parent / "results" / "backtest"
+    write_backtest(result, target, inputs=[*scenarios, *([fit] if fit else [])], title="Walk-forward backtest")
+    if as_json:
+        _emit({"scenarios": names, "output": str(target), "bias": result.bias, "totals": result.totals, "failures": result.failures})
+    if not (as_json or quiet):
+        _say(result.summary(), True)
+        _say(f"Wrote the history, tables and report to {target}", True)
+    for name, error in result.failures.items():
+        sys.stderr.write(f"trimtab: warning: {name}: {error}\n")
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``sweep``, ``frontier`` and ``backtest`` to the main command-line app."""
+    app.command("sweep")(sweep_command)
+    app.command("frontier")(frontier_command)
+    app.command("backtest")(backtest_command)
+
+
+__all__ = ["backtest_command", "frontier_command", "parse_grid", "parse_values", "register", "sweep_command"]
