@@ -1,0 +1,294 @@
+"""The built rebalance problem: inputs checked once, re-solved with changes, verified after each solve."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import cvxpy as cp
+import numpy as np
+import pandas as pd
+
+from trimtab.construct import _elastic, _heuristics, _solve
+from trimtab.construct._assembly import Assembly
+from trimtab.construct._data import ProblemData, prepare
+from trimtab.construct._objective import Objective
+from trimtab.construct._spec import RebalanceSpec, validate_scenario
+from trimtab.construct._variables import Variables
+from trimtab.construct._verify import describe_failures, failures, soft_penalty, verify
+from trimtab.construct.constraints import REGISTRY, Constraint, Rows
+from trimtab.errors import InputError, SolverError
+from trimtab.model import FactorModel
+
+
+@dataclass(eq=False)
+class Outcome:
+    """A verified convex solve."""
+
+    weights: np.ndarray
+    status: str
+    solver: str
+    iterations: int
+    solve_time: float
+    build_time: float
+    attempts: list[_solve.Attempt]
+    verification: pd.DataFrame
+    duals: dict[int, tuple[np.ndarray, np.ndarray]]
+    rows: list[Rows]
+    solver_objective: float
+    notes: list[str] = field(default_factory=list)
+
+
+class RebalanceProblem:
+    """A rebalance problem with its inputs aligned and checked; :meth:`solve` builds and solves it.
+
+    Build with :func:`build_problem`. What-if runs call :meth:`update` (new alpha, holdings,
+    benchmark, risk aversion or limits) and :meth:`solve` again: the inputs are not re-read or
+    re-checked beyond what changed, and the cvxpy problem is rebuilt from the cached arrays
+    (measured faster than cvxpy Parameters at these sizes; see docs/construction.md).
+
+    Attributes
+    ----------
+    spec : RebalanceSpec
+        The validated scenario.
+    data : ProblemData
+        Inputs in model order.
+    constraints : list of Constraint
+        One object per convex constraint key, in scenario order.
+    """
+
+    def __init__(self, spec: RebalanceSpec, data: ProblemData, solvers: Sequence[str] | None = None) -> None:
+        self.spec = spec
+        self.data = data
+        self.solvers = _solve.solver_order(solvers)
+        self.constraints: list[Constraint] = [
+            REGISTRY[key](options, data, spec) for key, options in spec.constraints.items() if key in REGISTRY
+        ]
+        self.objective = Objective(spec, data)
+        for c in self.constraints:
+            _ = c.rows  # build (and check against the data) now, before any solve
+        _heuristics.check(self)
+
+    @property
+    def model(self) -> FactorModel:
+        return self.data.model
+
+    # ------------------------------------------------------------------ what-if changes
+    def update(
+        self,
+        *,
+        alpha: pd.Series | None = None,
+        holdings: pd.Series | None = None,
+        benchmark: pd.Series | None = None,
+        risk_aversion: float | None = None,
+        limits: Mapping[str, float] | None = None,
+    ) -> RebalanceProblem:
+        """A new problem sharing this one's model and attributes, with the given inputs replaced.
+
+        Parameters
+        ----------
+        alpha, holdings, benchmark : pandas.Series, optional
+            Replacements (same rules as :func:`rebalance`).
+        risk_aversion : float, optional
+            New λ (utility objective only).
+        limits : Mapping[str, float], optional
+            Dotted paths under ``constraints`` → new value, e.g. ``{"tracking_error.max": 0.02}``.
+
+        Returns
+        -------
+        RebalanceProblem
+        """
+        spec = self.spec
+        if limits:
+            spec = spec.with_limits(limits)
+        if risk_aversion is not None:
+            spec = spec.with_risk_aversion(risk_aversion)
+        data = self.data
+        if alpha is not None or holdings is not None or benchmark is not None:
+            model = data.model
+            fresh = prepare(
+                model,
+                holdings=holdings if holdings is not None else pd.Series(data.holdings, index=model.assets),
+                benchmark=benchmark if benchmark is not None else (
+                    None if data.benchmark is None else pd.Series(data.benchmark, index=model.assets)),
+                alpha=alpha if alpha is not None else pd.Series(data.alpha, index=model.assets),
+                attributes=None, nav=data.nav, unknown_assets="error", long_book=_long_book(spec),
+            )
+            data = fresh.with_changes(attributes=data.attributes,
+                                      sold_outside=data.sold_outside if holdings is None else fresh.sold_outside)
+        return RebalanceProblem(spec, data, self.solvers)
+
+    def solve(self, **changes: Any) -> Any:
+        """Solve (after :meth:`update` with ``changes`` when given) and return a RebalanceResult.
+
+        Raises
+        ------
+        InfeasibleError
+            With the relaxation table of the elastic re-solve.
+        SolverError
+            When every solver failed or returned weights that breach a constraint.
+        """
+        if changes:
+            return self.update(**changes).solve()
+        from trimtab.construct._result import make_result
+
+        if self.objective.kind == "risk_budget":
+            from trimtab.construct._risk_budget import solve_risk_budget
+
+            outcome = solve_risk_budget(self)
+        else:
+            outcome = self.solve_convex()
+            outcome = _heuristics.apply(self, outcome)
+        return make_result(self, outcome)
+
+    # ------------------------------------------------------------------ the convex solve
+    def all_rows(self, extra: Sequence[Rows] = ()) -> list[Rows]:
+        return [r for c in self.constraints for r in c.rows] + list(extra)
+
+    def build(self, extra: Sequence[Rows] = (), *, elastic: bool = False) -> tuple[cp.Problem, Variables, Assembly]:
+        """The cvxpy problem in factor form (maximise U − penalties; elastic: minimise Σ slack/scale)."""
+        variables = Variables(self.data)
+        assembly = Assembly(variables, elastic=elastic)
+        for c in self.constraints:
+            c.add(assembly)
+        for r in extra:
+            assembly.add(r)
+        constraints = assembly.finish()
+        if elastic:
+            return cp.Problem(cp.Minimize(assembly.penalty), constraints), variables, assembly
+        goal = self.objective.expression(variables) - assembly.penalty
+        return cp.Problem(cp.Maximize(goal), constraints), variables, assembly
+
+    def solve_convex(self, extra: Sequence[Rows] = ()) -> Outcome:
+        """Build, solve in solver order, verify; diagnose infeasibility; fail loudly otherwise."""
+        start = time.perf_counter()
+        problem, variables, assembly = self.build(extra)
+        build_time = time.perf_counter() - start
+        rows = self.all_rows(extra)
+        attempts: list[_solve.Attempt] = []
+        rejected: list[str] = []
+        for solver in self.solvers:
+            attempt = _solve.run(problem, solver)
+            attempts.append(attempt)
+            if attempt.status in _solve.UNBOUNDED:
+                raise SolverError(
+                    f"{self.spec.source}: the objective {self.objective.kind} is unbounded under these "
+                    "constraints (add a risk cap, weight bounds or a budget)"
+                )
+            if attempt.status in _solve.INFEASIBLE:
+                _elastic.diagnose(self, extra, attempts)  # raises InfeasibleError when confirmed
+                rejected.append(f"{solver}: {attempt.status} but the elastic re-solve found no conflict")
+                continue
+            if variables.w.value is None or attempt.status not in (*_solve.OPTIMAL, cp.OPTIMAL_INACCURATE):
+                rejected.append(f"{solver}: {attempt.status}{' ' + attempt.message if attempt.message else ''}")
+                continue
+            weights = np.asarray(variables.w.value, dtype=np.float64).copy()
+            solver_objective = float(problem.value)
+            numpy_objective = self.objective.breakdown(weights, soft_penalty(rows, weights))["total"]
+            table = verify(rows, weights, solver_objective=solver_objective, numpy_objective=numpy_objective)
+            if attempt.status != cp.OPTIMAL:
+                rejected.append(f"{solver}: status {attempt.status}")
+                continue
+            if len(failures(table)):
+                rejected.append(f"{solver}: {describe_failures(table)}")
+                continue
+            return Outcome(weights, attempt.status, solver, attempt.iterations, attempt.seconds, build_time,
+                           attempts, table, assembly.duals(), rows, solver_objective)
+        raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(rejected))
+
+
+def _long_book(spec: RebalanceSpec) -> bool:
+    return "long_only" in spec.constraints and "leverage" not in spec.constraints
+
+
+def build_problem(
+    model: FactorModel,
+    scenario: Mapping[str, Any] | RebalanceSpec,
+    *,
+    holdings: pd.Series | None = None,
+    benchmark: pd.Series | None = None,
+    alpha: pd.Series | None = None,
+    attributes: pd.DataFrame | None = None,
+    nav: float | None = None,
+    solvers: Sequence[str] | None = None,
+    unknown_assets: str = "error",
+    source: str = "scenario",
+) -> RebalanceProblem:
+    """Validate the scenario and the inputs and return the problem, ready to :meth:`~RebalanceProblem.solve`.
+
+    Parameters are those of :func:`rebalance`; ``source`` prefixes scenario messages.
+
+    Returns
+    -------
+    RebalanceProblem
+    """
+    spec = scenario if isinstance(scenario, RebalanceSpec) else validate_scenario(scenario, source=source)
+    data = prepare(model, holdings=holdings, benchmark=benchmark, alpha=alpha, attributes=attributes, nav=nav,
+                   unknown_assets=unknown_assets, long_book=_long_book(spec))
+    if spec.objective["kind"] in ("utility", "alpha") and alpha is None:
+        raise InputError(f"rebalance: objective {spec.objective['kind']} needs alpha (pass alpha=...)")
+    return RebalanceProblem(spec, data, solvers)
+
+
+def rebalance(
+    model: FactorModel,
+    scenario: Mapping[str, Any],
+    *,
+    holdings: pd.Series | None = None,
+    benchmark: pd.Series | None = None,
+    alpha: pd.Series | None = None,
+    attributes: pd.DataFrame | None = None,
+    nav: float | None = None,
+    solvers: Sequence[str] | None = None,
+    unknown_assets: str = "error",
+) -> Any:
+    """Target weights and trades inside the risk budget and mandate, verified from the weights.
+
+    Parameters
+    ----------
+    model : FactorModel
+        Σ = B·F·Bᵀ + diag(d), per period; risk figures are annualised with ``periods_per_year``.
+    scenario : Mapping
+        ``{"objective": {...}, "constraints": {...}}`` (docs/construction.md lists every key).
+    holdings : pandas.Series, optional
+        Current weights of NAV by asset (default: all cash).
+    benchmark : pandas.Series, optional
+        Benchmark weights (sum to 1). Without one, active figures are total figures.
+    alpha : pandas.Series, optional
+        Annualised expected active returns by asset (required by the utility and alpha objectives).
+    attributes : pandas.DataFrame, optional
+        Per-asset columns: group labels, ``price``, ``adv`` (shares a day), ``lot``, cost columns.
+    nav : float, optional
+        Fund value (currency): needed for liquidity and round lots, and to report shares and notionals.
+    solvers : sequence of str, optional
+        Solver order (default Clarabel, then SCS).
+    unknown_assets : {"error", "drop", "zero"}, default "error"
+        What to do with ids the model does not know (see :mod:`trimtab.construct._data`).
+
+    Returns
+    -------
+    RebalanceResult
+
+    Raises
+    ------
+    ScenarioError, InputError, ModelError
+        Bad scenario or inputs, before any solve.
+    InfeasibleError
+        The limits conflict; ``.relaxation`` says which and how far each must move.
+    SolverError
+        No solver returned weights that pass verification.
+
+    Notes
+    -----
+    Equivalent to ``build_problem(...).solve()``.
+
+    Examples
+    --------
+    >>> result = rebalance(model, {"objective": {"minimize": "active_risk"},
+    ...                            "constraints": {"fully_invested": True, "long_only": True}},
+    ...                    benchmark=benchmark)  # doctest: +SKIP
+    """
+    return build_problem(model, scenario, holdings=holdings, benchmark=benchmark, alpha=alpha, attributes=attributes,
+                         nav=nav, solvers=solvers, unknown_assets=unknown_assets).solve()

@@ -1,0 +1,70 @@
+"""The cvxpy variables of the factor-form problem, created only when a term needs them.
+
+w (N) are the target weights and y = Bᵀw (K) the portfolio's factor exposures, defined once and
+bounded directly. Trades are split as w = w0 + buy − sell with buy, sell ≥ 0 (created when a trade
+term is used); the short part s ≥ max(−w, 0) is created for leverage limits.
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+
+import cvxpy as cp
+import numpy as np
+
+from trimtab.construct._data import ProblemData
+
+
+class Variables:
+    """Variables and the definitional equalities tying them together (never relaxed)."""
+
+    def __init__(self, data: ProblemData) -> None:
+        self.data = data
+        self.w = cp.Variable(data.n_assets, name="w")
+        self.y = cp.Variable(data.model.n_factors, name="y")
+        self.definitions: list[cp.Constraint] = [self.y == data.exposures.T @ self.w]
+
+    @cached_property
+    def _trades(self) -> tuple[cp.Variable, cp.Variable]:
+        n = self.data.n_assets
+        buy = cp.Variable(n, name="buy", nonneg=True)
+        sell = cp.Variable(n, name="sell", nonneg=True)
+        self.definitions.append(self.w == self.data.holdings + buy - sell)
+        return buy, sell
+
+    @property
+    def buy(self) -> cp.Variable:
+        return self._trades[0]
+
+    @property
+    def sell(self) -> cp.Variable:
+        return self._trades[1]
+
+    @property
+    def traded(self) -> cp.Expression:
+        """buy + sell, an upper bound on |w − w0| that is tight at the optimum when trading costs."""
+        return self._trades[0] + self._trades[1]
+
+    @cached_property
+    def short(self) -> cp.Variable:
+        """s ≥ max(−w, 0): Σw + 2Σs ≥ Σ|w| with equality for the tightest s."""
+        s = cp.Variable(self.data.n_assets, name="short", nonneg=True)
+        self.definitions.append(s >= -self.w)
+        return s
+
+    def factor_part(self, active: bool) -> cp.Expression:
+        """Lᵀ(y − Bᵀb) (active) or Lᵀy: its squared norm is the factor variance per period."""
+        L = self.data.factor_sqrt
+        return L.T @ (self.y - self.data.bench_exposure) if active else L.T @ self.y
+
+    def specific_part(self, active: bool) -> cp.Expression:
+        """√d∘(w − b) (active) or √d∘w: its squared norm is the specific variance per period."""
+        base = self.w - self.data.bench if active else self.w
+        return cp.multiply(self.data.specific_sqrt, base)
+
+
+def variance_numpy(data: ProblemData, weights: np.ndarray, active: bool) -> tuple[float, float]:
+    """(factor, specific) variance per period of w − b (active) or w, with plain numpy."""
+    a = weights - data.bench if active else weights
+    x = data.factor_sqrt.T @ (data.exposures.T @ a)
+    return float(x @ x), float(data.specific_variance @ (a * a))
