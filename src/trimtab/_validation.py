@@ -26,12 +26,18 @@ def check_unique(index: pd.Index, what: str, owner: str) -> None:
     """Raise if ``index`` holds duplicates, naming up to five of them."""
     if not index.is_unique:
         dups = index[index.duplicated()].unique()
+        if isinstance(dups, pd.DatetimeIndex):
+            dups = [str(t.date()) if t == t.normalize() else str(t) for t in dups]
         raise InputError(f"{owner}: duplicate {what}: {list_labels(dups)}")
 
 
 def check_finite_frame(frame: pd.DataFrame, owner: str, *, allow_nan: bool = False) -> None:
     """Raise if ``frame`` has non-numeric columns, infinities or (unless allowed) NaN."""
-    bad_cols = [c for c, dtype in zip(frame.columns, frame.dtypes) if not pd.api.types.is_numeric_dtype(dtype)]
+    dtypes = frame.dtypes
+    if all(pd.api.types.is_numeric_dtype(t) for t in set(dtypes)):
+        bad_cols = []
+    else:
+        bad_cols = [c for c, dtype in zip(frame.columns, dtypes) if not pd.api.types.is_numeric_dtype(dtype)]
     if bad_cols:
         raise InputError(f"{owner}: non-numeric columns: {list_labels(bad_cols)}; expected numbers")
     values = frame.to_numpy(dtype=float)

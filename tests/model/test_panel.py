@@ -72,7 +72,7 @@ def test_check_dates_names_the_first_pair_out_of_order() -> None:
     check_dates(pd.DatetimeIndex(["2024-01-01", "2024-01-02"]), "x")
     with pytest.raises(InputError, match=r"x: dates must be increasing; 2024-01-02 comes after 2024-01-03 \(sort"):
         check_dates(pd.DatetimeIndex(["2024-01-01", "2024-01-03", "2024-01-02"]), "x")
-    with pytest.raises(InputError, match=r"x: duplicate dates: Timestamp\('2024-01-01"):
+    with pytest.raises(InputError, match=r"x: duplicate dates: 2024-01-01"):
         check_dates(pd.DatetimeIndex(["2024-01-01", "2024-01-01"]), "x")
     with pytest.raises(InputError, match=r"x: dates of mixed types cannot be ordered; expected increasing dates"):
         check_dates(pd.Index([1, "a", 2], dtype=object), "x")
