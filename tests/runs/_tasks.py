@@ -52,7 +52,8 @@ BUILDS: list[str] = []  # one entry per ClosedFormProblem built in this process
 
 
 class ClosedFormProblem:
-    """A built problem with closed-form solutions and the optimizer's re-solve entry point.
+    """A built problem with closed-form solutions and the optimizer's re-solve entry point
+    (``solve(**changes)``, as :class:`trimtab.construct.RebalanceProblem`).
 
     Budget constraint only (1ᵀa = 0, a = w − b), α̃ = α − γ1 with γ = 1ᵀΣ⁻¹α / 1ᵀΣ⁻¹1:
     utility  max αᵀa − λP·aᵀΣa            → a = Σ⁻¹α̃ / (2λP);
@@ -73,13 +74,13 @@ class ClosedFormProblem:
         gamma = float(ones @ inv_alpha) / float(ones @ inv_ones)
         self.direction = inv_alpha - gamma * inv_ones  # Σ⁻¹α̃
 
-    def resolve(self, *, risk_aversion=None, limits=None) -> ClosedFormResult:
+    def solve(self, *, risk_aversion=None, limits=None) -> ClosedFormResult:
         from trimtab.errors import InfeasibleError
 
         limits = dict(limits or {})
         unknown = set(limits) - {"tracking_error.max"}
         if unknown:
-            raise InputError(f"resolve: limits not re-solvable: {sorted(unknown)}")
+            raise InputError(f"solve: limits not re-solvable: {sorted(unknown)}")
         cap = limits.get("tracking_error.max", self.cap)
         periods = self.model.periods_per_year
         if self.objective.get("maximize") == "alpha":

@@ -75,3 +75,41 @@ def test_bad_input(book, kwargs: dict, message: str) -> None:
     settings = {"holdings": bench, "benchmark": bench, "alpha": alpha, "build": ClosedFormProblem, **kwargs}
     with pytest.raises(InputError, match=message):
         frontier(model, {"objective": {"maximize": "alpha"}}, **settings)
+
+
+def test_real_optimizer_te_frontier_matches_the_closed_form(book) -> None:
+    """The optimizer's TE frontier with only the budget: αᵀa = IR·σ̄ with IR = √(α̃ᵀΣ⁻¹α̃/P), Σ⁻¹ by numpy
+    on the dense Σ (closed form of a linear objective on an ellipsoid intersected with a hyperplane)."""
+    model, bench, alpha = book
+    scenario = {"objective": {"maximize": "alpha"}, "constraints": {"fully_invested": True}}
+    caps = [0.01, 0.02, 0.04]
+    result = frontier(model, scenario, holdings=bench, benchmark=bench, alpha=alpha, tracking_errors=caps)
+    table = result.tracking_error
+    assert (table["status"] == "solved").all(), table
+    inv = np.linalg.inv(model.covariance().to_numpy())
+    a, ones = alpha.to_numpy(), np.ones(model.n_assets)
+    tilde = a - (ones @ inv @ a) / (ones @ inv @ ones)
+    ratio = np.sqrt(tilde @ inv @ tilde / model.periods_per_year)
+    np.testing.assert_allclose(table["tracking_error"], caps, rtol=1e-6)
+    np.testing.assert_allclose(table["expected_alpha"], ratio * np.array(caps), rtol=1e-6)
+
+
+def test_real_optimizer_long_only_frontier_is_concave_and_below_the_line(book) -> None:
+    """With long-only and position limits the frontier bends: the optimal value of a convex programme
+    is concave in the right-hand side of its constraints (Boyd and Vandenberghe, Convex Optimization,
+    §5.6.1), and it lies below the budget-only line (a smaller feasible set)."""
+    model, bench, alpha = book
+    scenario = {"objective": {"maximize": "alpha"},
+                "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.08}}}
+    caps = [0.005, 0.01, 0.015, 0.02, 0.025]
+    table = frontier(model, scenario, holdings=bench, benchmark=bench, alpha=alpha, tracking_errors=caps).tracking_error
+    assert (table["status"] == "solved").all(), table
+    values = table["expected_alpha"].to_numpy()
+    assert (np.diff(values) >= -1e-9).all()
+    assert (np.diff(values, 2) <= 1e-7).all()
+    assert (table["tracking_error"].to_numpy() <= np.array(caps) * (1 + 1e-6)).all()
+    inv = np.linalg.inv(model.covariance().to_numpy())
+    a, ones = alpha.to_numpy(), np.ones(model.n_assets)
+    tilde = a - (ones @ inv @ a) / (ones @ inv @ ones)
+    line = np.sqrt(tilde @ inv @ tilde / model.periods_per_year) * np.array(caps)
+    assert (values <= line * (1 + 1e-6)).all()

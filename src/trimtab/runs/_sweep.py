@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import list_labels
-from trimtab.errors import InfeasibleError, InputError, SolverError, TrimtabError
+from trimtab.errors import InfeasibleError, InputError, ScenarioError, SolverError, TrimtabError
 from trimtab.model import FactorModel
 from trimtab.runs._executors import Executor, InProcessExecutor, Outcome
 
@@ -164,8 +164,8 @@ class _Rebuild(Exception):
 
 
 def _resolve(problem: Any, arguments: Mapping[str, Any]) -> Any:
-    """Re-solve a built problem with new values (the optimizer's re-solve entry point)."""
-    return problem.resolve(**arguments)
+    """Solve a built problem, with new values when given (``RebalanceProblem.solve(**changes)``)."""
+    return problem.solve(**arguments)
 
 
 def figures(model: FactorModel, result: Any, inputs: Mapping[str, Any]) -> dict[str, Any]:
@@ -216,7 +216,9 @@ def run_chunk(task: SweepTask) -> list[dict[str, Any]]:
                 try:
                     result = _resolve(problem, _re_solve_arguments(task.scenario, point))
                     row["built"] = False
-                except _Rebuild:
+                except (_Rebuild, ScenarioError):
+                    # not a change the built problem can take (a structural change, or a key path
+                    # its limits do not reach): build this point afresh
                     result = None
             if result is None:
                 problem = build(task.model, apply_point(task.scenario, point), **task.inputs)
