@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import json
+import re
 
+
+import pandas as pd
 import pytest
 import typer
 from typer.testing import CliRunner
@@ -89,3 +92,76 @@ def test_bad_input_is_one_line_and_exit_2(app: typer.Typer, tmp_path, monkeypatc
     else:
         assert "missing.yaml" in lines[0]
     assert "Traceback" not in result.output
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    from tests.demo_helpers import make_demo_folder
+
+    return make_demo_folder(tmp_path_factory.mktemp("demo"))
+
+
+def test_sweep_on_the_demo(app: typer.Typer, demo) -> None:
+    out = demo / "sweep-out"
+    result = invoke(app, "sweep", str(demo / "base.yaml"), "--grid", "tracking_error.max=0.01,0.03", "--out", str(out), "--json")
+    assert result.exit_code == 0, result.stderr
+    document = json.loads(result.stdout)
+    rows = {r["label"]: r for r in document["table"]}
+    assert rows["tracking_error.max=0.01"]["status"] == "infeasible"
+    assert rows["tracking_error.max=0.03"]["status"] == "solved"
+    assert rows["tracking_error.max=0.03"]["tracking_error"] <= 0.03 + 1e-7
+    # the infeasible point is one warning line naming its parameters; the solved one is kept
+    warnings = [line for line in result.stderr.splitlines() if line.startswith("trimtab: warning: tracking_error.max=0.01: infeasible")]
+    assert len(warnings) == 1
+    assert sorted(p.name for p in out.iterdir()) == [".trimtab-output", "report.html", "result.json", "sweep.csv"]
+
+
+def test_sweep_with_no_feasible_point_exits_1(app: typer.Typer, demo) -> None:
+    result = invoke(app, "sweep", str(demo / "base.yaml"), "--grid", "tracking_error.max=0.005,0.01", "--out", str(demo / "none"), "--quiet")
+    assert result.exit_code == 1
+    assert result.stdout == ""
+    assert result.stderr.splitlines()[-1].startswith("trimtab: error: no point solved; first: tracking_error.max=0.005: infeasible")
+
+
+def test_frontier_on_the_demo(app: typer.Typer, demo) -> None:
+    out = demo / "frontier-out"
+    result = invoke(app, "frontier", str(demo / "base.yaml"), "--te", "0.02,0.03", "--turnover", "0.25", "--out", str(out), "--quiet")
+    assert result.exit_code == 0, result.stderr
+    assert result.stdout == ""
+    assert {p.name for p in out.iterdir()} >= {"frontier_te.csv", "frontier_turnover.csv", "report.html"}
+
+
+def test_backtest_on_the_demo(app: typer.Typer, demo) -> None:
+    out = demo / "backtest-out"
+    result = invoke(app, "backtest", str(demo / "base.yaml"), str(demo / "low_turnover.yaml"), "--fit", str(demo / "fit.yaml"),
+                    "--every", "60", "--max-dates", "3", "--out", str(out), "--json")
+    assert result.exit_code == 0, result.stderr
+    document = json.loads(result.stdout)
+    assert document["scenarios"] == ["base", "low_turnover"]
+    totals = {r["index"]: r for r in document["totals"]}
+    assert totals["low_turnover"]["mean_turnover"] <= 0.05 + 1e-7  # the scenario's one-way cap, recomputed from weights
+    assert totals["base"]["solved"] == 3
+    history = pd.read_csv(out / "history.csv", index_col=[0, 1])
+    assert (history["forecast_te"] <= 0.03 + 1e-7).all()  # base.yaml's TE budget, recomputed on each date's re-fitted model
+
+
+@pytest.mark.parametrize(
+    ("extra", "message"),
+    [
+        ([], r"base.yaml: model is a saved folder; give --fit CONFIG.yaml"),
+        (["--fit", "FIT", "--start", "2999-01-01"], r"--start 2999-01-01: no rebalance date left"),
+        (["--fit", "FIT", "--start", "soon"], r"--start: expected a date YYYY-MM-DD, got 'soon'"),
+    ],
+)
+def test_backtest_bad_input(app: typer.Typer, demo, extra: list[str], message: str) -> None:
+    args = [str(demo / "fit.yaml") if a == "FIT" else a for a in extra]
+    result = invoke(app, "backtest", str(demo / "base.yaml"), *args)
+    assert result.exit_code == 2
+    assert len(result.stderr.strip().splitlines()) == 1
+    assert re.search(message, result.stderr)
+
+
+def test_backtest_names_must_differ(app: typer.Typer, demo) -> None:
+    result = invoke(app, "backtest", str(demo / "base.yaml"), str(demo / "base.yaml"), "--fit", str(demo / "fit.yaml"))
+    assert result.exit_code == 2
+    assert result.stderr == "trimtab: error: backtest: scenario names must differ; base appears twice (set name: in the files)\n"

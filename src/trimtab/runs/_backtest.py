@@ -8,6 +8,7 @@ dated after its date, so a decision at date t can only use data up to and includ
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -17,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import check_finite_frame, check_unique, list_labels
-from trimtab.errors import InfeasibleError, InputError, SolverError
+from trimtab.errors import DataWarning, InfeasibleError, InputError, SolverError
 from trimtab.model import FactorModel
 from trimtab.runs._executors import Executor, InProcessExecutor, Outcome
 
@@ -269,7 +270,13 @@ def run_path(task: PathTask) -> PathResult:
         window_factors = None
         if task.factor_returns is not None:
             window_factors = AsOf(task.factor_returns, date).tail(task.window).reindex(window_returns.index)
-        model = fit_window(task.fit, window_returns, window_factors)
+        with warnings.catch_warnings():
+            # assets the estimator drops (too few returns in the window) are counted in n_dropped,
+            # not warned about once per date
+            warnings.simplefilter("ignore", DataWarning)
+            model = fit_window(task.fit, window_returns, window_factors)
+        report = getattr(model, "fit_report", None)
+        n_dropped = int(len(report.dropped)) if report is not None else 0
         assets = model.assets
         alpha_row = AsOf(task.alpha_history, date).last()
         alpha = (alpha_row if alpha_row is not None else pd.Series(0.0, index=assets)).reindex(assets).fillna(0.0)
@@ -339,6 +346,7 @@ def run_path(task: PathTask) -> PathResult:
                 "expected_alpha": float(alpha.to_numpy() @ active),
                 "n_holdings": int((target.abs() > 1e-8).sum()),
                 "n_periods": n_periods,
+                "n_dropped": n_dropped,
             }
         )
         exposures.append(pd.Series(x, index=model.factors, name=date))

@@ -26,7 +26,7 @@ import yaml
 from trimtab.errors import InputError, TrimtabError
 from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
-EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER = 0, 1, 2, 3
+EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
 F = TypeVar("F", bound=Callable[..., Any])
 
 
@@ -64,6 +64,8 @@ def guarded(fn: F) -> F:
             _fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
         except KeyboardInterrupt:
             _fail("interrupted; nothing was written", 130)
+        except Exception as err:  # noqa: BLE001 - a bug: one line, as the main app does
+            _fail(f"internal error ({type(err).__name__}: {err}); this is a bug in trimtab", EXIT_INTERNAL)
         return None
 
     return wrapper  # type: ignore[return-value]

@@ -164,7 +164,7 @@ def _cell(value: Any, column: str, percent_columns: Sequence[str]) -> str:
 def html_table(frame: pd.DataFrame, *, percent_columns: Sequence[str] = (), max_rows: int = 200) -> str:
     """A plain HTML table of ``frame`` (index as the first column)."""
     index_name = " / ".join(str(n) for n in frame.index.names if n is not None)
-    head = "".join(f"<th>{html.escape(str(c))}</th>" for c in [index_name, *frame.columns])
+    head = "".join(f"<th>{html.escape(str(c).replace('_', ' '))}</th>" for c in [index_name, *frame.columns])
     rows = []
     for label, row in frame.head(max_rows).iterrows():
         label_text = " / ".join(str(x) for x in label) if isinstance(label, tuple) else str(label)

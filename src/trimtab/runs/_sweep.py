@@ -25,6 +25,8 @@ from trimtab.runs._executors import Executor, InProcessExecutor, Outcome
 #: Objective keys a bare name refers to (anything else is a constraint path).
 OBJECTIVE_KEYS = ("risk_aversion", "cost_aversion", "maximize", "minimize")
 STATUS_FAILED = "failed"
+#: The figures every row has (NaN when the point did not solve).
+FIGURES = ("built", "tracking_error", "total_risk", "turnover", "expected_alpha", "n_holdings")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -382,6 +384,9 @@ def sweep(
     rows.sort(key=lambda r: order.get(r["label"], len(order)))
     results = {r["label"]: r.pop("result") for r in rows if "result" in r}
     table = pd.DataFrame(rows).set_index("label")
+    for column in FIGURES:
+        if column not in table.columns:
+            table[column] = np.nan
     if "error" not in table.columns:
         table["error"] = None
     parameters = list(dict.fromkeys(short_key(key_path(k)) for p in points for k in p))
