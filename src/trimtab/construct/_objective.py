@@ -75,8 +75,6 @@ class Objective:
         self.risk_aversion = float(spec.objective.get("risk_aversion", 0.0))
         self.cost_aversion = float(spec.objective.get("cost_aversion", 0.0))
         self.rates = cost_rates(spec, data)
-        if self.kind in ("utility", "alpha") and spec.objective.get("costs") is None:
-            self.rates = CostRates(None, None)
 
     @property
     def risk_weight(self) -> float:
@@ -85,7 +83,7 @@ class Objective:
 
     @property
     def risk_active(self) -> bool:
-        return self.kind != "total_risk"
+        return self.kind not in ("total_risk", "risk_budget")
 
     def expression(self, v: Variables) -> cp.Expression:
         """U(w) without penalties, in cvxpy (constants included, so the value is comparable)."""
@@ -113,7 +111,7 @@ class Objective:
         if self.rates.impact is not None:
             idx = np.flatnonzero(self.rates.impact)
             if len(idx):
-                terms.append(self.rates.impact[idx] @ cp.power(v.buy[idx] + v.sell[idx], 1.5))
+                terms.append(self.rates.impact[idx] @ v.impact_epigraph(idx))
         return sum(terms[1:], terms[0]) if terms else cp.Constant(0.0)
 
     def breakdown(self, weights: np.ndarray, penalties: float = 0.0) -> dict[str, float]:

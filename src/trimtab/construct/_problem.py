@@ -155,11 +155,11 @@ class RebalanceProblem:
             c.add(assembly)
         for r in extra:
             assembly.add(r)
-        constraints = assembly.finish()
         if elastic:
-            return cp.Problem(cp.Minimize(assembly.penalty), constraints), variables, assembly
+            return cp.Problem(cp.Minimize(assembly.penalty), assembly.finish()), variables, assembly
+        # the objective may create variables (trades, impact) whose definitions finish() must collect
         goal = self.objective.expression(variables) - assembly.penalty
-        return cp.Problem(cp.Maximize(goal), constraints), variables, assembly
+        return cp.Problem(cp.Maximize(goal), assembly.finish()), variables, assembly
 
     def solve_convex(self, extra: Sequence[Rows] = ()) -> Outcome:
         """Build, solve in solver order, verify; diagnose infeasibility; fail loudly otherwise."""

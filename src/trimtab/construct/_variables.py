@@ -52,6 +52,13 @@ class Variables:
         self.definitions.append(s >= -self.w)
         return s
 
+    def impact_epigraph(self, idx: np.ndarray) -> cp.Variable:
+        """z with z ≥ (buy + sell)^{3/2} on ``idx``: the power cone z^{2/3}·1^{1/3} ≥ |buy + sell|."""
+        z = cp.Variable(len(idx), name="impact", nonneg=True)
+        traded = self.buy[idx] + self.sell[idx]
+        self.definitions.append(cp.PowCone3D(z, np.ones(len(idx)), traded, 2.0 / 3.0))
+        return z
+
     def factor_part(self, active: bool) -> cp.Expression:
         """Lᵀ(y − Bᵀb) (active) or Lᵀy: its squared norm is the factor variance per period."""
         L = self.data.factor_sqrt
