@@ -15,6 +15,7 @@ The instances are random and invented (seeded).
 from __future__ import annotations
 
 import argparse
+import os
 import time
 from typing import Any
 
@@ -72,6 +73,7 @@ def sweep_benchmark(n_points: int, n_assets: int, n_factors: int) -> None:
     model, scenario, book = instance(n_assets, n_factors)
     caps = [float(x) for x in np.linspace(0.01, 0.05, n_points)]
     grid = {"tracking_error.max": caps}
+    print(f"Load average before the run: {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores")
     print(f"Sweep of {n_points} TE caps at N = {n_assets:,}, K = {n_factors} (one process)")
     start = time.perf_counter()
     reused = sweep(model, scenario, grid, **book)
