@@ -128,7 +128,7 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
         if checked is not None:
             constraints[key] = checked
     _cross_checks(cpath, objective, constraints)
-    normalised = {"objective": objective, "constraints": constraints}
+    normalised = {"objective": {k: v for k, v in objective.items() if k != "kind"}, "constraints": constraints}
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
 
 
@@ -144,12 +144,13 @@ def _objective(path: Path, value: Any) -> dict[str, Any]:
         )
     out: dict[str, Any] = {}
     if "maximize" in body:
-        out["kind"] = f.text(path / "maximize", body["maximize"], MAXIMIZE)
+        out["maximize"] = f.text(path / "maximize", body["maximize"], MAXIMIZE)
     elif "minimize" in body:
-        out["kind"] = f.text(path / "minimize", body["minimize"], MINIMIZE)
+        out["minimize"] = f.text(path / "minimize", body["minimize"], MINIMIZE)
     else:
-        out["kind"] = "risk_budget"
         out["risk_budget"] = _risk_budget(path / "risk_budget", body["risk_budget"])
+    kind = out.get("maximize", out.get("minimize", "risk_budget"))
+    out["kind"] = kind
     if out["kind"] == "utility":
         if "risk_aversion" not in body:
             raise (path / "risk_aversion").fail("required with maximize: utility (λ on annualised active variance)")
@@ -182,9 +183,9 @@ def _risk_budget(path: Path, value: Any) -> dict[str, Any]:
         value = {}
     body = f.mapping(path, value, ["by", "budgets"])
     out: dict[str, Any] = {"by": None, "budgets": None}
-    if "by" in body:
+    if body.get("by") is not None:
         out["by"] = f.text(path / "by", body["by"])
-    if "budgets" in body:
+    if body.get("budgets") is not None:
         budgets = body["budgets"]
         if not isinstance(budgets, Mapping) or not budgets:
             raise (path / "budgets").fail(f"expected a mapping label → share of risk, got {f.describe(budgets)}")
@@ -203,11 +204,11 @@ def _switch(path: Path, value: Any) -> dict[str, Any] | None:
     if value is True:
         return {"soft": None}
     body = f.mapping(path, value, ["soft"])
-    return {"soft": f.soft(path / "soft", body["soft"]) if "soft" in body else None}
+    return {"soft": _soft_of(path, body)}
 
 
 def _soft_of(path: Path, body: Mapping[str, Any]) -> dict[str, float] | None:
-    return f.soft(path / "soft", body["soft"]) if "soft" in body else None
+    return f.soft(path / "soft", body["soft"]) if body.get("soft") is not None else None
 
 
 def _range(path: Path, value: Any, *, minimum: float | None = None, need_one: bool = True) -> dict[str, Any]:
@@ -244,11 +245,11 @@ def _cash(path: Path, value: Any) -> dict[str, Any]:
 
 def _leverage(path: Path, value: Any) -> dict[str, Any]:
     body = f.mapping(path, value, ["gross", "net", "short", "soft"])
-    if not any(k in body for k in ("gross", "net", "short")):
+    if all(body.get(k) is None for k in ("gross", "net", "short")):
         raise path.fail("give gross, net, short or several")
     return {
         "gross": f.number(path / "gross", body.get("gross"), minimum=0.0, allow_none=True),
-        "net": f.interval(path / "net", body["net"]) if "net" in body else None,
+        "net": f.interval(path / "net", body["net"]) if body.get("net") is not None else None,
         "short": f.number(path / "short", body.get("short"), minimum=0.0, allow_none=True),
         "soft": _soft_of(path, body),
     }

@@ -176,7 +176,7 @@ def check_rows(rows: Rows, weights: np.ndarray) -> dict[str, Any]:
     else:
         slack = rows.slack(value)
         i = int(np.argmin(np.where(np.isfinite(slack), slack, np.inf)))
-    label = rows.labels[i] if rows.per_asset or rows.size > 1 else None
+    label = rows.labels[i] if rows.per_asset or rows.size > 1 or rows.labels[0] != rows.name else None
     ok = bool(np.all(breach <= tol)) and bool(np.isfinite(value).all())
     return {
         "name": rows.name if label is None else f"{rows.name}[{label}]",
@@ -218,7 +218,7 @@ def describe_rows(rows: Rows, value: np.ndarray, mu_up: np.ndarray, mu_lo: np.nd
         return [row(j if binding[j] else i, rows.name, {
             "asset": rows.labels[j if binding[j] else i], "n_binding": int(binding.sum()),
         })]
-    named = rows.size > 1 or len(rows.labels) == 1 and rows.labels[0] != rows.name
+    named = rows.size > 1 or rows.labels[0] != rows.name
     return [row(i, f"{rows.name}[{rows.labels[i]}]" if named else rows.name, {"asset": None, "n_binding": int(binding[i])})
             for i in range(rows.size)]
 

@@ -32,7 +32,7 @@ class Leverage(Constraint):
         o, soft, out = self.options, self.soft_penalty, []
         if o["gross"] is not None:
             out.append(Rows(
-                name=f"{self.key}.gross", kind=self.kind, unit="weight", labels=["gross"],
+                name=f"{self.key}.gross", kind=self.kind, unit="weight", labels=[f"{self.key}.gross"],
                 lower=np.array([-np.inf]), upper=scalar(o["gross"], np.inf),
                 evaluate=lambda w: np.array([np.abs(w).sum()]),
                 expression=lambda v: cp.sum(v.w) + 2.0 * cp.sum(v.short), soft=soft,
@@ -40,13 +40,13 @@ class Leverage(Constraint):
         if o["net"] is not None:
             lo, hi = o["net"]
             out.append(Rows(
-                name=f"{self.key}.net", kind=self.kind, unit="weight", labels=["net"],
+                name=f"{self.key}.net", kind=self.kind, unit="weight", labels=[f"{self.key}.net"],
                 lower=scalar(lo, -np.inf), upper=scalar(hi, np.inf),
                 evaluate=lambda w: np.array([w.sum()]), expression=lambda v: cp.sum(v.w), soft=soft,
             ))
         if o["short"] is not None:
             out.append(Rows(
-                name=f"{self.key}.short", kind=self.kind, unit="weight", labels=["short"],
+                name=f"{self.key}.short", kind=self.kind, unit="weight", labels=[f"{self.key}.short"],
                 lower=np.array([-np.inf]), upper=scalar(o["short"], np.inf),
                 evaluate=lambda w: np.array([np.maximum(-w, 0.0).sum()]),
                 expression=lambda v: cp.sum(v.short), soft=soft,
