@@ -234,8 +234,9 @@ def _num(value: Any, digits: int = 4) -> str:
 
 def _frame_table(frame: pd.DataFrame, title: str, *, percent: Sequence[str] = (), max_rows: int = 20) -> Table:
     table = Table(title=title, title_justify="left", show_lines=False, header_style="bold")
-    index_name = str(frame.index.name or "")
-    table.add_column(index_name)
+    show_index = not isinstance(frame.index, pd.RangeIndex)
+    if show_index:
+        table.add_column(str(frame.index.name or ""))
     for col in frame.columns:
         table.add_column(str(col), justify="right")
     for label, row in frame.head(max_rows).iterrows():
@@ -246,7 +247,7 @@ def _frame_table(frame: pd.DataFrame, title: str, *, percent: Sequence[str] = ()
                 cells.append(_pct(value) if col in percent else _num(value))
             else:
                 cells.append(str(value))
-        table.add_row(str(label), *cells)
+        table.add_row(*([str(label)] if show_index else []), *cells)
     if len(frame) > max_rows:
         table.caption = f"{len(frame) - max_rows} more rows not shown"
     return table
@@ -265,6 +266,23 @@ def _print_relaxation(ui: Ui, name: str | None, err: InfeasibleError) -> None:
         ui.say(f"[bold]{title}[/bold]: the optimizer gave no relaxation table")
     else:
         ui.table(_frame_table(frame, title))
+
+
+def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
+    from trimtab.scenario._run import relaxation_frame
+
+    return _jsonable(relaxation_frame(err))  # type: ignore[no-any-return]
+
+
+def _infeasible_line(err: InfeasibleError) -> str:
+    """'infeasible: these limits conflict: a, b (…)' from the relaxation table, else the error's text."""
+    from trimtab._validation import list_labels
+    from trimtab.scenario._run import relaxation_frame
+
+    frame = relaxation_frame(err)
+    if "constraint" in frame.columns and len(frame):
+        return f"infeasible: these limits conflict: {list_labels(frame['constraint'].astype(str))} (the table shows how far each must move)"
+    return str(err)
 
 
 def _report_module() -> Any:
@@ -474,8 +492,13 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
         inputs = load_inputs(loaded, step=step)
         step("solving")
         run = solve(inputs)
-        if run.error is not None:
-            raise run.error
+    if isinstance(run.error, InfeasibleError):
+        _print_relaxation(ui, loaded.name, run.error)
+        ui.emit({"scenario": loaded.name, "status": "infeasible", "relaxation": _relaxation_rows(run.error)})
+        _fail(f"{loaded.path}: {_infeasible_line(run.error)}", EXIT_INFEASIBLE)
+    if run.error is not None:
+        raise run.error
+    with ui.progress() as step:
         step("writing the outputs")
         written = write_rebalance(run, out)
     ui.emit({"scenario": loaded.name, "status": "solved", "output": str(written.folder), "files": written.files, **_result_document(run.result)})
@@ -485,13 +508,8 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
 
 
 def _result_document(result: Any) -> dict[str, Any]:
-    doc: dict[str, Any] = {}
-    for name in ("status", "solver"):
-        if hasattr(result, name):
-            doc[name] = getattr(result, name)
-    if hasattr(result, "constraints"):
-        doc["constraints"] = result.constraints
-    return doc
+    """The documented report document (docs/outputs.md) under the key ``report``."""
+    return {"report": _report_module().report_document(result)}
 
 
 def _print_result(ui: Ui, result: Any) -> None:
@@ -561,7 +579,7 @@ def _exit_for(runs: Sequence[Any]) -> None:
         _fail(next(f"{r.name}: {r.error}" for r in runs if isinstance(r.error, SolverError)), EXIT_SOLVER)
     if errors:
         bad = [r.name for r in runs if r.error is not None]
-        _fail(f"infeasible: {', '.join(bad)} (see the relaxation table above)", EXIT_INFEASIBLE)
+        _fail(f"{len(bad)} of {len(runs)} scenarios infeasible: {', '.join(bad)} (see the relaxation table above)", EXIT_INFEASIBLE)
 
 
 # ---------------------------------------------------------------------- demo
@@ -570,7 +588,9 @@ def demo(
     ctx: typer.Context,
     out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the demo's data, model and reports.")] = Path("trimtab-demo"),
     seed: Annotated[int, typer.Option("--seed", help="Seed of the simulation; the same seed gives the same fund.")] = 7,
-    n_assets: Annotated[int, typer.Option("--n-assets", help="Stocks in the invented universe.", min=50)] = 1500,
+    n_assets: Annotated[
+        int, typer.Option("--n-assets", help="Stocks in the invented universe (600 or more keeps the demo's limits feasible).", min=600, max=1762)
+    ] = 1500,
 ) -> None:
     """Simulate the invented demo fund and run the whole job on it.
 
@@ -609,7 +629,7 @@ def demo(
         write_rebalance(runs[0], tmp / "results" / "base")
         write_comparison(runs, tmp / "results" / "compare")
     elapsed = time.perf_counter() - t0
-    rows = _demo_rows(pre_trade, runs)
+    rows = _demo_rows(pre_trade, base, runs)
     ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
     if not ui.chatty:
         return
@@ -618,50 +638,55 @@ def demo(
         f"(seed {seed}); the model was fitted on {len(fund.returns):,} days of simulated returns."
     )
     ui.say(f"Today's book: tracking error {_pct(pre_trade.risk)} against its cap-weighted benchmark.")
-    table = Table(title="Demo scenarios", title_justify="left", header_style="bold")
-    for col in ("scenario", "status", "tracking error", "alpha", "one-way turnover", "names held"):
+    table = Table(title="Demo scenarios (risk and alpha annualised)", title_justify="left", header_style="bold")
+    for col in ("scenario", "status", "tracking error", "active alpha", "one-way turnover", "names held"):
         table.add_column(col, justify="left" if col in ("scenario", "status") else "right")
     for row in rows:
-        table.add_row(row["scenario"], row["status"], _pct(row["tracking_error"]), _pct(row["alpha"]), _pct(row["turnover"], 1), _num(row["names"], 4))
+        table.add_row(
+            row["scenario"], row["status"], _pct(row["tracking_error"]), _pct(row["active_alpha"]),
+            _pct(row["turnover"], 1), "–" if row["names"] != row["names"] else f"{row['names']:,}",
+        )
     ui.table(table)
     for run in runs:
         if isinstance(run.error, InfeasibleError):
+            why = "is impossible on purpose (a 0.5% tracking-error cap with 2% turnover)" if run.name == "infeasible" else "is infeasible"
+            ui.say(f"\n[bold]{run.name}[/bold] {why}:")
             _print_relaxation(ui, run.name, run.error)
-    where = out
-    ui.say(f"\nFiles in {where}/:")
-    ui.say(f"  data/                    the invented fund (returns, holdings, benchmark, alpha, attributes)")
-    ui.say(f"  model/                   the fitted risk model")
-    ui.say(f"  results/base/report.html the base rebalance: trades, weights, constraints, risk before and after")
-    ui.say(f"  results/compare/report.html  the four scenarios side by side")
-    ui.say(f"  *.yaml                   the scenarios; try: trimtab rebalance {where}/low_turnover.yaml")
+    files = [
+        ("data/", "the invented fund: returns, factor returns, holdings, benchmark, alpha, attributes"),
+        ("model/", "the fitted risk model"),
+        ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
+        ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),
+        ("results/compare/report.html", "the four scenarios side by side (comparison.csv, one folder each)"),
+        ("*.yaml", "the scenarios and fit configs, ready to edit and rerun"),
+    ]
+    width = max(len(name) for name, _ in files) + 2
+    ui.say(f"\nFiles in {out}/ (replaced by the next `trimtab demo` with the same --out):")
+    for name, text in files:
+        ui.say(f"  {name:<{width}}{text}")
+    ui.say(f"Next: trimtab rebalance {out}/low_turnover.yaml   or   trimtab check {out}/base.yaml")
     ui.say(f"Done in {elapsed:.1f} s.")
 
 
-def _demo_rows(pre_trade: Any, runs: Sequence[Any]) -> list[dict[str, Any]]:
-    rows = [{"scenario": "today's book", "status": "-", "tracking_error": pre_trade.risk, "alpha": float("nan"), "turnover": 0.0, "names": float(pre_trade.headline().get("n_positions", float("nan")))}]
+def _demo_rows(pre_trade: Any, base: Any, runs: Sequence[Any]) -> list[dict[str, Any]]:
+    """The headline table: today's book, then each scenario (figures from the result, else NaN)."""
+    active = base.holdings.reindex(base.model.assets, fill_value=0.0) - base.benchmark.reindex(base.model.assets, fill_value=0.0)
+    today_alpha = float((base.alpha.reindex(base.model.assets, fill_value=0.0) * active).sum())
+    names = int((base.holdings.abs() > 1e-8).sum())
+    rows = [{"scenario": "today's book", "status": "-", "tracking_error": float(pre_trade.risk), "active_alpha": today_alpha, "turnover": 0.0, "names": names}]
+    nan = float("nan")
     for run in runs:
-        row: dict[str, Any] = {"scenario": run.name, "status": run.status, "tracking_error": float("nan"), "alpha": float("nan"), "turnover": float("nan"), "names": float("nan")}
+        row: dict[str, Any] = {"scenario": run.name, "status": run.status, "tracking_error": nan, "active_alpha": nan, "turnover": nan, "names": nan}
         if run.result is not None:
-            row.update(_result_figures(run.result))
+            result = run.result
+            row.update(
+                tracking_error=float(result.post_trade.risk),
+                active_alpha=float(result.objective["alpha"]),
+                turnover=float(result.turnover),
+                names=int(result.n_names),
+            )
         rows.append(row)
     return rows
-
-
-def _result_figures(result: Any) -> dict[str, float]:
-    post = getattr(result, "post_trade", None)
-    figures: dict[str, float] = {}
-    if post is not None:
-        figures["tracking_error"] = float(post.risk)
-    weights = getattr(result, "weights", None)
-    if isinstance(weights, pd.Series):
-        figures["names"] = float((weights.abs() > 1e-6).sum())
-    breakdown = getattr(result, "objective_breakdown", None)
-    if isinstance(breakdown, (pd.Series, dict)) and "alpha" in breakdown:
-        figures["alpha"] = float(breakdown["alpha"])
-    turnover = getattr(result, "turnover", None)
-    if turnover is not None:
-        figures["turnover"] = float(turnover)
-    return figures
 
 
 # ---------------------------------------------------------------------- registration, in the order of --help

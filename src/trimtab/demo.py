@@ -326,11 +326,11 @@ constraints:
   factor_exposure: {active: true, bounds: {size: [0, 0], momentum: [0, 0]}}
 """,
     "low_turnover.yaml": """\
-# As base, but trading at most 5% of the fund one way: what does a light touch give up?
+# As base, but trading at most 10% of the fund one way: what does a lighter touch give up?
 extends: base.yaml
-description: Base, with one-way turnover capped at 5%
+description: Base, with one-way turnover capped at 10%
 constraints:
-  turnover: {max: 0.05}
+  turnover: {max: 0.10}
 """,
     "infeasible.yaml": """\
 # Deliberately impossible: a 0.5% tracking-error cap for a book that starts far further from its
