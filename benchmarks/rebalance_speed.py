@@ -1,0 +1,483 @@
+"""Speed of one rebalance against the straightforward cvxpy build; prints figures, asserts nothing.
+
+    python benchmarks/rebalance_speed.py [--quick] [--sizes 5000x50,20000x100] [--repeats 3]
+                                         [--no-profile] [--no-prototype] [--grid]
+
+For each size N×K (default 5,000×50), on a seeded random instance (benchmarks/_instances.py:
+fully invested, 0 ≤ w ≤ 5 %, |active exposure| ≤ 0.1 on every factor, one-way turnover cap,
+linear costs, tracking-error cap, utility objective), medians of ``--repeats`` runs in one process:
+
+1. the straightforward cvxpy build written here (factor form, but ``abs(Bᵀ(w − b)) ≤ 0.1``
+   written directly, ``abs(w − w0)`` for turnover and costs, Clarabel with its default settings);
+2. ``trimtab.construct.rebalance`` end to end (validation, build, solve, verification, result),
+   with the stages split: cvxpy build, cvxpy compile, Clarabel, and everything else;
+3. what-if re-solves through ``build_problem(...).solve(alpha=... | limits=... | holdings=...)``
+   against a fresh ``rebalance`` of the same changed inputs;
+4. a PROTOTYPE (not trimtab code): the same problem handed to Clarabel's own API with matrices built
+   here by hand (y = Bᵀw as variables, w = w0 + buy − sell, TE as one cone over [Lᵀy; √d∘(w − b)]),
+   with trimtab's Clarabel settings, plus a re-solve that only updates the vectors q and b.
+
+Every objective is recomputed from the returned w with plain numpy and every limit is checked from
+w (max breach printed). ``--grid`` prints the N ∈ {1k, 5k, 20k} × K ∈ {20, 50, 100} table of
+trimtab's rebalance (one run a cell). Targets (from the optimizer's issue): N = 5,000 / K = 50 end
+to end ≤ 0.6 s and ≥ 15× the straightforward build; a re-solve no slower than a fresh solve.
+"""
+
+from __future__ import annotations
+
+import argparse
+import cProfile
+import pstats
+import statistics
+import sys
+import time
+import warnings
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+import clarabel
+import cvxpy as cp
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from _instances import PERIODS_PER_YEAR, SpeedInstance, speed_instance  # noqa: E402
+
+from trimtab.construct import SOLVER_SETTINGS, build_problem, rebalance  # noqa: E402
+from trimtab.construct import _solve  # noqa: E402  (instrumented below, read-only)
+
+END_TO_END_TARGET = 0.6
+RATIO_TARGET = 15.0
+
+
+# ---------------------------------------------------------------------- numpy checks, from w only
+def utility(inst: SpeedInstance, w: np.ndarray) -> float:
+    """U = αᵀ(w − b) − λ·ppy·(‖Lᵀ Bᵀ(w − b)‖² + Σ dᵢ(wᵢ − bᵢ)²) − κ·Σ costᵢ·|wᵢ − w0ᵢ|."""
+    x = inst.arrays()
+    a = w - x["b"]
+    f = x["L"].T @ (x["B"].T @ a)
+    variance = f @ f + x["d"] @ (a * a)
+    return float(x["alpha"] @ a - inst.risk_aversion * PERIODS_PER_YEAR * variance
+                 - inst.cost_aversion * x["cost"] @ np.abs(w - x["w0"]))
+
+
+def breaches(inst: SpeedInstance, w: np.ndarray, tracking_error_max: float | None = None) -> dict[str, float]:
+    """How far w lies outside each limit (0 inside), in the limit's own unit."""
+    x = inst.arrays()
+    te_max = inst.tracking_error_max if tracking_error_max is None else tracking_error_max
+    a = w - x["b"]
+    f = x["L"].T @ (x["B"].T @ a)
+    te = np.sqrt(PERIODS_PER_YEAR * (f @ f + x["d"] @ (a * a)))
+    return {
+        "budget": abs(w.sum() - 1.0),
+        "w >= 0": max(0.0, float(-w.min())),
+        "w <= max": max(0.0, float((w - inst.weight_max).max())),
+        "exposure": max(0.0, float((np.abs(x["B"].T @ a) - inst.exposure_max).max())),
+        "turnover": max(0.0, 0.5 * float(np.abs(w - x["w0"]).sum()) - inst.turnover_max),
+        "tracking error": max(0.0, float(te) - te_max),
+    }
+
+
+def worst(b: dict[str, float]) -> str:
+    name = max(b, key=lambda k: b[k])
+    return f"{b[name]:.1e} ({name})" if b[name] > 0 else "0"
+
+
+# ---------------------------------------------------------------------- timing helpers
+@dataclass
+class Run:
+    """One solve: stage seconds, iterations, weights and the numpy objective."""
+
+    stages: dict[str, float]
+    total: float
+    iterations: int
+    weights: np.ndarray
+    status: str = "optimal"
+    extra: dict[str, Any] = field(default_factory=dict)
+    cpu: float = float("nan")
+
+
+def timed_cpu(fn: Callable[[], Run]) -> Run:
+    """fn() with this process's CPU seconds attached (steadier than wall time on a shared machine)."""
+    start = time.process_time()
+    run = fn()
+    return replace(run, cpu=time.process_time() - start)
+
+
+def median_run(fn: Callable[[], Run], repeats: int) -> Run:
+    runs = [timed_cpu(fn) for _ in range(repeats)]
+    mid = statistics.median(r.total for r in runs)
+    chosen = min(runs, key=lambda r: abs(r.total - mid))
+    stages = {k: statistics.median(r.stages[k] for r in runs) for k in chosen.stages}
+    return replace(chosen, stages=stages, total=mid, cpu=statistics.median(r.cpu for r in runs))
+
+
+class SolveProbe:
+    """Wraps trimtab's solver call to read cvxpy's compile time and Clarabel's own time (measurement only)."""
+
+    def __init__(self) -> None:
+        self.original = _solve.run
+        self.records: list[tuple[float, float]] = []
+
+    def __enter__(self) -> SolveProbe:
+        def run(problem: cp.Problem, solver: str) -> Any:
+            attempt = self.original(problem, solver)
+            stats = problem.solver_stats
+            self.records.append((float(problem.compilation_time or 0.0),
+                                 float(getattr(stats, "solve_time", 0.0) or 0.0)))
+            return attempt
+
+        _solve.run = run
+        return self
+
+    def __exit__(self, *exc: Any) -> None:
+        _solve.run = self.original
+
+
+# ---------------------------------------------------------------------- 1. the straightforward build
+def straightforward(inst: SpeedInstance) -> Run:
+    """Factor form written the obvious way; Clarabel with default settings."""
+    x = inst.arrays()
+    B, L, d, b, w0 = x["B"], x["L"], x["d"], x["b"], x["w0"]
+    start = time.perf_counter()
+    w = cp.Variable(len(b))
+    risk = cp.sum_squares(L.T @ (B.T @ (w - b))) + cp.sum_squares(cp.multiply(np.sqrt(d), w - b))
+    goal = (x["alpha"] @ (w - b) - inst.risk_aversion * PERIODS_PER_YEAR * risk
+            - inst.cost_aversion * x["cost"] @ cp.abs(w - w0))
+    constraints = [
+        cp.sum(w) == 1,
+        w >= 0,
+        w <= inst.weight_max,
+        cp.abs(B.T @ (w - b)) <= inst.exposure_max,
+        0.5 * cp.sum(cp.abs(w - w0)) <= inst.turnover_max,
+        risk <= inst.tracking_error_max**2 / PERIODS_PER_YEAR,
+    ]
+    problem = cp.Problem(cp.Maximize(goal), constraints)
+    built = time.perf_counter() - start
+    start = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)  # the status is printed instead
+        problem.solve(solver=cp.CLARABEL)
+    solved = time.perf_counter() - start
+    compile_time = float(problem.compilation_time or 0.0)
+    clarabel_time = float(problem.solver_stats.solve_time or 0.0)
+    stages = {"build": built, "compile": compile_time, "clarabel": clarabel_time,
+              "other": solved - compile_time - clarabel_time}
+    return Run(stages, built + solved, int(problem.solver_stats.num_iters or 0),
+               np.asarray(w.value, dtype=np.float64), str(problem.status))
+
+
+# ---------------------------------------------------------------------- 2. trimtab end to end
+def trimtab_rebalance(inst: SpeedInstance, scenario: dict[str, Any] | None = None, **book: Any) -> Run:
+    kwargs = {**inst.book(), **book}
+    with SolveProbe() as probe:
+        start = time.perf_counter()
+        result = rebalance(inst.model, scenario or inst.scenario(), **kwargs)
+        total = time.perf_counter() - start
+    compile_time, clarabel_time = (sum(r[i] for r in probe.records) for i in (0, 1))
+    stages = {
+        "build": result.build_time,
+        "compile": compile_time,
+        "clarabel": clarabel_time,
+        "verify+result": total - result.build_time - result.solve_time,
+        "solve other": result.solve_time - compile_time - clarabel_time,
+    }
+    return Run(stages, total, result.iterations, result.weights.to_numpy(), result.status,
+               {"attempts": result.provenance["attempts"]})
+
+
+def what_if(inst: SpeedInstance, repeats: int) -> list[tuple[str, float, float, float, str]]:
+    """(change, re-solve s, fresh s, |ΔU| between them, worst breach of the re-solve)."""
+    rng = np.random.default_rng(7)
+    new_alpha = inst.alpha * 0.5 + pd.Series(rng.normal(0, 0.01, len(inst.alpha)), index=inst.alpha.index)
+    shift = inst.holdings * rng.uniform(0.9, 1.1, len(inst.holdings))
+    new_holdings = shift / shift.sum()
+    te_new = 0.8 * inst.tracking_error_max
+    cases: list[tuple[str, dict[str, Any], SpeedInstance]] = [
+        ("new alpha", {"alpha": new_alpha}, replace(inst, alpha=new_alpha)),
+        (f"TE cap {inst.tracking_error_max:.0%} → {te_new:.1%}", {"limits": {"tracking_error.max": te_new}},
+         replace(inst, tracking_error_max=te_new)),
+        ("new holdings", {"holdings": new_holdings}, replace(inst, holdings=new_holdings)),
+    ]
+    problem = build_problem(inst.model, inst.scenario(), **inst.book())
+    problem.solve()  # the first solve of the built problem is not part of the what-if
+    out = []
+    for label, change, changed in cases:
+        times, result = [], None
+        for _ in range(repeats):
+            start = time.perf_counter()
+            result = problem.solve(**change)
+            times.append(time.perf_counter() - start)
+        fresh = median_run(lambda c=changed: trimtab_rebalance(c, c.scenario(), **c.book()), repeats)
+        w = result.weights.to_numpy()
+        gap = abs(utility(changed, w) - utility(changed, fresh.weights)) / max(1e-12, abs(utility(changed, fresh.weights)))
+        out.append((label, statistics.median(times), fresh.total, gap,
+                    worst(breaches(changed, w, changed.tracking_error_max))))
+    return out
+
+
+# ---------------------------------------------------------------------- 4. PROTOTYPE: Clarabel direct
+class DirectPrototype:
+    """PROTOTYPE measurement, not trimtab code: this problem family in Clarabel's own form.
+
+    x = [w (N), buy (N), sell (N), y (K)]; minimise ½xᵀPx + qᵀx with
+    P = 2λ·ppy·blockdiag(diag(d), 0, 0, F), q = [−α − 2λ·ppy·d∘b, κ·c, κ·c, −2λ·ppy·F·Bᵀb];
+    zero cone: 1ᵀw = 1, w − buy + sell = w0, y − Bᵀw = 0; nonnegative cone: w ≤ w_max, w ≥ 0,
+    buy, sell ≥ 0, |y − Bᵀb| ≤ e, ½1ᵀ(buy + sell) ≤ T; second-order cone:
+    ‖[Lᵀ(y − Bᵀb); √d∘(w − b)]‖ ≤ TE/√ppy.
+    """
+
+    def __init__(self, inst: SpeedInstance) -> None:
+        start = time.perf_counter()
+        x = inst.arrays()
+        B, L, d, b, w0 = x["B"], x["L"], x["d"], x["b"], x["w0"]
+        n, k = B.shape
+        self.n, self.k, self.inst = n, k, inst
+        c = inst.risk_aversion * PERIODS_PER_YEAR
+        F = L @ L.T
+        yb = B.T @ b
+        eye, zero_nn = sp.identity(n, format="csc"), sp.csc_matrix((n, n))
+        P = sp.block_diag([sp.diags(2 * c * d), zero_nn, zero_nn, sp.triu(sp.csc_matrix(2 * c * F))], format="csc")
+        self.q = np.concatenate([-x["alpha"] - 2 * c * d * b, inst.cost_aversion * x["cost"],
+                                 inst.cost_aversion * x["cost"], -2 * c * F @ yb])
+        ones = np.ones((1, n))
+        rows = [
+            # zero cone: budget, trade split, exposure definition
+            [sp.csc_matrix(ones), None, None, sp.csc_matrix((1, k))],
+            [eye, -eye, eye, None],
+            [sp.csc_matrix(-B.T), None, None, sp.identity(k)],
+            # nonnegative cone
+            [eye, None, None, None],
+            [-eye, None, None, None],
+            [None, -eye, None, None],
+            [None, None, -eye, None],
+            [None, None, None, sp.identity(k)],
+            [None, None, None, -sp.identity(k)],
+            [sp.csc_matrix((1, n)), sp.csc_matrix(0.5 * ones), sp.csc_matrix(0.5 * ones), None],
+            # second-order cone
+            [sp.csc_matrix((1, n)), None, None, sp.csc_matrix((1, k))],
+            [None, None, None, sp.csc_matrix(-L.T)],
+            [sp.diags(-np.sqrt(d)), None, None, None],
+        ]
+        self.A = sp.bmat(rows, format="csc")
+        e = inst.exposure_max
+        self.parts = dict(w0=w0, yb=yb, e=e)
+        self.b_vec = self._b(inst.tracking_error_max, w0)
+        self.cones = [clarabel.ZeroConeT(1 + n + k), clarabel.NonnegativeConeT(4 * n + 2 * k + 1),
+                      clarabel.SecondOrderConeT(1 + k + n)]
+        self.P = P
+        self.settings = clarabel.DefaultSettings()
+        self.settings.verbose = False
+        self.settings.presolve_enable = False  # keeps the data update allowed for the re-solve
+        for key, value in SOLVER_SETTINGS["CLARABEL"].items():
+            setattr(self.settings, key, value)
+        self.build_time = time.perf_counter() - start
+
+    def _b(self, te_max: float, w0: np.ndarray) -> np.ndarray:
+        n, k = self.n, self.k
+        x = self.inst.arrays()
+        yb, e = self.parts["yb"], self.parts["e"]
+        sq = np.sqrt(x["d"])
+        return np.concatenate([
+            [1.0], w0, np.zeros(k),
+            np.full(n, self.inst.weight_max), np.zeros(3 * n), yb + e, e - yb, [self.inst.turnover_max],
+            [te_max / np.sqrt(PERIODS_PER_YEAR)], -x["L"].T @ yb, -sq * x["b"],
+        ])
+
+    def solve(self) -> Run:
+        start = time.perf_counter()
+        self.solver = clarabel.DefaultSolver(self.P, self.q, self.A, self.b_vec, self.cones, self.settings)
+        setup = time.perf_counter() - start
+        sol = self.solver.solve()
+        total = time.perf_counter() - start
+        w = np.asarray(sol.x[: self.n], dtype=np.float64)
+        return Run({"build": self.build_time, "setup": setup, "clarabel": total - setup}, self.build_time + total,
+                   int(sol.iterations), w, str(sol.status))
+
+    def resolve(self, alpha: np.ndarray | None = None, te_max: float | None = None) -> Run:
+        """Update q (alpha) or b (a limit) in place and solve again: no new matrices, no new setup."""
+        start = time.perf_counter()
+        c = self.inst.risk_aversion * PERIODS_PER_YEAR
+        x = self.inst.arrays()
+        if alpha is not None:
+            self.q[: self.n] = -alpha - 2 * c * x["d"] * x["b"]
+        if te_max is not None:
+            self.b_vec = self._b(te_max, x["w0"])
+        self.solver.update(q=self.q, b=self.b_vec)
+        sol = self.solver.solve()
+        total = time.perf_counter() - start
+        return Run({"update+solve": total}, total, int(sol.iterations), np.asarray(sol.x[: self.n]), str(sol.status))
+
+
+# ---------------------------------------------------------------------- settings experiments
+SETTINGS_VARIANTS: list[tuple[str, dict[str, Any]]] = [
+    ("trimtab's SOLVER_SETTINGS", {}),
+    ("gap tolerances 1e-8 (Clarabel default)", {"tol_gap_abs": 1e-8, "tol_gap_rel": 1e-8}),
+    ("refinement tolerances 1e-10", {"iterative_refinement_reltol": 1e-10, "iterative_refinement_abstol": 1e-10}),
+    ("direct_solve_method auto (default)", {"direct_solve_method": "auto"}),
+    ("equilibration on (default)", {"equilibrate_enable": True}),
+]
+
+
+def settings_experiments(inst: SpeedInstance, repeats: int) -> None:
+    """trimtab's rebalance with SOLVER_SETTINGS changed in this process only (restored after each)."""
+    print("\n  Clarabel settings through trimtab's rebalance (SOLVER_SETTINGS changed in this process only)")
+    print(f"  {'variant':40s} {'total':>7s} {'cpu':>6s} {'Clarabel':>8s} {'iters':>5s} {'U rel. diff':>11s}  max breach")
+    settings = SOLVER_SETTINGS["CLARABEL"]
+    saved = dict(settings)
+    reference = None
+    try:
+        for label, change in SETTINGS_VARIANTS:
+            settings.update(change)
+            try:
+                run = median_run(lambda: trimtab_rebalance(inst), repeats)
+            except Exception as err:  # a variant that fails verification is a finding, not a crash
+                print(f"  {label:40s} failed: {str(err)[:120]}")
+                continue
+            finally:
+                settings.clear()
+                settings.update(saved)
+            u = utility(inst, run.weights)
+            reference = u if reference is None else reference
+            print(f"  {label:40s} {run.total:7.3f} {run.cpu:6.2f} {run.stages['clarabel']:8.3f} {run.iterations:5d} "
+                  f"{abs(u - reference) / abs(reference):11.1e}  {worst(breaches(inst, run.weights))}")
+    finally:
+        settings.clear()
+        settings.update(saved)
+
+
+# ---------------------------------------------------------------------- profiling
+PROFILE_PARTS = [
+    ("validate + align inputs + rows", "construct/_problem.py", "build_problem"),
+    ("cvxpy expression build", "construct/_problem.py", "build"),
+    ("cvxpy compile (get_problem_data)", "cvxpy/problems/problem.py", "get_problem_data"),
+    ("Clarabel solve (incl. setup)", "reductions/solvers/conic_solvers/clarabel_conif.py", "solve_via_data"),
+    ("cvxpy unpack results", "cvxpy/problems/problem.py", "unpack_results"),
+    ("numpy verification (verify)", "construct/_verify.py", "verify"),
+    ("result: make_result total", "construct/_result.py", "make_result"),
+    ("  of which pre/post attribution", "construct/_result.py", "_attribute"),
+    ("  of which constraint table", "construct/_result.py", "_constraint_table"),
+    ("  of which trade list", "construct/_result.py", "_trades"),
+]
+
+
+def profile(inst: SpeedInstance) -> None:
+    print(f"\n== Where the time goes in trimtab's rebalance at N = {inst.model.n_assets:,}, "
+          f"K = {inst.model.n_factors} (cProfile, one run; the profiler inflates Python-heavy parts)")
+    profiler = cProfile.Profile()
+    start = time.perf_counter()
+    profiler.enable()
+    rebalance(inst.model, inst.scenario(), **inst.book())
+    profiler.disable()
+    wall = time.perf_counter() - start
+    stats = pstats.Stats(profiler).stats  # type: ignore[attr-defined]
+    print(f"  {'part':40s} {'seconds':>8s} {'share':>7s}")
+    for label, file_end, name in PROFILE_PARTS:
+        seconds = sum(v[3] for (path, _, fn), v in stats.items()
+                      if fn == name and path.replace("\\", "/").endswith(file_end))
+        print(f"  {label:40s} {seconds:8.3f} {seconds / wall:7.1%}")
+    print(f"  {'total under the profiler':40s} {wall:8.3f}")
+
+
+# ---------------------------------------------------------------------- the report
+def compare(inst: SpeedInstance, repeats: int, prototype: bool, do_profile: bool) -> None:
+    n, k = inst.model.n_assets, inst.model.n_factors
+    print(f"\n== N = {n:,}, K = {k}: medians of {repeats} in one process")
+    naive = median_run(lambda: straightforward(inst), repeats)
+    ours = median_run(lambda: trimtab_rebalance(inst), repeats)
+    u_ref = utility(inst, naive.weights)
+    rows = [("straightforward cvxpy", naive), ("trimtab rebalance", ours)]
+    proto = None
+    if prototype:
+        proto = median_run(lambda: DirectPrototype(inst).solve(), repeats)
+        rows.append(("PROTOTYPE Clarabel direct", proto))
+    print(f"  {'path':26s} {'build':>7s} {'compile':>8s} {'solver':>7s} {'other':>7s} {'total':>7s} {'cpu':>6s} "
+          f"{'speed-up':>8s} {'iters':>5s} {'U from w':>14s} {'rel. diff':>9s}  {'max breach from w':22s} status")
+    for label, run in rows:
+        s = run.stages
+        compile_time = s.get("compile", s.get("setup", 0.0))
+        other = s.get("other", 0.0) + s.get("verify+result", 0.0) + s.get("solve other", 0.0)
+        u = utility(inst, run.weights)
+        print(f"  {label:26s} {s['build']:7.3f} {compile_time:8.3f} {s['clarabel']:7.3f} {other:7.3f} "
+              f"{run.total:7.3f} {run.cpu:6.2f} {naive.total / run.total:7.1f}× {run.iterations:5d} {u:14.8e} "
+              f"{abs(u - u_ref) / abs(u_ref):9.1e}  {worst(breaches(inst, run.weights)):22s} {run.status}")
+    print("  (trimtab 'other' = validation, verification and result assembly "
+          f"{ours.stages['verify+result']:.3f} s + cvxpy overhead around the solver {ours.stages['solve other']:.3f} s;"
+          " PROTOTYPE 'compile' = Clarabel setup; cpu = this process's CPU seconds, all threads)")
+    if n == 5_000 and k == 50:
+        ratio = naive.total / ours.total
+        print(f"  target: end to end ≤ {END_TO_END_TARGET} s → {ours.total:.3f} s "
+              f"({'met' if ours.total <= END_TO_END_TARGET else 'NOT met'}); ≥ {RATIO_TARGET:.0f}× → {ratio:.1f}× "
+              f"({'met' if ratio >= RATIO_TARGET else 'NOT met'})")
+    print("\n  What-if re-solves (build_problem once, then .solve(change)) against a fresh rebalance of the same inputs")
+    print(f"  {'change':22s} {'re-solve':>9s} {'fresh':>7s} {'fresh/re':>8s} {'U rel. diff':>11s}  max breach")
+    for label, again, fresh, gap, breach in what_if(inst, repeats):
+        print(f"  {label:22s} {again:9.3f} {fresh:7.3f} {fresh / again:7.2f}× {gap:11.1e}  {breach}")
+    print("  target: a re-solve no slower than a fresh solve (ratio ≥ 1)")
+    if prototype:
+        rng = np.random.default_rng(7)
+        new_alpha = inst.alpha.to_numpy() * 0.5 + rng.normal(0, 0.01, n)
+        changed = replace(inst, alpha=pd.Series(new_alpha, index=inst.alpha.index))
+        direct = DirectPrototype(inst)
+        direct.solve()
+        again = median_run(lambda: direct.resolve(alpha=new_alpha), repeats)
+        fresh = median_run(lambda: DirectPrototype(changed).solve(), repeats)
+        check = trimtab_rebalance(changed, changed.scenario(), **changed.book())
+        gap = abs(utility(changed, again.weights) - utility(changed, check.weights)) / abs(utility(changed, check.weights))
+        print(f"  PROTOTYPE Clarabel direct, new alpha: q updated in place and re-solved {again.total:.3f} s "
+              f"(cpu {again.cpu:.2f}) against new matrices and setup {fresh.total:.3f} s (cpu {fresh.cpu:.2f}) → "
+              f"{fresh.total / again.total:.2f}×; {again.iterations} it; U rel. diff to trimtab {gap:.1e}; "
+              f"max breach {worst(breaches(changed, again.weights))}")
+        settings_experiments(inst, repeats)
+    if do_profile:
+        profile(inst)
+
+
+def grid(repeats: int) -> None:
+    print("\n== trimtab rebalance, N × K grid (seconds; one run a cell unless --repeats > 1)")
+    print("| N | K | build | solve (compile + Clarabel) | of which Clarabel | verify + result | total | iterations |")
+    print("|---:|---:|---:|---:|---:|---:|---:|---:|")
+    for n in (1_000, 5_000, 20_000):
+        for k in (20, 50, 100):
+            inst = speed_instance(n, k, seed=n + k)
+            run = median_run(lambda i=inst: trimtab_rebalance(i), repeats)
+            s = run.stages
+            solve = s["compile"] + s["clarabel"] + s["solve other"]
+            print(f"| {n:,} | {k} | {s['build']:.3f} | {solve:.2f} | {s['clarabel']:.2f} | {s['verify+result']:.3f} | "
+                  f"{run.total:.2f} | {run.iterations} |", flush=True)
+
+
+def parse_sizes(text: str) -> list[tuple[int, int]]:
+    out = []
+    for part in text.split(","):
+        n, _, k = part.strip().lower().partition("x")
+        out.append((int(n), int(k)))
+    return out
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--quick", action="store_true", help="N = 1,000, K = 20 only")
+    parser.add_argument("--sizes", default="5000x50", help="comma-separated NxK, e.g. 5000x50,20000x100")
+    parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--no-profile", action="store_true")
+    parser.add_argument("--no-prototype", action="store_true")
+    parser.add_argument("--grid", action="store_true", help="only the N × K table for docs/performance.md")
+    args = parser.parse_args()
+    print(f"cvxpy {cp.__version__}, Clarabel {clarabel.__version__}, numpy {np.__version__}; "
+          f"trimtab Clarabel settings {SOLVER_SETTINGS['CLARABEL']}")
+    warm = speed_instance(200, 5, seed=99)
+    trimtab_rebalance(warm)  # imports and first-call costs outside the timings
+    straightforward(warm)
+    if args.grid:
+        grid(args.repeats)
+        return
+    for n, k in [(1_000, 20)] if args.quick else parse_sizes(args.sizes):
+        compare(speed_instance(n, k, seed=n + k), args.repeats, not args.no_prototype, not args.no_profile)
+
+
+if __name__ == "__main__":
+    main()
