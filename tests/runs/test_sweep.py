@@ -167,3 +167,28 @@ def test_real_optimizer_points_equal_direct_rebalances(book) -> None:
     # the tighter the turnover cap and the larger λ, the lower the tracking error
     te = result.table.set_index(["risk_aversion", "turnover.max"])["tracking_error"]
     assert te[(20.0, 0.3)] < te[(5.0, 0.3)] and te[(5.0, 0.1)] <= te[(5.0, 0.3)] + 1e-9
+
+
+class RefusesChanges(ClosedFormProblem):
+    """A built problem whose re-solve refuses every change, as a problem whose limits a key path does not reach."""
+
+    attempts = 0
+
+    def solve(self, **changes):
+        from trimtab.errors import ScenarioError
+
+        if changes:
+            RefusesChanges.attempts += 1
+            raise ScenarioError("scenario: constraints: tracking_error: max: no such limit in this scenario")
+        return super().solve()
+
+
+def test_a_refused_re_solve_builds_afresh_and_is_not_retried(book) -> None:
+    model, bench, alpha = book
+    _tasks.BUILDS.clear()
+    RefusesChanges.attempts = 0
+    result = sweep(model, UTILITY, {"risk_aversion": [2.0, 4.0, 8.0]}, holdings=bench, benchmark=bench, alpha=alpha, build=RefusesChanges)
+    assert result.table["built"].tolist() == [True, True, True]
+    assert len(_tasks.BUILDS) == 3 and RefusesChanges.attempts == 1
+    reference = run(book, UTILITY, {"risk_aversion": [2.0, 4.0, 8.0]})
+    np.testing.assert_allclose(result.table["tracking_error"], reference.table["tracking_error"], rtol=1e-12)

@@ -209,18 +209,21 @@ def run_chunk(task: SweepTask) -> list[dict[str, Any]]:
 
     rows: list[dict[str, Any]] = []
     problem = None
+    unreachable: set[frozenset[str]] = set()  # parameter sets the built problem refused to re-solve
     for point in task.points:
         row: dict[str, Any] = {"label": point_label(point), **{short_key(key_path(k)): v for k, v in point.items()}}
         started = time.perf_counter()
+        keys = frozenset(point)
         try:
             result = None
-            if task.reuse and problem is not None:
+            if task.reuse and problem is not None and keys not in unreachable:
                 try:
                     result = _resolve(problem, _re_solve_arguments(task.scenario, point))
                     row["built"] = False
                 except (_Rebuild, ScenarioError):
                     # not a change the built problem can take (a structural change, or a key path
-                    # its limits do not reach): build this point afresh
+                    # its limits do not reach): build this point afresh, and the next ones like it
+                    unreachable.add(keys)
                     result = None
             if result is None:
                 problem = build(task.model, apply_point(task.scenario, point), **task.inputs)
