@@ -96,6 +96,12 @@ def test_headline_summary_and_text(attr: RiskAttribution) -> None:
     assert list(top.index) == list(attr.by_asset["contribution"].abs().nlargest(4).index)
 
 
+def test_positions_ignore_solver_noise(small_model: FactorModel) -> None:
+    # Common practice (no source): weights of 1e-8 of NAV or less are numerical residue of a solve.
+    w = pd.Series({"A0001": 0.6, "A0002": 0.4 - 1e-12, "A0003": 1e-12, "A0004": -5e-9})
+    assert attribute(small_model, w).headline()["n_positions"] == 2
+
+
 def test_format_figure_units() -> None:
     assert format_figure(0.04567, "fraction") == "4.57%"
     assert format_figure(12.345, "percent") == "12.3%"
@@ -103,3 +109,9 @@ def test_format_figure_units() -> None:
     assert format_figure(float("nan"), "ratio") == "n/a"
     assert format_figure(None, "ratio") == "n/a"
     assert format_figure(1.23456, "ratio") == "1.235"
+    assert format_figure(-1e-9, "fraction") == "0.00%" and format_figure(-0.0, "ratio") == "0"
+    assert format_figure(-0.0004, "exposure") == "0.000" and format_figure(-0.2, "fraction") == "-20.00%"
+    assert format_figure(-1.2e-5, "ratio") == "-1.2e-05"
+    assert format_figure(-4e-16, "limit") == "0" and format_figure(8.266e-3, "limit") == "0.008266"
+    assert format_figure(2.5e-4, "bp") == "2.50 bp" and format_figure(0.00004, "variance") == "0.000040"
+    assert format_figure(1234567.8, "amount") == "1,234,568"

@@ -19,6 +19,8 @@ if TYPE_CHECKING:
 
 #: Trading days in a year, used to turn the annual risk into a risk over ``horizon_days``.
 TRADING_DAYS_PER_YEAR = 252
+#: Weights no larger than this in absolute value are solver noise, not positions (for ``n_positions``).
+POSITION_TOLERANCE = 1e-8
 #: Group label for assets without a value for the attribute in :meth:`RiskAttribution.by_group`.
 UNASSIGNED = "unassigned"
 
@@ -36,7 +38,7 @@ HEADLINE_FIGURES: dict[str, tuple[str, str]] = {
     "diversification_ratio": ("Diversification ratio", "ratio"),
     "value_at_risk_99_1d": ("Value at risk, 99%, 1 day", "fraction"),
     "expected_shortfall_99_1d": ("Expected shortfall, 99%, 1 day", "fraction"),
-    "n_positions": ("Positions held", "count"),
+    "n_positions": ("Positions held (|w| > 1e-8)", "count"),
     "gross_weight": ("Gross weight (Σ|w|)", "ratio"),
     "net_weight": ("Net weight (Σw)", "ratio"),
 }
@@ -307,7 +309,7 @@ class RiskAttribution:
             "diversification_ratio": self.diversification_ratio,
             "value_at_risk_99_1d": self.value_at_risk(0.99, 1),
             "expected_shortfall_99_1d": self.expected_shortfall(0.99, 1),
-            "n_positions": float(np.count_nonzero(weights)),
+            "n_positions": float(np.count_nonzero(np.abs(weights) > POSITION_TOLERANCE)),
             "gross_weight": float(np.abs(weights).sum()),
             "net_weight": float(weights.sum()),
         }
@@ -419,12 +421,21 @@ def format_figure(value: Any, unit: str) -> str:
 
     Units: "fraction" (0.0123 → 1.23%), "percent" (12.3 → 12.3%), "count" and "amount" (with thousands
     separators), "exposure" (signed, three decimals), "variance" (six decimals), "bp" (a fraction in basis
-    points), otherwise four
+    points), "limit" (four significant digits, below 1e-9 in size shown as 0), otherwise four
     significant digits. NaN and None give "n/a".
     """
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return "n/a"
-    value = float(value)
+    text = _formatted(float(value), unit)
+    # A negative number that rounds to zero reads as "-0.00%": drop the sign.
+    if text.startswith("-") and not any(ch in "123456789" for ch in text.split("e")[0]):
+        text = text[1:]
+    return text
+
+
+def _formatted(value: float, unit: str) -> str:
+    if math.isnan(value):
+        return "n/a"
     if unit == "fraction":
         return f"{100.0 * value:.2f}%"
     if unit == "percent":
@@ -433,6 +444,8 @@ def format_figure(value: Any, unit: str) -> str:
         return f"{value:,.0f}"
     if unit == "exposure":
         return f"{value:+.3f}"
+    if unit == "limit":
+        return "0" if abs(value) < 1e-9 else f"{value:.4g}"
     if unit == "variance":
         return f"{value:.6f}"
     if unit == "bp":

@@ -33,8 +33,8 @@ CAUTION = (
 #: Constraint names (or kinds) read as the risk budget, in order of preference.
 RISK_BUDGET_NAMES = ("tracking_error", "active_risk", "total_risk")
 
-#: Trades smaller than this (a fraction of NAV) are solver noise and not counted as trades.
-TRADE_TOLERANCE = 1e-10
+#: Trades no larger than this (a fraction of NAV) are solver noise and not counted as trades.
+TRADE_TOLERANCE = 1e-8
 
 #: Columns of a constraint table, in display order.
 CONSTRAINT_COLUMNS = ("name", "kind", "value", "lower", "upper", "unit", "slack", "binding", "shadow_price", "soft")

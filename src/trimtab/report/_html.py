@@ -32,13 +32,15 @@ _TRADE_UNITS = {
 }
 _CONSTRAINT_UNITS = {
     "kind": "text",
-    "value": "ratio",
-    "lower": "ratio",
-    "upper": "ratio",
+    "asset": "text",
+    "value": "limit",
+    "lower": "limit",
+    "upper": "limit",
     "unit": "text",
-    "slack": "ratio",
-    "shadow_price": "ratio",
+    "slack": "limit",
+    "shadow_price": "limit",
     "soft": "flag",
+    "n_binding": "count",
 }
 _ASSET_UNITS = {
     "weight": "fraction",
@@ -290,21 +292,22 @@ def _headline_table(content: ReportContent) -> str:
 def _constraint_table(table: pd.DataFrame) -> str:
     columns = [c for c in _CONSTRAINT_UNITS if c in table.columns]
     head = "<th>Constraint</th>" + "".join(
-        f'<th class="{"num" if _CONSTRAINT_UNITS[c] == "ratio" else ""}">{_e(_header(c))}</th>' for c in columns
+        f'<th class="{"num" if _CONSTRAINT_UNITS[c] in ("limit", "count") else ""}">{_e(_header(c))}</th>' for c in columns
     ) + "<th>Binding</th>"
     rows = []
     for i, row in table.iterrows():
         binding = bool(flags(pd.Series([row.get("binding", False)], dtype=object)).iloc[0])
         name = row["name"] if "name" in table.columns else i
         cells = "".join(
-            "<td></td>" if _CONSTRAINT_UNITS[c] == "ratio" and no_bound(row[c]) else _cell(row[c], _CONSTRAINT_UNITS[c])
+            "<td></td>" if _CONSTRAINT_UNITS[c] == "limit" and no_bound(row[c]) else _cell(row[c], _CONSTRAINT_UNITS[c])
             for c in columns
         )
         flag = "<td>yes</td>" if binding else "<td></td>"
-        rows.append(f'<tr class="{"binding" if binding else ""}"><td>{_e(name)}</td>{cells}{flag}</tr>')
+        rows.append(f'<tr class="{"binding" if binding else ""}"><td>{_e(name).replace("[", "<wbr>[")}</td>{cells}{flag}</tr>')
     return (
-        "<table><caption>Binding constraints first (shaded). Shadow price: objective given up per unit of limit.</caption>"
-        f"<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+        '<div class="wide"><table class="constraints"><caption>Binding constraints first (shaded). '
+        "Shadow price: objective given up per unit of limit.</caption>"
+        f"<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table></div>"
     )
 
 

@@ -78,7 +78,7 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
                 table.add_column(column.replace("_", " "), justify="left" if column == "name" else "right")
         for _, row in binding.iterrows():
             table.add_row(
-                *[str(row[c]) if c == "name" else "" if no_bound(row[c]) else format_figure(row[c], "ratio")
+                *[str(row[c]) if c == "name" else "" if no_bound(row[c]) else format_figure(row[c], "limit")
                   for c in ("name", "value", "lower", "upper", "shadow_price") if c in binding.columns]
             )
         if len(binding) == 0:
