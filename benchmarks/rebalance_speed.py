@@ -349,6 +349,50 @@ def settings_experiments(inst: SpeedInstance, repeats: int) -> None:
         settings.update(saved)
 
 
+# ---------------------------------------------------------------------- cvxpy Parameters (DPP), on request
+def dpp_experiment(inst: SpeedInstance) -> None:
+    """The lean factor-form build in cvxpy with alpha, holdings and the TE cap as Parameters.
+
+    Only q and b depend on them, yet the parametrised compile is measured here against the plain one,
+    followed by a re-solve with new alpha (compile skipped, Clarabel re-run).
+    """
+    x = inst.arrays()
+    B, L, d, b, w0 = x["B"], x["L"], x["d"], x["b"], x["w0"]
+    n, k = B.shape
+    c, yb = inst.risk_aversion * PERIODS_PER_YEAR, B.T @ b
+    print(f"\n  cvxpy Parameters (DPP) for alpha, holdings and the TE cap, lean build, N = {n:,}, K = {k}")
+
+    def build(params: bool) -> tuple[cp.Problem, cp.Variable, cp.Parameter | None]:
+        w, y = cp.Variable(n), cp.Variable(k)
+        buy, sell = cp.Variable(n, nonneg=True), cp.Variable(n, nonneg=True)
+        alpha = cp.Parameter(n, value=x["alpha"]) if params else x["alpha"]
+        held = cp.Parameter(n, value=w0) if params else w0
+        te = cp.Parameter(nonneg=True, value=inst.tracking_error_max) if params else inst.tracking_error_max
+        factor, specific = L.T @ (y - yb), cp.multiply(np.sqrt(d), w - b)
+        goal = (alpha @ w - c * (cp.sum_squares(factor) + cp.sum_squares(specific))
+                - inst.cost_aversion * x["cost"] @ (buy + sell))
+        constraints = [y == B.T @ w, w == held + buy - sell, cp.sum(w) == 1, w >= 0, w <= inst.weight_max,
+                       y - yb <= inst.exposure_max, y - yb >= -inst.exposure_max,
+                       0.5 * cp.sum(buy + sell) <= inst.turnover_max,
+                       cp.norm(cp.hstack([factor, specific]), 2) <= te / np.sqrt(PERIODS_PER_YEAR)]
+        return cp.Problem(cp.Maximize(goal), constraints), w, alpha if params else None
+
+    for params in (False, True):
+        start = time.perf_counter()
+        problem, w, alpha = build(params)
+        problem.solve(solver=cp.CLARABEL, **SOLVER_SETTINGS["CLARABEL"])
+        total = time.perf_counter() - start
+        print(f"  {'with Parameters' if params else 'plain constants':16s} first solve {total:7.2f} s "
+              f"(compile {problem.compilation_time:.2f} s, Clarabel {problem.solver_stats.solve_time:.2f} s, "
+              f"U {utility(inst, np.asarray(w.value)):.8e})")
+        if alpha is not None:
+            alpha.value = x["alpha"] * 0.5 + np.random.default_rng(7).normal(0, 0.01, n)
+            start = time.perf_counter()
+            problem.solve(solver=cp.CLARABEL, **SOLVER_SETTINGS["CLARABEL"])
+            print(f"  {'':16s} re-solve, new alpha {time.perf_counter() - start:.2f} s "
+                  f"(compile {problem.compilation_time:.2f} s, Clarabel {problem.solver_stats.solve_time:.2f} s)")
+
+
 # ---------------------------------------------------------------------- profiling
 PROFILE_PARTS = [
     ("validate + align inputs + rows", "construct/_problem.py", "build_problem"),
@@ -383,7 +427,7 @@ def profile(inst: SpeedInstance) -> None:
 
 
 # ---------------------------------------------------------------------- the report
-def compare(inst: SpeedInstance, repeats: int, prototype: bool, do_profile: bool) -> None:
+def compare(inst: SpeedInstance, repeats: int, prototype: bool, do_profile: bool, dpp: bool) -> None:
     n, k = inst.model.n_assets, inst.model.n_factors
     print(f"\n== N = {n:,}, K = {k}: medians of {repeats} in one process")
     naive = median_run(lambda: straightforward(inst), repeats)
@@ -432,22 +476,31 @@ def compare(inst: SpeedInstance, repeats: int, prototype: bool, do_profile: bool
               f"{fresh.total / again.total:.2f}×; {again.iterations} it; U rel. diff to trimtab {gap:.1e}; "
               f"max breach {worst(breaches(changed, again.weights))}")
         settings_experiments(inst, repeats)
+    if dpp:
+        dpp_experiment(inst)
     if do_profile:
         profile(inst)
 
 
-def grid(repeats: int) -> None:
+def grid(repeats: int, prototype: bool) -> None:
     print("\n== trimtab rebalance, N × K grid (seconds; one run a cell unless --repeats > 1)")
-    print("| N | K | build | solve (compile + Clarabel) | of which Clarabel | verify + result | total | iterations |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---:|")
+    print("| N | K | build | compile | Clarabel | other | total | cpu | iterations |"
+          + (" hand-built prototype (total, iterations) | U rel. diff |" if prototype else ""))
+    print("|---:|---:|---:|---:|---:|---:|---:|---:|---:|" + ("---:|---:|" if prototype else ""))
     for n in (1_000, 5_000, 20_000):
         for k in (20, 50, 100):
             inst = speed_instance(n, k, seed=n + k)
             run = median_run(lambda i=inst: trimtab_rebalance(i), repeats)
             s = run.stages
-            solve = s["compile"] + s["clarabel"] + s["solve other"]
-            print(f"| {n:,} | {k} | {s['build']:.3f} | {solve:.2f} | {s['clarabel']:.2f} | {s['verify+result']:.3f} | "
-                  f"{run.total:.2f} | {run.iterations} |", flush=True)
+            line = (f"| {n:,} | {k} | {s['build']:.3f} | {s['compile']:.2f} | {s['clarabel']:.2f} | "
+                    f"{s['verify+result'] + s['solve other']:.3f} | {run.total:.2f} | {run.cpu:.2f} | {run.iterations} |")
+            if prototype:
+                proto = median_run(lambda i=inst: DirectPrototype(i).solve(), repeats)
+                u, v = utility(inst, run.weights), utility(inst, proto.weights)
+                line += f" {proto.total:.2f} ({proto.iterations}) | {abs(u - v) / abs(u):.0e} |"
+            print(line, flush=True)
+    print("other = validation and alignment, cvxpy's work around the solver call, numpy verification and the result "
+          "(attribution, tables); cpu = CPU seconds of this process")
 
 
 def parse_sizes(text: str) -> list[tuple[int, int]]:
@@ -465,6 +518,7 @@ def main() -> None:
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--no-profile", action="store_true")
     parser.add_argument("--no-prototype", action="store_true")
+    parser.add_argument("--dpp", action="store_true", help="also time cvxpy Parameters (slow: tens of seconds)")
     parser.add_argument("--grid", action="store_true", help="only the N × K table for docs/performance.md")
     args = parser.parse_args()
     print(f"cvxpy {cp.__version__}, Clarabel {clarabel.__version__}, numpy {np.__version__}; "
@@ -473,10 +527,10 @@ def main() -> None:
     trimtab_rebalance(warm)  # imports and first-call costs outside the timings
     straightforward(warm)
     if args.grid:
-        grid(args.repeats)
+        grid(args.repeats, not args.no_prototype)
         return
     for n, k in [(1_000, 20)] if args.quick else parse_sizes(args.sizes):
-        compare(speed_instance(n, k, seed=n + k), args.repeats, not args.no_prototype, not args.no_profile)
+        compare(speed_instance(n, k, seed=n + k), args.repeats, not args.no_prototype, not args.no_profile, args.dpp)
 
 
 if __name__ == "__main__":
