@@ -200,3 +200,128 @@ def test_quiet_prints_nothing_and_warnings_are_one_line_each(work: Path) -> None
     assert len(warnings) == 1 and warnings[0].startswith("trimtab: warning: fit_time_series: dropped 1 of 600 assets")
     document = json.loads(result.stdout)  # stdout stays pure JSON
     assert list(document["dropped"]) == [dropped]
+
+
+# ---------------------------------------------------------------------- rebalance, compare, demo
+def test_rebalance_writes_a_complete_folder(work: Path) -> None:
+    result = invoke("rebalance", work / "base.yaml", "--out", work / "out")
+    assert result.exit_code == 0, result.output
+    written = {p.name for p in (work / "out").iterdir()}
+    assert {"scenario.yaml", "trades.csv", "constraints.csv", "result.json", "report.html", "alignment.csv", MARKER} <= written
+    assert "Rebalance: status optimal" in result.stdout
+    assert f"files to {work / 'out'}" in result.stdout
+    # scenario.yaml is the merged scenario that ran, and it loads again
+    from trimtab.scenario import load_scenario
+
+    assert load_scenario(work / "out" / "scenario.yaml").rebalance_mapping() == load_scenario(work / "base.yaml").rebalance_mapping()
+    # the trades recompute the one-way turnover cap of base.yaml: ½·Σ|trade| ≤ 0.25 (+ the verification tolerance)
+    import pandas as pd
+
+    trades = pd.read_csv(work / "out" / "trades.csv")
+    assert 0.5 * trades["trade"].abs().sum() <= 0.25 + 1e-6
+    # --json: one document with the documented report inside
+    result = invoke("--json", "rebalance", work / "low_turnover.yaml", "--out", work / "out2")
+    document = json.loads(result.stdout)
+    assert document["status"] == "solved" and document["report"]["kind"] == "rebalance"
+    # the default folder is results/<name> next to the scenario
+    assert invoke("--quiet", "rebalance", work / "low_turnover.yaml").exit_code == 0
+    assert (work / "results" / "low_turnover" / "report.html").exists()
+
+
+def test_rebalance_infeasible_exits_1_with_the_relaxation_table(work: Path) -> None:
+    result = invoke("rebalance", work / "infeasible.yaml", "--out", work / "out")
+    assert result.exit_code == 1
+    assert "how far each conflicting limit must move" in result.stdout
+    assert "turnover" in result.stdout
+    one_error_line(result, r"infeasible\.yaml: infeasible: these limits conflict: turnover")
+    assert not (work / "out").exists()  # nothing written
+    result = invoke("--json", "rebalance", work / "infeasible.yaml")
+    assert result.exit_code == 1
+    document = json.loads(result.stdout)
+    assert document["status"] == "infeasible"
+    assert document["relaxation"][0]["constraint"] == "turnover"
+
+
+def test_rebalance_bad_limits_exit_2(work: Path) -> None:
+    (work / "bad.yaml").write_text("extends: base.yaml\nconstraints:\n  turnover: {max: a lot}\n", encoding="utf-8")
+    result = invoke("rebalance", work / "bad.yaml")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"bad\.yaml: constraints\.turnover\.max: expected a number, got 'a lot'")
+    (work / "bad2.yaml").write_text("extends: base.yaml\nconstraints:\n  factor_exposure: {bounds: {sizee: [0, 0]}}\n", encoding="utf-8")
+    for command in ("check", "rebalance"):  # check builds the problem, so it finds what rebalance finds
+        result = invoke(command, work / "bad2.yaml")
+        assert result.exit_code == EXIT_BAD_INPUT
+        one_error_line(result, r"bad2\.yaml: constraints\.factor_exposure\.bounds: unknown factor\(s\) sizee; the model has: market, size")
+    assert not (work / "results" / "bad2").exists()
+    (work / "bad3.yaml").write_text("extends: base.yaml\nconstraints:\n  group: {by: sector, bounds: {default: [0, 1]}}\n", encoding="utf-8")
+    result = invoke("check", work / "bad3.yaml")
+    one_error_line(result, r"bad3\.yaml: constraints\.group\.by: needs the attribute column 'sector' \(columns: industry, price")
+
+
+def test_solver_failure_exits_3(work: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Every solver failing cannot be provoked reliably with honest data, so the optimizer is
+    # replaced by one that raises what the real one raises then (trimtab.errors.SolverError).
+    import trimtab.construct
+    from trimtab.errors import SolverError
+
+    def failing(*args: object, **kwargs: object) -> None:
+        raise SolverError("rebalance: CLARABEL and SCS failed (status numerical error)")
+
+    monkeypatch.setattr(trimtab.construct, "rebalance", failing)
+    result = invoke("rebalance", work / "base.yaml", "--out", work / "out")
+    assert result.exit_code == 3
+    one_error_line(result, r"rebalance: CLARABEL and SCS failed")
+    assert not (work / "out").exists()
+    result = invoke("compare", work / "base.yaml", work / "low_turnover.yaml", "--out", work / "cmp")
+    assert result.exit_code == 3
+
+
+def test_compare(work: Path) -> None:
+    result = invoke("compare", work / "base.yaml", work / "low_turnover.yaml", "--out", work / "cmp")
+    assert result.exit_code == 0, result.output
+    assert "base" in result.stdout and "low_turnover" in result.stdout
+    import pandas as pd
+
+    table = pd.read_csv(work / "cmp" / "comparison.csv", index_col=0)
+    assert list(table.columns) == ["base", "low_turnover"]
+    assert table.loc["status"].tolist() == ["solved", "solved"]
+    assert {"report.html", "base", "low_turnover"} <= {p.name for p in (work / "cmp").iterdir()}
+    # with the infeasible one: the others still run and are written, exit 1
+    result = invoke("compare", work / "base.yaml", work / "infeasible.yaml", "--out", work / "cmp")
+    assert result.exit_code == 1
+    one_error_line(result, r"1 of 2 scenarios infeasible: infeasible")
+    assert (work / "cmp" / "infeasible" / "relaxation.csv").exists()
+    result = invoke("compare", work / "base.yaml", work / "base.yaml")
+    one_error_line(result, r"compare: scenario names must differ; base appears twice")
+
+
+def test_demo_small(tmp_path: Path) -> None:
+    result = invoke("demo", "--out", tmp_path / "demo", "--n-assets", "600", "--seed", "3")
+    assert result.exit_code == 0, result.output
+    for text in ("today's book", "base", "neutral_size_momentum", "low_turnover", "infeasible is impossible on purpose", "Done in"):
+        assert text in result.stdout
+    root = tmp_path / "demo"
+    assert (root / "results" / "base" / "report.html").exists()
+    assert (root / "results" / "compare" / "report.html").exists()
+    assert (root / "model" / "manifest.json").exists()
+    # the demo's scenarios run again from the folder it wrote
+    assert invoke("--quiet", "check", root / "neutral_size_momentum.yaml").exit_code == 0
+    # a second run replaces the folder it wrote, but never a folder it did not write
+    foreign = tmp_path / "mine"
+    foreign.mkdir()
+    (foreign / "notes.txt").write_text("keep me", encoding="utf-8")
+    result = invoke("demo", "--out", foreign, "--n-assets", "600")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"mine: folder exists and was not written by trimtab; refusing to replace it")
+    assert (foreign / "notes.txt").read_text(encoding="utf-8") == "keep me"
+    assert invoke("demo", "--n-assets", "100").exit_code == 2  # below the documented minimum
+
+
+def test_demo_json(tmp_path: Path) -> None:
+    result = invoke("--json", "demo", "--out", tmp_path / "d", "--n-assets", "600", "--seed", "3")
+    assert result.exit_code == 0
+    document = json.loads(result.stdout)
+    statuses = {row["scenario"]: row["status"] for row in document["scenarios"]}
+    assert statuses == {"today's book": "-", "base": "solved", "neutral_size_momentum": "solved", "low_turnover": "solved", "infeasible": "infeasible"}
+    low = next(row for row in document["scenarios"] if row["scenario"] == "low_turnover")
+    assert low["turnover"] <= 0.10 + 1e-6

@@ -301,16 +301,19 @@ def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
 
     Reads the scenario (and the files it extends), the model (or fits it, when the scenario gives
     fit settings), the holdings, benchmark, alpha and attributes, aligns their asset ids to the
-    model and reports what was dropped or filled and why.
+    model, reports what was dropped or filled and why, and builds the optimizer's problem, which
+    checks every limit against the model and the data (factor names, attribute columns, asset ids).
     """
     from trimtab.scenario import load_inputs, load_scenario
-    from trimtab.scenario._run import describe
+    from trimtab.scenario._run import build, describe
 
     ui = _ui(ctx)
     with ui.progress() as step:
         step("reading the scenario")
         loaded = load_scenario(scenario)
         inputs = load_inputs(loaded, step=step)
+        step("checking the limits against the model and the data")
+        build(inputs)
     document = describe(inputs)
     ui.emit({**document, "status": "ok"})
     if not ui.chatty:
@@ -692,6 +695,18 @@ def _demo_rows(pre_trade: Any, base: Any, runs: Sequence[Any]) -> list[dict[str,
 # ---------------------------------------------------------------------- registration, in the order of --help
 for _command in (demo, check, fit, risk, rebalance, compare):
     app.command()(_command)
+
+
+def _register_run_commands() -> None:
+    """sweep, frontier and backtest come from :mod:`trimtab.runs` (when that part is installed)."""
+    try:
+        from trimtab.runs._commands import register
+    except ImportError:
+        return
+    register(app)
+
+
+_register_run_commands()
 
 
 # ---------------------------------------------------------------------- entry point

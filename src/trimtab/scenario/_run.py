@@ -59,11 +59,22 @@ def input_files(inputs: ScenarioInputs) -> list[Path]:
     return files
 
 
+def build(inputs: ScenarioInputs) -> Any:
+    """The optimizer's problem for one scenario, checked against the model and the data (not solved).
+
+    Messages about the scenario's keys name the scenario file.
+    """
+    build_problem = require("trimtab.construct", "build_problem")
+    return build_problem(
+        inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path), **inputs.rebalance_kwargs()
+    )
+
+
 def solve(inputs: ScenarioInputs) -> ScenarioRun:
     """Rebalance one scenario; an infeasible problem or a solver failure is kept, not raised."""
-    rebalance = require("trimtab.construct", "rebalance")
+    problem = build(inputs)
     try:
-        result = rebalance(inputs.model, inputs.scenario.rebalance_mapping(), **inputs.rebalance_kwargs())
+        result = problem.solve()
     except (InfeasibleError, SolverError) as err:
         return ScenarioRun(inputs, error=err)
     return ScenarioRun(inputs, result=result)
