@@ -258,3 +258,20 @@ def test_bad_tables(market: Market) -> None:
         backtest(market.returns, market.alpha, {"base": {"constraints": {}}}, window=250, frequency=5)
     with pytest.raises(InputError, match=r"backtest: scenarios must be a non-empty mapping"):
         backtest(market.returns, market.alpha, {}, window=250, frequency=5)
+
+
+def test_with_the_real_optimizer_every_limit_holds_on_each_dates_model(market: Market) -> None:
+    """trimtab.rebalance inside the walk: the TE budget and the turnover cap, recomputed here from the
+    weights on the model re-fitted at each date, hold at every date."""
+    scenario = {"objective": {"maximize": "alpha"},
+                "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.05},
+                                "tracking_error": {"max": 0.02}, "turnover": {"max": 0.15}}}
+    result = backtest(market.returns, market.alpha, {"capped": scenario}, window=250, frequency=75,
+                      factor_returns=market.factors, benchmark=market.benchmark, costs=0.001)
+    history = result.history.loc["capped"]
+    assert (history["status"] == "solved").all()
+    assert (history["forecast_te"] <= 0.02 * (1 + 1e-6)).all()
+    assert (history["turnover"] <= 0.15 + 1e-7).all()
+    weights = result.weights["capped"]
+    assert (weights.to_numpy() >= -1e-8).all() and (weights.to_numpy() <= 0.05 + 1e-8).all()
+    np.testing.assert_allclose(weights.sum(axis=1), 1.0, atol=1e-8)
