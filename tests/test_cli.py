@@ -259,7 +259,7 @@ def test_rebalance_bad_limits_exit_2(work: Path) -> None:
 
 
 def test_solver_failure_exits_3(work: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    # Every solver failing cannot be provoked reliably with honest data, so the optimizer is
+    # Every solver failing cannot be provoked reliably with honest data, so the problem's solve is
     # replaced by one that raises what the real one raises then (trimtab.errors.SolverError).
     import trimtab.construct
     from trimtab.errors import SolverError
@@ -267,7 +267,7 @@ def test_solver_failure_exits_3(work: Path, monkeypatch: pytest.MonkeyPatch) -> 
     def failing(*args: object, **kwargs: object) -> None:
         raise SolverError("rebalance: CLARABEL and SCS failed (status numerical error)")
 
-    monkeypatch.setattr(trimtab.construct, "rebalance", failing)
+    monkeypatch.setattr(trimtab.construct.RebalanceProblem, "solve", failing)
     result = invoke("rebalance", work / "base.yaml", "--out", work / "out")
     assert result.exit_code == 3
     one_error_line(result, r"rebalance: CLARABEL and SCS failed")
