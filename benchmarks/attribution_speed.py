@@ -13,6 +13,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import statistics
 import sys
 import tempfile
@@ -46,7 +47,8 @@ def random_model(n_assets: int, n_factors: int, seed: int = 0) -> FactorModel:
     )
 
 
-def timed(fn: Any, repeats: int = 3) -> tuple[float, Any]:
+def timed(fn: Any, repeats: int = 5) -> tuple[float, Any]:
+    """Median wall time of ``repeats`` calls (the 2 cores are shared, so single calls are noisy)."""
     times, out = [], None
     for _ in range(repeats):
         start = time.perf_counter()
@@ -162,6 +164,7 @@ def html_benchmark(n_assets: int, n_factors: int) -> None:
 
 
 def main() -> int:
+    print(f"load average at start: {', '.join(f'{v:.2f}' for v in os.getloadavg())} (2 cores, shared)")
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="smaller sizes, for a smoke run")
     args = parser.parse_args()

@@ -111,7 +111,10 @@ def attribute(
     ppy = model.periods_per_year
     active = w if b is None else w - b
 
-    x = B.T @ active
+    # One pass over B per weight vector: Bᵀw and Bᵀb, then x = Bᵀw − Bᵀb (B is the large array).
+    exposure_w = B.T @ w
+    exposure_b = B.T @ b if b is not None else None
+    x = exposure_w if exposure_b is None else exposure_w - exposure_b
     Fx = F @ x
     # xᵀFx can come out a hair below zero for a singular PSD F; the variance is clipped, not the terms.
     factor_var = max(float(x @ Fx), 0.0) * ppy
@@ -156,8 +159,8 @@ def attribute(
     by_asset["specific_contribution"] = asset_specific
     by_asset.index.name = "asset"
 
-    portfolio_exposure = B.T @ w if b is not None else x
-    benchmark_exposure = B.T @ b if b is not None else np.zeros(model.n_factors)
+    portfolio_exposure = exposure_w
+    benchmark_exposure = exposure_b if exposure_b is not None else np.zeros(model.n_factors)
     by_factor = pd.DataFrame(
         {
             "group": [groups[f] for f in factors],
@@ -177,11 +180,11 @@ def attribute(
     portfolio_risk = risk
     benchmark_risk = None
     beta = None
-    if b is not None:
-        portfolio_risk = float(np.sqrt(max(_quadratic(B, F, d, w, w), 0.0) * ppy))
-        bench_var = _quadratic(B, F, d, b, b)
+    if b is not None and exposure_b is not None:
+        portfolio_risk = float(np.sqrt(max(_quadratic(F, d, exposure_w, exposure_w, w, w), 0.0) * ppy))
+        bench_var = _quadratic(F, d, exposure_b, exposure_b, b, b)
         benchmark_risk = float(np.sqrt(max(bench_var, 0.0) * ppy))
-        beta = _quadratic(B, F, d, w, b) / bench_var if bench_var > 0 else float("nan")
+        beta = _quadratic(F, d, exposure_w, exposure_b, w, b) / bench_var if bench_var > 0 else float("nan")
 
     return RiskAttribution(
         kind="total" if b is None else "active",
@@ -207,9 +210,11 @@ def attribute(
     )
 
 
-def _quadratic(B: np.ndarray, F: np.ndarray, d: np.ndarray, u: np.ndarray, v: np.ndarray) -> float:
-    """Per-period uᵀΣv = (Bᵀu)ᵀF(Bᵀv) + Σᵢ dᵢuᵢvᵢ."""
-    return float((B.T @ u) @ F @ (B.T @ v) + np.dot(d * u, v))
+def _quadratic(
+    F: np.ndarray, d: np.ndarray, exposure_u: np.ndarray, exposure_v: np.ndarray, u: np.ndarray, v: np.ndarray
+) -> float:
+    """Per-period uᵀΣv = (Bᵀu)ᵀF(Bᵀv) + Σᵢ dᵢuᵢvᵢ, from the exposures Bᵀu and Bᵀv."""
+    return float(exposure_u @ F @ exposure_v + np.dot(d * u, v))
 
 
 def _factor_group_labels(model: FactorModel, factor_groups: Mapping[Any, str] | None) -> dict[Any, str]:

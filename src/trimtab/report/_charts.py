@@ -49,7 +49,6 @@ def _svg(fig: Figure, salt: str) -> str:
     """Serialise to an inline <svg> element: no XML prolog, ids salted per chart, width fluid."""
     buffer = io.StringIO()
     with matplotlib.rc_context({**_STYLE, "svg.hashsalt": f"trimtab-{salt}"}):
-        fig.tight_layout()
         fig.savefig(buffer, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None})
     text = buffer.getvalue()
     text = _prefix_ids(text[text.index("<svg") :], salt)
