@@ -138,11 +138,18 @@ def test_backtest_on_the_demo(app: typer.Typer, demo) -> None:
     assert result.exit_code == 0, result.stderr
     document = json.loads(result.stdout)
     assert document["scenarios"] == ["base", "low_turnover"]
-    totals = {r["index"]: r for r in document["totals"]}
-    assert totals["low_turnover"]["mean_turnover"] <= 0.05 + 1e-7  # the scenario's one-way cap, recomputed from weights
-    assert totals["base"]["solved"] == 3
+    from trimtab.scenario import load_scenario
+
+    caps = {name: load_scenario(demo / f"{name}.yaml").spec.constraints for name in ("base", "low_turnover")}
     history = pd.read_csv(out / "history.csv", index_col=[0, 1])
-    assert (history["forecast_te"] <= 0.03 + 1e-7).all()  # base.yaml's TE budget, recomputed on each date's re-fitted model
+    totals = {r["index"]: r for r in document["totals"]}
+    assert totals["base"]["solved"] == 3 and totals["low_turnover"]["solved"] == 3
+    for name, limits in caps.items():
+        # each scenario's one-way turnover cap and TE budget, recomputed from the weights on each date's re-fitted model
+        assert (history.loc[name, "turnover"] <= limits["turnover"]["max"] + 1e-7).all()
+        assert (history.loc[name, "forecast_te"] <= limits["tracking_error"]["max"] * (1 + 1e-6)).all()
+    assert caps["low_turnover"]["turnover"]["max"] < caps["base"]["turnover"]["max"]
+    assert totals["low_turnover"]["mean_turnover"] < totals["base"]["mean_turnover"]
 
 
 @pytest.mark.parametrize(
