@@ -65,3 +65,11 @@ def test_group_band_against_budget():
                                    "group": {"by": "industry", "bounds": {"default": [0.0, 0.1]}}})
     assert {"group", "budget"} & set(table["kind"])
     assert str(err).count("→") >= 1
+
+
+def test_soft_limits_are_not_reported_as_conflicts():
+    fund = make_fund(40, 4, seed=8, drift=0.6)
+    err, table = infeasible(fund, {"fully_invested": True, "long_only": True, "weight": {"max": 0.01},
+                                   "turnover": {"max": 0.01, "soft": {"penalty": 1.0}}})
+    assert "turnover" not in set(table["constraint"])
+    assert set(table["kind"]) <= {"budget", "weight", "long_only"}

@@ -24,6 +24,8 @@ from trimtab.construct.constraints._base import Rows
 
 #: Box limits equal within this are one equality.
 _EQUAL_TOL = 0.0
+#: In the elastic re-solve a soft row's slack costs this fraction of a hard row's.
+ELASTIC_SOFT_WEIGHT = 1e-6
 
 
 class Assembly:
@@ -51,7 +53,11 @@ class Assembly:
     # ------------------------------------------------------------------ building
     def add(self, rows: Rows) -> None:
         self.rows.append(rows)
-        penalty = (1.0 / rows.scale) if self.elastic else rows.soft
+        # elastic: hard rows cost 1/scale per unit of slack; soft rows stay soft at a token price
+        if self.elastic:
+            penalty = (1.0 / rows.scale) * (ELASTIC_SOFT_WEIGHT if rows.soft is not None else 1.0)
+        else:
+            penalty = rows.soft
         if rows.box and penalty is None:
             self._box.append(rows)
             return

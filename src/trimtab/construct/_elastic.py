@@ -56,6 +56,8 @@ def relaxation_table(rows: Sequence[Rows], weights: np.ndarray) -> pd.DataFrame:
     """One line per row breached at the elastic optimum: the limit, the value needed, the move."""
     records = []
     for r in rows:
+        if r.soft is not None:
+            continue  # a soft limit may be exceeded: it never conflicts
         value = np.asarray(r.evaluate(weights), dtype=np.float64)
         over = value - r.upper
         under = r.lower - value

@@ -91,7 +91,8 @@ class Objective:
         terms: list[Any] = []
         if self.kind in ("utility", "alpha") and np.any(data.alpha):
             held = np.flatnonzero(data.alpha)
-            terms.append(data.alpha[held] @ v.w[held] - float(data.alpha @ data.bench))
+            scored = v.w if len(held) == data.n_assets else v.w[held]
+            terms.append(data.alpha[held] @ scored - float(data.alpha @ data.bench))
         if self.risk_weight > 0:
             active = self.risk_active
             variance = cp.sum_squares(v.factor_part(active)) + cp.sum_squares(v.specific_part(active))
@@ -106,7 +107,9 @@ class Objective:
         terms = []
         if self.rates.linear is not None:
             idx = np.flatnonzero(self.rates.linear)
-            if len(idx):
+            if len(idx) == self.data.n_assets:
+                terms.append(self.rates.linear @ v.traded)
+            elif len(idx):
                 terms.append(self.rates.linear[idx] @ (v.buy[idx] + v.sell[idx]))
         if self.rates.impact is not None:
             idx = np.flatnonzero(self.rates.impact)

@@ -10,6 +10,7 @@ over thousands of assets was breached by 1e-6).
 
 from __future__ import annotations
 
+import functools
 import time
 import warnings
 from collections.abc import Sequence
@@ -53,18 +54,24 @@ class Attempt:
     message: str = ""
 
 
+@functools.lru_cache(maxsize=1)
+def installed() -> frozenset[str]:
+    """cvxpy's installed solvers (asked once: the lookup imports every solver interface)."""
+    return frozenset(cp.installed_solvers())
+
+
 def solver_order(solvers: Sequence[str] | None) -> tuple[str, ...]:
     """The solvers to try, checked against what is installed."""
-    installed = set(cp.installed_solvers())
+    installed_now = installed()
     order = tuple(s.upper() for s in (solvers if solvers is not None else SOLVER_ORDER))
     if not order:
         raise InputError("rebalance: solvers must name at least one solver")
-    missing = [s for s in order if s not in installed]
+    missing = [s for s in order if s not in installed_now]
     if solvers is not None and missing:
         raise InputError(
-            f"rebalance: solvers not installed: {', '.join(missing)}; installed: {', '.join(sorted(installed))}"
+            f"rebalance: solvers not installed: {', '.join(missing)}; installed: {', '.join(sorted(installed_now))}"
         )
-    return tuple(s for s in order if s in installed)
+    return tuple(s for s in order if s in installed_now)
 
 
 def run(problem: cp.Problem, solver: str) -> Attempt:
