@@ -559,6 +559,9 @@ def compare(
     if ui.chatty:
         _print_comparison(ui, runs, table)
         ui.say(f"Wrote the comparison to {written.folder}")
+        unsolved = [r.name for r in runs if r.error is not None]
+        if unsolved:
+            ui.say(f"report.html covers the solved scenarios; {', '.join(f'{n}/relaxation.csv' for n in unsolved)} hold the rest")
     _exit_for(runs)
 
 
@@ -660,7 +663,8 @@ def demo(
         ("model/", "the fitted risk model"),
         ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
         ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),
-        ("results/compare/report.html", "the four scenarios side by side (comparison.csv, one folder each)"),
+        ("results/compare/report.html", "the solved scenarios side by side (comparison.csv and one folder each,"),
+        ("", "with infeasible/relaxation.csv for the impossible one)"),
         ("*.yaml", "the scenarios and fit configs, ready to edit and rerun"),
     ]
     width = max(len(name) for name, _ in files) + 2
