@@ -128,7 +128,7 @@ def paired_bars(
         if "pre" in table.columns:
             ax.barh(y + 0.18, _draw(table["pre"]), height=0.36, color=BEFORE, label="before")
             ax.barh(y - 0.18, _draw(table["post"]), height=0.36, color=AFTER, label="after")
-            ax.legend(loc="best", frameon=False)
+            ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.0), frameon=False, ncols=2)
         else:
             ax.barh(y, _draw(table["post"]), height=0.6, color=AFTER)
         ax.axvline(0, color="#5b636a", linewidth=0.8)
