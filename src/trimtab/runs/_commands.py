@@ -229,7 +229,7 @@ def _report_failures(table: pd.DataFrame) -> None:
 def sweep_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
-    grid: Annotated[list[str] | None, typer.Option("--grid", "-g", help="KEY=VALUES, repeatable: v1,v2,… or start:stop:count or [v1, v2]. Every combination is solved.", show_default=False)] = None,
+    grid: Annotated[list[str] | None, typer.Option("--grid", "-g", help="KEY=VALUES, repeatable: v1,v2,… or start:stop:count or a YAML list \\[v1, v2]. Every combination is solved.", show_default=False)] = None,
     grid_file: Annotated[Path | None, typer.Option("--grid-file", help="YAML: parameter → list of values, or a list of points.", show_default=False)] = None,
     out: OutOpt = None,
     executor: ExecutorOpt = None,

@@ -8,6 +8,7 @@ that raises is reported with its parameters and the error text, and the other ru
 from __future__ import annotations
 
 import concurrent.futures as cf
+import logging
 import multiprocessing
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
@@ -197,7 +198,7 @@ class DaskRunner(Executor):
         else:
             self._cluster = distributed.LocalCluster(
                 n_workers=workers or 2, threads_per_worker=1, processes=True, dashboard_address=None,
-                host="127.0.0.1",
+                host="127.0.0.1", silence_logs=logging.ERROR,  # Dask's own notices would break the one-line rule
             )
             self._client = distributed.Client(self._cluster)
         self._as_completed = distributed.as_completed
