@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from trimtab.construct import build_problem
 
@@ -56,3 +57,16 @@ def test_soft_limit_is_paid_for_not_enforced():
     assert bool(row["soft"]) and row["slack"] < 0
     # the shadow price of a soft limit is at most its penalty
     assert row["shadow_price"] <= 1e-4 + 1e-9
+
+
+def test_soft_budget_switch_form():
+    fund = make_fund(20, 3, seed=104)
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
+                "constraints": {"fully_invested": {"soft": {"penalty": 10.0}}, "long_only": True,
+                                "weight": {"max": 0.04}}}
+    result = build_problem(fund.model, scenario, **fund.kwargs()).solve()
+    # 20 assets at most 4% hold at most 80%: the soft budget gives way instead of failing, and its
+    # penalty (10 per unit short of 1) pushes the book to that 80%
+    assert result.weights.sum() == pytest.approx(0.8, abs=1e-7)
+    row = result.constraints.set_index("name").loc["fully_invested"]
+    assert bool(row["soft"]) and row["value"] == pytest.approx(0.8, abs=1e-7)
