@@ -30,12 +30,22 @@ def test_clarabel_settings_exist_in_the_installed_clarabel():
         assert hasattr(settings, key), key
 
 
-def test_falls_back_to_scs_when_clarabel_stops_early(monkeypatch):
+def test_clarabel_is_retried_with_equilibration(monkeypatch):
     fund = make_fund(30, 3, seed=91)
     monkeypatch.setitem(_solve.SOLVER_SETTINGS, "CLARABEL", {"max_iter": 2})
     result = rebalance(fund.model, SCENARIO, benchmark=fund.benchmark)
+    assert result.solver == "CLARABEL"
+    assert len(result.provenance["attempts"]) == 2
+    assert result.provenance["solver_settings"]["equilibrate_enable"] is True
+
+
+def test_falls_back_to_scs_when_clarabel_stops_early(monkeypatch):
+    fund = make_fund(30, 3, seed=91)
+    monkeypatch.setitem(_solve.SOLVER_SETTINGS, "CLARABEL", {"max_iter": 2})
+    monkeypatch.setitem(_solve.RETRY_SETTINGS, "CLARABEL", {"max_iter": 2})
+    result = rebalance(fund.model, SCENARIO, benchmark=fund.benchmark)
     assert result.solver == "SCS"
-    assert result.provenance["attempts"][0].startswith("CLARABEL:")
+    assert [a.split(":")[0] for a in result.provenance["attempts"]] == ["CLARABEL", "CLARABEL", "SCS"]
     assert result.verification["ok"].all()
 
 
@@ -43,8 +53,8 @@ def test_breach_after_every_solver_names_the_constraint(monkeypatch):
     fund = make_fund(30, 3, seed=92)
     real = _solve.run
 
-    def corrupt(problem, solver):
-        attempt = real(problem, solver)
+    def corrupt(problem, solver, settings=None):
+        attempt = real(problem, solver, settings)
         w = next(v for v in problem.variables() if v.name() == "w")
         value = np.array(w.value)
         value[4] += 0.05  # push one asset over its 6% cap

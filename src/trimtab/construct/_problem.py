@@ -169,8 +169,8 @@ class RebalanceProblem:
         rows = self.all_rows(extra)
         attempts: list[_solve.Attempt] = []
         rejected: list[str] = []
-        for solver in self.solvers:
-            attempt = _solve.run(problem, solver)
+        for solver, settings in _solve.plan(self.solvers):
+            attempt = _solve.run(problem, solver, settings)
             attempts.append(attempt)
             if attempt.status in _solve.UNBOUNDED:
                 raise SolverError(

@@ -228,7 +228,7 @@ def _provenance(problem: RebalanceProblem, outcome: Outcome) -> dict[str, Any]:
         "scenario_hash": problem.spec.scenario_hash,
         "version": __version__,
         "solver": outcome.solver,
-        "solver_settings": dict(SOLVER_SETTINGS.get(outcome.solver, {})),
+        "solver_settings": dict(outcome.attempts[-1].settings) if outcome.attempts else dict(SOLVER_SETTINGS.get(outcome.solver, {})),
         "verification_tolerance": {"absolute": ABS_TOL, "relative": REL_TOL, "objective": OBJECTIVE_TOL},
         "attempts": [f"{a.solver}: {a.status} ({a.iterations} it, {a.seconds:.3f} s)" for a in outcome.attempts],
         "notes": list(outcome.notes),
