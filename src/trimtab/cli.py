@@ -644,13 +644,13 @@ def demo(
         f"(seed {seed}); the model was fitted on {len(fund.returns):,} days of simulated returns."
     )
     ui.say(f"Today's book: tracking error {_pct(pre_trade.risk)} against its cap-weighted benchmark.")
-    table = Table(title="Demo scenarios (risk and alpha annualised)", title_justify="left", header_style="bold")
-    for col in ("scenario", "status", "tracking error", "active alpha", "one-way turnover", "names held"):
+    table = Table(title="Demo scenarios (risk and alpha annualised; cost once, % of NAV)", title_justify="left", header_style="bold")
+    for col in ("scenario", "status", "tracking error", "active alpha", "one-way turnover", "cost of trades", "names held"):
         table.add_column(col, justify="left" if col in ("scenario", "status") else "right")
     for row in rows:
         table.add_row(
             row["scenario"], row["status"], _pct(row["tracking_error"]), _pct(row["active_alpha"]),
-            _pct(row["turnover"], 1), "–" if row["names"] != row["names"] else f"{row['names']:,}",
+            _pct(row["turnover"], 1), _pct(row["cost"], 3), "–" if row["names"] != row["names"] else f"{row['names']:,}",
         )
     ui.table(table)
     for run in runs:
@@ -680,16 +680,17 @@ def _demo_rows(pre_trade: Any, base: Any, runs: Sequence[Any]) -> list[dict[str,
     active = base.holdings.reindex(base.model.assets, fill_value=0.0) - base.benchmark.reindex(base.model.assets, fill_value=0.0)
     today_alpha = float((base.alpha.reindex(base.model.assets, fill_value=0.0) * active).sum())
     names = int((base.holdings.abs() > 1e-8).sum())
-    rows = [{"scenario": "today's book", "status": "-", "tracking_error": float(pre_trade.risk), "active_alpha": today_alpha, "turnover": 0.0, "names": names}]
+    rows = [{"scenario": "today's book", "status": "-", "tracking_error": float(pre_trade.risk), "active_alpha": today_alpha, "turnover": 0.0, "cost": 0.0, "names": names}]
     nan = float("nan")
     for run in runs:
-        row: dict[str, Any] = {"scenario": run.name, "status": run.status, "tracking_error": nan, "active_alpha": nan, "turnover": nan, "names": nan}
+        row: dict[str, Any] = {"scenario": run.name, "status": run.status, "tracking_error": nan, "active_alpha": nan, "turnover": nan, "cost": nan, "names": nan}
         if run.result is not None:
             result = run.result
             row.update(
                 tracking_error=float(result.post_trade.risk),
                 active_alpha=float(result.objective["alpha"]),
                 turnover=float(result.turnover),
+                cost=-float(result.objective.get("costs", 0.0)),
                 names=int(result.n_names),
             )
         rows.append(row)

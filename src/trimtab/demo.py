@@ -210,13 +210,14 @@ def make_demo_fund(
     cap = np.exp(log_cap)
     daily_turnover = 0.004 * np.exp(rng.normal(0.0, 0.4, n_assets))
     adv = np.round(cap * daily_turnover / price, -2).clip(100.0, None)
-    spread_bps = np.clip(8.0 * (cap / 4e9) ** -0.35 * np.exp(0.2 * rng.normal(size=n_assets)), 1.0, 80.0).round(1)
+    # bid-ask spread as a fraction of the price: about 8 bp for a median stock, wider for small ones
+    spread = (np.clip(8.0 * (cap / 4e9) ** -0.35 * np.exp(0.2 * rng.normal(size=n_assets)), 1.0, 80.0) / 1e4).round(6)
     attributes = pd.DataFrame(
         {
             "industry": [industry_names[k] for k in industry],
             "price": price,
             "adv": adv,
-            "spread_bps": spread_bps,
+            "spread": spread,
             "market_cap": np.round(cap, -5).clip(1e5, None),
         },
         index=assets,
@@ -294,9 +295,10 @@ exposure_columns: [size, value, momentum, low_risk]
 industry_column: industry
 """,
     "base.yaml": """\
-# Rebalance the demo fund to a 3% tracking-error budget: maximise alpha inside the budget and the
-# mandate (long only, fully invested, position and industry bands), with a turnover cap and a
-# liquidity limit. The other demo scenarios extend this one.
+# Rebalance the demo fund to a 3% tracking-error budget: maximise alpha net of trading costs (half
+# the bid-ask spread on every trade) inside the budget and the mandate (long only, fully invested,
+# position and industry bands), with a turnover cap and a liquidity limit. The other demo
+# scenarios extend this one.
 description: Demo fund, rebalanced to a 3% tracking-error budget
 model: model
 data:
@@ -306,6 +308,7 @@ data:
   attributes: data/attributes.csv
 objective:
   maximize: alpha
+  costs: {spread: spread}
 constraints:
   fully_invested: true
   long_only: true

@@ -20,7 +20,7 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         folder/data/holdings.csv           asset, shares
         folder/data/benchmark.csv          asset, weight
         folder/data/alpha.csv              asset, alpha (annualised)
-        folder/data/attributes.csv         asset, industry, price, adv, spread_bps, market_cap
+        folder/data/attributes.csv         asset, industry, price, adv, spread, market_cap
         folder/data/characteristics.csv    asset, size, value, momentum, low_risk, industry
         folder/data/truth/                 the simulated model: exposures, factor_covariance,
                                            specific_variance (per day)
