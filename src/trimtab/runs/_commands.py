@@ -291,7 +291,10 @@ def frontier_command(
     kwargs = inputs.rebalance_kwargs()
     if kwargs.get("alpha") is None:
         raise InputError(f"{scenario}: data.alpha: the frontier needs an alpha file (expected return is αᵀ(w − b))")
-    with _executor(executor, workers, scheduler) as runner, progress_bar(2 * runner.n_workers, "frontier", quiet) as tick:
+    n_te = len(te) if te else points
+    with _executor(executor, workers, scheduler) as runner, progress_bar(
+        min(n_te, runner.n_workers) + (min(len(caps), runner.n_workers) if caps else 0), "frontier", quiet
+    ) as tick:
         result = frontier(inputs.model, inputs.scenario.rebalance_mapping(), tracking_errors=te, turnovers=caps,
                           n_points=points, executor=runner, progress=tick, **kwargs)
     target = out if out is not None else _default_out(inputs.scenario, "frontier")
