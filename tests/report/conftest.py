@@ -63,8 +63,17 @@ def stand_in(model: FactorModel, seed: int = 0, te_cap: float = 0.03, shrink: fl
         }
     )
     trades.index.name = "asset"
-    pre = attribute(model, initial, benchmark)
-    post = attribute(model, target, benchmark)
+    sectors = ["energy", "health", "retail", "banks", "software"]
+    attributes = pd.DataFrame(
+        {
+            "sector": [sectors[i % 5] for i in range(len(assets))],
+            "country": ["north" if i % 3 else "south" for i in range(len(assets))],
+            "price": price,
+        },
+        index=assets,
+    )
+    pre = attribute(model, initial, benchmark, attributes=attributes)
+    post = attribute(model, target, benchmark, attributes=attributes)
     constraints = pd.DataFrame(
         {
             "name": ["fully_invested", "tracking_error", "turnover", "weight_max"],
@@ -97,7 +106,8 @@ def stand_in(model: FactorModel, seed: int = 0, te_cap: float = 0.03, shrink: fl
         post_trade=post,
         provenance={"scenario_hash": "ab12cd34", "model": "invented demo model", "version": "test"},
         scenario={"objective": {"maximize": "utility", "risk_aversion": 10},
-                  "constraints": {"tracking_error": {"max": te_cap}}},
+                  "constraints": {"tracking_error": {"max": te_cap},
+                                  "group": [{"by": "country", "active": True, "bounds": {"default": [-0.1, 0.1]}}]}},
     )
 
 

@@ -48,6 +48,20 @@ def test_rebalance_content(result: StandInResult) -> None:
     assert content.groups["post"].sum() == pytest.approx(result.post_trade.risk, rel=1e-12)
 
 
+def test_attribute_groupings(result: StandInResult) -> None:
+    content = gather(result)
+    # The scenario's group limit names country, so it comes first; price is numeric and not a grouping.
+    assert list(content.asset_groups) == ["country", "sector"]
+    sector = content.asset_groups["sector"]
+    assert list(sector.columns) == ["pre", "post", "percent", "active_weight"]
+    assert sector["post"].sum() == pytest.approx(result.post_trade.risk, rel=1e-12)
+    assert sector["pre"].sum() == pytest.approx(result.pre_trade.risk, rel=1e-12)
+    assert sector["post"].abs().is_monotonic_decreasing
+    assert gather(result.post_trade).asset_groups.keys() == {"country", "sector"}
+    bare = dataclasses.replace(result, post_trade=attribute(result.post_trade.model, result.weights, result.benchmark))
+    assert gather(bare).asset_groups == {}
+
+
 def test_changes_below_rounding_show_as_zero(result: StandInResult) -> None:
     # The stand-in scales the active weights, so the diversification ratio is unchanged up to rounding.
     content = gather(result)

@@ -21,7 +21,8 @@ from .conftest import StandInResult
 def test_tables_round_trip_through_csv_and_parquet(result: StandInResult, tmp_path: Path) -> None:
     written = write_tables(result, tmp_path / "out")
     names = {p.name for p in written}
-    for stem in ("headline", "trades", "constraints", "post_trade_by_asset", "pre_trade_by_factor", "objective"):
+    for stem in ("headline", "trades", "constraints", "post_trade_by_asset", "pre_trade_by_factor", "objective",
+                 "post_trade_by_sector", "pre_trade_by_country"):
         assert {f"{stem}.csv", f"{stem}.parquet"} <= names
     # Read back with pyarrow (parquet) and pandas' CSV reader.
     by_asset = pd.read_parquet(tmp_path / "out" / "post_trade_by_asset.parquet")
@@ -80,6 +81,8 @@ def test_json_document_matches_its_schema(result: StandInResult, report_model: F
     assert sum(row["contribution"] for row in post["by_asset"]) == pytest.approx(result.post_trade.risk, abs=1e-12)
     assert post["figures"]["risk"] == result.post_trade.risk
     assert len(document["trades"]) == len(result.trades)
+    by_sector = post["by_attribute"]["sector"]
+    assert sum(row["contribution"] for row in by_sector) == pytest.approx(result.post_trade.risk, abs=1e-12)
 
     zero = attribute(report_model, pd.Series({"A0001": 0.5}), pd.Series({"A0001": 0.5}))
     text = write_json(zero, tmp_path / "zero.json").read_text(encoding="utf-8")

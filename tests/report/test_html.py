@@ -33,11 +33,13 @@ def test_report_parses_and_has_its_parts(result: StandInResult, tmp_path: Path) 
     tree = parse_strict(text)
     assert tree.find(".//title").text == "Rebalance: test fund"
     charts = tree.findall(f".//{SVG}")
-    assert len(charts) == 5  # risk budget, factor/specific, exposures, groups, positions
+    # risk budget, factor/specific, exposures, factor groups, country, sector, positions
+    assert len(charts) == 7
     assert text.count(CAUTION.replace("'", "&#x27;")) == 2
     headings = [h.text for h in tree.iter("h2")]
     for expected in ("Headline figures", "Risk budget", "Factor and specific risk", "Active factor exposures",
-                     "Risk contribution by factor group", "Largest risk contributions by position", "Trades",
+                     "Risk contribution by factor group", "Risk contribution by country",
+                     "Risk contribution by sector", "Largest risk contributions by position", "Trades",
                      "Constraints", "Objective", "Provenance"):
         assert expected in headings
     assert format_figure(result.post_trade.risk, "fraction") in text
@@ -56,7 +58,7 @@ def test_report_parses_and_has_its_parts(result: StandInResult, tmp_path: Path) 
 def test_many_scenarios_and_attribution_only(result: StandInResult, report_model: FactorModel) -> None:
     text = render_html({"tight": result, "loose": stand_in(report_model, seed=3, shrink=0.2)}, title="What-if")
     tree = parse_strict(text)
-    assert len(tree.findall(f".//{SVG}")) == 10
+    assert len(tree.findall(f".//{SVG}")) == 14
     assert [h.text for h in tree.iter("h2")][:3] == ["Scenarios side by side", "Scenario: tight", "Scenario: loose"]
     ids = [e.get("id") for e in tree.iter() if e.get("id")]
     assert len(ids) == len(set(ids))

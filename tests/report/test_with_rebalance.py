@@ -58,7 +58,7 @@ def test_real_result_through_every_writer(solved: tuple, tmp_path: Path) -> None
 
     page = write_html({"tight": tight, "loose": loose}, tmp_path / "report.html").read_text(encoding="utf-8")
     tree = html5lib.HTMLParser(strict=True, namespaceHTMLElements=False).parse(page)
-    assert len(tree.findall(f".//{SVG}")) == 10
+    assert len(tree.findall(f".//{SVG}")) == 10  # no text attributes here: no attribute sections
     one = write_html(tight, tmp_path / "one.html").read_text(encoding="utf-8")
     assert "Constraints" in one and "Of daily volume" in one
 

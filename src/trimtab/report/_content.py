@@ -33,6 +33,11 @@ CAUTION = (
 #: Constraint names (or kinds) read as the risk budget, in order of preference.
 RISK_BUDGET_NAMES = ("tracking_error", "active_risk", "total_risk")
 
+#: At most this many asset attributes (sector, country, …) get a section of their own.
+MAX_GROUPINGS = 2
+#: An attribute is a grouping when it is text with between 2 and this many distinct labels.
+MAX_GROUP_LABELS = 40
+
 #: Trades no larger than this (a fraction of NAV) are solver noise and not counted as trades.
 TRADE_TOLERANCE = 1e-8
 
@@ -63,6 +68,7 @@ class ReportContent:
     exposures: pd.DataFrame
     contributions: pd.DataFrame
     groups: pd.DataFrame
+    asset_groups: dict[str, pd.DataFrame]
     split: pd.DataFrame
     top_assets: pd.DataFrame
     run: dict[str, Any] = field(default_factory=dict)
@@ -120,6 +126,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         exposures=_exposures(pre, post),
         contributions=_contributions(pre, post),
         groups=_groups(pre, post),
+        asset_groups=_asset_groups(pre, post, scenario),
         split=_split(pre, post),
         top_assets=post.top_assets(top),
         run=_run(subject),
@@ -166,6 +173,7 @@ def _attribution_content(attr: RiskAttribution, top: int) -> ReportContent:
         exposures=_exposures(None, attr),
         contributions=_contributions(None, attr),
         groups=_groups(None, attr),
+        asset_groups=_asset_groups(None, attr, {}),
         split=_split(None, attr),
         top_assets=attr.top_assets(top),
         provenance=_plain_mapping(getattr(attr.model, "provenance", None)),
@@ -204,6 +212,49 @@ def _groups(pre: RiskAttribution | None, post: RiskAttribution) -> pd.DataFrame:
         table.insert(0, "pre", pre.by_factor_group["contribution"])
     table.index.name = "group"
     return table
+
+
+def group_columns(attr: RiskAttribution, scenario: Mapping[str, Any] | None = None) -> list[str]:
+    """Asset attributes to sum contributions by: those the scenario's group limits name first, then
+    other text columns with 2 to :data:`MAX_GROUP_LABELS` labels; at most :data:`MAX_GROUPINGS`."""
+    attributes = attr.attributes
+    if attributes is None:
+        return []
+    named: list[str] = []
+    section = (scenario or {}).get("constraints", {})
+    entries = section.get("group") if isinstance(section, Mapping) else None
+    for entry in entries if isinstance(entries, list) else [entries]:
+        if isinstance(entry, Mapping) and isinstance(entry.get("by"), str):
+            named.append(entry["by"])
+    candidates = named + [c for c in attributes.columns if c not in named]
+    out: list[str] = []
+    for column in candidates:
+        if column not in attributes.columns or not isinstance(column, str):
+            continue
+        values = attributes[column]
+        if pd.api.types.is_numeric_dtype(values) or pd.api.types.is_bool_dtype(values):
+            continue
+        if 2 <= values.nunique(dropna=True) <= MAX_GROUP_LABELS:
+            out.append(column)
+        if len(out) == MAX_GROUPINGS:
+            break
+    return out
+
+
+def _asset_groups(
+    pre: RiskAttribution | None, post: RiskAttribution, scenario: Mapping[str, Any]
+) -> dict[str, pd.DataFrame]:
+    """Contribution to risk by each grouping attribute: columns pre (when known), post, weight, percent."""
+    out = {}
+    for column in group_columns(post, scenario):
+        after = post.by_group(column)
+        weight = "active_weight" if "active_weight" in after.columns else "weight"
+        table = pd.DataFrame({"post": after["contribution"], "percent": after["percent"], weight: after[weight]})
+        if pre is not None and pre.attributes is not None and column in pre.attributes.columns:
+            table.insert(0, "pre", pre.by_group(column)["contribution"].reindex(table.index))
+        order = table["post"].abs().sort_values(ascending=False, kind="stable").index
+        out[column] = table.loc[order]
+    return out
 
 
 def _split(pre: RiskAttribution | None, post: RiskAttribution) -> pd.DataFrame:

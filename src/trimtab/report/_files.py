@@ -21,7 +21,7 @@ from trimtab._validation import list_labels
 from trimtab._version import __version__
 from trimtab.attribution import RiskAttribution
 from trimtab.errors import InputError
-from trimtab.report._content import CAUTION, gather
+from trimtab.report._content import CAUTION, gather, group_columns
 
 #: Version of the JSON document layout described in docs/outputs.md.
 SCHEMA_VERSION = "1.0"
@@ -71,6 +71,8 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         tables[f"{stem}_by_factor"] = attr.by_factor
         tables[f"{stem}_by_factor_group"] = attr.by_factor_group
         tables[f"{stem}_by_asset"] = attr.by_asset
+        for column in group_columns(attr, content.scenario):
+            tables[f"{stem}_by_{_stem(column)}"] = attr.by_group(column)
     if content.trades is not None:
         tables["trades"] = content.trades
     if content.trade_summary is not None:
@@ -137,6 +139,11 @@ def write_tables(
     return written
 
 
+def _stem(label: str) -> str:
+    """A file-name-safe version of an attribute name."""
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in label.lower())
+
+
 def _parquet_ready(table: pd.DataFrame) -> pd.DataFrame:
     """Object columns of mixed types become strings, so Parquet's typed columns accept them."""
     out = table.copy()
@@ -166,8 +173,8 @@ def report_document(subject: Any) -> dict[str, Any]:
         else {"name": budget.name, "cap": budget.cap, "pre": budget.pre, "post": budget.post, "used": budget.used},
         "headline": _records(content.headline, "figure"),
         "attribution": {
-            "pre_trade": _attribution_document(content.pre),
-            "post_trade": _attribution_document(content.post),
+            "pre_trade": _attribution_document(content.pre, content.scenario),
+            "post_trade": _attribution_document(content.post, content.scenario),
         },
         "trades": _records(content.trades, "asset"),
         "trade_summary": _records(content.trade_summary, None),
@@ -202,7 +209,7 @@ def write_json(subject: Any, path: str | Path) -> Path:
     return atomic_write_text(Path(path), text + "\n")
 
 
-def _attribution_document(attr: RiskAttribution | None) -> dict[str, Any] | None:
+def _attribution_document(attr: RiskAttribution | None, scenario: Mapping[str, Any]) -> dict[str, Any] | None:
     if attr is None:
         return None
     return {
@@ -213,6 +220,7 @@ def _attribution_document(attr: RiskAttribution | None) -> dict[str, Any] | None
         "by_factor": _records(attr.by_factor, "factor"),
         "by_factor_group": _records(attr.by_factor_group, "group"),
         "by_asset": _records(attr.by_asset, "asset"),
+        "by_attribute": {column: _records(attr.by_group(column), "group") for column in group_columns(attr, scenario)},
     }
 
 

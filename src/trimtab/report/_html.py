@@ -161,6 +161,22 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
             "The groups and the specific row add up to the risk.",
         )
     )
+    for column, table in content.asset_groups.items():
+        label = column.replace("_", " ")
+        units = {"pre": "bp", "post": "bp", "percent": "percent", "active_weight": "fraction", "weight": "fraction"}
+        parts.append(
+            f"<{h}>Risk contribution by {_e(label)}</{h}>"
+            + _figure(
+                _charts.paired_bars(table, xlabel="contribution to risk", salt=f"{key}-by-{column}", percent=True,
+                                    max_rows=top),
+                f"Sum of the position contributions in each {label} group; all groups add up to the risk.",
+            )
+            + _table(table.head(max(top, 15)), units, label.capitalize(),
+                     headers={"pre": "before (bp)", "post": "after (bp)" if "pre" in table.columns else "contribution (bp)",
+                              "percent": "percent (after)" if "pre" in table.columns else "percent",
+                              "active_weight": "active weight (after)" if "pre" in table.columns else "active weight",
+                              "weight": "weight (after)" if "pre" in table.columns else "weight"})
+        )
     weight_units = {k: v for k, v in _ASSET_UNITS.items() if k in content.top_assets.columns}
     top_assets = content.top_assets.head(top)
     parts.append(

@@ -21,7 +21,9 @@ def _rows(*required: str, nullable: bool = False) -> dict[str, Any]:
 
 _ATTRIBUTION = {
     "type": ["object", "null"],
-    "required": ["kind", "periods_per_year", "is_zero_risk", "figures", "by_factor", "by_factor_group", "by_asset"],
+    "required": [
+        "kind", "periods_per_year", "is_zero_risk", "figures", "by_factor", "by_factor_group", "by_asset", "by_attribute",
+    ],
     "properties": {
         "kind": {"enum": ["total", "active"]},
         "periods_per_year": {"type": "number", "exclusiveMinimum": 0},
@@ -40,6 +42,10 @@ _ATTRIBUTION = {
             "asset", "weight", "marginal_contribution", "contribution", "percent",
             "factor_contribution", "specific_contribution",
         ),
+        "by_attribute": {
+            "type": "object",
+            "additionalProperties": _rows("group", "n_assets", "contribution", "percent"),
+        },
     },
 }
 

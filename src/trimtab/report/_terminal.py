@@ -147,6 +147,17 @@ def _print_body(out: Console, content: ReportContent, top: int) -> None:
         groups.add_row(str(name), *[format_figure(v, "fraction") for v in row])
     out.print(groups)
 
+    for column, frame in content.asset_groups.items():
+        table = Table(title=f"Contribution by {column.replace('_', ' ')}", title_justify="left")
+        table.add_column(column.replace("_", " "))
+        shown = [c for c in ("pre", "post", "percent") if c in frame.columns]
+        for c in shown:
+            table.add_column({"pre": "before", "post": "after" if "pre" in frame else "contribution",
+                              "percent": "percent"}[c], justify="right")
+        for name, row in frame.head(top).iterrows():
+            table.add_row(str(name), *[format_figure(row[c], "percent" if c == "percent" else "fraction") for c in shown])
+        out.print(table)
+
     assets = content.top_assets.head(top)
     weight = "active_weight" if "active_weight" in assets.columns else "weight"
     table = Table(title=f"Top {len(assets)} risk contributors" + (" (after)" if content.pre is not None else ""),
