@@ -275,3 +275,37 @@ def test_with_the_real_optimizer_every_limit_holds_on_each_dates_model(market: M
     weights = result.weights["capped"]
     assert (weights.to_numpy() >= -1e-8).all() and (weights.to_numpy() <= 0.05 + 1e-8).all()
     np.testing.assert_allclose(weights.sum(axis=1), 1.0, atol=1e-8)
+
+
+def test_benchmark_by_date_is_read_as_of_each_date(market: Market) -> None:
+    """A benchmark table by date: each decision uses the latest row dated ≤ its date. With the
+    closed-form optimizer w = b + a and a does not depend on b, so w − bₜ must equal the static run's."""
+    static = run(market, frequency=60)
+    dates = static.settings["rebalance_dates"]
+    rng = np.random.default_rng(21)
+    second = pd.Series(rng.dirichlet(np.ones(len(market.benchmark))), index=market.benchmark.index)
+    change = market.returns.index[market.returns.index.get_loc(dates[2]) - 3]  # a row between two rebalances
+    table = pd.DataFrame([market.benchmark, second], index=[market.returns.index[0], change])
+    moving = run(market, frequency=60, benchmark=table)
+    for k, date in enumerate(dates):
+        row = market.benchmark if k < 2 else second
+        np.testing.assert_allclose((moving.weights["base"].loc[date] - row).to_numpy(),
+                                   (static.weights["base"].loc[date] - market.benchmark).to_numpy(), atol=1e-12)
+
+
+def test_positions_the_fit_drops_are_sold(market: Market) -> None:
+    returns = market.returns.copy()
+    returns.iloc[:400, 0] = np.nan  # S000 has no returns in the first windows: the fit drops it
+    start = market.benchmark.copy()
+    start.iloc[0] += 0.05
+    start.iloc[1] -= 0.05
+    result = backtest(returns, market.alpha, {"base": SCENARIO}, window=250, frequency=100, factor_returns=market.factors,
+                      benchmark=market.benchmark, initial_holdings=start, rebalance=closed_form_rebalance)
+    history = result.history.loc["base"]
+    assert history["n_dropped"].iloc[0] == 1
+    first = result.weights["base"].iloc[0]
+    assert first.get("S000", 0.0) == 0.0
+    sold = start.iloc[0]
+    bought = (first - start.drop("S000")).abs().sum()
+    assert history["turnover"].iloc[0] == pytest.approx(0.5 * (sold + bought), rel=1e-12)
+    assert history["n_dropped"].iloc[-1] == 0  # later windows see S000's returns again
