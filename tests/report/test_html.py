@@ -88,6 +88,13 @@ def test_zero_risk_report_renders_without_warnings(report_model: FactorModel) ->
     assert "zero risk" in text and parse_strict(text) is not None
 
 
+def test_text_is_escaped(report_model: FactorModel) -> None:
+    attr = attribute(report_model, pd.Series({"A0001": 1.0}))
+    text = render_html(attr, title="Fund <A> & 'B'")
+    tree = parse_strict(text)
+    assert tree.find(".//title").text == "Fund <A> & 'B'" and tree.find(".//h1").text == "Fund <A> & 'B'"
+
+
 def test_bad_subject(tmp_path: Path) -> None:
     with pytest.raises(InputError, match=r"report: expected a RiskAttribution or a rebalance result"):
         write_html(object(), tmp_path / "x.html")
