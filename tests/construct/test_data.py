@@ -156,3 +156,12 @@ def test_constraints_needing_missing_inputs(small):
         build_problem(small.model, {"objective": {"minimize": "total_risk", "costs": True}}, attributes=gaps)
     with pytest.raises(ScenarioError, match=r"objective\.costs\.spread: needs the attribute column 'spread' \(no attributes given\)"):
         build_problem(small.model, {"objective": {"minimize": "total_risk", "costs": True}})
+
+
+def test_update_keeps_the_unknown_asset_policy(small):
+    problem = build_problem(small.model, MIN_ACTIVE, holdings=small.holdings, benchmark=small.benchmark,
+                            unknown_assets="drop")
+    drifted = pd.concat([small.holdings * 0.9, pd.Series({"NEWCO": 0.1})])
+    with pytest.warns(DataWarning, match=r"holdings: 1 assets not in the risk model dropped: NEWCO"):
+        changed = problem.update(holdings=drifted)
+    assert changed.unknown_assets == "drop"

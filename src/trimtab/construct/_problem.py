@@ -59,9 +59,11 @@ class RebalanceProblem:
         One object per convex constraint key, in scenario order.
     """
 
-    def __init__(self, spec: RebalanceSpec, data: ProblemData, solvers: Sequence[str] | None = None) -> None:
+    def __init__(self, spec: RebalanceSpec, data: ProblemData, solvers: Sequence[str] | None = None,
+                 unknown_assets: str = "error") -> None:
         self.spec = spec
         self.data = data
+        self.unknown_assets = unknown_assets
         self.solvers = _solve.solver_order(solvers)
         self.constraints: list[Constraint] = [
             REGISTRY[key](options, data, spec) for key, options in spec.constraints.items() if key in REGISTRY
@@ -90,7 +92,8 @@ class RebalanceProblem:
         Parameters
         ----------
         alpha, holdings, benchmark : pandas.Series, optional
-            Replacements (same rules as :func:`rebalance`).
+            Replacements (same rules as :func:`rebalance`, with this problem's ``unknown_assets``
+            policy; holdings sold outside the optimizer are replaced with the holdings).
         risk_aversion : float, optional
             New λ (utility objective only).
         limits : Mapping[str, float], optional
@@ -114,11 +117,11 @@ class RebalanceProblem:
                 benchmark=benchmark if benchmark is not None else (
                     None if data.benchmark is None else pd.Series(data.benchmark, index=model.assets)),
                 alpha=alpha if alpha is not None else pd.Series(data.alpha, index=model.assets),
-                attributes=None, nav=data.nav, unknown_assets="error", long_book=_long_book(spec),
+                attributes=None, nav=data.nav, unknown_assets=self.unknown_assets, long_book=_long_book(spec),
             )
             data = fresh.with_changes(attributes=data.attributes,
                                       sold_outside=data.sold_outside if holdings is None else fresh.sold_outside)
-        return RebalanceProblem(spec, data, self.solvers)
+        return RebalanceProblem(spec, data, self.solvers, self.unknown_assets)
 
     def solve(self, **changes: Any) -> Any:
         """Solve (after :meth:`update` with ``changes`` when given) and return a RebalanceResult.
@@ -229,7 +232,7 @@ def build_problem(
                    unknown_assets=unknown_assets, long_book=_long_book(spec))
     if spec.objective["kind"] in ("utility", "alpha") and alpha is None:
         raise InputError(f"rebalance: objective {spec.objective['kind']} needs alpha (pass alpha=...)")
-    return RebalanceProblem(spec, data, solvers)
+    return RebalanceProblem(spec, data, solvers, unknown_assets)
 
 
 def rebalance(
