@@ -78,3 +78,15 @@ def test_example_runs(script: Path, tmp_path: Path) -> None:
     done = subprocess.run([sys.executable, str(script)], cwd=tmp_path, capture_output=True, text=True, timeout=300, check=False)
     assert done.returncode == 0, done.stderr[-2000:]
     assert done.stdout.strip(), "an example should print what it did"
+
+
+def test_the_readme_demo_command(tmp_path: Path) -> None:
+    # README: `python -m pip install . && trimtab demo` — the full-size demo (1,500 stocks), as a user runs it
+    done = trimtab("demo", cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    assert "an invented fund of 300 names in a universe of 1,500 invented stocks" in done.stdout
+    root = tmp_path / "trimtab-demo"
+    assert (root / "results" / "base" / "report.html").exists()
+    assert (root / "results" / "compare" / "report.html").exists()
+    assert (root / "results" / "compare" / "infeasible" / "relaxation.csv").exists()
+    assert done.stderr == ""  # no warnings on the demo

@@ -10,7 +10,6 @@ from __future__ import annotations
 import functools
 import json
 import math
-import shutil
 import sys
 import tempfile
 import time
@@ -114,8 +113,9 @@ class Ui:
             yield step
 
 
-def _width() -> int:
-    return max(100, shutil.get_terminal_size((120, 24)).columns)
+def _width() -> int | None:
+    """The terminal's width on a terminal (rich decides); 160 columns when piped, so tables do not wrap."""
+    return None if sys.stdout.isatty() else 160
 
 
 def _jsonable(value: Any) -> Any:
@@ -646,7 +646,7 @@ def demo(
     ui.say(f"Today's book: tracking error {_pct(pre_trade.risk)} against its cap-weighted benchmark.")
     table = Table(title="Demo scenarios (risk and alpha annualised; cost once, % of NAV)", title_justify="left", header_style="bold")
     for col in ("scenario", "status", "tracking error", "active alpha", "one-way turnover", "cost of trades", "names held"):
-        table.add_column(col, justify="left" if col in ("scenario", "status") else "right")
+        table.add_column(col, justify="left" if col in ("scenario", "status") else "right", no_wrap=col == "scenario")
     for row in rows:
         table.add_row(
             row["scenario"], row["status"], _pct(row["tracking_error"]), _pct(row["active_alpha"]),
