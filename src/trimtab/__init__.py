@@ -32,6 +32,7 @@ _LAZY = {
     "attribute": "trimtab.attribution",
     "RiskAttribution": "trimtab.attribution",
     "compare": "trimtab.attribution",
+    "compare_many": "trimtab.attribution",
     "rebalance": "trimtab.construct",
     "RebalanceResult": "trimtab.construct",
     "RebalanceProblem": "trimtab.construct",
