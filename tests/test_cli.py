@@ -325,3 +325,32 @@ def test_demo_json(tmp_path: Path) -> None:
     assert statuses == {"today's book": "-", "base": "solved", "neutral_size_momentum": "solved", "low_turnover": "solved", "infeasible": "infeasible"}
     low = next(row for row in document["scenarios"] if row["scenario"] == "low_turnover")
     assert low["turnover"] <= 0.10 + 1e-6
+
+
+def test_outputs_never_replace_inputs(work: Path) -> None:
+    before = sorted(p.name for p in (work / "data").iterdir())
+    result = invoke("rebalance", work / "base.yaml", "--out", work / "data")
+    assert result.exit_code == EXIT_BAD_INPUT
+    one_error_line(result, r"data: output folder would replace the input file (holdings|benchmark|alpha|attributes)\.csv")
+    (work / "notes").mkdir()
+    (work / "notes" / "todo.txt").write_text("mine", encoding="utf-8")
+    result = invoke("rebalance", work / "base.yaml", "--out", work / "notes")
+    one_error_line(result, r"notes: folder exists and was not written by trimtab; refusing to replace it")
+    assert (work / "notes" / "todo.txt").read_text(encoding="utf-8") == "mine"
+    result = invoke("rebalance", work / "base.yaml", "--out", work / "data" / "holdings.csv")
+    one_error_line(result, r"output folder would replace the input file holdings\.csv")
+    # a folder trimtab wrote is replaced, unless an input lies inside it
+    assert invoke("--quiet", "rebalance", work / "base.yaml", "--out", work / "out").exit_code == 0
+    shutil.copy(work / "data" / "alpha.csv", work / "out" / "alpha.csv")
+    (work / "inside.yaml").write_text("extends: base.yaml\ndata: {alpha: out/alpha.csv}\n", encoding="utf-8")
+    result = invoke("rebalance", work / "inside.yaml", "--out", work / "out")
+    one_error_line(result, r"output folder would replace the input file alpha\.csv")
+    assert (work / "out" / "alpha.csv").exists()
+    assert sorted(p.name for p in (work / "data").iterdir()) == before
+
+
+def test_verbose_shows_the_steps(work: Path) -> None:
+    result = invoke("--verbose", "check", work / "base.yaml")
+    assert result.exit_code == 0
+    assert "reading the scenario (after" in result.stderr
+    assert "checking the limits against the model and the data (after" in result.stderr
