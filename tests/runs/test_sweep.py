@@ -86,7 +86,7 @@ def test_risk_aversion_sweep_builds_once_and_scales_as_one_over_lambda(book) -> 
     assert len(_tasks.BUILDS) == 1
     table = result.table
     assert table["built"].tolist() == [True, False, False, False]
-    assert list(table.index) == [f"risk_aversion={x}" for x in lambdas]
+    assert list(table.index) == [f"risk_aversion={x:g}" for x in lambdas]
     assert (table["status"] == "solved").all()
     # a = Σ⁻¹α̃/(2λP): TE and expected alpha are both ∝ 1/λ (closed form of mean-variance with a budget)
     np.testing.assert_allclose(table["tracking_error"] * table["risk_aversion"], table["tracking_error"].iloc[0] * 2.0, rtol=1e-12)
@@ -192,3 +192,7 @@ def test_a_refused_re_solve_builds_afresh_and_is_not_retried(book) -> None:
     assert len(_tasks.BUILDS) == 3 and RefusesChanges.attempts == 1
     reference = run(book, UTILITY, {"risk_aversion": [2.0, 4.0, 8.0]})
     np.testing.assert_allclose(result.table["tracking_error"], reference.table["tracking_error"], rtol=1e-12)
+
+
+def test_labels_show_floats_plainly() -> None:
+    assert point_label({"tracking_error.max": 0.045000000000000005, "risk_aversion": 3}) == "tracking_error.max=0.045, risk_aversion=3"

@@ -149,7 +149,7 @@ def parse_values(text: str, owner: str) -> list[Any]:
             start, stop, count = float(parts[0]), float(parts[1]), int(parts[2])
             if count < 2:
                 raise InputError(f"{owner}: a range needs a count ≥ 2, got {count}")
-            return [float(x) for x in np.linspace(start, stop, count)]
+            return [round(float(x), 12) for x in np.linspace(start, stop, count)]  # 0.045, not 0.045000000000000005
         return [yaml.safe_load(part.strip()) for part in body.split(",")]
     except (ValueError, yaml.YAMLError) as err:
         raise InputError(f"{owner}: could not read {body!r} as values ({str(err).splitlines()[0]})") from None

@@ -80,7 +80,7 @@ def default_tracking_errors(scenario: Mapping[str, Any], n_points: int = 10) -> 
     cap = (scenario.get("constraints") or {}).get("tracking_error", {})
     cap = cap.get("max") if isinstance(cap, Mapping) else None
     low, high = (0.25 * float(cap), 2.0 * float(cap)) if cap else (0.005, 0.06)
-    return [float(x) for x in np.linspace(low, high, n_points)]
+    return [round(float(x), 12) for x in np.linspace(low, high, n_points)]
 
 
 def _table(result: Any, key: str) -> pd.DataFrame:

@@ -161,14 +161,29 @@ def _cell(value: Any, column: str, percent_columns: Sequence[str]) -> str:
     return html.escape(str(value))
 
 
+def _numeric(value: Any) -> bool:
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, (bool, np.bool_))
+
+
+def _label(value: Any) -> str:
+    if isinstance(value, pd.Timestamp) and value == value.normalize():
+        return str(value.date())
+    if isinstance(value, (float, np.floating)):
+        return f"{float(value):.10g}"
+    return str(value)
+
+
 def html_table(frame: pd.DataFrame, *, percent_columns: Sequence[str] = (), max_rows: int = 200) -> str:
     """A plain HTML table of ``frame`` (index as the first column)."""
     index_name = " / ".join(str(n) for n in frame.index.names if n is not None)
     head = "".join(f"<th>{html.escape(str(c).replace('_', ' '))}</th>" for c in [index_name, *frame.columns])
     rows = []
     for label, row in frame.head(max_rows).iterrows():
-        label_text = " / ".join(str(x) for x in label) if isinstance(label, tuple) else str(label)
-        cells = "".join(f'<td class="num">{_cell(row[c], str(c), percent_columns)}</td>' for c in frame.columns)
+        parts = label if isinstance(label, tuple) else (label,)
+        label_text = " / ".join(_label(x) for x in parts)
+        cells = "".join(
+            f'<td class="{"num" if _numeric(row[c]) else "text"}">{_cell(row[c], str(c), percent_columns)}</td>' for c in frame.columns
+        )
         rows.append(f"<tr><th scope=\"row\">{html.escape(label_text)}</th>{cells}</tr>")
     more = f'<p class="note">{len(frame) - max_rows} more rows in the CSV file.</p>' if len(frame) > max_rows else ""
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>{more}"
@@ -181,7 +196,7 @@ def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Seque
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
         f"<title>{html.escape(title)}</title>",
-        f"<style>{_css()}</style></head><body><main>",
+        f"<style>{_css()}\ntd.text {{ min-width: 14rem; overflow-wrap: anywhere; }}</style></head><body><main>",
         f"<h1>{html.escape(title)}</h1>",
         f'<p class="meta">trimtab {html.escape(__version__)} · written {when}</p>',
         f'<p class="caution">{html.escape(CAUTION, quote=False)}</p>',

@@ -125,7 +125,14 @@ def grid_points(grid: Mapping[str, Sequence[Any]] | Sequence[Mapping[str, Any]])
 
 def point_label(point: Mapping[str, Any]) -> str:
     """``risk_aversion=5, tracking_error.max=0.02``."""
-    return ", ".join(f"{short_key(key_path(k))}={v}" for k, v in point.items())
+    return ", ".join(f"{short_key(key_path(k))}={_value_text(v)}" for k, v in point.items())
+
+
+def _value_text(value: Any) -> str:
+    """Floats with at most 10 significant digits (0.045, not 0.045000000000000005)."""
+    if isinstance(value, (float, np.floating)):
+        return f"{float(value):.10g}"
+    return str(value)
 
 
 # ---------------------------------------------------------------------------------------------
