@@ -1,7 +1,7 @@
 """Speed of one rebalance against the straightforward cvxpy build; prints figures, asserts nothing.
 
     python benchmarks/rebalance_speed.py [--quick] [--sizes 5000x50,20000x100] [--repeats 3]
-                                         [--no-profile] [--no-prototype] [--grid]
+                                         [--no-profile] [--no-prototype] [--no-settings] [--dpp] [--grid]
 
 For each size N×K (default 5,000×50), on a seeded random instance (benchmarks/_instances.py:
 fully invested, 0 ≤ w ≤ 5 %, |active exposure| ≤ 0.1 on every factor, one-way turnover cap,
@@ -15,11 +15,14 @@ linear costs, tracking-error cap, utility objective), medians of ``--repeats`` r
    against a fresh ``rebalance`` of the same changed inputs;
 4. a PROTOTYPE (not trimtab code): the same problem handed to Clarabel's own API with matrices built
    here by hand (y = Bᵀw as variables, w = w0 + buy − sell, TE as one cone over [Lᵀy; √d∘(w − b)]),
-   with trimtab's Clarabel settings, plus a re-solve that only updates the vectors q and b.
+   with trimtab's Clarabel settings, plus a re-solve that only updates the vectors q and b;
+5. trimtab's rebalance under variants of Clarabel's settings (SOLVER_SETTINGS changed in this
+   process only), ``--dpp``: the lean build with cvxpy Parameters, and a cProfile breakdown.
 
 Every objective is recomputed from the returned w with plain numpy and every limit is checked from
 w (max breach printed). ``--grid`` prints the N ∈ {1k, 5k, 20k} × K ∈ {20, 50, 100} table of
-trimtab's rebalance (one run a cell). Targets (from the optimizer's issue): N = 5,000 / K = 50 end
+trimtab's rebalance and the prototype (one run a cell). The machine's load average is printed
+first: on shared cores, compare CPU seconds as well as wall time. Targets (from the optimizer's issue): N = 5,000 / K = 50 end
 to end ≤ 0.6 s and ≥ 15× the straightforward build; a re-solve no slower than a fresh solve.
 """
 
@@ -27,6 +30,7 @@ from __future__ import annotations
 
 import argparse
 import cProfile
+import os
 import pstats
 import statistics
 import sys
@@ -433,7 +437,6 @@ def dpp_experiment(inst: SpeedInstance) -> None:
 # ---------------------------------------------------------------------- profiling
 PROFILE_PARTS = [
     ("validate + align inputs + rows", "construct/_problem.py", "build_problem"),
-    ("  of which solver check (installed_solvers)", "construct/_solve.py", "solver_order"),
     ("cvxpy expression build", "construct/_problem.py", "build"),
     ("cvxpy compile (get_problem_data)", "cvxpy/problems/problem.py", "get_problem_data"),
     ("Clarabel solve (incl. setup)", "reductions/solvers/conic_solvers/clarabel_conif.py", "solve_via_data"),
@@ -472,7 +475,7 @@ def profile(inst: SpeedInstance) -> None:
 
 
 # ---------------------------------------------------------------------- the report
-def compare(inst: SpeedInstance, repeats: int, prototype: bool, do_profile: bool, dpp: bool) -> None:
+def compare(inst: SpeedInstance, repeats: int, prototype: bool, do_profile: bool, dpp: bool, settings: bool) -> None:
     n, k = inst.model.n_assets, inst.model.n_factors
     print(f"\n== N = {n:,}, K = {k}: medians of {repeats} in one process")
     naive = median_run(lambda: straightforward(inst), repeats)
@@ -524,6 +527,7 @@ def compare(inst: SpeedInstance, repeats: int, prototype: bool, do_profile: bool
               f"(cpu {again.cpu:.2f}) against new matrices and setup {fresh.total:.3f} s (cpu {fresh.cpu:.2f}) → "
               f"{fresh.total / again.total:.2f}×; {again.iterations} it; U rel. diff to trimtab {gap:.1e}; "
               f"max breach {worst(breaches(changed, again.weights))}")
+    if settings:
         settings_experiments(inst, repeats)
     if dpp:
         dpp_experiment(inst)
@@ -567,9 +571,11 @@ def main() -> None:
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--no-profile", action="store_true")
     parser.add_argument("--no-prototype", action="store_true")
+    parser.add_argument("--no-settings", action="store_true", help="skip the Clarabel settings variants")
     parser.add_argument("--dpp", action="store_true", help="also time cvxpy Parameters (slow: tens of seconds)")
     parser.add_argument("--grid", action="store_true", help="only the N × K table for docs/performance.md")
     args = parser.parse_args()
+    print(f"load average at start: {', '.join(f'{x:.2f}' for x in os.getloadavg())} ({os.cpu_count()} cores)")
     print(f"cvxpy {cp.__version__}, Clarabel {clarabel.__version__}, numpy {np.__version__}; "
           f"trimtab Clarabel settings {SOLVER_SETTINGS['CLARABEL']}")
     warm = speed_instance(200, 5, seed=99)
@@ -579,7 +585,8 @@ def main() -> None:
         grid(args.repeats, not args.no_prototype)
         return
     for n, k in [(1_000, 20)] if args.quick else parse_sizes(args.sizes):
-        compare(speed_instance(n, k, seed=n + k), args.repeats, not args.no_prototype, not args.no_profile, args.dpp)
+        compare(speed_instance(n, k, seed=n + k), args.repeats, not args.no_prototype, not args.no_profile, args.dpp,
+                not args.no_settings)
 
 
 if __name__ == "__main__":
