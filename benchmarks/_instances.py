@@ -108,8 +108,9 @@ class SpeedInstance:
 
 
 def random_book(model: FactorModel, seed: int, weight_max: float = 0.05) -> tuple[pd.Series, pd.Series, pd.Series]:
-    """(benchmark, holdings, alpha): a skewed cap-weight-like benchmark (each weight ≤ weight_max / 2),
-    holdings as the benchmark tilted by noise (fully invested, ≤ weight_max), alpha ~ 2 % a year."""
+    """(benchmark, holdings, alpha): a skewed cap-weight-like benchmark (log-normal sizes, capped at
+    weight_max / 2 before renormalising), holdings as the benchmark tilted by ±50 % noise (fully
+    invested, capped at weight_max before renormalising), alpha with 2 % a year dispersion."""
     rng = np.random.default_rng(seed)
     n = model.n_assets
     raw = rng.lognormal(0.0, 1.0, n)
