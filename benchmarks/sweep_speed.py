@@ -172,7 +172,7 @@ def main() -> None:
                         help="points solved the straightforward way (0: skip); its time is per point")
     args = parser.parse_args()
     if not args.no_sweep:
-        sweep_benchmark(10 if args.quick else args.points, 2_000, 30, 2 if args.quick else args.baseline_points)
+        sweep_benchmark(10 if args.quick else args.points, 2_000, 30, min(args.baseline_points, 2) if args.quick else args.baseline_points)
     if args.scaling or args.no_sweep:
         scaling_table(args.quick)
 

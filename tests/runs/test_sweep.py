@@ -158,6 +158,7 @@ def test_real_optimizer_points_equal_direct_rebalances(book) -> None:
     result = sweep(model, scenario, {"risk_aversion": [5.0, 20.0], "turnover.max": [0.1, 0.3]},
                    holdings=bench, benchmark=bench, alpha=alpha, keep_results=True)
     assert (result.table["status"] == "solved").all(), result.table
+    assert result.table["built"].tolist() == [True, False, False, False]  # built once, then RebalanceProblem.solve(**changes)
     for label, row in result.table.iterrows():
         direct = rebalance(model, apply_point(scenario, {"risk_aversion": row["risk_aversion"], "turnover.max": row["turnover.max"]}),
                            holdings=bench, benchmark=bench, alpha=alpha)
