@@ -103,11 +103,16 @@ def relaxation_frame(error: InfeasibleError) -> pd.DataFrame:
     return table if isinstance(table, pd.DataFrame) else pd.DataFrame()
 
 
-def scenario_yaml(scenario: Scenario) -> str:
-    """The merged scenario as YAML (what actually ran), with the files it extends in a comment."""
+def scenario_yaml(scenario: Scenario, folder: Path) -> str:
+    """The merged scenario as YAML (what actually ran), its paths relative to ``folder`` (where the
+    file will live) so it loads again from there; the files it extends in a comment."""
+    from trimtab.scenario._yaml import SCENARIO_PATHS, relative_paths
+
     chain = " ← ".join(p.name for p in scenario.chain)
-    body = yaml.safe_dump(scenario.mapping, sort_keys=False, allow_unicode=True)
-    return f"# scenario {scenario.name}, merged from {chain}\n{body}"
+    mapping = relative_paths(scenario.mapping, folder.resolve(), SCENARIO_PATHS)
+    mapping.get("output", {}).pop("dir", None)
+    body = yaml.safe_dump(mapping, sort_keys=False, allow_unicode=True)
+    return f"# scenario {scenario.name}, merged from {chain}; paths relative to this folder\n{body}"
 
 
 @dataclass
@@ -124,21 +129,22 @@ def write_rebalance(run: ScenarioRun, target: Path | None = None) -> Written:
     folder = Path(target) if target is not None else inputs.scenario.output_dir
     settings = inputs.scenario.spec.output
     with output_folder(folder, input_files(inputs)) as tmp:
-        write_run_files(run, tmp, tables=settings.tables, write_json=settings.write_json, html=settings.html)
+        write_run_files(run, tmp, folder, tables=settings.tables, write_json=settings.write_json, html=settings.html)
         names = sorted(p.name for p in tmp.rglob("*") if p.is_file())
     return Written(folder, names)
 
 
-def write_run_files(run: ScenarioRun, folder: Path, *, tables: str, write_json: bool, html: bool) -> None:
-    """The files of one run, into an existing (temporary) folder."""
+def write_run_files(run: ScenarioRun, folder: Path, final: Path, *, tables: str, write_json: bool, html: bool) -> None:
+    """The files of one run, into an existing (temporary) ``folder`` that becomes ``final``."""
     report = _report()
     scenario = run.inputs.scenario
-    (folder / "scenario.yaml").write_text(scenario_yaml(scenario), encoding="utf-8")
+    (folder / "scenario.yaml").write_text(scenario_yaml(scenario, final), encoding="utf-8")
     alignment = run.inputs.alignment
     if not alignment.table.empty:
         alignment.table.to_csv(folder / "alignment.csv", index=False)
     if run.error is not None:
-        relaxation_frame(run.error).to_csv(folder / "relaxation.csv")
+        relaxation = relaxation_frame(run.error)
+        relaxation.to_csv(folder / "relaxation.csv", index=not isinstance(relaxation.index, pd.RangeIndex))
         return
     if tables != "none":
         report.write_tables(run.result, folder, file_format=tables)
@@ -162,7 +168,7 @@ def write_comparison(runs: Sequence[ScenarioRun], target: Path, *, html: bool = 
         for run in runs:
             sub = tmp / run.name
             sub.mkdir()
-            write_run_files(run, sub, tables="csv", write_json=True, html=False)
+            write_run_files(run, sub, Path(target) / run.name, tables="csv", write_json=True, html=False)
         names = sorted(str(p.relative_to(tmp)) for p in tmp.rglob("*") if p.is_file())
     return Written(target, names)
 
@@ -177,7 +183,9 @@ def comparison_table(runs: Sequence[ScenarioRun]) -> pd.DataFrame:
             table[run.name] = float("nan")
     table = table[[run.name for run in runs]]
     status = pd.DataFrame([[run.status for run in runs]], index=["status"], columns=table.columns)
-    return pd.concat([status, table.astype(object)])
+    out = pd.concat([status, table.astype(object)])
+    out.index.name = "figure"
+    return out
 
 
 def _report() -> Any:

@@ -66,6 +66,16 @@ def read_yaml_mapping(path: Path, what: str = "scenario") -> dict[str, Any]:
 
 def anchor_paths(raw: dict[str, Any], folder: Path, key_paths: tuple[tuple[str, ...], ...]) -> dict[str, Any]:
     """Return a copy of ``raw`` with every relative file path made absolute against ``folder``."""
+    return map_paths(raw, key_paths, lambda value: _absolute(value, folder))
+
+
+def relative_paths(raw: dict[str, Any], folder: Path, key_paths: tuple[tuple[str, ...], ...]) -> dict[str, Any]:
+    """Return a copy of ``raw`` with every absolute file path written relative to ``folder``."""
+    return map_paths(raw, key_paths, lambda value: os.path.relpath(value, folder) if os.path.isabs(value) else value)
+
+
+def map_paths(raw: dict[str, Any], key_paths: tuple[tuple[str, ...], ...], change: Any) -> dict[str, Any]:
+    """A copy of ``raw`` with ``change`` applied to the path at each key path (string or ``path`` key)."""
     out = _deep_copy(raw)
     for key_path in key_paths:
         parent: Any = out
@@ -76,9 +86,9 @@ def anchor_paths(raw: dict[str, Any], folder: Path, key_paths: tuple[tuple[str, 
         last = key_path[-1]
         value = parent[last]
         if isinstance(value, str):
-            parent[last] = _absolute(value, folder)
+            parent[last] = change(value)
         elif isinstance(value, dict) and isinstance(value.get("path"), str):
-            value["path"] = _absolute(value["path"], folder)
+            value["path"] = change(value["path"])
     return out
 
 
