@@ -146,9 +146,19 @@ def test_risk_active_and_total(work: Path) -> None:
     assert result.exit_code == 0, result.output
     document = json.loads(result.stdout)
     assert document["kind"] == "total"
-    figures = {row["figure"]: row for row in document["headline"]} if isinstance(document["headline"], list) else document["headline"]
-    assert figures
+    assert document["headline"]["n_positions"] == 120
     assert {"report.html", "result.json", MARKER} <= {p.name for p in (work / "risk").iterdir()}
+    # with the fund's cash the weights are those the scenario uses: Σw = 1 − cash/NAV
+    import pandas as pd
+
+    result = invoke("--json", *args, "--cash", "6000000")
+    headline = json.loads(result.stdout)["headline"]
+    shares = pd.read_csv(work / "data" / "holdings.csv").set_index("asset")["shares"]
+    prices = pd.read_csv(work / "data" / "attributes.csv").set_index("asset")["price"]
+    nav = float((shares * prices.loc[shares.index]).sum()) + 6e6
+    assert headline["net_weight"] == pytest.approx(1 - 6e6 / nav)
+    result = invoke(*args, "--nav", "0")
+    one_error_line(result, r"--nav: expected a positive net asset value, got 0")
 
 
 def test_risk_errors(work: Path) -> None:

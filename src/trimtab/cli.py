@@ -404,6 +404,8 @@ def risk(
     holdings: Annotated[Path, typer.Option("--holdings", help="Holdings file: asset, weight (or asset, shares with prices).", show_default=False)],
     benchmark: Annotated[Path | None, typer.Option("--benchmark", help="Benchmark file: asset, weight. Gives active risk.")] = None,
     attributes: Annotated[Path | None, typer.Option("--attributes", help="Attributes file (prices for shares; groups).")] = None,
+    cash: Annotated[float, typer.Option("--cash", help="Cash besides the positions (currency), for holdings given as shares.", min=0.0)] = 0.0,
+    nav: Annotated[float | None, typer.Option("--nav", help="Net asset value (currency); default Σ shares·price + cash.", min=0.0)] = None,
     top: Annotated[int, typer.Option("--top", help="How many top contributors to list.", min=1)] = 10,
     out: Annotated[Path | None, typer.Option("--out", "-o", help="Also write the tables, JSON and HTML report to this folder.")] = None,
 ) -> None:
@@ -420,7 +422,9 @@ def risk(
         attrs = load_attributes(AttributesFile(path=str(attributes))) if attributes is not None else None
         columns = set(read_table(holdings, what="holdings").columns)
         kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
-        book = load_holdings(HoldingsFile(path=str(holdings), kind=kind), attrs)
+        if nav is not None and nav <= 0:
+            raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
+        book = load_holdings(HoldingsFile(path=str(holdings), kind=kind, cash=cash, nav=nav), attrs)
         bench = load_series(SeriesFile(path=str(benchmark)), "benchmark", "weight") if benchmark is not None else None
         aligned = align_inputs(
             fm.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
