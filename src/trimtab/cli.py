@@ -531,7 +531,7 @@ def _print_result(ui: Ui, result: Any) -> None:
 @_guarded
 def compare(
     ctx: typer.Context,
-    scenarios: Annotated[list[Path], typer.Argument(help="Two or more scenario YAML files.", metavar="SCENARIO.yaml...", show_default=False)],
+    scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files (each with its own name).", metavar="SCENARIO.yaml...", show_default=False)],
     out: Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/compare next to the first scenario).", show_default=False)] = None,
 ) -> None:
     """Run what-if scenarios side by side: one table and one HTML report.
