@@ -113,3 +113,16 @@ def test_real_optimizer_long_only_frontier_is_concave_and_below_the_line(book) -
     tilde = a - (ones @ inv @ a) / (ones @ inv @ ones)
     line = np.sqrt(tilde @ inv @ tilde / model.periods_per_year) * np.array(caps)
     assert (values <= line * (1 + 1e-6)).all()
+
+
+def test_the_te_frontier_keeps_the_scenarios_costs(book) -> None:
+    model, bench, alpha = book
+    seen: list[dict] = []
+
+    def recording(model, scenario, **inputs):
+        seen.append(scenario["objective"])
+        return ClosedFormProblem(model, {**scenario, "objective": {"maximize": "alpha"}}, **inputs)
+
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 4, "cost_aversion": 2.0}}
+    frontier(model, scenario, holdings=bench, benchmark=bench, alpha=alpha, tracking_errors=[0.01], build=recording)
+    assert seen == [{"maximize": "alpha", "cost_aversion": 2.0}]

@@ -139,8 +139,8 @@ def frontier(
 
     Notes
     -----
-    TE frontier: maximise αᵀw subject to √(P·aᵀΣa) ≤ σ̄ and the scenario's other constraints,
-    for each cap σ̄. With the budget as the only other constraint its solution is
+    TE frontier: maximise αᵀw (less the scenario's trading costs, when it has them) subject to
+    √(P·aᵀΣa) ≤ σ̄ and the scenario's other constraints, for each cap σ̄. With the budget as the only other constraint its solution is
     a = σ̄·Σ⁻¹α̃/√(P·α̃ᵀΣ⁻¹α̃), α̃ = α − γ1, a straight line of slope √(α̃ᵀΣ⁻¹α̃/P), the
     information ratio (Markowitz 1952; Grinold and Kahn, *Active Portfolio Management*, ch. 5).
     Turnover frontier: the scenario as written (its objective and TE cap) with turnover caps τ̄.
@@ -151,8 +151,9 @@ def frontier(
         raise InputError(f"frontier: n_points must be a whole number ≥ 2, got {n_points!r}")
     levels = _levels(tracking_errors, "tracking_errors") or default_tracking_errors(scenario, n_points)
     inputs = dict(holdings=holdings, benchmark=benchmark, alpha=alpha, attributes=attributes, nav=nav, executor=executor, build=build, progress=progress)
-    alpha_only = apply_point(scenario, {"objective.maximize": "alpha"})
-    alpha_only["objective"] = {"maximize": "alpha"}
+    alpha_only = apply_point(scenario, {})
+    costs = {k: v for k, v in dict(scenario.get("objective") or {}).items() if k in ("cost_aversion", "costs")}
+    alpha_only["objective"] = {"maximize": "alpha", **costs}  # trading costs stay in the objective
     te = sweep(model, alpha_only, {"tracking_error.max": levels}, **inputs)
     turnover = None
     caps = _levels(turnovers, "turnovers")
