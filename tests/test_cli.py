@@ -122,7 +122,7 @@ def test_fit_writes_a_model_and_refuses_to_clobber(work: Path) -> None:
     before = sorted(p.name for p in (work / "data").iterdir())
     result = invoke("fit", work / "fit.yaml", "--out", work / "data")
     assert result.exit_code == EXIT_BAD_INPUT
-    one_error_line(result, r"--out .*data: would replace the input file returns\.parquet; choose another folder")
+    one_error_line(result, r"data: output folder would replace the input file returns\.parquet; choose another --out")
     assert sorted(p.name for p in (work / "data").iterdir()) == before
     result = invoke("fit", work / "fit.yaml", "--out", work / "m", "--format", "xlsx")
     one_error_line(result, r"--format: expected parquet or csv, got 'xlsx'")

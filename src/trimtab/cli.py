@@ -11,7 +11,6 @@ import functools
 import json
 import math
 import sys
-import tempfile
 import time
 import warnings
 from collections.abc import Callable, Iterator, Sequence
@@ -29,6 +28,7 @@ from rich.table import Table
 
 from trimtab._version import __version__
 from trimtab.errors import InfeasibleError, InputError, SolverError, TrimtabError
+from trimtab.scenario._jsonable import jsonable
 
 EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
 
@@ -85,7 +85,7 @@ class Ui:
 
     def emit(self, document: Any) -> None:
         if self.json:
-            sys.stdout.write(json.dumps(_jsonable(document), indent=2) + "\n")
+            sys.stdout.write(json.dumps(jsonable(document), indent=2) + "\n")
 
     @contextmanager
     def progress(self, total: int | None = None) -> Iterator[Callable[[str], None]]:
@@ -102,13 +102,10 @@ class Ui:
         t0 = time.perf_counter()
         with bar:
             task = bar.add_task("starting", total=total)
-            last = [t0]
 
             def step(label: str) -> None:
-                now = time.perf_counter()
-                self.note(f"  {label} (after {now - t0:.1f} s)")
+                self.note(f"  {label} (after {time.perf_counter() - t0:.1f} s)")
                 bar.update(task, description=label, advance=1 if total else None)
-                last[0] = now
 
             yield step
 
@@ -116,28 +113,6 @@ class Ui:
 def _width() -> int | None:
     """The terminal's width on a terminal (rich decides); 160 columns when piped, so tables do not wrap."""
     return None if sys.stdout.isatty() else 160
-
-
-def _jsonable(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, pd.DataFrame):
-        return _jsonable(value.reset_index().to_dict(orient="records"))
-    if isinstance(value, pd.Series):
-        return _jsonable(value.to_dict())
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return None if not math.isfinite(float(value)) else float(value)
-    if isinstance(value, (np.bool_,)):
-        return bool(value)
-    if isinstance(value, Path):
-        return str(value)
-    if isinstance(value, (str, int, bool)) or value is None:
-        return value
-    return str(value)
 
 
 def _ui(ctx: typer.Context) -> Ui:
@@ -271,7 +246,7 @@ def _print_relaxation(ui: Ui, name: str | None, err: InfeasibleError) -> None:
 def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
     from trimtab.scenario._run import relaxation_frame
 
-    return _jsonable(relaxation_frame(err))  # type: ignore[no-any-return]
+    return jsonable(relaxation_frame(err))  # type: ignore[no-any-return]
 
 
 def _infeasible_line(err: InfeasibleError) -> str:
@@ -343,8 +318,8 @@ def fit(
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace a model already saved in --out.")] = False,
 ) -> None:
     """Estimate a risk model from return files and save it to a folder."""
-    from trimtab.scenario import load_fit_config
-    from trimtab.scenario._fit import fit_model
+    from trimtab.scenario import check_inputs_outside, load_fit_config
+    from trimtab.scenario._fit import fit_model, fit_summary
 
     ui = _ui(ctx)
     if file_format not in ("parquet", "csv"):
@@ -352,12 +327,12 @@ def fit(
     with ui.progress() as step:
         step("reading the fit config")
         settings = load_fit_config(config)
-        _refuse_inputs_inside(out, [config, settings.returns.path, *(s.path for s in (settings.factor_returns, settings.exposures) if s)])
+        check_inputs_outside(out, [config, settings.returns.path, *(s.path for s in (settings.factor_returns, settings.exposures) if s)])
         step(f"fitting a {settings.method} model")
         model = fit_model(settings, config)
         step("saving the model")
         model.save(out, file_format=file_format, overwrite=overwrite)
-    document = _fit_document(model, out)
+    document = fit_summary(model, out)
     ui.emit(document)
     if ui.chatty:
         window = document.get("window")
@@ -369,31 +344,6 @@ def fit(
         if dropped:
             ui.say(f"Dropped {len(dropped)} assets: " + "; ".join(f"{a} ({r})" for a, r in list(dropped.items())[:5]))
         ui.say(f"Saved to {out}")
-
-
-def _refuse_inputs_inside(target: Path, inputs: Sequence[Any]) -> None:
-    resolved = Path(target).resolve()
-    for item in inputs:
-        p = Path(item).resolve()
-        if p == resolved or resolved in p.parents:
-            raise InputError(f"--out {target}: would replace the input file {p.name}; choose another folder")
-
-
-def _fit_document(model: Any, out: Path) -> dict[str, Any]:
-    report = model.fit_report
-    doc: dict[str, Any] = {
-        "model": str(out),
-        "method": report.method if report is not None else "unknown",
-        "n_assets": model.n_assets,
-        "n_factors": model.n_factors,
-        "factors": [str(f) for f in model.factors],
-        "window": list(report.window) if report is not None and report.window else None,
-        "dropped": {} if report is None else {str(k): str(v) for k, v in report.dropped.items()},
-        "r_squared_median": None,
-    }
-    if report is not None and "r_squared" in report.assets.columns:
-        doc["r_squared_median"] = float(report.assets["r_squared"].median())
-    return doc
 
 
 # ---------------------------------------------------------------------- risk
@@ -412,6 +362,7 @@ def risk(
     """Attribute a book's risk (active risk with --benchmark) to factors, groups and positions."""
     from trimtab import FactorModel
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
+    from trimtab.scenario._run import write_attribution
     from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
 
     ui = _ui(ctx)
@@ -434,7 +385,7 @@ def risk(
         attribution = fm.attribute(aligned.holdings, aligned.benchmark, attributes=aligned.attributes)
         if out is not None:
             step("writing the report")
-            _write_attribution(attribution, out, [model, holdings, *(p for p in (benchmark, attributes) if p)])
+            write_attribution(attribution, out, [model, holdings, *(p for p in (benchmark, attributes) if p)])
     if ui.json:
         ui.emit(
             {
@@ -454,16 +405,6 @@ def risk(
             ui.out.print(attribution.summary(top=top).as_text())
         if out is not None:
             ui.say(f"Wrote the tables, result.json and report.html to {out}")
-
-
-def _write_attribution(attribution: Any, out: Path, inputs: Sequence[Path]) -> None:
-    from trimtab.scenario import output_folder
-
-    report = _report_module()
-    with output_folder(out, inputs) as tmp:
-        report.write_tables(attribution, tmp, file_format="csv")
-        report.write_json(attribution, tmp / "result.json")
-        report.write_html(attribution, tmp / "report.html", title="Risk report")
 
 
 def _optional_report() -> Any:
@@ -607,39 +548,15 @@ def demo(
     Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them and
     writes the HTML reports; prints the headline table and where the files went.
     """
-    from trimtab.demo import DEMO_SCENARIOS, make_demo_fund
-    from trimtab.scenario import load_fit_config, load_scenario, output_folder, write_demo
-    from trimtab.scenario._fit import fit_model
-    from trimtab.scenario._run import load_all, solve, write_comparison, write_rebalance
+    from trimtab.scenario._demo_run import headline_rows, run_demo
 
     ui = _ui(ctx)
     t0 = time.perf_counter()
-    n_holdings = min(300, max(10, n_assets // 5))
-    steps = 6 + len(DEMO_SCENARIOS)
-    with ui.progress(total=steps) as step, output_folder(out) as tmp:
-        step("simulating the invented fund")
-        fund = make_demo_fund(n_assets=n_assets, n_holdings=n_holdings, seed=seed)
-        step("writing the data files")
-        write_demo(fund, tmp)
-        step("fitting the risk model")
-        model = fit_model(load_fit_config(tmp / "fit.yaml"), tmp / "fit.yaml")
-        model.save(tmp / "model")
-        step("reading the scenarios")
-        scenarios = [load_scenario(tmp / f"{name}.yaml") for name in DEMO_SCENARIOS]
-        all_inputs = load_all(scenarios)
-        base = all_inputs[0]
-        pre_trade = base.model.attribute(base.holdings, base.benchmark, attributes=base.attributes)
-        runs = []
-        for inputs in all_inputs:
-            step(f"rebalancing: {inputs.scenario.name}")
-            runs.append(solve(inputs))
-        step("writing the reports")
-        if runs[0].error is not None:
-            raise runs[0].error
-        write_rebalance(runs[0], tmp / "results" / "base")
-        write_comparison(runs, tmp / "results" / "compare")
+    with ui.progress(total=10) as step:
+        done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
+    fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
-    rows = _demo_rows(pre_trade, base, runs)
+    rows = headline_rows(done)
     ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
     if not ui.chatty:
         return
@@ -677,28 +594,6 @@ def demo(
         ui.say(f"  {name:<{width}}{text}")
     ui.say(f"Next: trimtab rebalance {out}/low_turnover.yaml   or   trimtab check {out}/base.yaml")
     ui.say(f"Done in {elapsed:.1f} s.")
-
-
-def _demo_rows(pre_trade: Any, base: Any, runs: Sequence[Any]) -> list[dict[str, Any]]:
-    """The headline table: today's book, then each scenario (figures from the result, else NaN)."""
-    active = base.holdings.reindex(base.model.assets, fill_value=0.0) - base.benchmark.reindex(base.model.assets, fill_value=0.0)
-    today_alpha = float((base.alpha.reindex(base.model.assets, fill_value=0.0) * active).sum())
-    names = int((base.holdings.abs() > 1e-8).sum())
-    rows = [{"scenario": "today's book", "status": "-", "tracking_error": float(pre_trade.risk), "active_alpha": today_alpha, "turnover": 0.0, "cost": 0.0, "names": names}]
-    nan = float("nan")
-    for run in runs:
-        row: dict[str, Any] = {"scenario": run.name, "status": run.status, "tracking_error": nan, "active_alpha": nan, "turnover": nan, "cost": nan, "names": nan}
-        if run.result is not None:
-            result = run.result
-            row.update(
-                tracking_error=float(result.post_trade.risk),
-                active_alpha=float(result.objective["alpha"]),
-                turnover=float(result.turnover),
-                cost=-float(result.objective.get("costs", 0.0)),
-                names=int(result.n_names),
-            )
-        rows.append(row)
-    return rows
 
 
 # ---------------------------------------------------------------------- registration, in the order of --help

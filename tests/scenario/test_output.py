@@ -59,3 +59,4 @@ def test_write_text_atomic(tmp_path: Path) -> None:
     write_text_atomic(path, "two")
     assert path.read_text(encoding="utf-8") == "two"
     assert [p.name for p in tmp_path.iterdir()] == ["a.txt"]
+

@@ -5,7 +5,7 @@ This package and :mod:`trimtab.report` are the only ones that touch files.
 
 from trimtab.scenario._align import AlignedInputs, AlignmentReport, align_inputs
 from trimtab.scenario._demo_files import write_demo
-from trimtab.scenario._fit import fit_model, load_fit_config
+from trimtab.scenario._fit import fit_model, fit_summary, load_fit_config
 from trimtab.scenario._loaders import (
     Holdings,
     load_attributes,
@@ -22,7 +22,7 @@ from trimtab.scenario._scenario import (
     load_model_for,
     load_scenario,
 )
-from trimtab.scenario._output import MARKER, check_target, output_folder, write_text_atomic
+from trimtab.scenario._output import MARKER, check_inputs_outside, check_target, output_folder, write_text_atomic
 from trimtab.scenario._schema import FitConfig, FitSettings, ScenarioSpec
 from trimtab.scenario._yaml import deep_merge
 
@@ -37,10 +37,12 @@ __all__ = [
     "ScenarioInputs",
     "ScenarioSpec",
     "align_inputs",
+    "check_inputs_outside",
     "check_target",
     "deep_merge",
     "deep_validate",
     "fit_model",
+    "fit_summary",
     "load_attributes",
     "load_fit_config",
     "load_holdings",

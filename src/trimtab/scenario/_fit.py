@@ -100,3 +100,21 @@ def fit_model(settings: FitSettings, source: str | Path = "fit") -> FactorModel:
         groups = {**(model.factor_groups or {}), **settings.factor_groups}
         model = dataclasses.replace(model, factor_groups=groups)
     return model
+
+
+def fit_summary(model: FactorModel, out: str | Path) -> dict[str, Any]:
+    """What ``trimtab fit`` reports: method, sizes, window, dropped assets and the median R²."""
+    report = model.fit_report
+    doc: dict[str, Any] = {
+        "model": str(out),
+        "method": report.method if report is not None else "unknown",
+        "n_assets": model.n_assets,
+        "n_factors": model.n_factors,
+        "factors": [str(f) for f in model.factors],
+        "window": list(report.window) if report is not None and report.window else None,
+        "dropped": {} if report is None else {str(k): str(v) for k, v in report.dropped.items()},
+        "r_squared_median": None,
+    }
+    if report is not None and "r_squared" in report.assets.columns:
+        doc["r_squared_median"] = float(report.assets["r_squared"].median())
+    return doc

@@ -20,13 +20,18 @@ from trimtab.errors import InputError
 MARKER = ".trimtab-output"
 
 
-def check_target(target: Path, inputs: Iterable[str | Path] = ()) -> None:
-    """Raise if writing ``target`` could replace something that is not a trimtab output or an input."""
-    resolved = target.resolve()
+def check_inputs_outside(target: str | Path, inputs: Iterable[str | Path]) -> None:
+    """Raise if ``target`` is one of ``inputs`` or a folder holding one of them."""
+    resolved = Path(target).resolve()
     for item in inputs:
         p = Path(item).resolve()
         if p == resolved or resolved in p.parents:
             raise InputError(f"{target}: output folder would replace the input file {p.name}; choose another --out")
+
+
+def check_target(target: Path, inputs: Iterable[str | Path] = ()) -> None:
+    """Raise if writing ``target`` could replace something that is not a trimtab output or an input."""
+    check_inputs_outside(target, inputs)
     if target.exists():
         if not target.is_dir():
             raise InputError(f"{target}: exists and is not a folder; choose another --out")

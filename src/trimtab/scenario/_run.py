@@ -188,6 +188,17 @@ def comparison_table(runs: Sequence[ScenarioRun]) -> pd.DataFrame:
     return out
 
 
+def write_attribution(attribution: Any, out: Path, inputs: Sequence[Path]) -> Written:
+    """Write one attribution's tables, result.json and report.html into ``out``."""
+    report = _report()
+    with output_folder(out, inputs) as tmp:
+        report.write_tables(attribution, tmp, file_format="csv")
+        report.write_json(attribution, tmp / "result.json")
+        report.write_html(attribution, tmp / "report.html", title="Risk report")
+        names = sorted(p.name for p in tmp.iterdir())
+    return Written(Path(out), names)
+
+
 def _report() -> Any:
     try:
         import trimtab.report as report
