@@ -36,6 +36,11 @@ _LAZY = {
     "rebalance": "trimtab.construct",
     "RebalanceResult": "trimtab.construct",
     "RebalanceProblem": "trimtab.construct",
+    "build_problem": "trimtab.construct",
+    "sweep": "trimtab.runs",
+    "frontier": "trimtab.runs",
+    "backtest": "trimtab.runs",
+    "get_executor": "trimtab.runs",
 }
 
 __all__ = [
