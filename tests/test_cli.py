@@ -364,3 +364,10 @@ def test_verbose_shows_the_steps(work: Path) -> None:
     assert result.exit_code == 0
     assert "reading the scenario (after" in result.stderr
     assert "checking the limits against the model and the data (after" in result.stderr
+
+
+def test_errors_show_paths_relative_to_the_working_folder(work: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.chdir(work)
+    (work / "w.yaml").write_text("extends: base.yaml\ndata: {holdings: {path: data/holdings.csv, kind: weights}}\n", encoding="utf-8")
+    result = invoke("check", "w.yaml")
+    one_error_line(result, r"^trimtab: error: data/holdings\.csv: holdings file lacks column 'weight'; found columns: asset, shares")

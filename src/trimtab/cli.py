@@ -123,7 +123,9 @@ def _ui(ctx: typer.Context) -> Ui:
 
 
 def _fail(message: str, code: int) -> None:
+    """One line on stderr (files under the working folder shown relative to it), then exit."""
     first = message.strip().splitlines()[0] if message.strip() else "unknown error"
+    first = first.replace(f"{Path.cwd()}/", "") if Path.cwd() != Path("/") else first
     sys.stderr.write(f"trimtab: error: {first}\n")
     raise typer.Exit(code)
 
