@@ -88,6 +88,7 @@ class DemoFund:
     shares: pd.Series
     cash: float
     alpha: pd.Series
+    next_year_specific: pd.Series
 
     @property
     def assets(self) -> pd.Index:
@@ -111,6 +112,13 @@ class DemoFund:
     def nav(self) -> float:
         """Net asset value: positions at the last price plus cash."""
         return float((self.shares * self.attributes.loc[self.shares.index, "price"]).sum() + self.cash)
+
+
+def alpha_scores(target: np.ndarray, information_coefficient: float, rng: np.random.Generator) -> np.ndarray:
+    """Scores z = IC·t + √(1 − IC²)·e with e ~ N(0, 1): for a standardised target t, corr(z, t) = IC
+    and Var(z) = 1."""
+    ic = float(information_coefficient)
+    return ic * target + np.sqrt(1.0 - ic**2) * rng.normal(size=target.shape)
 
 
 def _correlation(n: int, rng: np.random.Generator, scale: float) -> np.ndarray:
@@ -156,8 +164,10 @@ def make_demo_fund(
     exp(−0.2·size + 0.25·N(0, 1)), clipped to [8%, 70%]. About 2% of stocks list late and have
     between 260 and 750 days of history. The benchmark is cap-weighted over the universe. The fund's
     targets weight its names by cap^0.6; it has since drifted with six months of realised returns.
-    Alpha scores: alpha = IC · σᵢ · zᵢ with IC = 0.05 and zᵢ ~ N(0, 1) (the Grinold–Kahn rule of
-    thumb, from memory); 5% of stocks have no score.
+    Alpha scores: a year of specific returns after the data ends, uᵢ·σᵢ with uᵢ ~ N(0, 1), is drawn
+    (:attr:`DemoFund.next_year_specific`, not given to the fund); the scores zᵢ = IC·uᵢ + √(1 − IC²)·eᵢ
+    correlate with it at IC = 0.05, and alpha = IC · σᵢ · zᵢ (the Grinold–Kahn rule of thumb, from
+    memory); 5% of stocks have no score.
     """
     if n_holdings > n_assets or n_holdings < 10:
         raise InputError(f"demo: n_holdings must be between 10 and n_assets ({n_assets}), got {n_holdings}")
@@ -243,8 +253,9 @@ def make_demo_fund(
     cash = DEMO_CASH
     targets = pd.Series(target, index=shares.index, name="target")
 
-    # --- alpha
-    score = rng.normal(size=n_assets)
+    # --- alpha: scores that forecast next year's specific returns with correlation IC
+    next_year = specific_vol * rng.normal(size=n_assets)
+    score = alpha_scores(next_year / specific_vol, INFORMATION_COEFFICIENT, rng)
     alpha = pd.Series(INFORMATION_COEFFICIENT * specific_vol * score, index=assets, name="alpha")
     no_score = rng.choice(n_assets, size=n_assets // 20, replace=False)
     alpha = alpha.drop(alpha.index[no_score])
@@ -263,6 +274,7 @@ def make_demo_fund(
         shares=shares,
         cash=cash,
         alpha=alpha,
+        next_year_specific=pd.Series(next_year, index=assets, name="next_year_specific"),
     )
 
 

@@ -23,7 +23,8 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         folder/data/attributes.csv         asset, industry, price, adv, spread, market_cap
         folder/data/characteristics.csv    asset, size, value, momentum, low_risk, industry
         folder/data/truth/                 the simulated model: exposures, factor_covariance,
-                                           specific_variance (per day)
+                                           specific_variance (per day), and next_year_specific:
+                                           the specific returns the alpha scores forecast
 
     Returns
     -------
@@ -56,6 +57,7 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
     csv(fund.exposures, "exposures", truth)
     csv(fund.factor_covariance, "factor_covariance", truth, index_label="factor")
     csv(fund.specific_variance.to_frame("specific_variance"), "specific_variance", truth)
+    csv(fund.next_year_specific.to_frame("next_year_specific"), "next_year_specific", truth)
     for name, text in DEMO_FILES.items():
         path = root / name
         path.write_text(text, encoding="utf-8")
