@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from trimtab.errors import ScenarioError
+from trimtab.errors import InputError, ScenarioError
 from trimtab.model import fit_time_series
 from trimtab.scenario import fit_model, load_fit_config
 
@@ -62,3 +62,35 @@ def test_fit_config_errors(files: Path) -> None:
     unknown = config(files, "method: time_series\nreturns: data/returns.csv\nfactor_returns: data/factors.csv\nwindow: 20\n")
     with pytest.raises(ScenarioError, match=r"fit\.yaml: window: unknown key; allowed here: description, exposure_columns"):
         load_fit_config(unknown)
+
+
+def test_cross_section_and_statistical_fits_from_files(files: Path) -> None:
+    from trimtab.model import fit_cross_section, fit_statistical
+
+    rng = np.random.default_rng(5)
+    characteristics = pd.DataFrame(
+        {"size": rng.normal(size=8), "value": rng.normal(size=8), "industry": ["a", "b"] * 4, "note": list("xxxxxxxx")},
+        index=pd.Index([f"S{i}" for i in range(8)], name="asset"),
+    )
+    characteristics.to_csv(files / "data" / "characteristics.csv")
+    path = config(
+        files,
+        "method: cross_section\nreturns: data/returns.csv\nexposures: data/characteristics.csv\n"
+        "exposure_columns: [size, value]\nindustry_column: industry\n",
+    )
+    model = fit_model(load_fit_config(path), path)
+    returns = pd.read_csv(files / "data" / "returns.csv", index_col="date", parse_dates=True)
+    direct = fit_cross_section(returns, characteristics[["size", "value"]], industry=characteristics["industry"])
+    pd.testing.assert_frame_equal(model.factor_covariance, direct.factor_covariance)
+    # a time-series-only setting is refused with its key
+    bad = config(files, "method: cross_section\nreturns: data/returns.csv\nexposures: data/characteristics.csv\nhalf_life: 60\n")
+    with pytest.raises(ScenarioError, match=r"fit\.yaml: half_life: not a setting of the cross_section estimator"):
+        fit_model(load_fit_config(bad), bad)
+    missing = config(files, "method: cross_section\nreturns: data/returns.csv\nexposures: data/characteristics.csv\nexposure_columns: [momentum]\n")
+    with pytest.raises(InputError, match=r"characteristics\.csv: exposures file lacks columns momentum"):
+        fit_model(load_fit_config(missing), missing)
+
+    stat = config(files, "method: statistical\nreturns: data/returns.csv\nn_factors: 2\n")
+    model = fit_model(load_fit_config(stat), stat)
+    assert model.n_factors == 2
+    pd.testing.assert_frame_equal(model.exposures, fit_statistical(returns, n_factors=2).exposures)

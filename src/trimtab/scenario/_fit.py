@@ -89,9 +89,8 @@ def fit_model(settings: FitSettings, source: str | Path = "fit") -> FactorModel:
     except TypeError as err:
         if "unexpected keyword argument" in str(err):
             bad = str(err).split("argument")[-1].strip(" '\"")
-            raise ScenarioError(
-                f"{source}: options.{bad}: not a setting of the {settings.method} estimator"
-            ) from None
+            key = f"options.{bad}" if bad in settings.options else bad
+            raise ScenarioError(f"{source}: {key}: not a setting of the {settings.method} estimator") from None
         raise
     if settings.factor_groups:
         unknown = [f for f in settings.factor_groups if f not in set(model.factors)]
