@@ -115,7 +115,7 @@ def test_fit_writes_a_model_and_refuses_to_clobber(work: Path) -> None:
     assert (work / "model2" / "manifest.json").exists()
     again = invoke("fit", work / "fit.yaml", "--out", work / "model2")
     assert again.exit_code == EXIT_BAD_INPUT
-    one_error_line(again, r"already holds a model; pass overwrite=True")
+    one_error_line(again, r"model2: already holds a model; pass --overwrite to replace it")
     assert invoke("--json", "fit", work / "fit.yaml", "--out", work / "model2", "--overwrite", "--format", "csv").exit_code == 0
     assert (work / "model2" / "exposures.csv").exists()
     # an output folder holding the inputs is refused, and nothing in it changes

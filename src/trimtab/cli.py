@@ -330,6 +330,8 @@ def fit(
         step("reading the fit config")
         settings = load_fit_config(config)
         check_inputs_outside(out, [config, settings.returns.path, *(s.path for s in (settings.factor_returns, settings.exposures) if s)])
+        if (Path(out) / "manifest.json").exists() and not overwrite:
+            raise InputError(f"{out}: already holds a model; pass --overwrite to replace it")
         step(f"fitting a {settings.method} model")
         model = fit_model(settings, config)
         step("saving the model")
