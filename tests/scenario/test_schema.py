@@ -52,6 +52,7 @@ def test_good_file_and_defaults(tmp_path: Path) -> None:
         (GOOD.replace("model: model", "model: {path: m, fit: {method: statistical, returns: r.csv}}"), r"model: give exactly one of path \(a saved model folder\) or fit \(fit settings\)"),
         (GOOD.replace("model: model", "model: {fit: {method: time_series, returns: r.csv}}"), r"model\.fit: method time_series needs factor_returns"),
         (GOOD.replace("model: model", "model: {fit: {method: guess, returns: r.csv}}"), r"model\.fit\.method: expected 'time_series', 'cross_section' or 'statistical', got 'guess'"),
+        (GOOD + "name: ../elsewhere\n", r"s\.yaml: name: expected a name usable as a folder name \(no / or \\, not \. or \.\.\), got '\.\./elsewhere'"),
         (GOOD + "data: {holdings: 5}\n", r"data\.holdings: expected a valid dictionary or instance of HoldingsFile, got 5"),
     ],
 )

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 FileFormat = Literal["auto", "csv", "parquet"]
 
@@ -134,10 +134,17 @@ class OutputSection(_Strict):
 class ScenarioSpec(_Strict):
     """A whole scenario file after ``extends`` has been merged."""
 
-    name: str = Field(min_length=1)
+    name: str = Field(min_length=1, description="names the output folder: no / or \\, not . or ..")
     description: str | None = None
     model: ModelSection
     data: DataSection
     objective: dict[str, Any]
     constraints: dict[str, Any] = Field(default_factory=dict)
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
+
+    @field_validator("name")
+    @classmethod
+    def _folder_name(cls, value: str) -> str:
+        if "/" in value or "\\" in value or value in (".", ".."):
+            raise ValueError(f"expected a name usable as a folder name (no / or \\, not . or ..), got {value!r}")
+        return value
