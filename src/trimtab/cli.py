@@ -263,9 +263,9 @@ def _infeasible_line(err: InfeasibleError) -> str:
 
 
 def _report_module() -> Any:
-    from trimtab.scenario._run import _report
+    from trimtab.scenario._run import report_writers
 
-    return _report()
+    return report_writers()
 
 
 # ---------------------------------------------------------------------- check

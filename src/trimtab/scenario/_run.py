@@ -136,7 +136,7 @@ def write_rebalance(run: ScenarioRun, target: Path | None = None) -> Written:
 
 def write_run_files(run: ScenarioRun, folder: Path, final: Path, *, tables: str, write_json: bool, html: bool) -> None:
     """The files of one run, into an existing (temporary) ``folder`` that becomes ``final``."""
-    report = _report()
+    report = report_writers()
     scenario = run.inputs.scenario
     (folder / "scenario.yaml").write_text(scenario_yaml(scenario, final), encoding="utf-8")
     alignment = run.inputs.alignment
@@ -156,7 +156,7 @@ def write_run_files(run: ScenarioRun, folder: Path, final: Path, *, tables: str,
 
 def write_comparison(runs: Sequence[ScenarioRun], target: Path, *, html: bool = True) -> Written:
     """Write the what-if comparison: one table, one report, and each scenario's own files."""
-    report = _report()
+    report = report_writers()
     inputs: list[Path] = []
     for run in runs:
         inputs.extend(input_files(run.inputs))
@@ -190,7 +190,7 @@ def comparison_table(runs: Sequence[ScenarioRun]) -> pd.DataFrame:
 
 def write_attribution(attribution: Any, out: Path, inputs: Sequence[Path]) -> Written:
     """Write one attribution's tables, result.json and report.html into ``out``."""
-    report = _report()
+    report = report_writers()
     with output_folder(out, inputs) as tmp:
         report.write_tables(attribution, tmp, file_format="csv")
         report.write_json(attribution, tmp / "result.json")
@@ -199,7 +199,8 @@ def write_attribution(attribution: Any, out: Path, inputs: Sequence[Path]) -> Wr
     return Written(Path(out), names)
 
 
-def _report() -> Any:
+def report_writers() -> Any:
+    """:mod:`trimtab.report`, or a one-line error when this build lacks it."""
     try:
         import trimtab.report as report
     except ImportError:
