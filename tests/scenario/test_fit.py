@@ -94,3 +94,12 @@ def test_cross_section_and_statistical_fits_from_files(files: Path) -> None:
     model = fit_model(load_fit_config(stat), stat)
     assert model.n_factors == 2
     pd.testing.assert_frame_equal(model.exposures, fit_statistical(returns, n_factors=2).exposures)
+
+
+def test_require_names_what_is_missing() -> None:
+    from trimtab.errors import TrimtabError
+    from trimtab.scenario._fit import require
+
+    assert require("trimtab.model", "fit_time_series") is fit_time_series
+    with pytest.raises(TrimtabError, match=r"trimtab\.model\.fit_nothing is not available in this version of trimtab"):
+        require("trimtab.model", "fit_nothing")

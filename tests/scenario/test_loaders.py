@@ -142,3 +142,9 @@ def test_series_and_attributes(tmp_path: Path) -> None:
     attrs = load_attributes(AttributesFile(path=str(tmp_path / "attr.csv")))
     assert list(attrs.index) == ["7", "BBB"]  # ids are text even when they look like numbers
     assert attrs.loc["BBB", "industry"] == "Murmur Media"
+
+
+def test_book_without_value(tmp_path: Path) -> None:
+    (tmp_path / "z.csv").write_text("asset,shares,price\nAAA,0,10\n", encoding="utf-8")
+    with pytest.raises(InputError, match=r"z\.csv: the book's value Σ shares·price \+ cash is 0; expected a positive NAV"):
+        load_holdings(HoldingsFile(path=str(tmp_path / "z.csv"), kind="shares"))

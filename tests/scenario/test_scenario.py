@@ -58,3 +58,13 @@ def test_unknown_holdings_stop_or_are_dropped(folder: Path) -> None:
     assert "NOTINMODEL" not in inputs.holdings.index
     # the child kept the base's kind and cash (mappings merge key by key)
     assert inputs.scenario.spec.data.holdings.kind == "shares"
+
+
+def test_no_held_asset_in_the_model(folder: Path) -> None:
+    (folder / "data" / "holdings_none.csv").write_text("asset,weight\nNOTHERE,1.0\n", encoding="utf-8")
+    (folder / "none.yaml").write_text(
+        "extends: base.yaml\ndata:\n  holdings: {path: data/holdings_none.csv, kind: weights}\n  unknown_assets: drop\n",
+        encoding="utf-8",
+    )
+    with pytest.raises(InputError, match=r"holdings_none\.csv: no held asset is in the risk model"):
+        load_inputs(load_scenario(folder / "none.yaml", deep=False))

@@ -125,3 +125,10 @@ def test_error_names_the_file_that_set_the_key(tmp_path: Path) -> None:
     child = write(tmp_path / "child.yaml", "extends: base.yaml\n")
     with pytest.raises(ScenarioError, match=r"base\.yaml: output\.tables: expected 'csv', 'parquet' or 'none', got 'xlsx'"):
         load_scenario(child, deep=False)
+
+
+def test_unreadable_file(tmp_path: Path) -> None:
+    path = tmp_path / "latin.yaml"
+    path.write_bytes("description: caf\xe9\n".encode("latin-1"))
+    with pytest.raises(ScenarioError, match=r"latin\.yaml: could not read the scenario file: 'utf-8' codec can't decode"):
+        read_yaml_mapping(path)

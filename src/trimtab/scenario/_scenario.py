@@ -11,7 +11,7 @@ from typing import Any
 
 import pandas as pd
 
-from trimtab.errors import ScenarioError, TrimtabError
+from trimtab.errors import InputError, ScenarioError
 from trimtab.model import FactorModel
 from trimtab.scenario._align import AlignmentReport, align_inputs
 from trimtab.scenario._fit import fit_model
@@ -222,7 +222,7 @@ def load_inputs(
         model_dropped=dropped,
     )
     if aligned.holdings.empty:
-        raise TrimtabError(f"{data.holdings.path}: no held asset is in the risk model")
+        raise InputError(f"{data.holdings.path}: no held asset is in the risk model")
     return ScenarioInputs(
         scenario=scenario,
         model=model,
