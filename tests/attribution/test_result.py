@@ -115,3 +115,11 @@ def test_format_figure_units() -> None:
     assert format_figure(-4e-16, "limit") == "0" and format_figure(8.266e-3, "limit") == "0.008266"
     assert format_figure(2.5e-4, "bp") == "2.50 bp" and format_figure(0.00004, "variance") == "0.000040"
     assert format_figure(1234567.8, "amount") == "1,234,568"
+
+
+def test_summary_prints_as_text(small_model) -> None:
+    # print(attribution.summary()) must read as text, not as a dataclass repr
+    weights = pd.Series(1.0 / small_model.n_assets, index=small_model.assets)
+    summary = small_model.attribute(weights).summary()
+    assert str(summary) == summary.as_text()
+    assert str(summary).startswith("Total risk attribution")

@@ -398,6 +398,9 @@ class AttributionSummary:
             )
         return "\n".join(lines)
 
+    def __str__(self) -> str:
+        return self.as_text()
+
 
 def figure_label(key: str, kind: str = "total") -> str:
     """The reader's label of a headline figure; the risk of an active portfolio is its tracking error."""
