@@ -175,6 +175,7 @@ class RebalanceProblem:
         for solver, settings in _solve.plan(self.solvers):
             attempt = _solve.run(problem, solver, settings)
             attempts.append(attempt)
+            name = _solve.label(solver, settings)
             if attempt.status in _solve.UNBOUNDED:
                 raise SolverError(
                     f"{self.spec.source}: the objective {self.objective.kind} is unbounded under these "
@@ -182,23 +183,26 @@ class RebalanceProblem:
                 )
             if attempt.status in _solve.INFEASIBLE:
                 _elastic.diagnose(self, extra, attempts)  # raises InfeasibleError when confirmed
-                rejected.append(f"{solver}: {attempt.status} but the elastic re-solve found no conflict")
+                rejected.append(f"{name}: {attempt.status} but the elastic re-solve found no conflict")
                 continue
             if variables.w.value is None or attempt.status not in (*_solve.OPTIMAL, cp.OPTIMAL_INACCURATE):
-                rejected.append(f"{solver}: {attempt.status}{' ' + attempt.message if attempt.message else ''}")
+                rejected.append(f"{name}: {attempt.status}{' ' + attempt.message if attempt.message else ''}")
                 continue
+            # an optimal_inaccurate status is judged against the solver's reduced tolerances: never accepted
+            if attempt.status != cp.OPTIMAL:
+                rejected.append(f"{name}: status {attempt.status}")
+                continue
+            # every rung, relaxed ones included, is verified from w with numpy
             weights = np.asarray(variables.w.value, dtype=np.float64).copy()
             solver_objective = float(problem.value)
             numpy_objective = self.objective.breakdown(weights, soft_penalty(rows, weights))["total"]
             table = verify(rows, weights, solver_objective=solver_objective, numpy_objective=numpy_objective)
-            if attempt.status != cp.OPTIMAL:
-                rejected.append(f"{solver}: status {attempt.status}")
-                continue
             if len(failures(table)):
-                rejected.append(f"{solver}: {describe_failures(table)}")
+                rejected.append(f"{name}: {describe_failures(table)}")
                 continue
+            notes = [f"solver: accepted {name} after {' | '.join(rejected)}"] if rejected else []
             return Outcome(weights, attempt.status, solver, attempt.iterations, attempt.seconds, build_time,
-                           attempts, table, assembly.duals(), rows, solver_objective)
+                           attempts, table, assembly.duals(), rows, solver_objective, notes)
         raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(rejected))
 
 
