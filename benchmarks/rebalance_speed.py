@@ -1,7 +1,7 @@
 """Speed of one rebalance against the straightforward cvxpy build; prints figures, asserts nothing.
 
     python benchmarks/rebalance_speed.py [--quick] [--sizes 5000x50,20000x100] [--repeats 3]
-                                         [--no-profile] [--no-prototype] [--no-settings] [--dpp] [--grid]
+                                         [--no-profile] [--no-prototype] [--no-settings] [--dpp] [--grid] [--timers]
 
 For each size N×K (default 5,000×50), on a seeded random instance (benchmarks/_instances.py:
 fully invested, 0 ≤ w ≤ 5 %, |active exposure| ≤ 0.1 on every factor, one-way turnover cap,
@@ -17,7 +17,8 @@ linear costs, tracking-error cap, utility objective), medians of ``--repeats`` r
    here by hand (y = Bᵀw as variables, w = w0 + buy − sell, TE as one cone over [Lᵀy; √d∘(w − b)]),
    with trimtab's Clarabel settings, plus a re-solve that only updates the vectors q and b;
 5. trimtab's rebalance under variants of Clarabel's settings (SOLVER_SETTINGS changed in this
-   process only), ``--dpp``: the lean build with cvxpy Parameters, and a cProfile breakdown.
+   process only), ``--dpp``: the lean build with cvxpy Parameters, and a cProfile breakdown;
+   ``--timers``: only Clarabel's own timers for the prototype.
 
 Every objective is recomputed from the returned w with plain numpy and every limit is checked from
 w (max breach printed). ``--grid`` prints the N ∈ {1k, 5k, 20k} × K ∈ {20, 50, 100} table of
@@ -556,6 +557,17 @@ def grid(repeats: int, prototype: bool) -> None:
           "(attribution, tables); cpu = CPU seconds of this process")
 
 
+def clarabel_timers(inst: SpeedInstance) -> None:
+    """Clarabel's own timers (setup, factorisation, solves) for the PROTOTYPE at this size."""
+    direct = DirectPrototype(inst)
+    run = direct.solve()
+    info = direct.solver.get_info()
+    print(f"\n== Clarabel's timers, PROTOTYPE at N = {inst.model.n_assets:,}, K = {inst.model.n_factors}: "
+          f"{run.iterations} iterations, {run.total:.3f} s; LDLᵀ factor nnz {info.linsolver.nnzL:,} "
+          f"({info.linsolver.name}, {info.linsolver.threads} thread)", flush=True)
+    direct.solver.print_timers()
+
+
 def parse_sizes(text: str) -> list[tuple[int, int]]:
     out = []
     for part in text.split(","):
@@ -573,6 +585,7 @@ def main() -> None:
     parser.add_argument("--no-prototype", action="store_true")
     parser.add_argument("--no-settings", action="store_true", help="skip the Clarabel settings variants")
     parser.add_argument("--dpp", action="store_true", help="also time cvxpy Parameters (slow: tens of seconds)")
+    parser.add_argument("--timers", action="store_true", help="only Clarabel's timers for the prototype")
     parser.add_argument("--grid", action="store_true", help="only the N × K table for docs/performance.md")
     args = parser.parse_args()
     print(f"load average at start: {', '.join(f'{x:.2f}' for x in os.getloadavg())} ({os.cpu_count()} cores)")
@@ -583,6 +596,10 @@ def main() -> None:
     straightforward(warm)
     if args.grid:
         grid(args.repeats, not args.no_prototype)
+        return
+    if args.timers:
+        for n, k in [(1_000, 20)] if args.quick else parse_sizes(args.sizes):
+            clarabel_timers(speed_instance(n, k, seed=n + k))
         return
     for n, k in [(1_000, 20)] if args.quick else parse_sizes(args.sizes):
         compare(speed_instance(n, k, seed=n + k), args.repeats, not args.no_prototype, not args.no_profile, args.dpp,
