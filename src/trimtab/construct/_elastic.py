@@ -30,8 +30,9 @@ ELASTIC_TOL = 1e-6
 def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[Any]) -> None:
     """Solve the elastic problem; raise InfeasibleError naming the conflicts when there are any."""
     cvx, variables, assembly = problem.build(extra, elastic=True)
-    for solver in problem.solvers:
-        attempt = _solve.run(cvx, solver)
+    # the same ladder of settings as the main solve: Clarabel can stall at its tightest tolerance
+    for solver, settings in _solve.plan(problem.solvers):
+        attempt = _solve.run(cvx, solver, settings)
         attempts.append(attempt)
         if attempt.status == _solve.cp.OPTIMAL and variables.w.value is not None:
             break
