@@ -1,7 +1,7 @@
 """Speed of one rebalance against the straightforward cvxpy build; prints figures, asserts nothing.
 
     python benchmarks/rebalance_speed.py [--quick] [--sizes 5000x50,20000x100] [--repeats 3]
-                                         [--no-profile] [--no-prototype] [--no-settings] [--dpp] [--grid] [--timers]
+                                         [--no-profile] [--no-prototype] [--no-settings] [--dpp] [--grid] [--timers] [--trimtab-only]
 
 For each size N×K (default 5,000×50), on a seeded random instance (benchmarks/_instances.py:
 fully invested, 0 ≤ w ≤ 5 %, |active exposure| ≤ 0.1 on every factor, one-way turnover cap,
@@ -18,7 +18,8 @@ linear costs, tracking-error cap, utility objective), medians of ``--repeats`` r
    with trimtab's Clarabel settings, plus a re-solve that only updates the vectors q and b;
 5. trimtab's rebalance under variants of Clarabel's settings (SOLVER_SETTINGS changed in this
    process only), ``--dpp``: the lean build with cvxpy Parameters, and a cProfile breakdown;
-   ``--timers``: only Clarabel's own timers for the prototype.
+   ``--timers``: only Clarabel's own timers for the prototype; ``--trimtab-only``: only trimtab's
+   rebalance (run it with and without OPENBLAS_NUM_THREADS=1 to see what BLAS threads cost).
 
 Every objective is recomputed from the returned w with plain numpy and every limit is checked from
 w (max breach printed). ``--grid`` prints the N ∈ {1k, 5k, 20k} × K ∈ {20, 50, 100} table of
@@ -557,6 +558,19 @@ def grid(repeats: int, prototype: bool) -> None:
           "(attribution, tables); cpu = CPU seconds of this process")
 
 
+def trimtab_only(sizes: list[tuple[int, int]], repeats: int) -> None:
+    """trimtab's rebalance alone, a fresh model each run (its cached arrays recomputed, as in a new session)."""
+    threads = os.environ.get("OPENBLAS_NUM_THREADS", "unset")
+    print(f"\n== trimtab rebalance only (OPENBLAS_NUM_THREADS={threads}), medians of {repeats}")
+    for n, k in sizes:
+        runs = [timed_cpu(lambda: trimtab_rebalance(speed_instance(n, k, seed=n + k))) for _ in range(repeats)]
+        med = {key: statistics.median(r.stages[key] for r in runs) for key in ("build", "compile", "clarabel")}
+        other = statistics.median(r.stages["verify+result"] + r.stages["solve other"] for r in runs)
+        print(f"  N = {n:,}, K = {k}: total {statistics.median(r.total for r in runs):.3f} s, "
+              f"cpu {statistics.median(r.cpu for r in runs):.3f} s; build {med['build']:.3f}, compile {med['compile']:.3f}, "
+              f"Clarabel {med['clarabel']:.3f}, other {other:.3f}", flush=True)
+
+
 def clarabel_timers(inst: SpeedInstance) -> None:
     """Clarabel's own timers (setup, factorisation, solves) for the PROTOTYPE at this size."""
     direct = DirectPrototype(inst)
@@ -585,6 +599,7 @@ def main() -> None:
     parser.add_argument("--no-prototype", action="store_true")
     parser.add_argument("--no-settings", action="store_true", help="skip the Clarabel settings variants")
     parser.add_argument("--dpp", action="store_true", help="also time cvxpy Parameters (slow: tens of seconds)")
+    parser.add_argument("--trimtab-only", action="store_true", help="only trimtab's rebalance at --sizes")
     parser.add_argument("--timers", action="store_true", help="only Clarabel's timers for the prototype")
     parser.add_argument("--grid", action="store_true", help="only the N × K table for docs/performance.md")
     args = parser.parse_args()
@@ -596,6 +611,9 @@ def main() -> None:
     straightforward(warm)
     if args.grid:
         grid(args.repeats, not args.no_prototype)
+        return
+    if args.trimtab_only:
+        trimtab_only([(1_000, 20)] if args.quick else parse_sizes(args.sizes), args.repeats)
         return
     if args.timers:
         for n, k in [(1_000, 20)] if args.quick else parse_sizes(args.sizes):
