@@ -301,6 +301,18 @@ def test_compare(work: Path) -> None:
     assert result.exit_code == 1
     one_error_line(result, r"1 of 2 scenarios infeasible: infeasible")
     assert (work / "cmp" / "infeasible" / "relaxation.csv").exists()
+    # the infeasible scenario keeps its column and gets its part in the report, not dropped
+    status = next(line for line in result.stdout.splitlines() if line.startswith("│ status"))
+    assert [c.strip() for c in status.split("│")[2:4]] == ["solved", "infeasible"]
+    assert "Infeasible (infeasible): how far each conflicting limit must move" in result.stdout
+    page = (work / "cmp" / "report.html").read_text(encoding="utf-8")
+    assert "Scenario: infeasible</h2>" in page and "limits conflict" in page and "the upper limit of turnover must rise" in page
+    raw = pd.read_csv(work / "cmp" / "infeasible" / "relaxation.csv")
+    turnover = raw.set_index("constraint").loc["turnover"]
+    # the terminal shows the raw fractions of NAV as percent with three decimals
+    assert f"{100 * turnover['limit']:.3f}%" in result.stdout and f"{100 * turnover['needed']:.3f}%" in result.stdout
+    document = json.loads((work / "cmp" / "infeasible" / "result.json").read_text(encoding="utf-8"))
+    assert document["kind"] == "infeasible" and document["relaxation"][0]["needed"] == pytest.approx(raw["needed"].iloc[0])
     result = invoke("compare", work / "base.yaml", work / "base.yaml")
     one_error_line(result, r"compare: scenario names must differ; base appears twice")
 

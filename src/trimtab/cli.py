@@ -231,18 +231,10 @@ def _frame_table(frame: pd.DataFrame, title: str, *, percent: Sequence[str] = ()
 
 
 def _print_relaxation(ui: Ui, name: str | None, err: InfeasibleError) -> None:
-    from trimtab.scenario._run import relaxation_frame
-
-    frame = relaxation_frame(err)
-    if ui.json:
+    """The relaxation table in each limit's unit (weights as % of NAV), unless --json or --quiet."""
+    if not ui.chatty:
         return
-    if ui.quiet:
-        return
-    title = f"Infeasible{f' ({name})' if name else ''}: how far each conflicting limit must move"
-    if frame.empty:
-        ui.say(f"[bold]{title}[/bold]: the optimizer gave no relaxation table")
-    else:
-        ui.table(_frame_table(frame, title))
+    _report_module().print_relaxation(err, console=ui.out, name=name)
 
 
 def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
@@ -363,7 +355,10 @@ def risk(
     top: Annotated[int, typer.Option("--top", help="How many top contributors to list.", min=1)] = 10,
     out: Annotated[Path | None, typer.Option("--out", "-o", help="Also write the tables, JSON and HTML report to this folder.")] = None,
 ) -> None:
-    """Attribute a book's risk (active risk with --benchmark) to factors, groups and positions."""
+    """Attribute a book's risk to factors, factor groups and positions.
+
+    With --benchmark the risk attributed is active risk (tracking error).
+    """
     from trimtab import FactorModel
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
     from trimtab.scenario._run import write_attribution
@@ -476,7 +471,7 @@ def _print_result(ui: Ui, result: Any) -> None:
 @_guarded
 def compare(
     ctx: typer.Context,
-    scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files (each with its own name).", metavar="SCENARIO.yaml...", show_default=False)],
+    scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files (each with its own name).", metavar="SCENARIO.yaml", show_default=False)],
     out: Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/compare next to the first scenario).", show_default=False)] = None,
 ) -> None:
     """Run what-if scenarios side by side: one table and one HTML report.
@@ -506,26 +501,19 @@ def compare(
     table = comparison_table(runs)
     ui.emit({"scenarios": names, "status": {r.name: r.status for r in runs}, "comparison": table, "output": str(written.folder)})
     if ui.chatty:
-        _print_comparison(ui, runs, table)
+        _print_comparison(ui, runs)
         ui.say(f"Wrote the comparison to {written.folder}")
         unsolved = [r.name for r in runs if r.error is not None]
         if unsolved:
-            ui.say(f"report.html covers the solved scenarios; {', '.join(f'{n}/relaxation.csv' for n in unsolved)} hold the rest")
+            ui.say(f"report.html shows every scenario; {', '.join(f'{n}/relaxation.csv' for n in unsolved)} hold the raw relaxation numbers")
     _exit_for(runs)
 
 
-def _print_comparison(ui: Ui, runs: Sequence[Any], table: pd.DataFrame) -> None:
-    report = _optional_report()
-    solved = {r.name: r.result for r in runs if r.result is not None}
-    if report is not None and hasattr(report, "print_comparison") and solved:
-        report.print_comparison(solved, console=ui.out)
-    else:
-        ui.table(_frame_table(table, "What-if comparison"))
-    for run in runs:
-        if isinstance(run.error, InfeasibleError):
-            _print_relaxation(ui, run.name, run.error)
-        elif run.error is not None:
-            ui.say(f"[red]{run.name}: solver failure[/red]: {run.error}")
+def _print_comparison(ui: Ui, runs: Sequence[Any]) -> None:
+    """Every scenario side by side; an unsolved one shows its status, then its relaxation table."""
+    from trimtab.scenario._run import comparison_subjects
+
+    _report_module().print_comparison(comparison_subjects(runs), console=ui.out)
 
 
 def _exit_for(runs: Sequence[Any]) -> None:
@@ -588,8 +576,8 @@ def demo(
         ("model/", "the fitted risk model"),
         ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
         ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),
-        ("results/compare/report.html", "the solved scenarios side by side (comparison.csv and one folder each,"),
-        ("", "with infeasible/relaxation.csv for the impossible one)"),
+        ("results/compare/report.html", "the four scenarios side by side, the impossible one with its relaxation"),
+        ("", "table (comparison.csv and one folder each; infeasible/relaxation.csv holds the raw numbers)"),
         ("*.yaml", "the scenarios and fit configs, ready to edit and rerun"),
     ]
     width = max(len(name) for name, _ in files) + 2

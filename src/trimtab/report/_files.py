@@ -22,9 +22,10 @@ from trimtab._version import __version__
 from trimtab.attribution import RiskAttribution
 from trimtab.errors import InputError
 from trimtab.report._content import CAUTION, gather, group_columns
+from trimtab.report._relaxation import Unsolved, is_unsolved, unsolved
 
 #: Version of the JSON document layout described in docs/outputs.md.
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "1.1"
 #: Table formats :func:`write_tables` can write.
 TABLE_FORMATS = ("csv", "parquet")
 
@@ -61,7 +62,13 @@ def atomic_write_text(path: Path, text: str) -> Path:
 
 # ---------------------------------------------------------------------- tables
 def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
-    """The tables :func:`write_tables` writes, by file stem (see docs/outputs.md for each)."""
+    """The tables :func:`write_tables` writes, by file stem (see docs/outputs.md for each).
+
+    An ``InfeasibleError`` or ``SolverError`` gives one table, ``relaxation`` (raw numbers, in each
+    limit's unit as the optimizer states it; empty for a solver failure).
+    """
+    if is_unsolved(subject):
+        return {"relaxation": unsolved(subject).relaxation}
     content = gather(subject)
     tables: dict[str, pd.DataFrame] = {"headline": content.headline}
     for prefix, attr in (("pre_trade", content.pre), ("post_trade", content.post)):
@@ -97,7 +104,8 @@ def write_tables(
 
     Parameters
     ----------
-    subject : RebalanceResult or RiskAttribution
+    subject : RebalanceResult, RiskAttribution, InfeasibleError or SolverError
+        An error writes its relaxation table only.
     out_dir : str or Path
     formats : sequence of {"csv", "parquet"}
     file_format : {"csv", "parquet"}, optional
@@ -158,6 +166,8 @@ def _parquet_ready(table: pd.DataFrame) -> pd.DataFrame:
 # ---------------------------------------------------------------------- JSON
 def report_document(subject: Any) -> dict[str, Any]:
     """The JSON document of :func:`write_json` as plain Python objects (NaN → None)."""
+    if is_unsolved(subject):
+        return _unsolved_document(unsolved(subject))
     content = gather(subject)
     budget = content.risk_budget
     document: dict[str, Any] = {
@@ -171,6 +181,7 @@ def report_document(subject: Any) -> dict[str, Any]:
         "risk_budget": None
         if budget is None
         else {"name": budget.name, "cap": budget.cap, "pre": budget.pre, "post": budget.post, "used": budget.used},
+        "relaxation": None,
         "headline": _records(content.headline, "figure"),
         "attribution": {
             "pre_trade": _attribution_document(content.pre, content.scenario),
@@ -187,12 +198,39 @@ def report_document(subject: Any) -> dict[str, Any]:
     return _plain(document)
 
 
+def _unsolved_document(failure: Unsolved) -> dict[str, Any]:
+    """The document of a scenario that did not solve: its status, message and relaxation rows."""
+    document: dict[str, Any] = {
+        "schema_version": SCHEMA_VERSION,
+        "document": "trimtab.report",
+        "kind": "infeasible" if failure.status == "infeasible" else "solver_failure",
+        "generated_by": {"package": "trimtab", "version": __version__},
+        "created_utc": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "cautions": [CAUTION],
+        "run": {"status": failure.status, "message": failure.message},
+        "risk_budget": None,
+        "relaxation": _records(failure.relaxation, None),
+        "headline": [],
+        "attribution": {"pre_trade": None, "post_trade": None},
+        "trades": None,
+        "trade_summary": None,
+        "constraints": None,
+        "objective": None,
+        "verification": None,
+        "provenance": {},
+        "scenario": {},
+    }
+    return _plain(document)
+
+
 def write_json(subject: Any, path: str | Path) -> Path:
     """Write the report as one JSON document (schema in docs/outputs.md, with ``schema_version``).
 
     Parameters
     ----------
-    subject : RebalanceResult or RiskAttribution
+    subject : RebalanceResult, RiskAttribution, InfeasibleError or SolverError
+        An error gives a document of kind ``infeasible`` (with its ``relaxation`` rows, raw numbers)
+        or ``solver_failure``.
     path : str or Path
         Written under a temporary name, then renamed.
 

@@ -17,6 +17,14 @@ from trimtab.attribution import compare_many, format_figure
 from trimtab.report import _charts
 from trimtab.report._content import CAUTION, ReportContent, flags, gather, gather_many, labelled, no_bound
 from trimtab.report._files import atomic_write_text
+from trimtab.report._relaxation import (
+    Unsolved,
+    display_relaxation,
+    is_unsolved,
+    relaxation_sentence,
+    split_subjects,
+    unsolved,
+)
 
 #: Headline figures shown as cards at the top of each report, in order.
 KEY_FIGURES = ("risk", "factor_percent", "beta", "value_at_risk_99_1d")
@@ -59,8 +67,11 @@ def write_html(
 
     Parameters
     ----------
-    subject : RebalanceResult, RiskAttribution, or Mapping[str, either]
-        One result, or several scenarios by name (a comparison table first, then one part each).
+    subject : RebalanceResult, RiskAttribution, InfeasibleError, SolverError, or Mapping[str, any of them]
+        One result, or several scenarios by name (a comparison table first, then one part each). A
+        scenario that did not solve (an ``InfeasibleError`` or ``SolverError`` value) gets the status
+        "infeasible" or "solver failure" in the comparison and a part with its relaxation table: which
+        limits conflict and how far each must move, in each limit's unit.
     path : str or Path
         The file to write; written under a temporary name, then renamed.
     title : str
@@ -87,16 +98,27 @@ def write_html(
 def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25) -> str:
     """The HTML document of :func:`write_html` as a string."""
     if isinstance(subject, Mapping):
-        contents = gather_many(subject, top=max(top, max_trades))
-        parts = [_comparison_section(subject, contents)]
-        parts += [
-            f'<article id="scenario-{i}"><h2 class="scenario">Scenario: {_e(name)}</h2>'
-            + _report_body(content, f"s{i}", top, max_trades, level=3)
-            + "</article>"
-            for i, (name, content) in enumerate(contents.items())
-        ]
-        nav = _nav([(f"scenario-{i}", f"Scenario: {name}") for i, name in enumerate(contents)], comparison=True)
+        if not subject:
+            gather_many(subject)  # raises the one-line error of an empty mapping
+        solved, failed = split_subjects(subject)
+        contents = gather_many(solved, top=max(top, max_trades)) if solved else {}
+        names = [str(name) for name in subject]
+        parts = [_comparison_section(solved, contents, failed, names)]
+        for i, name in enumerate(names):
+            inner = (
+                _unsolved_body(failed[name]) if name in failed
+                else _report_body(contents[name], f"s{i}", top, max_trades, level=3)
+            )
+            parts.append(f'<article id="scenario-{i}"><h2 class="scenario">Scenario: {_e(name)}</h2>{inner}</article>')
+        nav = _nav(
+            [(f"scenario-{i}", f"Scenario: {name}" + (f" ({failed[name].status})" if name in failed else ""))
+             for i, name in enumerate(names)],
+            comparison=True,
+        )
         body = "".join(parts)
+    elif is_unsolved(subject):
+        body = "<article>" + _unsolved_body(unsolved(subject)) + "</article>"
+        nav = ""
     else:
         content = gather(subject, top=max(top, max_trades))
         body = "<article>" + _report_body(content, "r", top, max_trades, level=2) + "</article>"
@@ -217,25 +239,74 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
     return "".join(f"<section>{p}</section>" for p in parts)
 
 
-def _comparison_section(subjects: Mapping[str, Any], contents: Mapping[str, ReportContent]) -> str:
-    table = compare_many(subjects)
-    first = next(iter(contents.values())).post
-    table = labelled(table[table.notna().any(axis=1)], first.kind)
-    rows = []
-    for _, row in table.iterrows():
-        cells = "".join(f'<td class="num">{format_figure(row[c], row["unit"])}</td>' for c in table.columns[2:])
-        rows.append(f"<tr><td>{_e(row['label'])}</td>{cells}</tr>")
+def _comparison_section(
+    solved: Mapping[str, Any], contents: Mapping[str, ReportContent], failed: Mapping[str, Unsolved], names: Sequence[str]
+) -> str:
+    """After-trade headline figures side by side; a scenario that did not solve shows its status only."""
+    status = "".join(
+        f'<td class="num"><span class="status {"bad" if name in failed else "ok"}">'
+        f'{_e(failed[name].status if name in failed else "solved")}</span></td>'
+        for name in names
+    )
+    rows = [f"<tr><td>Status</td>{status}</tr>"]
+    if solved:
+        table = compare_many(solved)
+        first = next(iter(contents.values())).post
+        table = labelled(table[table.notna().any(axis=1)], first.kind)
+        for _, row in table.iterrows():
+            cells = "".join(
+                '<td class="num">n/a</td>' if name in failed else f'<td class="num">{format_figure(row[name], row["unit"])}</td>'
+                for name in names
+            )
+            rows.append(f"<tr><td>{_e(row['label'])}</td>{cells}</tr>")
     budget_cells = "".join(
-        f'<td class="num">{format_figure(c.risk_budget.used, "fraction") if c.risk_budget else "n/a"}</td>'
-        for c in contents.values()
+        '<td class="num">n/a</td>' if name in failed
+        else f'<td class="num">{format_figure(contents[name].risk_budget.used, "fraction") if contents[name].risk_budget else "n/a"}</td>'  # type: ignore[union-attr]
+        for name in names
     )
     rows.append(f"<tr><td>Risk budget used</td>{budget_cells}</tr>")
-    head = "".join(f'<th class="num">{_e(c)}</th>' for c in table.columns[2:])
+    head = "".join(f'<th class="num">{_e(name)}</th>' for name in names)
+    note = ""
+    if failed:
+        note = (
+            f" {_e(', '.join(failed))} did not solve: "
+            + ("its part below shows" if len(failed) == 1 else "their parts below show")
+            + " which limits conflict and how far each must move."
+        )
     return (
         '<section id="comparison"><h2>Scenarios side by side</h2>'
-        "<p>After-trade figures of each scenario.</p>"
+        f"<p>After-trade figures of each scenario.{note}</p>"
         f"<table><thead><tr><th>Figure</th>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table></section>"
     )
+
+
+def _unsolved_body(failure: Unsolved) -> str:
+    """Status, message and (for an infeasible scenario) the relaxation table in each limit's unit."""
+    parts = [f'<p class="meta">Status <span class="status bad">{_e(failure.status)}</span></p>']
+    if failure.status == "infeasible":
+        parts.append(f'<p class="relaxation">{_e(relaxation_sentence(failure.relaxation))}</p>')
+        if not failure.relaxation.empty:
+            shown = display_relaxation(failure.relaxation)
+            text_columns = {"constraint", "kind", "side", "unit"}
+            head = "".join(f'<th class="{"" if c in text_columns else "num"}">{_e(_header(c, _RELAXATION_HEADERS))}</th>'
+                           for c in shown.columns)
+            body = "".join(
+                "<tr>" + "".join(
+                    f'<td class="{"" if c in text_columns else "num"}">{_e(v).replace("[", "<wbr>[") if c == "constraint" else _e(v)}</td>'
+                    for c, v in row.items()
+                ) + "</tr>"
+                for _, row in shown.iterrows()
+            )
+            parts.append(
+                '<div class="wide"><table class="relaxation"><caption>How far each conflicting limit must move '
+                "for the others to hold (one minimal way; the raw numbers are in relaxation.csv).</caption>"
+                f"<thead><tr>{head}</tr></thead><tbody>{body}</tbody></table></div>"
+            )
+    parts.append(f'<p class="note">{_e(failure.message)}</p>')
+    return "".join(f"<section>{p}</section>" for p in parts)
+
+
+_RELAXATION_HEADERS = {"needed": "value needed", "relax_by": "move by", "scale": "unit of concern"}
 
 
 def _nav(items: Sequence[tuple[str, str]], *, comparison: bool) -> str:

@@ -49,20 +49,20 @@ _ATTRIBUTION = {
     },
 }
 
-#: JSON Schema of the report document, ``schema_version`` "1.0".
+#: JSON Schema of the report document, ``schema_version`` "1.1".
 JSON_SCHEMA: dict[str, Any] = {
     "$schema": "https://json-schema.org/draft/2020-12/schema",
     "title": "trimtab report document",
     "type": "object",
     "required": [
         "schema_version", "document", "kind", "generated_by", "created_utc", "cautions", "run",
-        "risk_budget", "headline", "attribution", "trades", "trade_summary", "constraints", "objective",
+        "risk_budget", "relaxation", "headline", "attribution", "trades", "trade_summary", "constraints", "objective",
         "verification", "provenance", "scenario",
     ],
     "properties": {
-        "schema_version": {"const": "1.0"},
+        "schema_version": {"const": "1.1"},
         "document": {"const": "trimtab.report"},
-        "kind": {"enum": ["rebalance", "attribution"]},
+        "kind": {"enum": ["rebalance", "attribution", "infeasible", "solver_failure"]},
         "generated_by": {
             "type": "object",
             "required": ["package", "version"],
@@ -82,11 +82,14 @@ JSON_SCHEMA: dict[str, Any] = {
                 "used": {"type": "number"},
             },
         },
+        "relaxation": _rows(
+            "constraint", "kind", "side", "limit", "needed", "relax_by", "scale", "unit", nullable=True
+        ),
         "headline": _rows("figure", "label", "unit", "post"),
         "attribution": {
             "type": "object",
             "required": ["pre_trade", "post_trade"],
-            "properties": {"pre_trade": _ATTRIBUTION, "post_trade": {**_ATTRIBUTION, "type": "object"}},
+            "properties": {"pre_trade": _ATTRIBUTION, "post_trade": _ATTRIBUTION},
         },
         "trades": _rows("asset", "trade", nullable=True),
         "trade_summary": _rows("label", "unit", "value", nullable=True),

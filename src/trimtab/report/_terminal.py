@@ -11,6 +11,7 @@ from rich.table import Table
 
 from trimtab.attribution import compare_many, format_figure
 from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled, no_bound
+from trimtab.report._relaxation import Unsolved, display_relaxation, relaxation_sentence, split_subjects, unsolved
 
 
 def print_attribution(attr: Any, console: Console | None = None, *, top: int = 10) -> None:
@@ -98,28 +99,78 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
 def print_comparison(results: Mapping[str, Any], console: Console | None = None) -> None:
     """Print the headline figures of several scenarios, one column each, with their risk-budget use.
 
+    A scenario given as an ``InfeasibleError`` or ``SolverError`` has the status "infeasible" or
+    "solver failure" and n/a figures; its relaxation table (or the solver's message) follows the table.
+
     Raises
     ------
     InputError
-        If the mapping is empty or a value has no attribution.
+        If the mapping is empty or a value is neither an error nor a result with an attribution.
     """
-    contents = gather_many(results)
+    if not isinstance(results, Mapping) or not results:
+        gather_many(results)  # raises the one-line error of an empty mapping
+    solved, failed = split_subjects(results)
+    contents = gather_many(solved) if solved else {}
+    names = [str(name) for name in results]
     out = console or Console()
-    frame = compare_many(results)
-    first = next(iter(contents.values())).post
-    frame = labelled(frame[frame.notna().any(axis=1)], first.kind)
     table = Table(title="Scenarios side by side (after trades)", title_justify="left")
     table.add_column("figure")
-    for name in contents:
+    for name in names:
         table.add_column(name, justify="right")
-    for _, row in frame.iterrows():
-        table.add_row(str(row["label"]), *[format_figure(row[name], row["unit"]) for name in contents])
+    table.add_row("status", *[failed[n].status if n in failed else "solved" for n in names])
+    if solved:
+        frame = compare_many(solved)
+        first = next(iter(contents.values())).post
+        frame = labelled(frame[frame.notna().any(axis=1)], first.kind)
+        for _, row in frame.iterrows():
+            table.add_row(str(row["label"]), *["n/a" if n in failed else format_figure(row[n], row["unit"]) for n in names])
     table.add_row(
         "Risk budget used",
-        *[format_figure(c.risk_budget.used, "fraction") if c.risk_budget else "n/a" for c in contents.values()],
+        *["n/a" if n in failed or contents[n].risk_budget is None
+          else format_figure(contents[n].risk_budget.used, "fraction") for n in names],  # type: ignore[union-attr]
     )
     out.print(table)
+    for name, failure in failed.items():
+        if failure.status == "infeasible":
+            print_relaxation(failure, out, name=name)
+        else:
+            out.print(f"[red]{name}: solver failure[/red]: {failure.message}", markup=True, highlight=False)
     out.print(f"[italic]{CAUTION}[/italic]")
+
+
+def print_relaxation(error: Any, console: Console | None = None, *, name: str | None = None, max_rows: int = 20) -> None:
+    """Print an infeasible scenario's relaxation table, numbers in each limit's unit, with one
+    sentence naming the conflicting limits and how far each must move.
+
+    Parameters
+    ----------
+    error : InfeasibleError
+        Its ``relaxation`` table (raw units) is shown formatted: weights as % of NAV, annualised
+        volatility as %.
+    console : rich.console.Console, optional
+    name : str, optional
+        The scenario's name, shown in the title.
+    max_rows : int, default 20
+        Rows shown; the rest are counted in the caption.
+    """
+    failure = error if isinstance(error, Unsolved) else unsolved(error)
+    out = console or Console()
+    title = f"Infeasible{f' ({name})' if name else ''}: how far each conflicting limit must move"
+    frame = failure.relaxation
+    if frame.empty:
+        out.print(f"[bold]{title}[/bold]: the optimizer gave no relaxation table")
+        return
+    shown = display_relaxation(frame)
+    table = Table(title=title, title_justify="left", header_style="bold")
+    headers = {"needed": "needed", "relax_by": "move by", "scale": "scale"}
+    for column in shown.columns:
+        table.add_column(headers.get(column, column), justify="left" if column in ("constraint", "kind", "side", "unit") else "right")
+    for _, row in shown.head(max_rows).iterrows():
+        table.add_row(*[str(v) for v in row])
+    if len(shown) > max_rows:
+        table.caption = f"{len(shown) - max_rows} more rows not shown"
+    out.print(table)
+    out.print(relaxation_sentence(frame), markup=False, highlight=False)
 
 
 def _headline_table(content: ReportContent, title: str) -> Table:

@@ -145,6 +145,10 @@ def write_run_files(run: ScenarioRun, folder: Path, final: Path, *, tables: str,
     if run.error is not None:
         relaxation = relaxation_frame(run.error)
         relaxation.to_csv(folder / "relaxation.csv", index=not isinstance(relaxation.index, pd.RangeIndex))
+        if write_json:
+            report.write_json(run.error, folder / "result.json")
+        if html:
+            report.write_html(run.error, folder / "report.html", title=f"Rebalance: {scenario.name} ({run.status})")
         return
     if tables != "none":
         report.write_tables(run.result, folder, file_format=tables)
@@ -162,15 +166,20 @@ def write_comparison(runs: Sequence[ScenarioRun], target: Path, *, html: bool = 
         inputs.extend(input_files(run.inputs))
     with output_folder(target, inputs) as tmp:
         comparison_table(runs).to_csv(tmp / "comparison.csv")
-        solved = {run.name: run.result for run in runs if run.result is not None}
-        if html and solved:
-            report.write_html(solved, tmp / "report.html", title="What-if comparison")
+        if html:
+            report.write_html(comparison_subjects(runs), tmp / "report.html", title="What-if comparison")
         for run in runs:
             sub = tmp / run.name
             sub.mkdir()
             write_run_files(run, sub, Path(target) / run.name, tables="csv", write_json=True, html=False)
         names = sorted(str(p.relative_to(tmp)) for p in tmp.rglob("*") if p.is_file())
     return Written(target, names)
+
+
+def comparison_subjects(runs: Sequence[ScenarioRun]) -> dict[str, Any]:
+    """Scenario name → its result, or the InfeasibleError / SolverError it ended in (the report
+    writers show those with their status and relaxation table)."""
+    return {run.name: run.result if run.error is None else run.error for run in runs}
 
 
 def comparison_table(runs: Sequence[ScenarioRun]) -> pd.DataFrame:

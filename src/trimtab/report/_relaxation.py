@@ -1,0 +1,140 @@
+"""Scenarios that did not solve: their status, and the relaxation table read in each limit's unit.
+
+An :class:`~trimtab.errors.InfeasibleError` carries a relaxation table (one row per conflicting limit:
+constraint, kind, side, limit, needed, relax_by, scale, unit, with numbers in the solver's raw units,
+e.g. weights as fractions of NAV); a :class:`~trimtab.errors.SolverError` carries only its message.
+The writers show the table formatted by unit (weights as % of NAV, annualised volatility as %) and
+keep the raw numbers in CSV and JSON.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import pandas as pd
+
+from trimtab.errors import InfeasibleError, SolverError
+
+#: Columns of a relaxation table, in display order.
+RELAXATION_COLUMNS = ("constraint", "kind", "side", "limit", "needed", "relax_by", "scale", "unit")
+#: Numeric columns of a relaxation table, all in the row's unit.
+RELAXATION_NUMBERS = ("limit", "needed", "relax_by", "scale")
+#: Conflicting limits named one by one in the sentence above the table; the rest are counted.
+MAX_NAMED = 5
+
+
+@dataclass(frozen=True, eq=False)
+class Unsolved:
+    """A scenario that ended in an infeasibility or a solver failure instead of a result."""
+
+    status: str
+    message: str
+    relaxation: pd.DataFrame
+
+
+def is_unsolved(value: Any) -> bool:
+    """True for the errors a comparison may hold instead of a result."""
+    return isinstance(value, (InfeasibleError, SolverError))
+
+
+def unsolved(error: InfeasibleError | SolverError) -> Unsolved:
+    """The status (``infeasible`` or ``solver failure``), message and relaxation table of an error."""
+    table = getattr(error, "relaxation", None)
+    table = table if isinstance(table, pd.DataFrame) else pd.DataFrame(columns=list(RELAXATION_COLUMNS))
+    status = "infeasible" if isinstance(error, InfeasibleError) else "solver failure"
+    text = str(error).strip().splitlines()[0] if str(error).strip() else status
+    # The optimizer starts its message with the scenario file's path; a report names the scenario
+    # itself, and the path may be a temporary folder that no longer exists.
+    head, sep, rest = text.partition(": ")
+    if sep and head.endswith((".yaml", ".yml")):
+        text = rest
+    return Unsolved(status=status, message=text, relaxation=table.reset_index(drop=True))
+
+
+def split_subjects(subjects: Mapping[str, Any]) -> tuple[dict[str, Any], dict[str, Unsolved]]:
+    """The solved subjects and the unsolved ones (by name, each in the mapping's order)."""
+    solved: dict[str, Any] = {}
+    failed: dict[str, Unsolved] = {}
+    for name, value in subjects.items():
+        if is_unsolved(value):
+            failed[str(name)] = unsolved(value)
+        else:
+            solved[str(name)] = value
+    return solved, failed
+
+
+def format_in_unit(value: Any, unit: Any) -> str:
+    """A relaxation number in its limit's unit.
+
+    Weights (any unit starting with "weight") and shares of risk are fractions shown as percent of
+    NAV with three decimals (-0.0006074 → "-0.061%"); an annualised volatility is shown as percent
+    with three decimals; names and lots as whole numbers; exposures, beta and anything else with
+    four significant digits. Missing or infinite values give "n/a".
+    """
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    if not math.isfinite(number):
+        return "n/a"
+    kind = str(unit).lower()
+    if kind.startswith("weight") or kind in ("share of risk", "annualised volatility", "volatility", "fraction"):
+        text = f"{100.0 * number:.3f}%"
+    elif kind in ("names", "lots", "count"):
+        text = f"{number:,.0f}"
+    else:
+        text = f"{number:.4g}"
+    # A negative number that rounds to zero reads as "-0.000%": drop the sign.
+    if text.startswith("-") and not any(ch in "123456789" for ch in text.split("e")[0]):
+        text = text[1:]
+    return text
+
+
+def unit_label(unit: Any) -> str:
+    """How a formatted relaxation number reads: "% of NAV" for weights, "% a year" for volatility."""
+    kind = str(unit).lower()
+    if kind.startswith("weight"):
+        return "% of NAV" + (kind[len("weight"):] and f" {kind[len('weight'):].strip()}")
+    if kind in ("annualised volatility", "volatility"):
+        return "% a year (volatility)"
+    if kind == "share of risk":
+        return "% of risk"
+    return str(unit)
+
+
+def display_relaxation(table: pd.DataFrame) -> pd.DataFrame:
+    """The relaxation table as text, numbers in each row's unit (for the terminal and HTML)."""
+    columns = [c for c in RELAXATION_COLUMNS if c in table.columns]
+    out = pd.DataFrame(index=range(len(table)), columns=columns, dtype=object)
+    units = table["unit"] if "unit" in table.columns else pd.Series([""] * len(table))
+    for column in columns:
+        values = table[column].tolist()
+        if column in RELAXATION_NUMBERS:
+            out[column] = [format_in_unit(v, u) for v, u in zip(values, units, strict=True)]
+        elif column == "unit":
+            out[column] = [unit_label(u) for u in values]
+        else:
+            out[column] = ["" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v) for v in values]
+    return out
+
+
+def relaxation_sentence(table: pd.DataFrame) -> str:
+    """One sentence: which limits conflict and how far each must move for the others to hold."""
+    if table.empty or not {"constraint", "side", "limit", "needed"} <= set(table.columns):
+        return "The optimizer gave no relaxation table for this infeasible scenario."
+    parts = []
+    for _, row in table.head(MAX_NAMED).iterrows():
+        unit = row.get("unit", "")
+        direction = "rise" if str(row["side"]) == "upper" else "fall"
+        gap = row.get("relax_by", abs(float(row["needed"]) - float(row["limit"])))
+        parts.append(
+            f"the {row['side']} limit of {row['constraint']} must {direction} from {format_in_unit(row['limit'], unit)} "
+            f"to {format_in_unit(row['needed'], unit)} (by {format_in_unit(gap, unit)})"
+        )
+    more = f"; and {len(table) - MAX_NAMED} more limits in the table" if len(table) > MAX_NAMED else ""
+    names = ", ".join(str(c) for c in table["constraint"].head(MAX_NAMED))
+    count = "This limit conflicts with the others" if len(table) == 1 else f"These {len(table)} limits conflict"
+    return f"{count} ({names}{', …' if len(table) > MAX_NAMED else ''}): for the others to hold as they are, " + "; ".join(parts) + more + "."

@@ -1,0 +1,139 @@
+"""Unsolved scenarios in the report writers: statuses, the relaxation table in each limit's unit."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import html5lib
+import jsonschema
+import pandas as pd
+import pytest
+from rich.console import Console
+
+from trimtab import FactorModel, InputError
+from trimtab.attribution import format_figure
+from trimtab.construct._elastic import COLUMNS
+from trimtab.errors import InfeasibleError, SolverError
+from trimtab.report import (
+    JSON_SCHEMA,
+    display_relaxation,
+    format_in_unit,
+    print_comparison,
+    print_relaxation,
+    relaxation_sentence,
+    render_html,
+    report_document,
+    report_tables,
+    write_json,
+    write_tables,
+)
+
+from .conftest import StandInResult, stand_in
+
+
+def infeasible() -> InfeasibleError:
+    """An error laid out as the optimizer's elastic re-solve lays it out (its own column list)."""
+    table = pd.DataFrame(
+        [
+            ["turnover", "turnover", "upper", 0.02, 0.5646, 0.5446, 1.0, "weight (one-way)"],
+            ["liquidity[POXA]", "liquidity", "lower", -0.0006074, -0.000748, 0.0001406, 1.0, "weight"],
+            ["tracking_error", "tracking_error", "upper", 0.005, 0.0123, 0.0073, 0.01, "annualised volatility"],
+        ],
+        columns=COLUMNS,
+    )
+    return InfeasibleError("scenarios/tight.yaml: infeasible: these limits conflict: turnover", table)
+
+
+def recorded() -> Console:
+    return Console(record=True, width=220, color_system=None)
+
+
+def test_numbers_read_in_their_unit() -> None:
+    # Closed form: a weight of -0.0006074 of NAV is -0.06074% of NAV, shown to three decimals.
+    assert format_in_unit(-0.0006074, "weight") == "-0.061%"
+    assert format_in_unit(0.5646, "weight (one-way)") == "56.460%"
+    assert format_in_unit(0.005, "annualised volatility") == "0.500%"
+    assert format_in_unit(0.1234567, "exposure") == "0.1235"
+    assert format_in_unit(12.0, "names") == "12"
+    assert format_in_unit(float("inf"), "weight") == "n/a"
+    assert format_in_unit(-1e-9, "weight") == "0.000%"  # no "-0.000%"
+    shown = display_relaxation(infeasible().relaxation)
+    assert list(shown.columns) == COLUMNS
+    assert shown.loc[1].tolist() == ["liquidity[POXA]", "liquidity", "lower", "-0.061%", "-0.075%", "0.014%", "100.000%", "% of NAV"]
+    assert shown.loc[2, "unit"] == "% a year (volatility)" and shown.loc[2, "needed"] == "1.230%"
+
+
+def test_sentence_names_each_limit_and_its_move() -> None:
+    text = relaxation_sentence(infeasible().relaxation)
+    assert text.startswith("These 3 limits conflict (turnover, liquidity[POXA], tracking_error)")
+    assert "the upper limit of turnover must rise from 2.000% to 56.460% (by 54.460%)" in text
+    assert "the lower limit of liquidity[POXA] must fall from -0.061% to -0.075% (by 0.014%)" in text
+    many = pd.concat([infeasible().relaxation] * 3, ignore_index=True)
+    assert relaxation_sentence(many).endswith("; and 4 more limits in the table.")
+    assert relaxation_sentence(pd.DataFrame()) == "The optimizer gave no relaxation table for this infeasible scenario."
+
+
+def test_terminal_comparison_keeps_the_infeasible_column(result: StandInResult) -> None:
+    console = recorded()
+    print_comparison({"base": result, "tight": infeasible(), "broken": SolverError("every solver failed")}, console=console)
+    text = console.export_text()
+    status = next(line for line in text.splitlines() if line.startswith("│ status"))
+    assert [c.strip() for c in status.split("│")[2:5]] == ["solved", "infeasible", "solver failure"]
+    risk_row = next(line for line in text.splitlines() if "Active risk (tracking error)" in line)
+    assert format_figure(result.post_trade.risk, "fraction") in risk_row and risk_row.count("n/a") == 2
+    assert "Infeasible (tight): how far each conflicting limit must move" in text
+    assert "-0.061%" in text and "-0.0006074" not in text
+    assert "broken: solver failure: every solver failed" in text
+
+
+def test_print_relaxation_without_a_table() -> None:
+    console = recorded()
+    print_relaxation(InfeasibleError("x.yaml: infeasible"), console=console, name="x")
+    assert "Infeasible (x): how far each conflicting limit must move: the optimizer gave no relaxation table" in console.export_text()
+
+
+def test_html_comparison_shows_the_infeasible_part(result: StandInResult, report_model: FactorModel) -> None:
+    text = render_html({"base": result, "tight": infeasible(), "other": stand_in(report_model, seed=3)}, title="What-if")
+    tree = html5lib.HTMLParser(strict=True, namespaceHTMLElements=False).parse(text)
+    assert [h.text for h in tree.iter("h2")][:4] == ["Scenarios side by side", "Scenario: base", "Scenario: tight", "Scenario: other"]
+    comparison = tree.find(".//section[@id='comparison']")
+    head = [th.text for th in comparison.iter("th")]
+    assert head == ["Figure", "base", "tight", "other"]
+    status = ["".join(td.itertext()) for td in comparison.find(".//tbody/tr").iter("td")]
+    assert status == ["Status", "solved", "infeasible", "solved"]
+    part = tree.find(".//article[@id='scenario-1']")
+    words = " ".join("".join(part.itertext()).split())
+    assert "the lower limit of liquidity[POXA] must fall from -0.061% to -0.075% (by 0.014%)" in words
+    cells = [" ".join("".join(td.itertext()).split()) for td in part.find(".//table[@class='relaxation']/tbody/tr").iter("td")]
+    assert cells == ["turnover", "turnover", "upper", "2.000%", "56.460%", "54.460%", "100.000%", "% of NAV (one-way)"]
+    assert "scenarios/tight.yaml" not in words and "infeasible: these limits conflict: turnover" in words
+    only = render_html({"tight": infeasible()})
+    assert "These 3 limits conflict" in only and "Risk budget used" in only
+
+
+def test_json_and_tables_of_an_unsolved_scenario(tmp_path: Path) -> None:
+    document = json.loads(write_json(infeasible(), tmp_path / "result.json").read_text(encoding="utf-8"))
+    jsonschema.validate(document, JSON_SCHEMA)  # reference JSON Schema implementation
+    assert document["kind"] == "infeasible" and document["run"]["status"] == "infeasible"
+    assert document["relaxation"][1]["limit"] == -0.0006074  # raw numbers kept
+    failure = report_document(SolverError("solver gave up"))
+    jsonschema.validate(failure, JSON_SCHEMA)
+    assert failure["kind"] == "solver_failure" and failure["relaxation"] == []
+    assert list(report_tables(infeasible())) == ["relaxation"]
+    (path,) = write_tables(infeasible(), tmp_path, file_format="csv")
+    back = pd.read_csv(path, index_col=0)
+    assert back["limit"].tolist() == [0.02, -0.0006074, 0.005] and back["unit"].iloc[0] == "weight (one-way)"
+
+
+def test_solved_document_has_no_relaxation(result: StandInResult) -> None:
+    document = report_document(result)
+    jsonschema.validate(document, JSON_SCHEMA)
+    assert document["relaxation"] is None and document["schema_version"] == "1.1"
+
+
+def test_empty_comparison_is_refused() -> None:
+    with pytest.raises(InputError, match=r"report: expected a non-empty mapping scenario name"):
+        render_html({})
+    with pytest.raises(InputError, match=r"report: expected a non-empty mapping scenario name"):
+        print_comparison({}, console=recorded())
