@@ -47,6 +47,20 @@ def one_error_line(result: object, pattern: str) -> None:
 
 
 # ---------------------------------------------------------------------- check
+def test_help_reads_well() -> None:
+    import typer.main
+
+    group = typer.main.get_command(app)
+    for name, command in group.commands.items():  # type: ignore[attr-defined]
+        # the overview prints the first paragraph: one line, one sentence
+        summary = (command.help or "").strip().split("\n\n")[0]
+        assert "\n" not in summary and summary.endswith(".") and len(summary) <= 90, (name, summary)
+        text = runner.invoke(app, [name, "--help"], env={"COLUMNS": "120"}).output
+        assert "SCENARIO.yaml..." not in text.splitlines()[1]  # usage line: no doubled ellipsis
+    text = runner.invoke(app, ["--help"], env={"COLUMNS": "120"}).output
+    assert "<bool>  Print one JSON" not in text  # flags take no value
+
+
 def test_check_ok_prints_alignment_and_json(work: Path) -> None:
     result = invoke("check", work / "base.yaml")
     assert result.exit_code == 0, result.output

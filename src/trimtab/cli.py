@@ -181,11 +181,11 @@ def _version(value: bool) -> None:
 @app.callback()
 def _root(
     ctx: typer.Context,
-    json_output: Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.")] = False,
-    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).")] = False,
-    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Print each step with its timing (on stderr).")] = False,
+    json_output: Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.", metavar="")] = False,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).", metavar="")] = False,
+    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Print each step with its timing (on stderr).", metavar="")] = False,
     version: Annotated[
-        bool, typer.Option("--version", callback=_version, is_eager=True, help="Print the version and exit.")
+        bool, typer.Option("--version", callback=_version, is_eager=True, help="Print the version and exit.", metavar="")
     ] = False,
 ) -> None:
     """Global options go before the command: `trimtab --json check base.yaml`."""
@@ -308,8 +308,8 @@ def fit(
     ctx: typer.Context,
     config: Annotated[Path, typer.Argument(help="A fit config YAML file.", metavar="CONFIG.yaml", show_default=False)],
     out: Annotated[Path, typer.Option("--out", "-o", help="Folder to write the model into.", show_default=False)],
-    file_format: Annotated[str, typer.Option("--format", help="Table format of the saved model: parquet or csv.")] = "parquet",
-    overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace a model already saved in --out.")] = False,
+    file_format: Annotated[str, typer.Option("--format", help="Table format of the saved model: parquet or csv.", metavar="parquet|csv")] = "parquet",
+    overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace a model already saved in --out.", metavar="")] = False,
 ) -> None:
     """Estimate a risk model from return files and save it to a folder."""
     from trimtab.scenario import check_inputs_outside, load_fit_config

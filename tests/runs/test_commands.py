@@ -72,6 +72,20 @@ def test_commands_are_registered(app: typer.Typer) -> None:
         assert name in result.output
 
 
+@pytest.mark.parametrize("name", ["sweep", "frontier", "backtest"])
+def test_help_summary_is_one_line(app: typer.Typer, name: str) -> None:
+    # The overview shows each command's first docstring paragraph; a summary spread over several
+    # source lines broke mid-sentence there.
+    command = next(c for c in app.registered_commands if c.name == name)
+    summary = (command.callback.__doc__ or "").strip().split("\n\n")[0]
+    assert "\n" not in summary and summary.endswith(".") and len(summary) <= 90, summary
+    overview = CliRunner().invoke(app, ["--help"], env={"COLUMNS": "120"}).output
+    assert next(line for line in overview.splitlines() if f" {name} " in line).rstrip(" │").endswith(summary)
+    text = CliRunner().invoke(app, [name, "--help"], env={"COLUMNS": "120"}).output
+    assert "<bool>  Print one JSON" not in text and "--json " in text  # a flag shows no value to type
+    assert "<command>" not in text
+
+
 @pytest.mark.parametrize(
     ("args", "message"),
     [

@@ -191,12 +191,14 @@ def _check_floats(values: list[Any], owner: str) -> list[float]:
 # Shared options
 # ---------------------------------------------------------------------------------------------
 ScenarioArg = Annotated[Path, typer.Argument(help="A scenario YAML file.", metavar="SCENARIO.yaml", show_default=False)]
-OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/<command>-<name> next to the scenario).", show_default=False)]
-JsonOpt = Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.")]
-QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).")]
-ExecutorOpt = Annotated[str | None, typer.Option("--executor", help="inprocess, processes or dask (default: dask with --workers/--scheduler, else inprocess).", show_default=False)]
+def _out_option(command: str) -> Any:
+    """``--out`` of one command, its default folder spelled out."""
+    return typer.Option("--out", "-o", help=f"Output folder (default: results/{command}-<name> next to the scenario).", show_default=False)
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.", metavar="")]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).", metavar="")]
+ExecutorOpt = Annotated[str | None, typer.Option("--executor", help="inprocess, processes or dask (default: dask with --workers/--scheduler, else inprocess).", metavar="KIND", show_default=False)]
 WorkersOpt = Annotated[int | None, typer.Option("--workers", help="Worker processes (a local Dask cluster unless --executor processes).", min=1, show_default=False)]
-SchedulerOpt = Annotated[str | None, typer.Option("--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786.", show_default=False)]
+SchedulerOpt = Annotated[str | None, typer.Option("--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786.", metavar="ADDRESS", show_default=False)]
 
 
 def _load(scenario: Path) -> Any:
@@ -229,17 +231,20 @@ def _report_failures(table: pd.DataFrame) -> None:
 def sweep_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
-    grid: Annotated[list[str] | None, typer.Option("--grid", "-g", help="KEY=VALUES, repeatable: v1,v2,… or start:stop:count or a YAML list \\[v1, v2]. Every combination is solved.", show_default=False)] = None,
+    grid: Annotated[list[str] | None, typer.Option("--grid", "-g", help="KEY=VALUES, repeatable: v1,v2,… or start:stop:count or a YAML list \\[v1, v2]. Every combination is solved.", metavar="KEY=VALUES", show_default=False)] = None,
     grid_file: Annotated[Path | None, typer.Option("--grid-file", help="YAML: parameter → list of values, or a list of points.", show_default=False)] = None,
-    out: OutOpt = None,
+    out: Annotated[Path | None, _out_option("sweep")] = None,
     executor: ExecutorOpt = None,
     workers: WorkersOpt = None,
     scheduler: SchedulerOpt = None,
     json_output: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
-    """Solve a scenario over a grid of parameter values (risk aversion, TE cap, turnover cap, any
-    limit by its dotted key): one table and one HTML report across the grid."""
+    """Solve a scenario over a grid of parameter values; one table and one HTML report.
+
+    The grid can vary the risk aversion, the tracking-error cap, the turnover cap or any limit by its
+    dotted key; every combination of the values is solved.
+    """
     from trimtab.runs._report import write_sweep
     from trimtab.runs._sweep import grid_points, sweep
 
@@ -269,18 +274,21 @@ def sweep_command(
 def frontier_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
-    tracking_error: Annotated[str | None, typer.Option("--te", help="TE caps: v1,v2,… or start:stop:count (default: ¼ to 2× the scenario's cap).", show_default=False)] = None,
-    turnover: Annotated[str | None, typer.Option("--turnover", help="One-way turnover caps for a second frontier.", show_default=False)] = None,
+    tracking_error: Annotated[str | None, typer.Option("--te", help="TE caps: v1,v2,… or start:stop:count (default: ¼ to 2× the scenario's cap).", metavar="VALUES", show_default=False)] = None,
+    turnover: Annotated[str | None, typer.Option("--turnover", help="One-way turnover caps for a second frontier: v1,v2,… or start:stop:count.", metavar="VALUES", show_default=False)] = None,
     points: Annotated[int, typer.Option("--points", help="Points of the default TE grid.", min=2)] = 10,
-    out: OutOpt = None,
+    out: Annotated[Path | None, _out_option("frontier")] = None,
     executor: ExecutorOpt = None,
     workers: WorkersOpt = None,
     scheduler: SchedulerOpt = None,
     json_output: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
-    """Expected active return against tracking error (and against turnover) under the scenario's
-    other limits: tables and a report with the charts."""
+    """Trace expected active return against tracking error (and against turnover).
+
+    Every point is solved under the scenario's other limits; writes the tables and a report with
+    the charts.
+    """
     from trimtab.runs._report import write_frontier
     from trimtab.runs._frontier import frontier
 
@@ -329,12 +337,12 @@ def fit_settings_mapping(settings: Any) -> dict[str, Any]:
 @guarded
 def backtest_command(
     ctx: typer.Context,
-    scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files, run side by side.", metavar="SCENARIO.yaml...", show_default=False)],
+    scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files, run side by side.", metavar="SCENARIO.yaml", show_default=False)],
     fit: Annotated[Path | None, typer.Option("--fit", help="Fit config (returns, factor returns, estimator); default: the first scenario's model.fit.", show_default=False)] = None,
     alpha_history: Annotated[Path | None, typer.Option("--alpha-history", help="Dates × assets alpha file (annualised); default: each scenario's alpha at every date.", show_default=False)] = None,
     window: Annotated[int, typer.Option("--window", help="Rows in the trailing estimation window.", min=2)] = 250,
     every: Annotated[int, typer.Option("--every", help="Rebalance every n-th row.", min=1)] = 21,
-    start: Annotated[str | None, typer.Option("--start", help="First rebalance on or after this date (YYYY-MM-DD).", show_default=False)] = None,
+    start: Annotated[str | None, typer.Option("--start", help="First rebalance on or after this date.", metavar="YYYY-MM-DD", show_default=False)] = None,
     max_dates: Annotated[int | None, typer.Option("--max-dates", help="At most this many rebalance dates.", min=1, show_default=False)] = None,
     cost_bps: Annotated[float, typer.Option("--cost-bps", help="Linear cost per unit traded, basis points.", min=0)] = 10.0,
     out: Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/backtest next to the first scenario).", show_default=False)] = None,
@@ -344,9 +352,13 @@ def backtest_command(
     json_output: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
-    """Walk-forward backtest: at each date re-fit the model on the trailing window, rebalance
-    each scenario from its drifted book, hold to the next date; realised against forecast TE
-    (the bias statistic), turnover, costs, exposures and risk contributions through time."""
+    """Walk-forward backtest of one or more scenarios, re-fitting the model at each date.
+
+    At each rebalance date the model is re-fitted on the trailing window and each scenario is
+    rebalanced from its drifted book and held to the next date. Reports realised against forecast
+    tracking error (the bias statistic), turnover, costs, exposures and risk contributions through
+    time.
+    """
     from trimtab.runs._backtest import backtest
     from trimtab.runs._report import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
