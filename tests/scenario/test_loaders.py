@@ -37,6 +37,26 @@ def test_wide_csv_long_csv_and_parquet_agree(tmp_path: Path, wide: pd.DataFrame)
     pd.testing.assert_frame_equal(c, expected, check_freq=False)  # the missing (date, asset) row is NaN again
 
 
+@pytest.mark.parametrize("kind", ["timestamp", "date32", "text", "long timestamp"])
+def test_parquet_dates_as_timestamps_dates_or_text(tmp_path: Path, wide: pd.DataFrame, kind: str) -> None:
+    # Parquet stores dates typed (timestamp or date32, Apache Parquet logical types) or as text: all read alike.
+    frame = wide.rename_axis("date").reset_index()
+    if kind == "date32":
+        frame["date"] = frame["date"].dt.date
+    elif kind == "text":
+        frame["date"] = frame["date"].dt.strftime("%Y-%m-%d")
+    layout = {}
+    if kind == "long timestamp":
+        frame = wide.stack().rename("return").rename_axis(["date", "asset"]).reset_index()
+        layout = {"layout": "long"}
+    frame.to_parquet(tmp_path / "r.parquet", index=False)
+    back = load_returns(ReturnsFile(path=str(tmp_path / "r.parquet"), **layout))
+    expected = wide.copy()
+    expected.index.freq = None
+    pd.testing.assert_frame_equal(back, expected, check_freq=False, check_index_type=False)
+    assert isinstance(back.index, pd.DatetimeIndex)
+
+
 def test_long_file_with_own_column_names(tmp_path: Path) -> None:
     pd.DataFrame({"day": ["2024-01-02", "2024-01-02", "2024-01-03"], "id": ["X", "Y", "X"], "r": [0.01, 0.02, -0.01]}).to_csv(
         tmp_path / "r.csv", index=False

@@ -15,8 +15,9 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
     Layout::
 
         folder/fit.yaml, fit_cross_section.yaml, base.yaml, neutral_size_momentum.yaml, low_turnover.yaml, infeasible.yaml
-        folder/data/returns.parquet        dates × stocks (wide; empty before a stock listed)
-        folder/data/factor_returns.csv     dates × factors
+        folder/data/returns.parquet        dates × stocks (wide; empty before a stock listed; the
+                                           date column is a Parquet timestamp)
+        folder/data/factor_returns.csv     dates × factors (dates as YYYY-MM-DD text)
         folder/data/holdings.csv           asset, shares
         folder/data/benchmark.csv          asset, weight
         folder/data/alpha.csv              asset, alpha (annualised)
@@ -42,8 +43,9 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         frame.to_csv(path, index_label=index_label, float_format="%.10g")
         written[name] = path
 
+    # Parquet has a date type: the dates go in as datetime64, so a reader gets dates, not text.
     returns = fund.returns.copy()
-    returns.index = returns.index.strftime("%Y-%m-%d")
+    returns.index = pd.DatetimeIndex(returns.index).normalize()
     returns.rename_axis("date").reset_index().to_parquet(data / "returns.parquet", index=False)
     written["returns"] = data / "returns.parquet"
     factor_returns = fund.factor_returns.copy()
