@@ -3,7 +3,7 @@
 Every constraint row is re-evaluated from the returned weights; a hard row passes when its breach is
 at most max(ABS_TOL, REL_TOL·|limit|) = max(1e-7, 1e-6·|limit|) in the row's own unit (weights,
 exposures, beta or annualised volatility). Two further checks: every weight is finite, and the
-objective recomputed from w agrees with the solver's to within OBJECTIVE_TOL·max(1, |U|).
+objective recomputed from w agrees with the solver's to within OBJECTIVE_TOL·max(|U|, OBJECTIVE_FLOOR) = 1e-6·max(|U|, 1e-3).
 """
 
 from __future__ import annotations
@@ -15,8 +15,9 @@ import pandas as pd
 
 from trimtab.construct.constraints._base import Rows, check_rows
 
-#: Solver objective vs the numpy recomputation, relative to max(1, |U|).
+#: Solver objective vs the numpy recomputation, relative to max(|U|, OBJECTIVE_FLOOR).
 OBJECTIVE_TOL = 1e-6
+OBJECTIVE_FLOOR = 1e-3
 COLUMNS = ["name", "kind", "value", "lower", "upper", "breach", "tolerance", "soft", "ok"]
 
 
@@ -32,7 +33,7 @@ def verify(rows: Iterable[Rows], weights: np.ndarray, *, solver_objective: float
         records.extend(check_rows(r, weights) for r in rows)
     if solver_objective is not None and numpy_objective is not None and finite:
         gap = abs(solver_objective - numpy_objective)
-        tol = OBJECTIVE_TOL * max(1.0, abs(numpy_objective))
+        tol = OBJECTIVE_TOL * max(abs(numpy_objective), OBJECTIVE_FLOOR)
         records.append({"name": "objective", "kind": "verification", "value": numpy_objective,
                         "lower": solver_objective, "upper": solver_objective, "breach": gap, "tolerance": tol,
                         "soft": False, "ok": bool(gap <= tol)})
