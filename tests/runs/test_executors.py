@@ -9,7 +9,7 @@ import pytest
 from tests.runs._tasks import portfolio_risk
 from trimtab.errors import InputError
 from trimtab.runs import Outcome, get_executor
-from trimtab.runs._executors import format_failure, resolve_kind
+from trimtab.runs._executors import CLOSE_TIMEOUT, STARTUP_TIMEOUT, format_failure, local_cluster_options, resolve_kind
 
 SEEDS = [0, 1, -3, 2, 3]  # -3 raises inside the task
 
@@ -63,16 +63,41 @@ def test_process_pool_gives_identical_outcomes(reference: dict[str, Outcome]) ->
         _same(_collect(ex), reference)
 
 
-def test_dask_cluster_on_loopback_gives_identical_outcomes(reference: dict[str, Outcome]) -> None:
+@pytest.fixture
+def held_dashboard_port():  # noqa: ANN201 - yields the socket or None
+    """Hold 127.0.0.1:8787 (the scheduler's default HTTP port), as another cluster on the machine would."""
+    import socket
+
+    sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
+    try:
+        sock.bind(("127.0.0.1", 8787))
+        sock.listen(1)
+    except OSError:
+        sock.close()  # already held by someone else: the clash is there anyway
+        sock = None
+    try:
+        yield sock
+    finally:
+        if sock is not None:
+            sock.close()
+
+
+def test_dask_cluster_on_loopback_gives_identical_outcomes(reference: dict[str, Outcome], held_dashboard_port) -> None:
     distributed = pytest.importorskip("distributed")
-    with distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, host="127.0.0.1"
-    ) as cluster:
-        with get_executor("dask", scheduler=cluster.scheduler_address) as ex:
+    # With the port 8787 taken, a cluster started with dashboard_address=None alone warned
+    # "Port 8787 is already in use" (an error under pytest's warnings-as-errors): the failure seen under load.
+    cluster = distributed.LocalCluster(**local_cluster_options(2))
+    try:
+        with get_executor("dask", scheduler=cluster.scheduler_address, connect_timeout=STARTUP_TIMEOUT) as ex:
+            ex.client.wait_for_workers(2, timeout=STARTUP_TIMEOUT)
             assert ex.n_workers == 2
             _same(_collect(ex), reference)
             hosts = {w.split("://")[1].rsplit(":", 1)[0] for w in ex.client.scheduler_info()["workers"]}
             assert hosts == {"127.0.0.1"}
+        assert ex.client.status == "closed"
+    finally:
+        cluster.close(timeout=CLOSE_TIMEOUT)
+    assert cluster.status.name == "closed"
 
 
 def test_labels_must_match_items() -> None:
@@ -114,13 +139,22 @@ def test_resolve_kind_rule() -> None:
     assert resolve_kind("processes", 2, None) == "processes"
 
 
-def test_dask_with_workers_starts_and_stops_its_own_cluster(reference: dict[str, Outcome]) -> None:
+def test_dask_with_workers_starts_and_stops_its_own_cluster(reference: dict[str, Outcome], held_dashboard_port) -> None:
     pytest.importorskip("distributed")
     ex = get_executor("dask", workers=1)
     try:
         assert ex.n_workers == 1
         values = {o.label: o.value for o in ex.map(portfolio_risk, [0, 1], labels=["seed0", "seed1"])}
+        http_port = ex._cluster.scheduler.http_server.port  # type: ignore[attr-defined]
     finally:
         ex.close()
+    ex.close()  # a second close is harmless
     assert values == {"seed0": reference["seed0"].value, "seed1": reference["seed1"].value}
-    assert ex.client.status == "closed"
+    assert ex.client.status == "closed" and ex._cluster.status.name == "closed"  # type: ignore[attr-defined]
+    assert http_port != 8787  # no fixed port to clash on
+
+
+def test_local_cluster_options_fix_no_port() -> None:
+    options = local_cluster_options(3)
+    assert options["n_workers"] == 3 and options["host"] == "127.0.0.1" and options["scheduler_port"] == 0
+    assert options["scheduler_kwargs"] == {"dashboard": False, "dashboard_address": "127.0.0.1:0"}

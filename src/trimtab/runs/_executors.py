@@ -187,20 +187,25 @@ class DaskRunner(Executor):
 
     kind = "dask"
 
-    def __init__(self, workers: int | None = None, scheduler: str | None = None, *, connect_timeout: float = 10.0) -> None:
+    def __init__(self, workers: int | None = None, scheduler: str | None = None, *, connect_timeout: float = 30.0) -> None:
         distributed = _import_distributed()
         self._cluster = None
+        self._closed = False
         if scheduler is not None:
             try:
                 self._client = distributed.Client(scheduler, timeout=f"{connect_timeout}s")
             except (OSError, TimeoutError) as err:
                 raise InputError(f"--scheduler {scheduler}: could not connect to a Dask scheduler ({_describe(err)})") from None
         else:
-            self._cluster = distributed.LocalCluster(
-                n_workers=workers or 2, threads_per_worker=1, processes=True, dashboard_address=None,
-                host="127.0.0.1", silence_logs=logging.ERROR,  # Dask's own notices would break the one-line rule
-            )
-            self._client = distributed.Client(self._cluster)
+            n_workers = workers or 2
+            self._cluster = distributed.LocalCluster(**local_cluster_options(n_workers))
+            try:
+                self._client = distributed.Client(self._cluster, timeout=f"{connect_timeout}s")
+                # Worker processes import numpy, pandas and trimtab: slow on a loaded machine.
+                self._client.wait_for_workers(n_workers, timeout=max(connect_timeout, STARTUP_TIMEOUT))
+            except BaseException:
+                self._cluster.close(timeout=CLOSE_TIMEOUT)
+                raise
         self._as_completed = distributed.as_completed
 
     @property
@@ -213,9 +218,15 @@ class DaskRunner(Executor):
         return max(1, len(self._client.scheduler_info().get("workers", {})))
 
     def close(self) -> None:
-        self._client.close()
-        if self._cluster is not None:
-            self._cluster.close()
+        """Close the client, then the cluster this runner started (also when closing the client fails)."""
+        if self._closed:
+            return
+        self._closed = True
+        try:
+            self._client.close(timeout=CLOSE_TIMEOUT)
+        finally:
+            if self._cluster is not None:
+                self._cluster.close(timeout=CLOSE_TIMEOUT)
 
     def _run(self, func: Callable[[Any], Any], items: list[Any], labels: list[str]) -> Iterator[Outcome]:
         futures = [self._client.submit(call_safely, func, item, pure=False, key=f"trimtab-{labels[i]}-{id(self)}-{i}") for i, item in enumerate(items)]
@@ -230,6 +241,32 @@ class DaskRunner(Executor):
             yield _outcome(labels, items, i, ok, value)
 
 
+#: Seconds to wait for a new LocalCluster's workers, and for a client or cluster to close. Generous:
+#: on a machine whose cores are busy, starting a worker process takes many seconds.
+STARTUP_TIMEOUT = 120.0
+CLOSE_TIMEOUT = 60.0
+
+
+def local_cluster_options(n_workers: int) -> dict[str, Any]:
+    """Keyword arguments of a private LocalCluster: worker processes with one thread each, everything
+    on the loopback interface, no dashboard and no fixed port.
+
+    ``dashboard_address=None`` alone still starts the scheduler's HTTP server (health and metrics
+    routes) on port 8787, which clashes with any other cluster on the machine ("Port 8787 is already in
+    use"); ``scheduler_kwargs`` turns the dashboard off and lets the system pick a free port.
+    """
+    return {
+        "n_workers": n_workers,
+        "threads_per_worker": 1,
+        "processes": True,
+        "host": "127.0.0.1",
+        "scheduler_port": 0,
+        "dashboard_address": None,
+        "scheduler_kwargs": {"dashboard": False, "dashboard_address": "127.0.0.1:0"},
+        "silence_logs": logging.ERROR,  # Dask's own notices would break the one-line rule
+    }
+
+
 def _import_distributed() -> Any:
     try:
         import distributed
@@ -239,7 +276,7 @@ def _import_distributed() -> Any:
 
 
 def get_executor(
-    kind: str = "inprocess", *, workers: int | None = None, scheduler: str | None = None, connect_timeout: float = 10.0
+    kind: str = "inprocess", *, workers: int | None = None, scheduler: str | None = None, connect_timeout: float = 30.0
 ) -> Executor:
     """The executor that dispatches runs: in process, a process pool, or a Dask cluster.
 
@@ -253,8 +290,9 @@ def get_executor(
     scheduler : str, optional
         ``dask`` only: the address of an existing scheduler (``tcp://host:8786``); no cluster is
         started. Cannot be combined with ``workers``.
-    connect_timeout : float, default 10
-        ``dask`` with ``scheduler``: seconds to wait for the scheduler.
+    connect_timeout : float, default 30
+        ``dask``: seconds to wait for the scheduler (a new cluster's workers get at least
+        :data:`STARTUP_TIMEOUT`).
 
     Returns
     -------
