@@ -327,6 +327,8 @@ def test_compare(work: Path) -> None:
     assert f"{100 * turnover['limit']:.3f}%" in result.stdout and f"{100 * turnover['needed']:.3f}%" in result.stdout
     document = json.loads((work / "cmp" / "infeasible" / "result.json").read_text(encoding="utf-8"))
     assert document["kind"] == "infeasible" and document["relaxation"][0]["needed"] == pytest.approx(raw["needed"].iloc[0])
+    both = json.loads((work / "cmp" / "comparison.json").read_text(encoding="utf-8"))
+    assert both["status"] == {"base": "solved", "infeasible": "infeasible"}
     result = invoke("compare", work / "base.yaml", work / "base.yaml")
     one_error_line(result, r"compare: scenario names must differ; base appears twice")
 

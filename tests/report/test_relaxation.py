@@ -16,7 +16,9 @@ from trimtab.attribution import format_figure
 from trimtab.construct._elastic import COLUMNS
 from trimtab.errors import InfeasibleError, SolverError
 from trimtab.report import (
+    COMPARISON_SCHEMA,
     JSON_SCHEMA,
+    comparison_table,
     display_relaxation,
     format_in_unit,
     print_comparison,
@@ -137,3 +139,26 @@ def test_empty_comparison_is_refused() -> None:
         render_html({})
     with pytest.raises(InputError, match=r"report: expected a non-empty mapping scenario name"):
         print_comparison({}, console=recorded())
+
+
+def test_comparison_json_and_table_keep_every_scenario(result: StandInResult, tmp_path: Path) -> None:
+    subjects = {"base": result, "tight": infeasible(), "broken": SolverError("every solver failed")}
+    document = json.loads(write_json(subjects, tmp_path / "comparison.json").read_text(encoding="utf-8"))
+    jsonschema.validate(document, COMPARISON_SCHEMA)  # reference JSON Schema implementation
+    for inner in document["scenarios"].values():
+        jsonschema.validate(inner, JSON_SCHEMA)
+    assert document["status"] == {"base": "solved", "tight": "infeasible", "broken": "solver failure"}
+    risk = next(row for row in document["comparison"] if row["figure"] == "risk")
+    assert risk["base"] == pytest.approx(result.post_trade.risk) and risk["tight"] is None and risk["broken"] is None
+    assert document["scenarios"]["tight"]["relaxation"][0]["constraint"] == "turnover"
+    table = comparison_table(subjects)
+    assert list(table.columns) == ["base", "tight", "broken"] and table.index[0] == "status"
+    assert list(report_tables(subjects)) == ["comparison"]
+    written = write_tables(subjects, tmp_path / "tables")
+    assert sorted(p.name for p in written) == ["comparison.csv", "comparison.parquet"]
+    back = pd.read_csv(tmp_path / "tables" / "comparison.csv", index_col=0)
+    assert back.loc["status"].tolist() == ["solved", "infeasible", "solver failure"]
+    with pytest.raises(InputError, match=r"report: expected a non-empty mapping scenario name"):
+        comparison_table({})
+    with pytest.raises(InputError, match=r"report: scenario 'odd': expected a RiskAttribution or a result"):
+        comparison_table({"odd": 3})

@@ -6,22 +6,32 @@ written under a temporary name and renamed. The caution text is :data:`CAUTION`.
 """
 
 from trimtab.report._content import CAUTION, ReportContent, RiskBudget, gather
-from trimtab.report._files import SCHEMA_VERSION, TABLE_FORMATS, report_document, report_tables, write_json, write_tables
-from trimtab.report._schema import JSON_SCHEMA
+from trimtab.report._files import (
+    SCHEMA_VERSION,
+    TABLE_FORMATS,
+    comparison_table,
+    report_document,
+    report_tables,
+    write_json,
+    write_tables,
+)
+from trimtab.report._schema import COMPARISON_SCHEMA, JSON_SCHEMA
 from trimtab.report._html import render_html, write_html
 from trimtab.report._relaxation import Unsolved, display_relaxation, format_in_unit, relaxation_sentence
 from trimtab.report._terminal import print_attribution, print_comparison, print_rebalance, print_relaxation
 
 __all__ = [
     "CAUTION",
+    "COMPARISON_SCHEMA",
     "JSON_SCHEMA",
     "SCHEMA_VERSION",
     "TABLE_FORMATS",
     "Unsolved",
-    "display_relaxation",
-    "format_in_unit",
     "ReportContent",
     "RiskBudget",
+    "comparison_table",
+    "display_relaxation",
+    "format_in_unit",
     "gather",
     "print_attribution",
     "print_comparison",

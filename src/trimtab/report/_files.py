@@ -19,10 +19,10 @@ import pandas as pd
 
 from trimtab._validation import list_labels
 from trimtab._version import __version__
-from trimtab.attribution import RiskAttribution
+from trimtab.attribution import RiskAttribution, compare_many
 from trimtab.errors import InputError
 from trimtab.report._content import CAUTION, gather, group_columns
-from trimtab.report._relaxation import Unsolved, is_unsolved, unsolved
+from trimtab.report._relaxation import Unsolved, is_unsolved, split_subjects, unsolved
 
 #: Version of the JSON document layout described in docs/outputs.md.
 SCHEMA_VERSION = "1.1"
@@ -64,11 +64,14 @@ def atomic_write_text(path: Path, text: str) -> Path:
 def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
     """The tables :func:`write_tables` writes, by file stem (see docs/outputs.md for each).
 
+    A mapping name → result (a comparison) gives one table, ``comparison`` (:func:`comparison_table`).
     An ``InfeasibleError`` or ``SolverError`` gives one table, ``relaxation`` (raw numbers, in each
     limit's unit as the optimizer states it; empty for a solver failure).
     """
     if is_unsolved(subject):
         return {"relaxation": unsolved(subject).relaxation}
+    if isinstance(subject, Mapping):
+        return {"comparison": comparison_table(subject)}
     content = gather(subject)
     tables: dict[str, pd.DataFrame] = {"headline": content.headline}
     for prefix, attr in (("pre_trade", content.pre), ("post_trade", content.post)):
@@ -104,8 +107,9 @@ def write_tables(
 
     Parameters
     ----------
-    subject : RebalanceResult, RiskAttribution, InfeasibleError or SolverError
-        An error writes its relaxation table only.
+    subject : RebalanceResult, RiskAttribution, InfeasibleError, SolverError, or Mapping[str, any of them]
+        An error writes its relaxation table only; a mapping (a comparison) writes
+        ``comparison.<format>``, every scenario with its status.
     out_dir : str or Path
     formats : sequence of {"csv", "parquet"}
     file_format : {"csv", "parquet"}, optional
@@ -168,6 +172,8 @@ def report_document(subject: Any) -> dict[str, Any]:
     """The JSON document of :func:`write_json` as plain Python objects (NaN → None)."""
     if is_unsolved(subject):
         return _unsolved_document(unsolved(subject))
+    if isinstance(subject, Mapping):
+        return _comparison_document(subject)
     content = gather(subject)
     budget = content.risk_budget
     document: dict[str, Any] = {
@@ -194,6 +200,48 @@ def report_document(subject: Any) -> dict[str, Any]:
         "verification": _records(content.verification, None),
         "provenance": content.provenance,
         "scenario": content.scenario,
+    }
+    return _plain(document)
+
+
+def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
+    """After-trade headline figures, one column per scenario, below a ``status`` row.
+
+    A scenario given as an ``InfeasibleError`` or ``SolverError`` keeps its column: status
+    ``infeasible`` or ``solver failure``, figures NaN. Solved ones have status ``solved``.
+
+    Raises
+    ------
+    InputError
+        If the mapping is empty or a value is neither an error nor a result with an attribution.
+    """
+    if not isinstance(subjects, Mapping) or not subjects:
+        raise InputError("report: expected a non-empty mapping scenario name → rebalance result or attribution")
+    solved, failed = split_subjects(subjects)
+    names = [str(name) for name in subjects]
+    try:
+        figures = compare_many(solved) if solved else pd.DataFrame(index=pd.Index([], name="figure"))
+    except InputError as err:
+        raise InputError(f"report: {str(err).removeprefix('compare_many: ')}") from None
+    figures = figures.reindex(columns=names)
+    status = pd.DataFrame([[failed[n].status if n in failed else "solved" for n in names]], index=["status"], columns=names)
+    table = pd.concat([status, figures.astype(object)])
+    table.index.name = "figure"
+    return table
+
+
+def _comparison_document(subjects: Mapping[str, Any]) -> dict[str, Any]:
+    """Several scenarios: the status and figures side by side, and each scenario's own document."""
+    table = comparison_table(subjects)
+    document: dict[str, Any] = {
+        "schema_version": SCHEMA_VERSION,
+        "document": "trimtab.comparison",
+        "generated_by": {"package": "trimtab", "version": __version__},
+        "created_utc": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "cautions": [CAUTION],
+        "status": dict(table.loc["status"].items()),
+        "comparison": _records(table.drop(index="status"), "figure"),
+        "scenarios": {str(name): report_document(value) for name, value in subjects.items()},
     }
     return _plain(document)
 
@@ -228,9 +276,11 @@ def write_json(subject: Any, path: str | Path) -> Path:
 
     Parameters
     ----------
-    subject : RebalanceResult, RiskAttribution, InfeasibleError or SolverError
+    subject : RebalanceResult, RiskAttribution, InfeasibleError, SolverError, or Mapping[str, any of them]
         An error gives a document of kind ``infeasible`` (with its ``relaxation`` rows, raw numbers)
-        or ``solver_failure``.
+        or ``solver_failure``. A mapping name → subject gives one ``trimtab.comparison`` document:
+        every scenario's status, the headline figures side by side and each scenario's own document
+        (schema :data:`~trimtab.report.COMPARISON_SCHEMA`).
     path : str or Path
         Written under a temporary name, then renamed.
 

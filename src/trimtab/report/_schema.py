@@ -100,3 +100,24 @@ JSON_SCHEMA: dict[str, Any] = {
         "scenario": {"type": "object"},
     },
 }
+
+#: JSON Schema of the comparison document (a mapping given to ``write_json``), ``schema_version`` "1.1".
+COMPARISON_SCHEMA: dict[str, Any] = {
+    "$schema": "https://json-schema.org/draft/2020-12/schema",
+    "title": "trimtab comparison document",
+    "type": "object",
+    "required": ["schema_version", "document", "generated_by", "created_utc", "cautions", "status", "comparison", "scenarios"],
+    "properties": {
+        "schema_version": {"const": "1.1"},
+        "document": {"const": "trimtab.comparison"},
+        "generated_by": JSON_SCHEMA["properties"]["generated_by"],
+        "created_utc": JSON_SCHEMA["properties"]["created_utc"],
+        "cautions": JSON_SCHEMA["properties"]["cautions"],
+        "status": {"type": "object", "additionalProperties": {"enum": ["solved", "infeasible", "solver failure"]}},
+        "comparison": _rows("figure"),
+        "scenarios": {
+            "type": "object",
+            "additionalProperties": {"type": "object", "required": ["document", "kind", "run", "relaxation", "headline"]},
+        },
+    },
+}

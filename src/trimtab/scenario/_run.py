@@ -159,13 +159,15 @@ def write_run_files(run: ScenarioRun, folder: Path, final: Path, *, tables: str,
 
 
 def write_comparison(runs: Sequence[ScenarioRun], target: Path, *, html: bool = True) -> Written:
-    """Write the what-if comparison: one table, one report, and each scenario's own files."""
+    """Write the what-if comparison: comparison.csv and comparison.json (every scenario with its
+    status), one report, and each scenario's own files."""
     report = report_writers()
     inputs: list[Path] = []
     for run in runs:
         inputs.extend(input_files(run.inputs))
     with output_folder(target, inputs) as tmp:
         comparison_table(runs).to_csv(tmp / "comparison.csv")
+        report.write_json(comparison_subjects(runs), tmp / "comparison.json")
         if html:
             report.write_html(comparison_subjects(runs), tmp / "report.html", title="What-if comparison")
         for run in runs:
@@ -183,18 +185,8 @@ def comparison_subjects(runs: Sequence[ScenarioRun]) -> dict[str, Any]:
 
 
 def comparison_table(runs: Sequence[ScenarioRun]) -> pd.DataFrame:
-    """Headline figures, one column per scenario (infeasible ones carry their status only)."""
-    compare_many = require("trimtab.attribution", "compare_many")
-    solved = {run.name: run.result for run in runs if run.result is not None}
-    table = compare_many(solved) if solved else pd.DataFrame()
-    for run in runs:
-        if run.name not in table.columns:
-            table[run.name] = float("nan")
-    table = table[[run.name for run in runs]]
-    status = pd.DataFrame([[run.status for run in runs]], index=["status"], columns=table.columns)
-    out = pd.concat([status, table.astype(object)])
-    out.index.name = "figure"
-    return out
+    """Headline figures, one column per scenario, below a status row (unsolved ones: status only)."""
+    return report_writers().comparison_table(comparison_subjects(runs))  # type: ignore[no-any-return]
 
 
 def write_attribution(attribution: Any, out: Path, inputs: Sequence[Path]) -> Written:
