@@ -299,7 +299,7 @@ def _unsolved_body(failure: Unsolved) -> str:
             )
             parts.append(
                 '<div class="wide"><table class="relaxation"><caption>How far each conflicting limit must move '
-                "for the others to hold (one minimal way; the raw numbers are in relaxation.csv).</caption>"
+                "for the others to hold (one minimal way; the CSV and JSON files keep the raw numbers).</caption>"
                 f"<thead><tr>{head}</tr></thead><tbody>{body}</tbody></table></div>"
             )
     parts.append(f'<p class="note">{_e(failure.message)}</p>')
