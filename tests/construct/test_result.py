@@ -5,10 +5,13 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
+import pickle
 
 import numpy as np
+import pandas as pd
 import pytest
 
+import trimtab.attribution
 from trimtab.attribution import RiskAttribution
 from trimtab.construct import RebalanceResult, rebalance
 
@@ -93,3 +96,81 @@ def test_attribution_seam_absent_gives_none(monkeypatch):
     res = rebalance(fund.model, {"objective": {"minimize": "active_risk"}, "constraints": {"fully_invested": True}},
                     benchmark=fund.benchmark)
     assert res.pre_trade is None and res.post_trade is None
+
+
+def _assert_same_attribution(got: RiskAttribution, expected: RiskAttribution) -> None:
+    # exact equality: the lazy attribution must be the very computation the public function does
+    assert got.kind == expected.kind and got.is_zero_risk == expected.is_zero_risk
+    pd.testing.assert_series_equal(got.headline(), expected.headline(), check_exact=True)
+    pd.testing.assert_frame_equal(got.by_asset, expected.by_asset, check_exact=True)
+    pd.testing.assert_frame_equal(got.by_factor, expected.by_factor, check_exact=True)
+    pd.testing.assert_frame_equal(got.by_factor_group, expected.by_factor_group, check_exact=True)
+    pd.testing.assert_frame_equal(got.by_group("industry"), expected.by_group("industry"), check_exact=True)
+
+
+def test_pre_and_post_trade_equal_the_attribution_function(result):
+    fund, res = result
+    # Outside reference: trimtab.attribution.attribute, the attribution module's public function,
+    # called here on the holdings and on the target weights against the same benchmark.
+    pre = trimtab.attribution.attribute(fund.model, fund.holdings, fund.benchmark, attributes=fund.attributes)
+    post = trimtab.attribution.attribute(fund.model, res.weights, fund.benchmark, attributes=fund.attributes)
+    assert res.pre_trade.kind == "active" and res.pre_trade.risk > 0 and res.post_trade.risk != res.pre_trade.risk
+    _assert_same_attribution(res.pre_trade, pre)
+    _assert_same_attribution(res.post_trade, post)
+    assert res.post_trade.risk == fund.model.attribute(res.weights, fund.benchmark).risk
+
+
+def test_attribution_is_computed_on_first_access_only(monkeypatch):
+    fund = make_fund(30, 3, seed=83)
+    calls: list[str] = []
+    original = trimtab.attribution.attribute
+
+    def counting(model, weights, benchmark=None, **kwargs):
+        calls.append("attribute")
+        return original(model, weights, benchmark, **kwargs)
+
+    # FactorModel.attribute imports trimtab.attribution.attribute at call time, so this sees every call
+    monkeypatch.setattr(trimtab.attribution, "attribute", counting)
+    res = rebalance(fund.model, SCENARIO, **fund.kwargs())
+    text = repr(res)
+    assert "_model" not in text and "pre_trade" not in text and not calls
+    names = {f.name for f in dataclasses.fields(res)}
+    assert {"weights", "verification", "ex_ante"} <= names and not names & {"pre_trade", "post_trade"}
+    post = res.post_trade
+    assert calls == ["attribute"] and res.post_trade is post
+    pre = res.pre_trade
+    assert calls == ["attribute"] * 2 and res.pre_trade is pre
+
+
+def test_without_benchmark_the_attribution_is_of_total_risk():
+    fund = make_fund(25, 3, seed=84)
+    res = rebalance(fund.model, {"objective": {"minimize": "total_risk"}, "constraints": {"fully_invested": True,
+                    "long_only": True}}, holdings=fund.holdings, attributes=fund.attributes)
+    # Outside reference: the attribution module's public function without a benchmark (total risk).
+    expected = trimtab.attribution.attribute(fund.model, res.weights, attributes=fund.attributes)
+    _assert_same_attribution(res.post_trade, expected)
+    assert res.post_trade.kind == "total" and res.pre_trade.risk > res.post_trade.risk
+
+
+def test_a_result_built_without_a_model_has_no_attribution(result):
+    _, res = result
+    bare = RebalanceResult(**{f.name: getattr(res, f.name) for f in dataclasses.fields(res) if f.name != "_model"})
+    assert bare.pre_trade is None and bare.post_trade is None
+
+
+def test_pickle_round_trip_before_and_after_access(result):
+    _, res = result
+    unread = pickle.dumps(res)
+    back = pickle.loads(unread)
+    assert isinstance(back, RebalanceResult) and "post_trade" not in vars(back)
+    pd.testing.assert_series_equal(back.weights, res.weights)
+    pd.testing.assert_frame_equal(back.trades, res.trades)
+    _assert_same_attribution(back.post_trade, res.post_trade)
+    _assert_same_attribution(back.pre_trade, res.pre_trade)
+    read = pickle.dumps(res)
+    again = pickle.loads(read)
+    assert "pre_trade" in vars(again) and "post_trade" in vars(again)
+    _assert_same_attribution(again.pre_trade, res.pre_trade)
+    # the attributions refer to the result's model, so pickle stores that model once, not three times
+    assert len(unread) < len(read)
+    assert again.pre_trade.model is again.post_trade.model is again._model

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -17,6 +18,7 @@ from trimtab.construct.constraints._base import ABS_TOL, REL_TOL
 if TYPE_CHECKING:
     from trimtab.attribution import RiskAttribution
     from trimtab.construct._problem import Outcome, RebalanceProblem
+    from trimtab.model import FactorModel
 
 CONSTRAINT_COLUMNS = ["name", "kind", "value", "lower", "upper", "slack", "binding", "shadow_price", "unit", "soft",
                       "asset", "n_binding"]
@@ -50,7 +52,9 @@ class RebalanceResult:
     verification : pandas.DataFrame
         Every check: name, kind, value, lower, upper, breach, tolerance, soft, ok.
     pre_trade, post_trade : RiskAttribution or None
-        Risk attribution of the initial and target weights (None when attribution is unavailable).
+        Risk attribution of the initial and target weights, against the benchmark when there is one
+        (None when attribution is unavailable or the result carries no model). Computed on first
+        access and kept: a sweep that never reads them does not pay for them.
     provenance : dict
         scenario_hash, version, solver, tolerances, attempts, notes.
     scenario : Mapping
@@ -69,12 +73,33 @@ class RebalanceResult:
     solve_time: float
     build_time: float
     verification: pd.DataFrame
-    pre_trade: RiskAttribution | None
-    post_trade: RiskAttribution | None
     provenance: dict[str, Any] = field(default_factory=dict)
     scenario: Mapping[str, Any] = field(default_factory=dict)
     periods_per_year: float = 252.0
     ex_ante: Mapping[str, float] = field(default_factory=dict)
+    # the inputs of the lazy pre/post attribution (the model's own factor groups apply)
+    _model: FactorModel | None = field(default=None, repr=False, compare=False)
+    _holdings: pd.Series | None = field(default=None, repr=False, compare=False)
+    _attributes: pd.DataFrame | None = field(default=None, repr=False, compare=False)
+
+    @cached_property
+    def pre_trade(self) -> RiskAttribution | None:
+        """Risk attribution of the holdings (model assets), active when there is a benchmark."""
+        return self._attribution(self._holdings)
+
+    @cached_property
+    def post_trade(self) -> RiskAttribution | None:
+        """Risk attribution of the target weights, active when there is a benchmark."""
+        return self._attribution(self.weights)
+
+    def _attribution(self, weights: pd.Series | None) -> RiskAttribution | None:
+        # the seam to trimtab.attribution: absent module (or no model) → no pre/post attribution
+        if self._model is None or weights is None:
+            return None
+        try:
+            return self._model.attribute(weights, self.benchmark, attributes=self._attributes)
+        except ImportError:
+            return None
 
     @property
     def objective_breakdown(self) -> Mapping[str, float]:
@@ -135,8 +160,6 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
     bench = None if data.benchmark is None else pd.Series(data.benchmark, index=assets, name="weight")
     table = _constraint_table(problem, outcome)
     objective = problem.objective.breakdown(outcome.weights, _penalty(outcome))
-    pre = _attribute(problem, pd.Series(data.holdings, index=assets), bench)
-    post = _attribute(problem, weights, bench)
     return RebalanceResult(
         weights=weights,
         initial_weights=initial,
@@ -150,12 +173,13 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
         solve_time=outcome.solve_time,
         build_time=outcome.build_time,
         verification=outcome.verification,
-        pre_trade=pre,
-        post_trade=post,
         provenance=_provenance(problem, outcome),
         scenario=problem.spec.mapping,
         periods_per_year=data.periods_per_year,
         ex_ante=_ex_ante(problem, outcome.weights),
+        _model=problem.model,
+        _holdings=pd.Series(data.holdings, index=assets),
+        _attributes=data.attributes,
     )
 
 
@@ -202,14 +226,6 @@ def _constraint_table(problem: RebalanceProblem, outcome: Outcome) -> pd.DataFra
             mu_up, mu_lo = outcome.duals.get(id(rows), (np.full(rows.size, np.nan),) * 2)
             records.extend(describe_rows(rows, rows.evaluate(outcome.weights), mu_up, mu_lo))
     return pd.DataFrame.from_records(records, columns=CONSTRAINT_COLUMNS)
-
-
-def _attribute(problem: RebalanceProblem, weights: pd.Series, bench: pd.Series | None) -> RiskAttribution | None:
-    # the seam to trimtab.attribution: absent module → no pre/post attribution
-    try:
-        return problem.model.attribute(weights, bench, attributes=problem.data.attributes)
-    except ImportError:
-        return None
 
 
 def _ex_ante(problem: RebalanceProblem, weights: np.ndarray) -> dict[str, float]:
