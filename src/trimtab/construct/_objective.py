@@ -95,7 +95,7 @@ class Objective:
             terms.append(data.alpha[held] @ scored - float(data.alpha @ data.bench))
         if self.risk_weight > 0:
             active = self.risk_active
-            variance = cp.sum_squares(v.factor_part(active)) + cp.sum_squares(v.specific_part(active))
+            variance = v.variance(active)
             terms.append(-self.risk_weight * data.periods_per_year * variance)
         if self.rates.any and self.cost_aversion > 0:
             terms.append(-self.cost_aversion * self._cost_expression(v))

@@ -11,6 +11,7 @@ from functools import cached_property
 
 import cvxpy as cp
 import numpy as np
+import scipy.sparse as sp
 
 from trimtab.construct._data import ProblemData
 
@@ -63,6 +64,26 @@ class Variables:
         """Lᵀ(y − Bᵀb) (active) or Lᵀy: its squared norm is the factor variance per period."""
         L = self.data.factor_sqrt
         return L.T @ (self.y - self.data.bench_exposure) if active else L.T @ self.y
+
+    def variance(self, active: bool) -> cp.Expression:
+        """Per-period variance of w − b (active) or w as quadratic forms on the variables themselves.
+
+        (y − x_b)ᵀF(y − x_b) + (w − b)ᵀD(w − b) expanded into yᵀFy + wᵀDw plus linear and constant
+        terms, so cvxpy hands Clarabel P = blkdiag(F, D) directly instead of adding an auxiliary
+        variable (and an equality row) per asset and factor for a sum of squares; measured at
+        N=5,000/K=50 that removes 5,050 variables and cuts the solver's time by about a fifth.
+        ``psd_wrap`` skips cvxpy's eigenvalue check: F is PSD by FactorModel's validation and D ≥ 0.
+        """
+        data = self.data
+        L = data.factor_sqrt
+        F = L @ L.T
+        D = sp.diags(data.specific_variance)
+        quadratic = cp.quad_form(self.y, cp.psd_wrap(F)) + cp.quad_form(self.w, cp.psd_wrap(D))
+        if not active:
+            return quadratic
+        xb, b, d = data.bench_exposure, data.bench, data.specific_variance
+        linear = -2.0 * ((F @ xb) @ self.y + (d * b) @ self.w)
+        return quadratic + linear + float(xb @ F @ xb + d @ (b * b))
 
     def specific_part(self, active: bool) -> cp.Expression:
         """√d∘(w − b) (active) or √d∘w: its squared norm is the specific variance per period."""
