@@ -399,3 +399,13 @@ def test_errors_show_paths_relative_to_the_working_folder(work: Path, monkeypatc
     (work / "w.yaml").write_text("extends: base.yaml\ndata: {holdings: {path: data/holdings.csv, kind: weights}}\n", encoding="utf-8")
     result = invoke("check", "w.yaml")
     one_error_line(result, r"^trimtab: error: data/holdings\.csv: holdings file lacks column 'weight'; found columns: asset, shares")
+
+
+def test_command_help_paragraphs_are_not_broken_mid_sentence() -> None:
+    # typer keeps a docstring's line breaks; wrapped source paragraphs read as broken lines in --help
+    from trimtab.cli import app
+
+    for command in app.registered_commands:
+        assert command.help, command.name
+        for paragraph in command.help.split("\n\n"):
+            assert "\n" not in paragraph, (command.name, paragraph)

@@ -7,6 +7,8 @@ Everything printed goes through this module; the work is done by :mod:`trimtab.s
 
 from __future__ import annotations
 
+import inspect
+
 import functools
 import json
 import math
@@ -603,6 +605,21 @@ def _register_run_commands() -> None:
 
 
 _register_run_commands()
+
+
+def _reflow_help() -> None:
+    """Each command's help from its docstring with every paragraph on one line.
+
+    typer keeps a docstring's line breaks, so a paragraph wrapped at 100 columns in the source broke
+    mid-sentence in ``--help``; the terminal then wraps the joined paragraph to its own width.
+    """
+    for command in app.registered_commands:
+        if command.help is None and command.callback is not None and command.callback.__doc__:
+            paragraphs = inspect.cleandoc(command.callback.__doc__).split("\n\n")
+            command.help = "\n\n".join(" ".join(p.split()) for p in paragraphs)
+
+
+_reflow_help()
 
 
 # ---------------------------------------------------------------------- entry point
