@@ -130,6 +130,14 @@ def test_sweep_on_the_demo(app: typer.Typer, demo) -> None:
     assert sorted(p.name for p in out.iterdir()) == [".trimtab-output", "report.html", "result.json", "sweep.csv"]
 
 
+def test_sweep_table_reads_in_percent(app: typer.Typer, demo) -> None:
+    result = invoke(app, "sweep", str(demo / "base.yaml"), "--grid", "tracking_error.max=0.03", "--out", str(demo / "pct"))
+    assert result.exit_code == 0, result.stderr
+    assert "Sweep points" in result.stdout
+    # the 3% cap and a solved tracking error at or below it, as percentages rather than raw fractions
+    assert "3.00%" in result.stdout and "0.03 " not in result.stdout
+
+
 def test_sweep_with_no_feasible_point_exits_1(app: typer.Typer, demo) -> None:
     result = invoke(app, "sweep", str(demo / "base.yaml"), "--grid", "tracking_error.max=0.005,0.01", "--out", str(demo / "none"), "--quiet")
     assert result.exit_code == 1
