@@ -11,7 +11,6 @@ import inspect
 
 import functools
 import json
-import math
 import sys
 import time
 import warnings
@@ -27,6 +26,9 @@ import typer
 from rich.console import Console
 from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 from rich.table import Table
+
+from trimtab._format import format_percent as _pct
+from trimtab._format import frame_table as _frame_table
 
 from trimtab._version import __version__
 from trimtab.errors import InfeasibleError, InputError, SolverError, TrimtabError
@@ -195,43 +197,6 @@ def _root(
 
 
 # ---------------------------------------------------------------------- formatting helpers
-def _pct(value: Any, digits: int = 2) -> str:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        return str(value)
-    return "–" if not math.isfinite(v) else f"{100 * v:.{digits}f}%"
-
-
-def _num(value: Any, digits: int = 4) -> str:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        return str(value)
-    return "–" if not math.isfinite(v) else f"{v:.{digits}g}"
-
-
-def _frame_table(frame: pd.DataFrame, title: str, *, percent: Sequence[str] = (), max_rows: int = 20) -> Table:
-    table = Table(title=title, title_justify="left", show_lines=False, header_style="bold")
-    show_index = not isinstance(frame.index, pd.RangeIndex)
-    if show_index:
-        table.add_column(str(frame.index.name or ""))
-    for col in frame.columns:
-        table.add_column(str(col), justify="right")
-    for label, row in frame.head(max_rows).iterrows():
-        cells = []
-        for col in frame.columns:
-            value = row[col]
-            if isinstance(value, (float, np.floating)):
-                cells.append(_pct(value) if col in percent else _num(value))
-            else:
-                cells.append(str(value))
-        table.add_row(*([str(label)] if show_index else []), *cells)
-    if len(frame) > max_rows:
-        table.caption = f"{len(frame) - max_rows} more rows not shown"
-    return table
-
-
 def _print_relaxation(ui: Ui, name: str | None, err: InfeasibleError) -> None:
     """The relaxation table in each limit's unit (weights as % of NAV), unless --json or --quiet."""
     if not ui.chatty:

@@ -125,31 +125,18 @@ def _say(text: str, chatty: bool) -> None:
 
 
 #: Table columns that are fractions of NAV or annualised fractions, shown as percentages.
-_PERCENT_COLUMNS = {"tracking_error", "turnover", "expected_alpha", "tracking_error.max", "turnover.max"}
+_PERCENT_COLUMNS = ("tracking_error", "turnover", "expected_alpha", "tracking_error.max", "turnover.max", "limit")
 
 
-def _say_table(frame: pd.DataFrame, title: str, chatty: bool, *, percent: set[str] | frozenset[str] = frozenset()) -> None:
-    """A results table as a rich table: fractions as percentages, other numbers to four digits."""
-    if not chatty:
-        return
-    from rich.console import Console
-    from rich.table import Table
+def _say_table(frame: pd.DataFrame, title: str, chatty: bool) -> None:
+    """A results table in rich form, fractions as percentages (see :func:`trimtab._format.frame_table`)."""
+    if chatty:
+        from rich.console import Console
 
-    shown_percent = _PERCENT_COLUMNS | set(percent)
-    table = Table(title=title, title_justify="left", header_style="bold")
-    for column in frame.columns:
-        table.add_column(str(column), justify="left" if column == "status" else "right")
+        from trimtab._format import frame_table
 
-    def cell(column: Any, value: Any) -> str:
-        if isinstance(value, (int, float, np.floating, np.integer)) and not isinstance(value, bool):
-            if not np.isfinite(value):
-                return "–"
-            return f"{100 * value:.2f}%" if column in shown_percent else f"{value:.4g}"
-        return str(value)
-
-    for _, row in frame.iterrows():
-        table.add_row(*[cell(column, row[column]) for column in frame.columns])
-    Console(file=sys.stdout, highlight=False, width=max(100, Console().width)).print(table)
+        table = frame_table(frame, title, percent=_PERCENT_COLUMNS, max_rows=len(frame))
+        Console(file=sys.stdout, highlight=False, width=max(100, Console().width)).print(table)
 
 
 def _default_out(scenario: Any, command: str) -> Path:
@@ -339,8 +326,7 @@ def frontier_command(
         _emit({"scenario": inputs.scenario.name, "output": str(target), "tracking_error": result.tracking_error, "turnover": result.turnover})
     if not (as_json or quiet):
         _say(result.summary(), True)
-        _say_table(result.tracking_error.drop(columns=["error"]), "Frontier against tracking error (limit = TE cap)",
-                   True, percent={"limit"})
+        _say_table(result.tracking_error.drop(columns=["error"]), "Frontier against tracking error (limit = TE cap)", True)
         _say(f"Wrote the tables and report to {target}", True)
     _report_failures(result.tracking_error.set_index("limit"))
     _exit_for_points(result.tracking_error.set_index("limit"))
