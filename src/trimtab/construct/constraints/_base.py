@@ -10,6 +10,11 @@ A constraint turns its scenario options into one or more :class:`Rows`. Each Row
 
 Rows whose value is the weight itself minus a constant (``offset``) are *box rows*: the builder merges
 all hard box rows into one pair of bounds on w, so N-long limits cost the solver one row per asset.
+
+Two optional descriptions let the factor-form interior-point solver (:mod:`trimtab.construct._ipm`)
+take a row without cvxpy: ``linear`` (the value as Aw·w + Ay·(Bᵀw) + at·Σ(buy + sell) + c) and
+``risk`` (the value is an annualised volatility of w − b or w, factor and/or specific part). A row
+with neither (and not a box row) sends the problem to the cvxpy path.
 """
 
 from __future__ import annotations
@@ -37,6 +42,25 @@ BINDING_TOL = 1e-6
 
 
 @dataclass(frozen=True, eq=False)
+class Linear:
+    """value = Aw·w + Ay·(Bᵀw) + at·Σᵢ(buyᵢ + sellᵢ) + constant, row by row (None: no such term)."""
+
+    w: Any = None
+    y: np.ndarray | None = None
+    traded: np.ndarray | None = None
+    constant: np.ndarray | float = 0.0
+
+
+@dataclass(frozen=True)
+class Risk:
+    """value = √(ppy·(factor part + specific part) of the variance of w − b (active) or w)."""
+
+    active: bool
+    factor: bool
+    specific: bool
+
+
+@dataclass(frozen=True, eq=False)
 class Rows:
     """One block of limits ``lower ≤ value(w) ≤ upper`` (±inf for unbounded; lower == upper: equality)."""
 
@@ -54,6 +78,8 @@ class Rows:
     per_asset: bool = False
     offset: np.ndarray | None = field(default=None, repr=False)
     convex: bool = False
+    linear: Linear | None = field(default=None, repr=False)
+    risk: Risk | None = None
 
     @property
     def box(self) -> bool:
@@ -106,7 +132,7 @@ def linear_rows(
         lower=np.asarray(lower, dtype=np.float64), upper=np.asarray(upper, dtype=np.float64),
         evaluate=lambda w: np.asarray(matrix @ w).ravel() + const,
         expression=lambda v: matrix @ v.w + const,
-        soft=soft, scale=scale,
+        soft=soft, scale=scale, linear=Linear(w=matrix, constant=const),
     )
 
 

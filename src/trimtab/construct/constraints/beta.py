@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from trimtab.construct.constraints._base import Constraint, Rows, scalar
+from trimtab.construct.constraints._base import Constraint, Linear, Rows, scalar
 
 
 class Beta(Constraint):
@@ -30,5 +30,5 @@ class Beta(Constraint):
             lower=scalar(self.options["min"], -np.inf), upper=scalar(self.options["max"], np.inf),
             evaluate=lambda w: np.array([fc @ (B.T @ w) + sc @ w[held]]),
             expression=lambda v: fc @ v.y + sc @ v.w[held],
-            soft=self.soft_penalty,
+            soft=self.soft_penalty, linear=Linear(w=(specific_coef / bench_var)[None, :], y=fc[None, :]),
         )]

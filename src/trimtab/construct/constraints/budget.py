@@ -5,7 +5,7 @@ from __future__ import annotations
 import cvxpy as cp
 import numpy as np
 
-from trimtab.construct.constraints._base import Constraint, Rows, scalar
+from trimtab.construct.constraints._base import Constraint, Linear, Rows, scalar
 
 
 class FullyInvested(Constraint):
@@ -19,7 +19,7 @@ class FullyInvested(Constraint):
             name=self.key, kind=self.kind, unit="weight", labels=[self.key],
             lower=np.array([1.0]), upper=np.array([1.0]),
             evaluate=lambda w: np.array([w.sum()]), expression=lambda v: cp.sum(v.w),
-            soft=self.soft_penalty,
+            soft=self.soft_penalty, linear=Linear(w=np.ones((1, self.data.n_assets))),
         )]
 
 
@@ -34,5 +34,5 @@ class Cash(Constraint):
             name=self.key, kind=self.kind, unit="weight", labels=[self.key],
             lower=scalar(self.options["min"], -np.inf), upper=scalar(self.options["max"], np.inf),
             evaluate=lambda w: np.array([1.0 - w.sum()]), expression=lambda v: 1.0 - cp.sum(v.w),
-            soft=self.soft_penalty,
+            soft=self.soft_penalty, linear=Linear(w=-np.ones((1, self.data.n_assets)), constant=1.0),
         )]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from trimtab._validation import list_labels
-from trimtab.construct.constraints._base import Constraint, Rows, interval_arrays
+from trimtab.construct.constraints._base import Constraint, Linear, Rows, interval_arrays
 
 
 class FactorExposure(Constraint):
@@ -42,5 +42,5 @@ class FactorExposure(Constraint):
             labels=chosen, lower=lower, upper=upper,
             evaluate=lambda w: (B.T @ w)[idx] - base,
             expression=lambda v: (v.y if whole else v.y[idx]) - base,
-            soft=self.soft_penalty,
+            soft=self.soft_penalty, linear=Linear(y=np.eye(len(factors))[idx], constant=-base),
         )]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import cvxpy as cp
 import numpy as np
 
-from trimtab.construct.constraints._base import Constraint, Rows, box_rows, scalar
+from trimtab.construct.constraints._base import Constraint, Linear, Rows, box_rows, scalar
 
 
 class LongOnly(Constraint):
@@ -43,6 +43,7 @@ class Leverage(Constraint):
                 name=f"{self.key}.net", kind=self.kind, unit="weight", labels=[f"{self.key}.net"],
                 lower=scalar(lo, -np.inf), upper=scalar(hi, np.inf),
                 evaluate=lambda w: np.array([w.sum()]), expression=lambda v: cp.sum(v.w), soft=soft,
+                linear=Linear(w=np.ones((1, self.data.n_assets))),
             ))
         if o["short"] is not None:
             out.append(Rows(

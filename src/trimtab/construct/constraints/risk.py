@@ -13,7 +13,7 @@ import cvxpy as cp
 import numpy as np
 
 from trimtab.construct._variables import Variables, variance_numpy
-from trimtab.construct.constraints._base import Constraint, Rows, scalar
+from trimtab.construct.constraints._base import Constraint, Risk, Rows, scalar
 
 #: The elastic re-solve measures a risk cap's slack relative to the cap, but at least this (1%).
 MIN_RISK_SCALE = 0.01
@@ -45,6 +45,7 @@ class _RiskCap(Constraint):
             lower=np.array([-np.inf]), upper=scalar(cap, np.inf),
             evaluate=evaluate, expression=expression, factor=1.0 / np.sqrt(ppy),
             scale=max(cap, MIN_RISK_SCALE), soft=self.soft_penalty, convex=True,
+            risk=Risk(active=active, factor=use_factor, specific=use_specific),
         )]
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import cvxpy as cp
 import numpy as np
 
-from trimtab.construct.constraints._base import Constraint, Rows, scalar
+from trimtab.construct.constraints._base import Constraint, Linear, Rows, scalar
 
 
 class Turnover(Constraint):
@@ -21,5 +21,5 @@ class Turnover(Constraint):
             lower=np.array([-np.inf]), upper=scalar(self.options["max"], np.inf),
             evaluate=lambda w: np.array([0.5 * np.abs(w - w0).sum() + outside]),
             expression=lambda v: 0.5 * cp.sum(v.traded) + outside,
-            soft=self.soft_penalty,
+            soft=self.soft_penalty, linear=Linear(traded=np.array([0.5]), constant=outside),
         )]

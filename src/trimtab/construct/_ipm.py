@@ -1,0 +1,617 @@
+"""A primal-dual interior-point method for the rebalance problem in factor form.
+
+The problem, with trades split as w = w0 + u − v (u buys, v sells; x = (u, v) ∈ R²ᴺ)::
+
+    minimise    c_r·(w − b_o)ᵀΣ(w − b_o) − αᵀw + costᵀ(u + v) + Σ impactᵢ·(uᵢ + vᵢ)^{3/2}
+                                                                       Σ = B·F·Bᵀ + diag(d)
+    subject to  lb ≤ x ≤ ub                                            (per-asset boxes)
+                lo ≤ Aw·w + Ay·(Bᵀw) + at·1ᵀ(u + v) + c ≤ hi           (a few dense rows)
+                (w − b_k)ᵀQ_k(w − b_k) ≤ τ_k²,  Q_k ∈ {Σ, BFBᵀ, diag(d)}  (risk caps)
+
+Weight bounds l ≤ w ≤ h become bounds on u and v alone: u ∈ [(l − w0)⁺, (h − w0)⁺] and
+v ∈ [(w0 − h)⁺, (w0 − l)⁺]. This restriction is exact: every w in [l, h] is reached with
+u = (w − w0)⁺, v = (w0 − w)⁺ inside those boxes, and nothing in the problem rewards buying and
+selling the same asset at once.
+
+Each iteration solves the Newton system of the perturbed KKT conditions (Mehrotra's
+predictor-corrector, one step length for primal and dual). Its matrix is
+
+    H = blockdiag(2×2 per asset) + U·Uᵀ,   U = [Eᵀ·B·R, G·diag(√ρ)],   E = [I, −I],
+
+where R·Rᵀ collects every K×K factor term (objective, caps, factor-exposure rows), the 2×2 blocks
+hold the specific-variance diagonal, the impact term's curvature (¾·impactᵢ·(uᵢ + vᵢ)^{-1/2} on
+all four entries; u + v > 0 inside the boxes) and the barrier terms of the boxes, and G holds one column per
+other dense row and per cap gradient. H⁻¹ is applied with the Woodbury identity: one Cholesky of an
+(r × r) matrix, r ≈ K + (number of dense rows), and O(N·r²) dense BLAS work. No N×N matrix and no
+sparse factorisation are formed. Equality rows are handled by a Schur complement A·H⁻¹·Aᵀ.
+
+Tolerances are on the unscaled rows (weights, exposures) and on the caps as q/τ² − 1, so a
+converged point is well inside the verification tolerances of :mod:`trimtab.construct._verify`;
+the caller verifies it from w regardless and falls back to a general solver when it does not pass.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.linalg as la
+
+#: Stop when the primal and dual residuals and the duality measure are below these.
+TOL_PRIMAL = 1e-8
+TOL_DUAL = 1e-8
+TOL_GAP = 1e-10
+MAX_ITER = 80
+#: Fraction of the distance to the boundary a step may go.
+STEP_FRACTION = 0.995
+#: A box narrower than this (relative to max(1, |lower|)) fixes its variable at the lower bound.
+FIXED_WIDTH = 1e-13
+#: Starting slack of the inequality rows (at least) and starting complementarity MU0/N.
+SLACK_FLOOR = 0.1
+MU0 = 0.1
+#: A step shorter than this ends the run (stalled); |x| beyond DIVERGED ends it (unbounded).
+MIN_STEP = 1e-10
+DIVERGED = 1e8
+#: The impact term |t|^{3/2} is smoothed below this trade size (see _impact).
+IMPACT_SMOOTHING = 1e-8
+#: Iterative-refinement steps on each Newton solve (the Woodbury solve loses digits late in the run).
+REFINE = 3
+
+
+@dataclass(frozen=True, eq=False)
+class Cap:
+    """(w − b)ᵀQ(w − b) ≤ τ², Q = B·F·Bᵀ·[factor] + diag(d)·[specific] (per-period variance)."""
+
+    center: np.ndarray
+    factor: bool
+    specific: bool
+    tau2: float
+
+
+@dataclass(eq=False)
+class QP:
+    """The problem data of the module docstring, in model order (N assets, K factors)."""
+
+    B: np.ndarray
+    F: np.ndarray
+    d: np.ndarray
+    w0: np.ndarray
+    risk_weight: float
+    risk_center: np.ndarray
+    alpha: np.ndarray
+    cost: np.ndarray
+    lb: np.ndarray
+    ub: np.ndarray
+    Aw: np.ndarray
+    Ay: np.ndarray
+    at: np.ndarray
+    const: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+    caps: list[Cap] = field(default_factory=list)
+    #: a cost on u + v of this size relative to the objective's gradient, used by the iteration but
+    #: left out of :meth:`objective` (it makes the trade split unique when nothing prices trades)
+    trade_regularizer: float = 0.0
+    #: market-impact coefficients (N), cost impactᵢ·|tradeᵢ|^{3/2}; None for none
+    impact: np.ndarray | None = None
+
+    @property
+    def n(self) -> int:
+        return len(self.w0)
+
+    def weights(self, x: np.ndarray) -> np.ndarray:
+        n = self.n
+        return self.w0 + x[:n] - x[n:]
+
+    def sigma(self, a: np.ndarray, factor: bool = True, specific: bool = True) -> np.ndarray:
+        out = self.B @ (self.F @ (self.B.T @ a)) if factor else np.zeros_like(a)
+        return out + self.d * a if specific else out
+
+    def row_values(self, w: np.ndarray, traded: float) -> np.ndarray:
+        return self.Aw @ w + self.Ay @ (self.B.T @ w) + self.at * traded + self.const
+
+    def objective(self, x: np.ndarray) -> float:
+        w = self.weights(x)
+        a = w - self.risk_center
+        n = self.n
+        traded = x[:n] + x[n:]
+        value = self.risk_weight * (a @ self.sigma(a)) - self.alpha @ w + self.cost @ traded
+        if self.impact is not None:
+            value += self.impact @ _impact(traded)[0]
+        return float(value)
+
+
+@dataclass(frozen=True, eq=False)
+class Solution:
+    """x and the multipliers; ``converged`` False means do not use it."""
+
+    x: np.ndarray
+    converged: bool
+    status: str
+    iterations: int
+    seconds: float
+    objective: float
+    #: per dense row: multiplier of the upper side and of the lower side (objective units, ≥ 0),
+    #: or the signed multiplier of an equality row split into those two.
+    row_upper: np.ndarray
+    row_lower: np.ndarray
+    cap_duals: np.ndarray
+    #: multipliers of the upper and lower bounds on x, and the Lagrangian gradient without them
+    bound_upper: np.ndarray
+    bound_lower: np.ndarray
+    reduced_gradient: np.ndarray
+    residuals: dict[str, float]
+
+
+class _Rows:
+    """The dense rows split into equalities, factor-only inequalities and general inequalities."""
+
+    def __init__(self, qp: QP) -> None:
+        lo, hi = qp.lo, qp.hi
+        self.eq = np.flatnonzero(np.isfinite(lo) & (lo == hi))
+        ineq = np.flatnonzero(~(np.isfinite(lo) & (lo == hi)) & (np.isfinite(lo) | np.isfinite(hi)))
+        aw_zero = ~np.any(qp.Aw != 0, axis=1) & (qp.at == 0)
+        self.factor_only = ineq[aw_zero[ineq]]
+        self.general = ineq[~aw_zero[ineq]]
+        self.ineq = np.concatenate([self.factor_only, self.general])
+
+
+def _row_columns(qp: QP) -> np.ndarray:
+    """The rows' gradients in w-space (N × rows): Awᵀ + B·Ayᵀ (the trade part is ``qp.at``)."""
+    return qp.Aw.T + qp.B @ qp.Ay.T
+
+
+def _expand(w_part: np.ndarray, t_part: float | np.ndarray) -> np.ndarray:
+    """Eᵀ·w_part + 1·t_part: a w-space gradient plus a coefficient on 1ᵀ(u + v), in x-space."""
+    return np.concatenate([w_part + t_part, -w_part + t_part])
+
+
+def _step_to_boundary(v: np.ndarray, dv: np.ndarray) -> float:
+    neg = dv < 0
+    if not neg.any():
+        return np.inf
+    return float(np.min(-v[neg] / dv[neg]))
+
+
+def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False) -> Solution:
+    """Minimise the QP of the module docstring; see :class:`Solution`.
+
+    The iterate with the smallest residuals (relative to their tolerances) is kept; the run stops
+    when it is within every tolerance, when a Newton solve fails or goes non-finite, or after
+    ``max_iter`` iterations. ``converged`` is True only in the first case.
+    """
+    # overflow or 0/0 near a failing end is caught by the finiteness checks, not by warnings
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        return _Run(qp, verbose).run(max_iter)
+
+
+class _Run:
+    """One interior-point run: the fixed structure, the state and the iteration."""
+
+    def __init__(self, qp: QP, verbose: bool) -> None:
+        self.qp, self.verbose = qp, verbose
+        n = self.n = qp.n
+        rows = self.rows = _Rows(qp)
+        self.fixed = qp.ub - qp.lb <= FIXED_WIDTH * np.maximum(1.0, np.abs(qp.lb))
+        self.free = ~self.fixed
+        self.has_lb = self.free & np.isfinite(qp.lb)
+        self.has_ub = self.free & np.isfinite(qp.ub)
+        self.Gw = _row_columns(qp)
+        self.at = qp.at
+        self.Ay_fac = qp.Ay[rows.factor_only]
+        self.n_rows = len(qp.lo)
+        ineq = rows.ineq
+        self.up_side = ineq[np.isfinite(qp.hi[ineq])]
+        self.lo_side = ineq[np.isfinite(qp.lo[ineq])]
+        self.m_up = len(self.up_side)
+        self.m_lin = self.m_up + len(self.lo_side)
+        self.n_caps = len(qp.caps)
+        self.b_eq = qp.hi[rows.eq]
+        self.pm = np.concatenate([np.ones(n), -np.ones(n)])
+        # starting point; the objective is divided by its gradient's size so multipliers are O(1)
+        x = _start(qp, self.fixed)
+        grad0 = _objective_gradient(qp, x)
+        self.scale = max(float(np.max(np.abs(grad0[self.free]))) if self.free.any() else 1.0, 1e-8)
+        self.reg = qp.trade_regularizer
+        self.x = x
+        h = self.evaluate()
+        self.s = np.maximum(-h, SLACK_FLOOR)
+        mu0 = MU0 / max(n, 1)
+        self.z = mu0 / self.s
+        self.gap_l = np.where(self.has_lb, x - qp.lb, 1.0)
+        self.gap_u = np.where(self.has_ub, qp.ub - x, 1.0)
+        self.zl = np.where(self.has_lb, mu0 / self.gap_l, 0.0)
+        self.zu = np.where(self.has_ub, mu0 / self.gap_u, 0.0)
+        self.nu = np.zeros(len(rows.eq))
+        self.n_comp = int(self.has_lb.sum() + self.has_ub.sum() + len(self.s))
+
+    # ------------------------------------------------------------------ functions of x
+    def evaluate(self) -> np.ndarray:
+        """h(x) (inequalities ≤ 0), and the row values and cap gradients at x (kept on self)."""
+        qp, x = self.qp, self.x
+        w = qp.weights(x)
+        self.values = qp.row_values(w, float(x.sum()))
+        caps = np.zeros(self.n_caps)
+        self.cap_grads = []
+        for k, cap in enumerate(qp.caps):
+            a = w - cap.center
+            qa = qp.sigma(a, cap.factor, cap.specific)
+            caps[k] = a @ qa / cap.tau2 - 1.0
+            grad = 2.0 * qa / cap.tau2
+            self.cap_grads.append(grad)
+        self.h = np.concatenate([self.values[self.up_side] - qp.hi[self.up_side],
+                                 qp.lo[self.lo_side] - self.values[self.lo_side], caps])
+        return self.h
+
+    def jac(self, dx: np.ndarray) -> np.ndarray:
+        n = self.n
+        dw = dx[:n] - dx[n:]
+        row_change = self.Gw.T @ dw + self.at * dx.sum()
+        caps = np.array([g @ dw for g in self.cap_grads])
+        return np.concatenate([row_change[self.up_side], -row_change[self.lo_side], caps])
+
+    def row_multipliers(self, vec: np.ndarray) -> np.ndarray:
+        """Per-row multiplier (upper side +, lower side −) from a vector over the inequality sides."""
+        rm = np.zeros(self.n_rows)
+        rm[self.up_side] += vec[: self.m_up]
+        rm[self.lo_side] -= vec[self.m_up: self.m_lin]
+        return rm
+
+    def jac_t(self, vec: np.ndarray, nu: np.ndarray | None = None) -> np.ndarray:
+        """J_hᵀ·vec (+ Aᵀ·nu), in x-space with the fixed coordinates zeroed."""
+        rm = self.row_multipliers(vec)
+        if nu is not None:
+            rm[self.rows.eq] += nu
+        w_part = self.Gw @ rm
+        for k, g in enumerate(self.cap_grads):
+            w_part = w_part + vec[self.m_lin + k] * g
+        out = _expand(w_part, float(self.at @ rm))
+        out[self.fixed] = 0.0
+        return out
+
+    def lagrangian_gradient(self) -> np.ndarray:
+        """∇φ/scale + J_hᵀz + Aᵀν, without the bounds' multipliers."""
+        g = _objective_gradient(self.qp, self.x) / self.scale + self.reg
+        g[self.fixed] = 0.0
+        return g + self.jac_t(self.z, self.nu)
+
+    # ------------------------------------------------------------------ state
+    def state(self) -> tuple[np.ndarray, ...]:
+        return tuple(v.copy() for v in (self.x, self.s, self.z, self.zl, self.zu, self.nu, self.gap_l, self.gap_u))
+
+    def restore(self, state: tuple[np.ndarray, ...]) -> None:
+        self.x, self.s, self.z, self.zl, self.zu, self.nu, self.gap_l, self.gap_u = (v.copy() for v in state)
+        self.evaluate()
+
+    def residuals(self) -> dict[str, float]:
+        self.r_d = self.lagrangian_gradient() - self.zl + self.zu
+        self.r_d[self.fixed] = 0.0
+        self.r_h = self.h + self.s
+        self.r_eq = self.values[self.rows.eq] - self.b_eq
+        hl, hu = self.has_lb, self.has_ub
+        self.comp = float(self.s @ self.z + (self.gap_l * self.zl)[hl].sum() + (self.gap_u * self.zu)[hu].sum())
+        self.mu = self.comp / max(self.n_comp, 1)
+        obj = self.qp.objective(self.x) / self.scale
+        return {
+            "primal": float(max(np.max(np.abs(self.r_h), initial=0.0), np.max(np.abs(self.r_eq), initial=0.0))),
+            "dual": float(np.max(np.abs(self.r_d), initial=0.0)),
+            "gap": self.comp / (1.0 + abs(obj)),
+            "objective": obj,
+        }
+
+    # ------------------------------------------------------------------ one Newton system
+    def newton(self) -> _Newton:
+        qp, n = self.qp, self.n
+        z_cap = self.z[self.m_lin:]
+        weight = 2.0 * qp.risk_weight / self.scale
+        dW = weight * qp.d
+        S = weight * qp.F
+        for k, cap in enumerate(qp.caps):
+            c = 2.0 * z_cap[k] / cap.tau2
+            if cap.specific:
+                dW = dW + c * qp.d
+            if cap.factor:
+                S = S + c * qp.F
+        rho = self.z / self.s
+        rho_row = np.zeros(self.n_rows)
+        rho_row[self.up_side] += rho[: self.m_up]
+        rho_row[self.lo_side] += rho[self.m_up: self.m_lin]
+        if len(self.rows.factor_only):
+            S = S + self.Ay_fac.T @ (rho_row[self.rows.factor_only][:, None] * self.Ay_fac)
+        barrier = np.where(self.has_lb, self.zl / self.gap_l, 0.0) + np.where(self.has_ub, self.zu / self.gap_u, 0.0)
+        curvature = np.zeros(n)
+        if qp.impact is not None:
+            curvature = qp.impact * _impact(self.x[:n] + self.x[n:])[2] / self.scale
+        kkt = _Newton(qp.B, dW, S, barrier, self.fixed, n, curvature)
+        gen = self.rows.general
+        root = np.sqrt(rho_row[gen])
+        root_caps = np.sqrt(rho[self.m_lin:])
+        W = np.hstack([self.Gw[:, gen] * root[None, :], *[(r * g)[:, None] for r, g in zip(root_caps, self.cap_grads)]])
+        T = np.concatenate([self.at[gen] * root, np.zeros(self.n_caps)])
+        eq = self.rows.eq
+        kkt.factor(W, T, self.Gw[:, eq], self.at[eq])
+        return kkt
+
+    def direction(self, kkt: _Newton, r_s: np.ndarray, r_l: np.ndarray, r_u: np.ndarray) -> tuple[np.ndarray, ...]:
+        hl, hu = self.has_lb, self.has_ub
+        rhs = -self.r_d - self.jac_t((-r_s + self.z * self.r_h) / self.s)
+        rhs -= np.where(hl, r_l / self.gap_l, 0.0)
+        rhs += np.where(hu, r_u / self.gap_u, 0.0)
+        dx, dnu = kkt.solve(rhs, -self.r_eq)
+        dx[self.fixed] = 0.0
+        ds = -self.r_h - self.jac(dx)
+        dz = (-r_s - self.z * ds) / self.s
+        dzl = np.where(hl, (-r_l - self.zl * dx) / self.gap_l, 0.0)
+        dzu = np.where(hu, (-r_u + self.zu * dx) / self.gap_u, 0.0)
+        return dx, dnu, ds, dz, dzl, dzu
+
+    def max_step(self, dx: np.ndarray, ds: np.ndarray, dz: np.ndarray, dzl: np.ndarray, dzu: np.ndarray) -> float:
+        hl, hu = self.has_lb, self.has_ub
+        return min(
+            _step_to_boundary(self.gap_l[hl], dx[hl]), _step_to_boundary(self.gap_u[hu], -dx[hu]),
+            _step_to_boundary(self.s, ds), _step_to_boundary(self.z, dz),
+            _step_to_boundary(self.zl[hl], dzl[hl]), _step_to_boundary(self.zu[hu], dzu[hu]),
+        )
+
+    def iterate(self) -> float:
+        """One predictor-corrector step; returns the step length."""
+        kkt = self.newton()
+        hl, hu = self.has_lb, self.has_ub
+        r_s = self.s * self.z
+        r_l = np.where(hl, self.gap_l * self.zl, 0.0)
+        r_u = np.where(hu, self.gap_u * self.zu, 0.0)
+        dxa, _, dsa, dza, dzla, dzua = self.direction(kkt, r_s, r_l, r_u)
+        a = min(1.0, self.max_step(dxa, dsa, dza, dzla, dzua))
+        comp_aff = float((self.s + a * dsa) @ (self.z + a * dza)
+                         + ((self.gap_l + a * dxa) * (self.zl + a * dzla))[hl].sum()
+                         + ((self.gap_u - a * dxa) * (self.zu + a * dzua))[hu].sum())
+        sigma = min(1.0, (comp_aff / max(self.comp, 1e-300)) ** 3)
+        target = sigma * self.mu
+        r_s = self.s * self.z + dsa * dza - target
+        r_l = np.where(hl, self.gap_l * self.zl + dxa * dzla - target, 0.0)
+        r_u = np.where(hu, self.gap_u * self.zu - dxa * dzua - target, 0.0)
+        dx, dnu, ds, dz, dzl, dzu = self.direction(kkt, r_s, r_l, r_u)
+        if not all(np.isfinite(v).all() for v in (dx, dnu, ds, dz, dzl, dzu)):
+            raise FloatingPointError("non-finite Newton direction")
+        step = min(1.0, STEP_FRACTION * self.max_step(dx, ds, dz, dzl, dzu))
+        if self.verbose:
+            print(f"    sigma {sigma:.2e} alpha_aff {a:.3f} step {step:.3f}")
+        self.x = self.x + step * dx
+        self.s = self.s + step * ds
+        self.z = self.z + step * dz
+        self.zl = self.zl + step * dzl
+        self.zu = self.zu + step * dzu
+        self.nu = self.nu + step * dnu
+        self.gap_l = np.where(hl, self.gap_l + step * dx, 1.0)
+        self.gap_u = np.where(hu, self.gap_u - step * dx, 1.0)
+        self.evaluate()
+        return step
+
+    # ------------------------------------------------------------------ the loop
+    def run(self, max_iter: int) -> Solution:
+        start = time.perf_counter()
+        status = "max_iter"
+        best: tuple[float, tuple[np.ndarray, ...], dict[str, float], int] | None = None
+        it = 0
+        for it in range(1, max_iter + 1):
+            res = self.residuals()
+            merit = max(res["primal"] / TOL_PRIMAL, res["dual"] / TOL_DUAL, res["gap"] / TOL_GAP)
+            if not np.isfinite(merit):
+                status = "numerical"
+                break
+            if best is None or merit < best[0]:
+                best = (merit, self.state(), res, it)
+            if self.verbose:
+                print(f"{it:3d} {res['objective']:+.6e} primal {res['primal']:.1e} dual {res['dual']:.1e} "
+                      f"gap {res['gap']:.1e} mu {self.mu:.1e}")
+            if merit <= 1.0:
+                status = "optimal"
+                break
+            if np.max(np.abs(self.x[self.free]), initial=0.0) > DIVERGED:
+                status = "diverged"
+                break
+            try:
+                step = self.iterate()
+            except (np.linalg.LinAlgError, FloatingPointError, ValueError):
+                status = "numerical"
+                break
+            if step < MIN_STEP:
+                status = "stalled"
+                break
+        assert best is not None
+        merit, state, res, best_it = best
+        self.restore(state)
+        self.residuals()
+        return self.solution(status if merit > 1.0 else "optimal", it, time.perf_counter() - start, res)
+
+    def solution(self, status: str, iterations: int, seconds: float, res: dict[str, float]) -> Solution:
+        qp, scale, rows = self.qp, self.scale, self.rows
+        z_up, z_lo, z_cap = self.z[: self.m_up], self.z[self.m_up: self.m_lin], self.z[self.m_lin:]
+        row_upper, row_lower = np.zeros(self.n_rows), np.zeros(self.n_rows)
+        row_upper[self.up_side] = z_up * scale
+        row_lower[self.lo_side] = z_lo * scale
+        row_upper[rows.eq] = np.maximum(self.nu, 0.0) * scale
+        row_lower[rows.eq] = np.maximum(-self.nu, 0.0) * scale
+        g = _objective_gradient(qp, self.x) / scale
+        rm = self.row_multipliers(self.z)
+        rm[rows.eq] += self.nu
+        w_part = self.Gw @ rm + sum((z_cap[k] * gk for k, gk in enumerate(self.cap_grads)), np.zeros(self.n))
+        g = g + _expand(w_part, float(self.at @ rm))  # fixed coordinates included: their own gradient
+        return Solution(
+            x=self.x, converged=status == "optimal", status=status, iterations=iterations, seconds=seconds,
+            objective=qp.objective(self.x), row_upper=row_upper, row_lower=row_lower, cap_duals=z_cap * scale,
+            bound_upper=self.zu * scale, bound_lower=self.zl * scale, reduced_gradient=g * scale,
+            residuals={k: v for k, v in res.items() if k != "objective"},
+        )
+
+
+def _objective_gradient(qp: QP, x: np.ndarray) -> np.ndarray:
+    w = qp.weights(x)
+    gw = 2.0 * qp.risk_weight * qp.sigma(w - qp.risk_center) - qp.alpha
+    gt = qp.cost
+    if qp.impact is not None:
+        n = qp.n
+        gt = gt + qp.impact * _impact(x[:n] + x[n:])[1]
+    return np.concatenate([gw + gt, -gw + gt])
+
+
+def _impact(t: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """f(t) = (t² + ε²)^{3/4} − ε^{3/2} (ε = IMPACT_SMOOTHING) with f′ and f″: |t|^{3/2} within ε^{3/2}.
+
+    |t|^{3/2} has unbounded curvature at 0, where every untraded asset ends; Newton steps then
+    predict the gradient badly and the dual residual stalls near 1e-6. The smoothed form has
+    curvature at most 1.5·ε^{-1/2} and differs from |t|^{3/2} by less than ε^{3/2} = 1e-12 per asset.
+    """
+    e2 = IMPACT_SMOOTHING**2
+    base = t * t + e2
+    value = base**0.75 - IMPACT_SMOOTHING**1.5
+    slope = 1.5 * t * base**-0.25
+    curvature = 1.5 * (0.5 * t * t + e2) * base**-1.25
+    return value, slope, curvature
+
+
+def _start(qp: QP, fixed: np.ndarray) -> np.ndarray:
+    """Strictly inside every box, u and v moved alike (so w starts at the holdings where it can)."""
+    n = qp.n
+    delta = 1.0 / max(n, 1)
+    width = qp.ub - qp.lb
+    step = np.where(np.isfinite(width), np.minimum(0.5 * width, delta), delta)
+    x = qp.lb + step
+    x[fixed] = qp.lb[fixed]
+    return x
+
+
+class _Newton:
+    """H = blockdiag(2×2 per asset) + U·Uᵀ, solved by Woodbury without forming U in x-space.
+
+    Every column of U, and every equality row, has the form Eᵀ·W + 1·Tᵀ (a w-space part W, N × c,
+    and a coefficient T on 1ᵀ(u + v)); the B-block is W = B·R, T = 0 with R·Rᵀ = S. With the 2×2
+    inverses [[p, q], [q, r]] per asset, Bd⁻¹·(EᵀW + 1Tᵀ) = [(p−q)·W + (p+q)·T; (q−r)·W + (q+r)·T]
+    and (EᵀW_a + 1T_a)ᵀ·Bd⁻¹·(EᵀW_b + 1T_b) = W_aᵀ·diag(δ1)·W_b + W_aᵀδ2·T_bᵀ + T_a·δ2ᵀW_b +
+    (Σδ3)·T_a·T_bᵀ with δ1 = p − 2q + r, δ2 = p − r, δ3 = p + 2q + r.
+    """
+
+    def __init__(self, B: np.ndarray, dW: np.ndarray, S: np.ndarray, barrier: np.ndarray, fixed: np.ndarray,
+                 n: int, curvature: np.ndarray) -> None:
+        self.n = n
+        self.fixed = fixed
+        big = 1e30
+        bu = np.where(fixed[:n], big, barrier[:n])
+        bv = np.where(fixed[n:], big, barrier[n:])
+        h = curvature
+        a, c, b = dW + h + bu, dW + h + bv, h - dW
+        det = (dW + h) * (bu + bv) + bu * bv + 4.0 * dW * h  # = a·c − b², without the cancellation
+        self.a, self.b, self.c = np.where(fixed[:n], 0.0, a), b, np.where(fixed[n:], 0.0, c)
+        # inverse blocks [[p, q], [q, r]]
+        self.p, self.q, self.r = c / det, -b / det, a / det
+        self.pq, self.ppq = self.p - self.q, self.p + self.q
+        self.qr, self.qpr = self.q - self.r, self.q + self.r
+        self.d1 = self.p - 2.0 * self.q + self.r
+        self.d2 = self.p - self.r
+        self.d3 = float(np.sum(self.p + 2.0 * self.q + self.r))
+        evals, evecs = np.linalg.eigh(0.5 * (S + S.T))
+        keep = evals > max(evals.max(initial=0.0), 0.0) * 1e-14
+        self.B = B
+        self.R = evecs[:, keep] * np.sqrt(evals[keep])
+
+    def block_inverse(self, v: np.ndarray) -> np.ndarray:
+        n = self.n
+        top, bottom = v[:n], v[n:]
+        return np.concatenate([self.p * top + self.q * bottom, self.q * top + self.r * bottom])
+
+    def factor(self, W: np.ndarray, T: np.ndarray, W_eq: np.ndarray, T_eq: np.ndarray) -> None:
+        """U = [Eᵀ·B·R, EᵀW + 1Tᵀ]; M = I + Uᵀ·Bd⁻¹·U by one product (Bᵀ·diag(δ1))·[B, W, W_eq]."""
+        B, R = self.B, self.R
+        kb, kx, ke = R.shape[1], W.shape[1], W_eq.shape[1]
+        self.Wx, self.Tx = W, T
+        self.T = np.concatenate([np.zeros(kb), T])
+        wide = np.hstack([B, W, W_eq])
+        lead = np.vstack([(B.T * self.d1), (W.T * self.d1)])  # (K + kx) × N
+        P = lead @ wide  # [[BᵀD1B, BᵀD1W, BᵀD1We], [WᵀD1B, WᵀD1W, WᵀD1We]]
+        k = B.shape[1]
+        d2B, d2W = self.d2 @ B, self.d2 @ W
+        M = np.empty((kb + kx, kb + kx))
+        M[:kb, :kb] = R.T @ P[:k, :k] @ R
+        M[:kb, kb:] = R.T @ (P[:k, k:k + kx] + np.outer(d2B, T))
+        M[kb:, :kb] = M[:kb, kb:].T
+        M[kb:, kb:] = P[k:, k:k + kx] + np.outer(d2W, T) + np.outer(T, d2W) + self.d3 * np.outer(T, T)
+        M[np.diag_indices_from(M)] += 1.0
+        self.chol = la.cho_factor(M, lower=True, check_finite=False)
+        self.W_eq, self.T_eq = W_eq, T_eq
+        if ke:
+            # Z = H⁻¹·A_eqᵀ and the Schur complement A_eq·H⁻¹·A_eqᵀ
+            d2E = self.d2 @ W_eq
+            cross = np.vstack([R.T @ (P[:k, k + kx:] + np.outer(d2B, T_eq)),
+                               P[k:, k + kx:] + np.outer(d2W, T_eq) + np.outer(T, d2E) + self.d3 * np.outer(T, T_eq)])
+            C = la.cho_solve(self.chol, cross, check_finite=False)
+            WC, TC = self.w_times(C), self.T @ C
+            Zt = self.pq[:, None] * (W_eq - WC) + self.ppq[:, None] * (T_eq - TC)[None, :]
+            Zb = self.qr[:, None] * (W_eq - WC) + self.qpr[:, None] * (T_eq - TC)[None, :]
+            Zt[self.fixed[: self.n]] = 0.0
+            Zb[self.fixed[self.n:]] = 0.0
+            self.Z = np.vstack([Zt, Zb])
+            schur = W_eq.T @ (Zt - Zb) + np.outer(T_eq, (Zt + Zb).sum(axis=0))
+            schur = 0.5 * (schur + schur.T)
+            schur[np.diag_indices_from(schur)] += 1e-14 * max(1.0, float(np.trace(schur)))
+            self.schur = la.cho_factor(schur, lower=True, check_finite=False)
+
+    def w_times(self, c: np.ndarray) -> np.ndarray:
+        """W·c for W = [B·R, Wx] (c a vector or a matrix)."""
+        kb = self.R.shape[1]
+        return self.B @ (self.R @ c[:kb]) + self.Wx @ c[kb:]
+
+    def u_t(self, v: np.ndarray) -> np.ndarray:
+        n = self.n
+        dv = v[:n] - v[n:]
+        return np.concatenate([self.R.T @ (self.B.T @ dv), self.Wx.T @ dv]) + self.T * v.sum()
+
+    def apply(self, r: np.ndarray) -> np.ndarray:
+        """H⁻¹·r."""
+        t = self.block_inverse(r)
+        c = la.cho_solve(self.chol, self.u_t(t), check_finite=False)
+        wc, tc = self.w_times(c), float(self.T @ c)
+        return t - np.concatenate([self.pq * wc + self.ppq * tc, self.qr * wc + self.qpr * tc])
+
+    def matvec(self, v: np.ndarray) -> np.ndarray:
+        """H·v on the free coordinates (the fixed ones give 0)."""
+        n = self.n
+        top, bottom = v[:n], v[n:]
+        out = np.concatenate([self.a * top + self.b * bottom, self.b * top + self.c * bottom])
+        out += self._u(self.u_t(v))
+        out[self.fixed] = 0.0
+        return out
+
+    def _u(self, c: np.ndarray) -> np.ndarray:
+        return _expand(self.w_times(c), float(self.T @ c))
+
+    def eq_t(self, v: np.ndarray) -> np.ndarray:
+        n = self.n
+        return self.W_eq.T @ (v[:n] - v[n:]) + self.T_eq * v.sum()
+
+    def _solve_once(self, r1: np.ndarray, r2: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        dx0 = self.apply(r1)
+        dx0[self.fixed] = 0.0
+        if not self.W_eq.shape[1]:
+            return dx0, np.zeros(0)
+        dnu = la.cho_solve(self.schur, self.eq_t(dx0) - r2, check_finite=False)
+        return dx0 - self.Z @ dnu, dnu
+
+    def solve(self, r1: np.ndarray, r2: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """[H Aᵀ; A 0]·[dx; dν] = [r1; r2], with up to REFINE steps of iterative refinement."""
+        r1 = r1.copy()
+        r1[self.fixed] = 0.0
+        dx, dnu = self._solve_once(r1, r2)
+        size = max(float(np.max(np.abs(r1), initial=0.0)), float(np.max(np.abs(r2), initial=0.0)), 1e-300)
+        for _ in range(REFINE):
+            e1 = r1 - self.matvec(dx)
+            if len(dnu):
+                e1 -= _expand(self.W_eq @ dnu, float(self.T_eq @ dnu))
+            e1[self.fixed] = 0.0
+            e2 = r2 - self.eq_t(dx)
+            err = max(float(np.max(np.abs(e1), initial=0.0)), float(np.max(np.abs(e2), initial=0.0)))
+            if err <= 1e-14 * size:
+                break
+            cx, cnu = self._solve_once(e1, e2)
+            dx, dnu = dx + cx, dnu + cnu
+        return dx, dnu
