@@ -71,8 +71,8 @@ def test_provenance_and_scenario(result):
     _, res = result
     text = json.dumps(res.scenario, sort_keys=True, separators=(",", ":"))
     assert res.provenance["scenario_hash"] == hashlib.sha256(text.encode()).hexdigest()
-    assert res.provenance["solver"] == res.solver == "CLARABEL"
-    assert res.provenance["solver_settings"]["tol_feas"] == 1e-10
+    assert res.provenance["solver"] == res.solver == "FACTOR_IPM"
+    assert res.provenance["solver_settings"]["tol_gap"] == 1e-9
     assert res.scenario["objective"]["maximize"] == "utility"
 
 
@@ -80,7 +80,7 @@ def test_summary_text(result):
     _, res = result
     text = res.summary()
     assert text == str(res)
-    assert text.startswith("Rebalance: optimal (CLARABEL")
+    assert text.startswith("Rebalance: optimal (FACTOR_IPM")
     assert "Ex-ante tracking error (annualised):" in text
     assert "Binding constraints:" in text and "turnover" in text
     assert res.turnover == pytest.approx(0.5 * res.trades["trade"].abs().sum())

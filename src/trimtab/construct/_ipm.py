@@ -56,8 +56,8 @@ MU0 = 0.1
 #: A step shorter than this ends the run (stalled); |x| beyond DIVERGED ends it (unbounded).
 MIN_STEP = 1e-10
 DIVERGED = 1e8
-#: The impact term |t|^{3/2} is smoothed below this trade size (see _impact).
-IMPACT_SMOOTHING = 1e-8
+#: The impact term |t|^{3/2} is exact from this trade size (a weight of NAV) up; below, see _impact.
+IMPACT_SMOOTHING = 1e-6
 #: Iterative-refinement steps on each Newton solve (the Woodbury solve loses digits late in the run).
 REFINE = 3
 
@@ -462,17 +462,20 @@ def _objective_gradient(qp: QP, x: np.ndarray) -> np.ndarray:
 
 
 def _impact(t: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """f(t) = (t² + ε²)^{3/4} − ε^{3/2} (ε = IMPACT_SMOOTHING) with f′ and f″: |t|^{3/2} within ε^{3/2}.
+    """f(t) = t^{3/2} for t ≥ ε, ½ε^{-1/2}·t² + ½ε^{1/2}·t below (ε = IMPACT_SMOOTHING); f′ and f″.
 
-    |t|^{3/2} has unbounded curvature at 0, where every untraded asset ends; Newton steps then
-    predict the gradient badly and the dual residual stalls near 1e-6. The smoothed form has
-    curvature at most 1.5·ε^{-1/2} and differs from |t|^{3/2} by less than ε^{3/2} = 1e-12 per asset.
+    t^{3/2} has unbounded curvature at 0, where every untraded asset ends, and Newton steps then
+    predict its gradient badly (the dual residual stalls near 1e-6). Below ε the quadratic matches
+    value and slope at ε, is convex and increasing, and lies within 0.1·ε^{3/2} of t^{3/2}; at and
+    above ε the cost is exact, so every trade of at least ε is priced exactly.
     """
-    e2 = IMPACT_SMOOTHING**2
-    base = t * t + e2
-    value = base**0.75 - IMPACT_SMOOTHING**1.5
-    slope = 1.5 * t * base**-0.25
-    curvature = 1.5 * (0.5 * t * t + e2) * base**-1.25
+    e = IMPACT_SMOOTHING
+    t = np.maximum(t, 0.0)
+    small = t < e
+    root = np.sqrt(np.where(small, e, t))
+    value = np.where(small, 0.5 * t * t / np.sqrt(e) + 0.5 * np.sqrt(e) * t, t * root)
+    slope = np.where(small, t / np.sqrt(e) + 0.5 * np.sqrt(e), 1.5 * root)
+    curvature = np.where(small, 1.0 / np.sqrt(e), 0.75 / root)
     return value, slope, curvature
 
 

@@ -1,0 +1,184 @@
+"""trimtab's factor-form interior-point method (FACTOR_IPM) against Clarabel and dense references,
+and the hand-over to the cvxpy ladder for what it does not take or cannot solve."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from trimtab.construct import _ipm, build_problem, rebalance
+from trimtab.errors import InfeasibleError, SolverError
+
+from ._dense import dense_solve
+from .conftest import make_fund
+from .test_problem import every_constraint
+
+
+def both(fund, scenario, **extra):
+    kwargs = fund.kwargs() | extra
+    ours = rebalance(fund.model, scenario, solvers=["FACTOR_IPM"], **kwargs)
+    ref = rebalance(fund.model, scenario, solvers=["CLARABEL"], **kwargs)
+    assert ours.solver == "FACTOR_IPM" and ref.solver == "CLARABEL"
+    return ours, ref
+
+
+@pytest.mark.parametrize("seed", [61, 62, 63])
+def test_every_kind_with_impact_costs_matches_clarabel_and_dense(seed):
+    # outside references: Clarabel through cvxpy (power cone for the impact term) and the dense
+    # N×N formulation of tests/construct/_dense.py
+    fund = make_fund(150, 8, seed=seed)
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 5, "cost_aversion": 1.5, "costs": True},
+                "constraints": every_constraint(fund.model.assets)}
+    ours, ref = both(fund, scenario)
+    np.testing.assert_allclose(ours.weights.to_numpy(), ref.weights.to_numpy(), atol=1e-6)
+    assert ours.objective["total"] == pytest.approx(ref.objective["total"], rel=1e-7, abs=1e-10)
+    expected, value = dense_solve(fund.model, scenario, **fund.kwargs())
+    np.testing.assert_allclose(ours.weights.to_numpy(), expected.to_numpy(), atol=1e-5)
+    assert ours.verification["ok"].all()
+
+
+def test_shadow_prices_agree_with_clarabel_on_binding_limits():
+    fund = make_fund(200, 10, seed=64)
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 5, "costs": {"spread": "spread"}},
+                "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.02},
+                                "factor_exposure": {"active": True, "bounds": {"default": [-0.03, 0.03], "f1": [0, 0]}},
+                                "group": {"by": "industry", "active": True, "bounds": {"default": [-0.01, 0.01]}},
+                                "tracking_error": {"max": 0.015}, "turnover": {"max": 0.15}, "no_trade": ["A0007"]}}
+    ours, ref = both(fund, scenario)
+    a = ours.constraints.set_index("name")
+    b = ref.constraints.set_index("name")
+    # a frozen name sits at the kink of its trading cost: any dual in the subdifferential is valid for
+    # Clarabel, while FACTOR_IPM reports the one-sided gain of loosening (here 0: the cost exceeds it)
+    assert a.loc["no_trade", "shadow_price"] == 0.0
+    binding = b.index[b["binding"] & (b["shadow_price"].abs() > 1e-6) & (b.index != "no_trade")]
+    assert len(binding) >= 4, b
+    for name in binding:
+        assert a.loc[name, "shadow_price"] == pytest.approx(b.loc[name, "shadow_price"], rel=2e-4, abs=1e-7), name
+
+
+@pytest.mark.parametrize("objective", [{"maximize": "alpha"}, {"minimize": "active_risk"}, {"minimize": "total_risk"}])
+def test_other_objectives_match_clarabel(objective):
+    fund = make_fund(120, 6, seed=65)
+    constraints = {"fully_invested": True, "long_only": True, "weight": {"max": 0.04}, "tracking_error": {"max": 0.03},
+                   "factor_risk": {"max": 0.025}, "specific_risk": {"max": 0.02}, "turnover": {"max": 0.3}}
+    ours, ref = both(fund, {"objective": objective, "constraints": constraints})
+    np.testing.assert_allclose(ours.weights.to_numpy(), ref.weights.to_numpy(), atol=2e-6)
+    assert ours.objective["total"] == pytest.approx(ref.objective["total"], rel=1e-7, abs=1e-10)
+
+
+def test_holdings_outside_their_bounds_are_traded_back_in():
+    # w0 above the weight cap (a forced sale), below a must-hold floor, and frozen no-trade names:
+    # the boxes on buys and sells then have positive lower bounds or zero width
+    fund = make_fund(60, 4, seed=66)
+    holdings = fund.holdings.copy()
+    holdings.iloc[:3] = 0.08
+    holdings.iloc[3] = 0.0
+    holdings /= holdings.sum()
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
+                "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.05},
+                                "must_hold": {"assets": [fund.model.assets[3]], "min_weight": 0.01},
+                                "no_trade": list(fund.model.assets[10:12]), "turnover": {"max": 0.4}}}
+    ours, ref = both(fund, scenario, holdings=holdings)
+    w = ours.weights.reindex(fund.model.assets).fillna(0.0)
+    assert (w.iloc[:3] <= 0.05 + 1e-9).all() and w.iloc[3] >= 0.01 - 1e-9
+    np.testing.assert_allclose(w.iloc[10:12].to_numpy(), holdings.iloc[10:12].to_numpy(), atol=1e-12)
+    np.testing.assert_allclose(ours.weights.to_numpy(), ref.weights.to_numpy(), atol=1e-6)
+
+
+def test_problems_outside_its_class_go_to_clarabel():
+    fund = make_fund(60, 4, seed=67)
+    soft = {"objective": {"maximize": "utility", "risk_aversion": 5},
+            "constraints": {"fully_invested": True, "long_only": True,
+                            "tracking_error": {"max": 0.01, "soft": {"penalty": 5.0}}}}
+    gross = {"objective": {"maximize": "utility", "risk_aversion": 5},
+             "constraints": {"fully_invested": True, "leverage": {"gross": 1.3}, "weight": {"min": -0.05, "max": 0.05}}}
+    for scenario in (soft, gross):
+        result = rebalance(fund.model, scenario, **fund.kwargs())
+        assert result.solver == "CLARABEL"
+        assert result.provenance["notes"] == []  # not an attempt: no "accepted after" note
+    with pytest.raises(SolverError, match=r"FACTOR_IPM: not for soft constraint tracking_error"):
+        rebalance(fund.model, soft, solvers=["FACTOR_IPM"], **fund.kwargs())
+
+
+def test_a_run_that_does_not_converge_falls_back_with_a_note(monkeypatch):
+    fund = make_fund(80, 4, seed=68)
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
+                "constraints": {"fully_invested": True, "long_only": True, "tracking_error": {"max": 0.02}}}
+    original = _ipm.solve
+
+    def capped(qp, *, max_iter=3, verbose=False):
+        return original(qp, max_iter=3, verbose=verbose)
+
+    monkeypatch.setattr(_ipm, "solve", capped)
+    result = rebalance(fund.model, scenario, **fund.kwargs())
+    assert result.solver == "CLARABEL"
+    assert result.provenance["attempts"][0].startswith("FACTOR_IPM: max_iter")
+    assert result.provenance["notes"] == ["solver: accepted CLARABEL after FACTOR_IPM: max_iter"]
+
+
+def test_infeasible_and_unbounded_problems_are_still_diagnosed():
+    fund = make_fund(40, 4, seed=69)
+    infeasible = {"objective": {"maximize": "utility", "risk_aversion": 5},
+                  "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.02}}}
+    with pytest.raises(InfeasibleError, match="fully_invested"):
+        rebalance(fund.model, infeasible, **fund.kwargs())
+    with pytest.raises(SolverError, match="unbounded"):
+        rebalance(fund.model, {"objective": {"maximize": "alpha"}, "constraints": {"fully_invested": True}},
+                  **fund.kwargs())
+
+
+def test_the_newton_solve_matches_a_dense_solve():
+    # the Woodbury solve of [H Aᵀ; A 0] against numpy.linalg.solve on the same matrix formed densely
+    rng = np.random.default_rng(70)
+    n, k = 30, 4
+    B = rng.normal(size=(n, k))
+    S = (lambda m: m @ m.T)(rng.normal(size=(k, k)))
+    dW = rng.uniform(0.1, 1.0, n)
+    barrier = rng.uniform(0.01, 10.0, 2 * n)
+    fixed = np.zeros(2 * n, dtype=bool)
+    fixed[[3, n + 7]] = True
+    curvature = rng.uniform(0.0, 2.0, n)
+    newton = _ipm._Newton(B, dW, S, barrier, fixed, n, curvature)
+    W, T = rng.normal(size=(n, 2)), rng.uniform(0.0, 1.0, 2)
+    W_eq, T_eq = rng.normal(size=(n, 2)), np.array([0.0, 0.5])
+    newton.factor(W, T, W_eq, T_eq)
+    E = np.hstack([np.eye(n), -np.eye(n)])  # w = w0 + E·x
+    H = E.T @ (np.diag(dW) + B @ S @ B.T) @ E + np.diag(barrier)
+    one = np.ones(2 * n)
+    H += np.kron(np.ones((2, 2)), np.diag(curvature))
+    U = E.T @ W + np.outer(one, T)
+    H += U @ U.T
+    A = (E.T @ W_eq + np.outer(one, T_eq)).T
+    free = ~fixed
+    r1, r2 = rng.normal(size=2 * n), rng.normal(size=2)
+    r1[fixed] = 0.0
+    Hf = H[np.ix_(free, free)]
+    Af = A[:, free]
+    kkt = np.block([[Hf, Af.T], [Af, np.zeros((2, 2))]])
+    expected = np.linalg.solve(kkt, np.concatenate([r1[free], r2]))
+    dx, dnu = newton.solve(r1, r2)
+    np.testing.assert_allclose(dx[free], expected[:-2], rtol=1e-9, atol=1e-11)
+    np.testing.assert_allclose(dnu, expected[-2:], rtol=1e-9, atol=1e-11)
+    assert (dx[fixed] == 0).all()
+
+
+def test_solver_name_in_the_result_and_its_settings():
+    fund = make_fund(40, 4, seed=71)
+    result = rebalance(fund.model, {"objective": {"minimize": "active_risk"},
+                                    "constraints": {"fully_invested": True, "long_only": True}}, **fund.kwargs())
+    assert result.solver == "FACTOR_IPM"
+    assert result.provenance["solver_settings"]["tol_gap"] == _ipm.TOL_GAP
+    assert str(result).startswith("Rebalance: optimal (FACTOR_IPM")
+    assert isinstance(result.weights, pd.Series)
+
+
+def test_re_solves_of_a_built_problem_use_it_too():
+    fund = make_fund(60, 4, seed=72)
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
+                "constraints": {"fully_invested": True, "long_only": True, "tracking_error": {"max": 0.02}}}
+    problem = build_problem(fund.model, scenario, **fund.kwargs())
+    again = problem.solve(limits={"tracking_error.max": 0.01})
+    assert again.solver == "FACTOR_IPM"
+    te = again.constraints.set_index("name").loc["tracking_error"]
+    assert te["value"] <= 0.01 * (1 + 1e-6) and te["binding"]
