@@ -162,7 +162,10 @@ def test_real_optimizer_points_equal_direct_rebalances(book) -> None:
     for label, row in result.table.iterrows():
         direct = rebalance(model, apply_point(scenario, {"risk_aversion": row["risk_aversion"], "turnover.max": row["turnover.max"]}),
                            holdings=bench, benchmark=bench, alpha=alpha)
-        np.testing.assert_allclose(result.results[label].weights.to_numpy(), direct.weights.to_numpy(), atol=1e-7)
+        # the sweep's re-solves start from the previous point (a warm start), the direct rebalance from
+        # the cold start; both stop at FACTOR_IPM's tolerances (duality gap 1e-9), which place the
+        # weights within a few 1e-7 of each other
+        np.testing.assert_allclose(result.results[label].weights.to_numpy(), direct.weights.to_numpy(), atol=1e-6)
         # figures recomputed from the weights: one-way turnover within its cap
         assert row["turnover"] <= row["turnover.max"] + 1e-7
     # the tighter the turnover cap and the larger λ, the lower the tracking error

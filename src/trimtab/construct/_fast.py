@@ -48,6 +48,16 @@ class Translation:
     alpha_constant: float
 
 
+class WarmBox:
+    """Holds the last converged interior-point state shared by a problem and its what-if variants."""
+
+    def __init__(self) -> None:
+        self.state: _ipm.Warm | None = None
+
+    def __getstate__(self) -> dict[str, object]:  # not worth shipping to other processes
+        return {"state": None}
+
+
 @dataclass(frozen=True, eq=False)
 class Answer:
     weights: np.ndarray
@@ -155,8 +165,12 @@ def translate(problem: RebalanceProblem, rows: Sequence[Rows]) -> Translation | 
     return Translation(qp, boxes, (lo, hi), linear_rows, cap_rows, float(alpha @ data.bench))
 
 
-def solve(problem: RebalanceProblem, rows: Sequence[Rows]) -> Answer | None:
-    """Run the interior-point method; None when the problem is outside its class or did not converge."""
+def solve(problem: RebalanceProblem, rows: Sequence[Rows], warm: WarmBox | None = None) -> Answer | None:
+    """Run the interior-point method; None when the problem is outside its class or its boxes are empty.
+
+    With ``warm`` holding a state of a problem of the same shape the run starts from it; a warm run
+    that does not converge is repeated from the cold start. A converged run's state is kept in ``warm``.
+    """
     if unsupported(problem, rows) is not None:
         return None
     start = time.perf_counter()
@@ -164,7 +178,13 @@ def solve(problem: RebalanceProblem, rows: Sequence[Rows]) -> Answer | None:
     if tr is None:
         return None
     build = time.perf_counter() - start
-    sol = _ipm.solve(tr.qp)
+    sol = None
+    if warm is not None and warm.state is not None:
+        sol = _ipm.solve(tr.qp, warm=warm.state)
+    if sol is None or not sol.converged:
+        sol = _ipm.solve(tr.qp)
+    if warm is not None and sol.converged:
+        warm.state = sol.warm
     return Answer(
         weights=tr.qp.weights(sol.x), duals=_duals(tr, sol),
         solver_objective=-sol.objective - tr.alpha_constant, solution=sol, build_seconds=build,

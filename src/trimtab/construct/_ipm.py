@@ -39,12 +39,12 @@ import numpy as np
 import scipy.linalg as la
 
 #: Stop when the primal and dual residuals and the duality measure are below these.
-TOL_PRIMAL = 1e-8
-TOL_DUAL = 1e-8
-TOL_GAP = 1e-9
+TOL_PRIMAL = 1e-9
+TOL_DUAL = 1e-9
+TOL_GAP = 1e-11
 #: When the run can go no further (a failed or tiny step), the best iterate is still accepted if its
 #: residuals are within this multiple of the tolerances (the objective is then right to ~1e-8).
-ACCEPT_FACTOR = 10.0
+ACCEPT_FACTOR = 100.0
 MAX_ITER = 80
 #: Fraction of the distance to the boundary a step may go.
 STEP_FRACTION = 0.995
@@ -58,6 +58,9 @@ MIN_STEP = 1e-10
 DIVERGED = 1e8
 #: The impact term |t|^{3/2} is exact from this trade size (a weight of NAV) up; below, see _impact.
 IMPACT_SMOOTHING = 1e-6
+#: Warm starts: gaps at least WARM_GAP × the cold start's, multipliers at least WARM_MU·mu0 / gap.
+WARM_GAP = 1e-1
+WARM_MU = 1e-1
 #: Iterative-refinement steps on each Newton solve (the Woodbury solve loses digits late in the run).
 REFINE = 3
 
@@ -126,6 +129,19 @@ class QP:
 
 
 @dataclass(frozen=True, eq=False)
+class Warm:
+    """The internal primal-dual point of a run, to start a run of a problem of the same shape from."""
+
+    x: np.ndarray
+    s: np.ndarray
+    z: np.ndarray
+    zl: np.ndarray
+    zu: np.ndarray
+    nu: np.ndarray
+    scale: float
+
+
+@dataclass(frozen=True, eq=False)
 class Solution:
     """x and the multipliers; ``converged`` False means do not use it."""
 
@@ -145,6 +161,7 @@ class Solution:
     bound_lower: np.ndarray
     reduced_gradient: np.ndarray
     residuals: dict[str, float]
+    warm: Warm | None = None
 
 
 class _Rows:
@@ -177,7 +194,7 @@ def _step_to_boundary(v: np.ndarray, dv: np.ndarray) -> float:
     return float(np.min(-v[neg] / dv[neg]))
 
 
-def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False) -> Solution:
+def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False, warm: Warm | None = None) -> Solution:
     """Minimise the QP of the module docstring; see :class:`Solution`.
 
     The iterate with the smallest residuals (relative to their tolerances) is kept; the run stops
@@ -186,13 +203,13 @@ def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False) -> Solutio
     """
     # overflow or 0/0 near a failing end is caught by the finiteness checks, not by warnings
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
-        return _Run(qp, verbose).run(max_iter)
+        return _Run(qp, verbose, warm).run(max_iter)
 
 
 class _Run:
     """One interior-point run: the fixed structure, the state and the iteration."""
 
-    def __init__(self, qp: QP, verbose: bool) -> None:
+    def __init__(self, qp: QP, verbose: bool, warm: Warm | None = None) -> None:
         self.qp, self.verbose = qp, verbose
         n = self.n = qp.n
         rows = self.rows = _Rows(qp)
@@ -228,6 +245,38 @@ class _Run:
         self.zu = np.where(self.has_ub, mu0 / self.gap_u, 0.0)
         self.nu = np.zeros(len(rows.eq))
         self.n_comp = int(self.has_lb.sum() + self.has_ub.sum() + len(self.s))
+        if warm is not None and self.compatible(warm):
+            self.warm_start(warm, mu0)
+
+    def compatible(self, warm: Warm) -> bool:
+        return (len(warm.x) == len(self.x) and len(warm.z) == len(self.z) and len(warm.nu) == len(self.nu)
+                and bool(np.all(np.isfinite(warm.x))))
+
+    def warm_start(self, warm: Warm, mu0: float) -> None:
+        """Start from a previous solution of a problem of the same shape, pushed back into the interior.
+
+        Each bound gap is at least WARM_GAP times the cold start's offset, every slack at least
+        WARM_GAP·SLACK_FLOOR, and every multiplier at least WARM_MU·mu0 over its gap (duals rescaled to
+        this run's objective scale), so the iteration starts near the old central path, not on its edge.
+        """
+        qp = self.qp
+        cold = self.x
+        floor = WARM_GAP * np.where(np.isfinite(cold - qp.lb), cold - qp.lb, 1.0)
+        lo = qp.lb + np.minimum(floor, 0.5 * (qp.ub - qp.lb))
+        hi = qp.ub - np.minimum(floor, 0.5 * (qp.ub - qp.lb))
+        x = np.where(self.free, np.clip(warm.x, np.where(self.has_lb, lo, -np.inf), np.where(self.has_ub, hi, np.inf)),
+                     cold)
+        self.x = x
+        h = self.evaluate()
+        ratio = warm.scale / self.scale
+        mu = WARM_MU * mu0
+        self.s = np.maximum(-h, WARM_GAP * SLACK_FLOOR)
+        self.z = np.maximum(warm.z * ratio, mu / self.s)
+        self.gap_l = np.where(self.has_lb, x - qp.lb, 1.0)
+        self.gap_u = np.where(self.has_ub, qp.ub - x, 1.0)
+        self.zl = np.where(self.has_lb, np.maximum(warm.zl * ratio, mu / self.gap_l), 0.0)
+        self.zu = np.where(self.has_ub, np.maximum(warm.zu * ratio, mu / self.gap_u), 0.0)
+        self.nu = warm.nu * ratio
 
     # ------------------------------------------------------------------ functions of x
     def evaluate(self) -> np.ndarray:
@@ -426,8 +475,10 @@ class _Run:
         merit, state, res, best_it = best
         self.restore(state)
         self.residuals()
-        if merit <= 1.0 or (status in ("stalled", "numerical") and merit <= ACCEPT_FACTOR):
+        if merit <= 1.0:
             status = "optimal"
+        elif status in ("stalled", "numerical") and merit <= ACCEPT_FACTOR:
+            status = "optimal_stalled"  # within ACCEPT_FACTOR × the tolerances
         return self.solution(status, it, time.perf_counter() - start, res)
 
     def solution(self, status: str, iterations: int, seconds: float, res: dict[str, float]) -> Solution:
@@ -444,10 +495,12 @@ class _Run:
         w_part = self.Gw @ rm + sum((z_cap[k] * gk for k, gk in enumerate(self.cap_grads)), np.zeros(self.n))
         g = g + _expand(w_part, float(self.at @ rm))  # fixed coordinates included: their own gradient
         return Solution(
-            x=self.x, converged=status == "optimal", status=status, iterations=iterations, seconds=seconds,
+            x=self.x, converged=status in ("optimal", "optimal_stalled"), status=status, iterations=iterations, seconds=seconds,
             objective=qp.objective(self.x), row_upper=row_upper, row_lower=row_lower, cap_duals=z_cap * scale,
             bound_upper=self.zu * scale, bound_lower=self.zl * scale, reduced_gradient=g * scale,
             residuals={k: v for k, v in res.items() if k != "objective"},
+            warm=Warm(self.x.copy(), self.s.copy(), self.z.copy(), self.zl.copy(), self.zu.copy(), self.nu.copy(),
+                      self.scale),
         )
 
 
