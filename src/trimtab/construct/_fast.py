@@ -154,7 +154,7 @@ def translate(problem: RebalanceProblem, rows: Sequence[Rows]) -> Translation | 
     if objective.cost_aversion > 0 and objective.rates.impact is not None and np.any(objective.rates.impact):
         impact = objective.cost_aversion * np.asarray(objective.rates.impact, dtype=np.float64)
     at_all = stack(at, (0,))
-    regularize = not np.any(cost) and not np.any(at_all) and objective.rates.impact is None
+    regularize = not np.any(cost) and objective.rates.impact is None
     qp = _ipm.QP(
         B=B, F=F, d=d, w0=w0, risk_weight=objective.risk_weight * ppy,
         risk_center=np.asarray(data.bench if objective.risk_active else np.zeros(n), dtype=np.float64),
