@@ -50,8 +50,9 @@ ACCEPT_PRIMAL = 1e-7
 ACCEPT_DUAL = 1e-6
 ACCEPT_GAP = 1e-6
 MAX_ITER = 80
-#: Fraction of the distance to the boundary a step may go.
-STEP_FRACTION = 0.995
+#: Fraction of the distance to the boundary a step may go (0.9 rather than the usual 0.99+: it keeps
+#: the iterates central enough that linear-like problems finish before the Newton solves lose digits).
+STEP_FRACTION = 0.9
 #: A box narrower than this (relative to max(1, |lower|)) fixes its variable at the lower bound.
 FIXED_WIDTH = 1e-13
 #: Starting slack of the inequality rows (at least) and starting complementarity MU0/N.
