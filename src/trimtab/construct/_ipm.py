@@ -70,6 +70,8 @@ WARM_GAP = 1e-1
 WARM_MU = 1e-1
 #: Iterative-refinement steps on each Newton solve (the Woodbury solve loses digits late in the run).
 REFINE = 3
+#: ... stopping once the residual is below this fraction of the right-hand side.
+REFINE_TOL = 1e-10
 #: A cap's slack is reset to −h(x) when −h(x) is at least this fraction of it.
 SLACK_RESET = 0.1
 
@@ -409,11 +411,13 @@ class _Run:
 
     def max_step(self, dx: np.ndarray, ds: np.ndarray, dz: np.ndarray, dzl: np.ndarray, dzu: np.ndarray) -> float:
         hl, hu = self.has_lb, self.has_ub
-        return min(
-            _step_to_boundary(self.gap_l[hl], dx[hl]), _step_to_boundary(self.gap_u[hu], -dx[hu]),
-            _step_to_boundary(self.s, ds), _step_to_boundary(self.z, dz),
-            _step_to_boundary(self.zl[hl], dzl[hl]), _step_to_boundary(self.zu[hu], dzu[hu]),
-        )
+        # one pass over the x-coordinates: where a side has no bound its gap and multiplier are held
+        # positive (gap 1, multiplier 0 with a zero direction), so they never limit the step
+        x_side = np.concatenate([np.where(hl, dx, 0.0), np.where(hu, -dx, 0.0), np.where(hl, dzl, 0.0),
+                                 np.where(hu, dzu, 0.0), ds, dz])
+        value = np.concatenate([self.gap_l, self.gap_u, np.where(hl, self.zl, 1.0), np.where(hu, self.zu, 1.0),
+                                self.s, self.z])
+        return _step_to_boundary(value, x_side)
 
     def iterate(self) -> float:
         """One predictor-corrector step; returns the step length."""
@@ -693,7 +697,7 @@ class _Newton:
             e1[self.fixed] = 0.0
             e2 = r2 - self.eq_t(dx)
             err = max(float(np.max(np.abs(e1), initial=0.0)), float(np.max(np.abs(e2), initial=0.0)))
-            if err <= 1e-14 * size:
+            if err <= REFINE_TOL * size:
                 break
             cx, cnu = self._solve_once(e1, e2)
             dx, dnu = dx + cx, dnu + cnu
