@@ -1,8 +1,10 @@
 """Portfolio construction: rebalance to a risk budget and mandate on a factor model, in factor form.
 
-:func:`rebalance` validates a scenario (:func:`validate_scenario`), aligns the inputs, builds the
-cvxpy problem with y = Bᵀw as variables (never an N×N matrix), solves it (Clarabel, then SCS),
-verifies every limit from the weights with plain numpy, and returns a :class:`RebalanceResult`.
+:func:`rebalance` validates a scenario (:func:`validate_scenario`), aligns the inputs, solves the
+problem in factor form (never an N×N matrix) with trimtab's own interior-point method when the
+scenario is in its class (:mod:`trimtab.construct._ipm`), else builds the cvxpy problem with
+y = Bᵀw as variables and solves it with Clarabel (then SCS), verifies every limit from the
+weights with plain numpy, and returns a :class:`RebalanceResult`.
 An infeasible problem raises :class:`~trimtab.errors.InfeasibleError` with a relaxation table.
 """
 

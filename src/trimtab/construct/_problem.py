@@ -324,7 +324,8 @@ def rebalance(
     nav : float, optional
         Fund value (currency): needed for liquidity and round lots, and to report shares and notionals.
     solvers : sequence of str, optional
-        Solver order (default Clarabel, then SCS).
+        Solver order (default FACTOR_IPM, then Clarabel, then SCS; FACTOR_IPM only for the
+        problems in its class, see docs/construction.md).
     unknown_assets : {"error", "drop", "zero"}, default "error"
         What to do with ids the model does not know (see :mod:`trimtab.construct._data`).
 
