@@ -57,6 +57,8 @@ STEP_FRACTION = 0.9
 FIXED_WIDTH = 1e-13
 #: Starting slack of the inequality rows (at least) and starting complementarity MU0/N.
 SLACK_FLOOR = 0.1
+#: The cold start sits START_OFFSET/N inside each box (or half-way, in a narrower box).
+START_OFFSET = 1.0
 MU0 = 0.1
 #: A step shorter than this ends the run (stalled); |x| beyond DIVERGED ends it (unbounded).
 MIN_STEP = 1e-10
@@ -455,9 +457,9 @@ class _Run:
         # drift apart by the curvature of q; where the cap holds (−h > 0) and the slack is not far
         # from −h, the slack is set to −h, so an inactive cap's residual is zero, not slowly shrinking
         caps = slice(self.m_lin, None)
-        target = -self.h[caps]
-        reset = (target > 0) & (target >= SLACK_RESET * self.s[caps])
-        self.s[caps] = np.where(reset, target, self.s[caps])
+        held = -self.h[caps]
+        reset = (held > 0) & (held >= SLACK_RESET * self.s[caps])
+        self.s[caps] = np.where(reset, held, self.s[caps])
         return step
 
     # ------------------------------------------------------------------ the loop
@@ -561,7 +563,7 @@ def _impact(t: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 def _start(qp: QP, fixed: np.ndarray) -> np.ndarray:
     """Strictly inside every box, u and v moved alike (so w starts at the holdings where it can)."""
     n = qp.n
-    delta = 1.0 / max(n, 1)
+    delta = START_OFFSET / max(n, 1)
     width = qp.ub - qp.lb
     step = np.where(np.isfinite(width), np.minimum(0.5 * width, delta), delta)
     x = qp.lb + step
