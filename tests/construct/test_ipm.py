@@ -182,3 +182,21 @@ def test_re_solves_of_a_built_problem_use_it_too():
     assert again.solver == "FACTOR_IPM"
     te = again.constraints.set_index("name").loc["tracking_error"]
     assert te["value"] <= 0.01 * (1 + 1e-6) and te["binding"]
+
+
+def test_warm_starts_follow_limit_changes_only():
+    fund = make_fund(60, 4, seed=73)
+    scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
+                "constraints": {"fully_invested": True, "long_only": True, "tracking_error": {"max": 0.02}}}
+    problem = build_problem(fund.model, scenario, **fund.kwargs())
+    problem.solve()
+    assert problem.warm.state is not None
+    assert problem.update(limits={"tracking_error.max": 0.015}).warm is problem.warm
+    assert problem.update(risk_aversion=8.0).warm is problem.warm
+    assert problem.update(alpha=fund.alpha * 0.5).warm is not problem.warm
+    # a warm-started re-solve reaches the cold solve's answer
+    warm = problem.solve(limits={"tracking_error.max": 0.015})
+    cold = rebalance(fund.model, {**scenario, "constraints": {**scenario["constraints"], "tracking_error": {"max": 0.015}}},
+                     **fund.kwargs())
+    np.testing.assert_allclose(warm.weights.to_numpy(), cold.weights.to_numpy(), atol=1e-6)
+    assert warm.objective["total"] == pytest.approx(cold.objective["total"], rel=1e-8)
