@@ -336,13 +336,14 @@ def risk(
         step("loading the model")
         fm = FactorModel.load(model)
         step("reading the holdings")
-        attrs = load_attributes(AttributesFile(path=str(attributes))) if attributes is not None else None
+        # model_validate: type checkers do not see the file specs' positional Field defaults
+        attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
         columns = set(read_table(holdings, what="holdings").columns)
         kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
         if nav is not None and nav <= 0:
             raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
-        book = load_holdings(HoldingsFile(path=str(holdings), kind=kind, cash=cash, nav=nav), attrs)
-        bench = load_series(SeriesFile(path=str(benchmark)), "benchmark", "weight") if benchmark is not None else None
+        book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav}), attrs)
+        bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
         aligned = align_inputs(
             fm.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
             files={"holdings": str(holdings), "benchmark": str(benchmark)},

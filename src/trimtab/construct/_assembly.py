@@ -54,6 +54,7 @@ class Assembly:
     def add(self, rows: Rows) -> None:
         self.rows.append(rows)
         # elastic: hard rows cost 1/scale per unit of slack; soft rows stay soft at a token price
+        penalty: float | None
         if self.elastic:
             penalty = (1.0 / rows.scale) * (ELASTIC_SOFT_WEIGHT if rows.soft is not None else 1.0)
         else:

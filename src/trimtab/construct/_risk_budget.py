@@ -13,7 +13,7 @@ gives every group its share.
 from __future__ import annotations
 
 import time
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -60,7 +60,11 @@ def budgets(problem: RebalanceProblem) -> np.ndarray:
         missing = [g for g in groups if g not in given]
         if missing and default is None:
             raise (path / "budgets").fail(f"no budget for groups {list_labels(missing)} (give a default)")
-    share = {g: (given.get(g, default) if given else 1.0) for g in groups}
+    share: dict[Any, float] = {}
+    for g in groups:
+        budget = given.get(g, default) if given else 1.0
+        assert budget is not None  # a group without a budget and no default raised above
+        share[g] = budget
     total = sum(share.values())
     counts = column.value_counts()
     labels = column

@@ -327,7 +327,7 @@ def check_residuals(
     n_cols = data.shape[1]
     total = n_cols * (n_cols - 1) // 2
     sampled = max_pairs is not None and total > max_pairs
-    if sampled:
+    if max_pairs is not None and sampled:
         _sampled_pairs(data, mask, int(max_pairs), total, seed, block_size, tally)
     else:
         _all_pairs(data, mask, dense, block_size, tally)

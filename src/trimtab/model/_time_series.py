@@ -222,6 +222,7 @@ def fit_time_series(
     keep = np.flatnonzero(result.usable)
     kept_assets = returns.columns[candidates[keep]]
     fit = result.fit
+    assert fit.residuals is not None  # estimate() keeps residuals unless coefficients_only=True
     residual_values = fit.residuals if len(keep) == fit.residuals.shape[1] else fit.residuals[:, keep]
     residuals = pd.DataFrame(residual_values, index=dates, columns=kept_assets, copy=False)
     coefficients = fit.coefficients[:, keep]

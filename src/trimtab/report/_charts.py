@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import io
 import re
+from typing import TYPE_CHECKING, Any
 
 import matplotlib
 import numpy as np
@@ -17,6 +18,10 @@ from matplotlib.ticker import PercentFormatter
 
 from trimtab.report._content import RiskBudget
 
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.typing import RcKeyType
+
 BEFORE = "#a3acb5"
 AFTER = "#2a6f77"
 FACTOR = "#2a6f77"
@@ -25,7 +30,7 @@ CAP = "#b23a3a"
 INK = "#1d2125"
 WIDTH_IN = 9.3
 
-_STYLE = {
+_STYLE: dict[RcKeyType, Any] = {
     "svg.fonttype": "none",
     "font.family": "sans-serif",
     "font.size": 10.5,
@@ -38,7 +43,7 @@ _STYLE = {
 }
 
 
-def _figure(height_in: float) -> tuple[Figure, object]:
+def _figure(height_in: float) -> tuple[Figure, Axes]:
     fig = Figure(figsize=(WIDTH_IN, height_in))
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
@@ -63,8 +68,8 @@ def _prefix_ids(svg: str, prefix: str) -> str:
     return re.sub(r'href="#([^"]+)"', rf'href="#{prefix}-\1"', svg)
 
 
-def _percent_axis(ax: object) -> None:
-    ax.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))  # type: ignore[attr-defined]
+def _percent_axis(ax: Axes) -> None:
+    ax.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))
 
 
 def _draw(values: pd.Series) -> np.ndarray:

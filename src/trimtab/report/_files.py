@@ -31,7 +31,7 @@ TABLE_FORMATS = ("csv", "parquet")
 
 
 # ---------------------------------------------------------------------- atomic writes
-def atomic_write(path: Path, write: Callable[[Path], None]) -> Path:
+def atomic_write(path: Path, write: Callable[[Path], object]) -> Path:
     """Call ``write(temporary_path)`` in the target folder, then rename it over ``path``.
 
     A failure leaves no partial file behind and any earlier file at ``path`` untouched.
@@ -143,10 +143,11 @@ def write_tables(
     for stem, table in tables.items():
         for fmt in formats:
             target = out / f"{stem}.{fmt}"
+            # atomic_write calls the writer before returning, so the closures see this loop's table.
             if fmt == "csv":
-                atomic_write(target, lambda tmp, t=table: t.to_csv(tmp))
+                atomic_write(target, lambda tmp: table.to_csv(tmp))
             else:
-                atomic_write(target, lambda tmp, t=table: _parquet_ready(t).to_parquet(tmp))
+                atomic_write(target, lambda tmp: _parquet_ready(table).to_parquet(tmp))
             written.append(target)
     return written
 

@@ -6,7 +6,7 @@ from collections.abc import Mapping
 from typing import Any
 
 import pandas as pd
-from rich.console import Console
+from rich.console import Console, JustifyMethod
 from rich.table import Table
 
 from trimtab.attribution import compare_many, format_figure
@@ -213,8 +213,10 @@ def _print_body(out: Console, content: ReportContent, top: int) -> None:
     weight = "active_weight" if "active_weight" in assets.columns else "weight"
     table = Table(title=f"Top {len(assets)} risk contributors" + (" (after)" if content.pre is not None else ""),
                   title_justify="left")
-    for column, justify in (("asset", "left"), (weight.replace("_", " "), "right"), ("contribution", "right"),
-                            ("percent", "right")):
+    columns: tuple[tuple[str, JustifyMethod], ...] = (
+        ("asset", "left"), (weight.replace("_", " "), "right"), ("contribution", "right"), ("percent", "right")
+    )
+    for column, justify in columns:
         table.add_column(column, justify=justify)
     for name, row in assets.iterrows():
         table.add_row(str(name), format_figure(row[weight], "fraction"), format_figure(row["contribution"], "fraction"),

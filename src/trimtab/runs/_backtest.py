@@ -260,7 +260,9 @@ def run_path(task: PathTask) -> PathResult:
     """
     rebalance = task.rebalance
     if rebalance is None:
-        from trimtab.construct import rebalance
+        from trimtab.construct import rebalance as default_rebalance
+
+        rebalance = default_rebalance
     returns, dates = task.asset_returns, task.dates
     holdings: pd.Series | None = task.initial_holdings
     records, exposures, contributions, weights = [], [], [], {}

@@ -377,7 +377,7 @@ def backtest_command(
     from trimtab.runs._backtest import backtest
     from trimtab.runs._report import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
-    from trimtab.scenario._schema import ReturnsFile
+    from trimtab.scenario._schema import FitSettings, ReturnsFile
 
     as_json, quiet = _flags(ctx, json_output, quiet)
     loaded = [load_scenario(s) for s in scenarios]
@@ -385,6 +385,7 @@ def backtest_command(
     if len(set(names)) != len(names):
         dup = sorted({n for n in names if names.count(n) > 1})
         raise InputError(f"backtest: scenario names must differ; {', '.join(dup)} appears twice (set name: in the files)")
+    settings: FitSettings
     if fit is not None:
         settings = load_fit_config(fit)
     elif loaded[0].spec.model.fit is not None:
@@ -396,7 +397,8 @@ def backtest_command(
     first = load_inputs(loaded[0])
     inputs = [first] + [load_inputs(s, model=first.model) for s in loaded[1:]]
     if alpha_history is not None:
-        alpha = load_returns(ReturnsFile(path=str(alpha_history)), what="alpha history")
+        # model_validate: type checkers do not see the file spec's positional Field defaults
+        alpha = load_returns(ReturnsFile.model_validate({"path": str(alpha_history)}), what="alpha history")
     else:
         if first.alpha is None:
             raise InputError(f"{scenarios[0]}: data.alpha: give an alpha file or --alpha-history")

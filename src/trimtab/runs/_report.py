@@ -13,7 +13,7 @@ import re
 from collections.abc import Mapping, Sequence
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import matplotlib
 import numpy as np
@@ -25,8 +25,11 @@ from matplotlib.ticker import PercentFormatter
 from trimtab._version import __version__
 from trimtab.report import CAUTION
 
+if TYPE_CHECKING:
+    from matplotlib.typing import RcKeyType
+
 PALETTE = ("#2a6f77", "#d49a3a", "#6b4c9a", "#b23a3a", "#4d7f3a", "#8a939b", "#1d2125")
-_STYLE = {
+_STYLE: dict[RcKeyType, Any] = {
     "svg.fonttype": "none",
     "font.family": "sans-serif",
     "font.size": 10.5,

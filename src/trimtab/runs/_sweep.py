@@ -212,7 +212,9 @@ def run_chunk(task: SweepTask) -> list[dict[str, Any]]:
     """
     build = task.build
     if build is None:
-        from trimtab.construct import build_problem as build
+        from trimtab.construct import build_problem
+
+        build = build_problem
 
     rows: list[dict[str, Any]] = []
     problem = None

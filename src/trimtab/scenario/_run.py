@@ -53,9 +53,9 @@ def input_files(inputs: ScenarioInputs) -> list[Path]:
     if spec.model.path is not None:
         files.append(Path(spec.model.path))
     elif spec.model.fit is not None:
-        for item in (spec.model.fit.returns, spec.model.fit.factor_returns, spec.model.fit.exposures):
-            if item is not None:
-                files.append(Path(item.path))
+        for fit_file in (spec.model.fit.returns, spec.model.fit.factor_returns, spec.model.fit.exposures):
+            if fit_file is not None:
+                files.append(Path(fit_file.path))
     return files
 
 
@@ -97,7 +97,7 @@ def load_all(
     return out
 
 
-def relaxation_frame(error: InfeasibleError) -> pd.DataFrame:
+def relaxation_frame(error: InfeasibleError | SolverError) -> pd.DataFrame:
     """The error's relaxation table, or an empty frame when the optimizer gave none."""
     table = getattr(error, "relaxation", None)
     return table if isinstance(table, pd.DataFrame) else pd.DataFrame()

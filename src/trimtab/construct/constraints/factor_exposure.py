@@ -29,11 +29,13 @@ class FactorExposure(Constraint):
             raise (self.path / "bounds").fail(
                 f"unknown factor(s) {list_labels(unknown)}; the model has: {list_labels(factors)}"
             )
-        chosen = [k for k in factors if k in bounds or default is not None]
+        if default is not None:  # with a default every factor is bounded
+            bounds = {k: bounds.get(k, default) for k in factors}
+        chosen = [k for k in factors if k in bounds]
         if not chosen:
             return []
         idx = np.array([factors.index(k) for k in chosen])
-        lower, upper = interval_arrays([bounds.get(k, default) for k in chosen])
+        lower, upper = interval_arrays([bounds[k] for k in chosen])
         base = self.data.bench_exposure[idx] if o["active"] else np.zeros(len(idx))
         B = self.data.exposures
         whole = len(idx) == len(factors)

@@ -35,10 +35,12 @@ class Group(Constraint):
                 raise (path / "bounds").fail(
                     f"unknown group(s) {list_labels(unknown)} in column {options['by']!r}; known: {list_labels(groups)}"
                 )
-            chosen = [g for g in groups if g in bounds or default is not None]
+            if default is not None:  # with a default every group is bounded
+                bounds = {g: bounds.get(g, default) for g in groups}
+            chosen = [g for g in groups if g in bounds]
             if not chosen:
                 continue
-            lower, upper = interval_arrays([bounds.get(g, default) for g in chosen])
+            lower, upper = interval_arrays([bounds[g] for g in chosen])
             where = {g: k for k, g in enumerate(groups)}
             rows_of = np.array([where[g] for g in chosen])
             n = self.data.n_assets
