@@ -109,7 +109,8 @@ def sweep_benchmark(n_points: int, n_assets: int, n_factors: int, baseline_point
     model, scenario, book = instance(n_assets, n_factors)
     caps = [float(x) for x in np.linspace(0.01, 0.05, n_points)]
     grid = {"tracking_error.max": caps}
-    print(f"Load average before the run: {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores")
+    print(f"Load average before the run: {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores; "
+          f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS', 'unset')}")
     print(f"Sweep of {n_points} TE caps at N = {n_assets:,}, K = {n_factors} (one process)")
     sweep(model, scenario, {"tracking_error.max": caps[:1]}, **book)  # warm-up (imports, first compile), not timed
     start = time.perf_counter()

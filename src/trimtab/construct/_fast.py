@@ -53,9 +53,11 @@ class WarmBox:
 
     def __init__(self) -> None:
         self.state: _ipm.Warm | None = None
+        #: the last warm run did not converge: the next run starts cold (then warm again)
+        self.failed = False
 
     def __getstate__(self) -> dict[str, object]:  # not worth shipping to other processes
-        return {"state": None}
+        return {"state": None, "failed": False}
 
 
 @dataclass(frozen=True, eq=False)
@@ -169,7 +171,9 @@ def solve(problem: RebalanceProblem, rows: Sequence[Rows], warm: WarmBox | None 
     """Run the interior-point method; None when the problem is outside its class or its boxes are empty.
 
     With ``warm`` holding a state of a problem of the same shape the run starts from it; a warm run
-    that does not converge is repeated from the cold start. A converged run's state is kept in ``warm``.
+    that does not converge is repeated from the cold start, and the next run of the family starts
+    cold (measured: failures come in runs, at the linear-like end of a TE sweep). A converged run's
+    state is kept in ``warm``.
     """
     if unsupported(problem, rows) is not None:
         return None
@@ -179,8 +183,11 @@ def solve(problem: RebalanceProblem, rows: Sequence[Rows], warm: WarmBox | None 
         return None
     build = time.perf_counter() - start
     sol = None
-    if warm is not None and warm.state is not None:
+    if warm is not None and warm.state is not None and not warm.failed:
         sol = _ipm.solve(tr.qp, warm=warm.state)
+        warm.failed = not sol.converged
+    elif warm is not None:
+        warm.failed = False
     if sol is None or not sol.converged:
         sol = _ipm.solve(tr.qp)
     if warm is not None and sol.converged:
