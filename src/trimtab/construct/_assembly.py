@@ -20,7 +20,7 @@ import cvxpy as cp
 import numpy as np
 
 from trimtab.construct._variables import Variables
-from trimtab.construct.constraints._base import Rows
+from trimtab.construct.constraints._base import Rows, merge_boxes, split_box_duals
 
 #: Box limits equal within this are one equality.
 _EQUAL_TOL = 0.0
@@ -99,11 +99,7 @@ class Assembly:
         """Merge the hard box rows into bounds on w; return every constraint (definitions first)."""
         if self._box:
             n = self.variables.data.n_assets
-            lo = np.full(n, -np.inf)
-            hi = np.full(n, np.inf)
-            for rows in self._box:
-                lo = np.fmax(lo, rows.lower + rows.offset)
-                hi = np.fmin(hi, rows.upper + rows.offset)
+            lo, hi = merge_boxes(self._box, n)
             self._box_limits = (lo, hi)
             w = self.variables.w
             equal = np.isfinite(lo) & (np.abs(hi - lo) <= _EQUAL_TOL)
@@ -142,15 +138,12 @@ class Assembly:
         return out
 
     def _box_duals(self, out: dict[int, tuple[np.ndarray, np.ndarray]]) -> None:
-        lo_eff, hi_eff = self._box_limits  # type: ignore[misc]
-        n = len(lo_eff)
+        assert self._box_limits is not None
+        n = len(self._box_limits[0])
         up_all, lo_all = np.zeros(n), np.zeros(n)
         for side, con, idx in self._box_handles:
             _assign(up_all, lo_all, side, _dual(con, len(idx)), idx)
-        for rows in self._box:
-            tight_up = (rows.upper + rows.offset) == hi_eff
-            tight_lo = (rows.lower + rows.offset) == lo_eff
-            out[id(rows)] = (np.where(tight_up, up_all, 0.0), np.where(tight_lo, lo_all, 0.0))
+        out.update(split_box_duals(self._box, self._box_limits, up_all, lo_all))
 
     def slack_values(self) -> dict[int, np.ndarray]:
         """id(rows) → slack per row (elastic or soft rows only)."""

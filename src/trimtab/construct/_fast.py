@@ -23,7 +23,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from trimtab.construct import _ipm
-from trimtab.construct.constraints._base import Rows
+from trimtab.construct.constraints._base import Rows, merge_boxes, split_box_duals
 
 if TYPE_CHECKING:
     from trimtab.construct._problem import RebalanceProblem
@@ -106,11 +106,7 @@ def translate(problem: RebalanceProblem, rows: Sequence[Rows]) -> Translation | 
 
     # weight boxes, merged as the cvxpy assembly merges them (the tightest limit wins)
     boxes = [r for r in rows if r.box]
-    lo = np.full(n, -np.inf)
-    hi = np.full(n, np.inf)
-    for r in boxes:
-        lo = np.fmax(lo, r.lower + r.offset)
-        hi = np.fmin(hi, r.upper + r.offset)
+    lo, hi = merge_boxes(boxes, n)
     if np.any(lo > hi):
         return None
     lb = np.concatenate([np.maximum(0.0, lo - w0), np.maximum(0.0, w0 - hi)])
@@ -206,12 +202,7 @@ def _duals(tr: Translation, sol: _ipm.Solution) -> dict[int, tuple[np.ndarray, n
         # h = q/τ² − 1 with τ² = cap²/ppy: ∂U*/∂cap = 2·z/cap
         out[id(r)] = (np.array([2.0 * sol.cap_duals[k] / float(r.upper[0])]), np.zeros(1))
     if tr.box_rows:
-        up_all, lo_all = _box_duals(tr, sol)
-        lo_eff, hi_eff = tr.box_limits
-        for r in tr.box_rows:
-            tight_up = (r.upper + r.offset) == hi_eff
-            tight_lo = (r.lower + r.offset) == lo_eff
-            out[id(r)] = (np.where(tight_up, up_all, 0.0), np.where(tight_lo, lo_all, 0.0))
+        out.update(split_box_duals(tr.box_rows, tr.box_limits, *_box_duals(tr, sol)))
     return out
 
 

@@ -29,7 +29,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab.construct._verify import describe_failures, failures, verify
-from trimtab.construct.constraints._base import Rows, box_rows
+from trimtab.construct.constraints._base import Rows, box_rows, merge_boxes
 from trimtab.errors import SolverError
 
 if TYPE_CHECKING:
@@ -69,12 +69,8 @@ def _lot_weight(problem: RebalanceProblem) -> np.ndarray:
 
 
 def _hard_box(problem: RebalanceProblem, extra: list[Rows] | None = None) -> tuple[np.ndarray, np.ndarray]:
-    n = problem.data.n_assets
-    lo, hi = np.full(n, -np.inf), np.full(n, np.inf)
-    for r in problem.all_rows(extra or []):
-        if r.box and r.soft is None:
-            lo, hi = np.fmax(lo, r.lower + r.offset), np.fmin(hi, r.upper + r.offset)
-    return lo, hi
+    hard = [r for r in problem.all_rows(extra or []) if r.box and r.soft is None]
+    return merge_boxes(hard, problem.data.n_assets)
 
 
 def _fix(name: str, mask: np.ndarray, offset: np.ndarray | None, labels: pd.Index) -> Rows:

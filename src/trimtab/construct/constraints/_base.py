@@ -120,6 +120,23 @@ def box_rows(
     )
 
 
+def merge_boxes(rows: Sequence[Rows], n: int) -> tuple[np.ndarray, np.ndarray]:
+    """One lower and one upper bound on w from box rows: the tightest limit wins, asset by asset."""
+    lo, hi = np.full(n, -np.inf), np.full(n, np.inf)
+    for r in rows:
+        lo, hi = np.fmax(lo, r.lower + r.offset), np.fmin(hi, r.upper + r.offset)
+    return lo, hi
+
+
+def split_box_duals(
+    rows: Sequence[Rows], limits: tuple[np.ndarray, np.ndarray], up_all: np.ndarray, lo_all: np.ndarray,
+) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+    """The merged bounds' duals given to the box rows whose limit is the merged one (id(rows) → (up, lo))."""
+    lo_eff, hi_eff = limits
+    return {id(r): (np.where((r.upper + r.offset) == hi_eff, up_all, 0.0),
+                    np.where((r.lower + r.offset) == lo_eff, lo_all, 0.0)) for r in rows}
+
+
 def linear_rows(
     name: str, kind: str, matrix: Any, lower: np.ndarray, upper: np.ndarray, labels: Sequence[Any],
     *, unit: str = "weight", soft: float | None = None, constant: np.ndarray | float = 0.0,
