@@ -217,7 +217,7 @@ def _box_duals(tr: Translation, sol: _ipm.Solution) -> tuple[np.ndarray, np.ndar
     n = qp.n
     lo_eff, hi_eff = tr.box_limits
     w0 = qp.w0
-    fixed = qp.ub - qp.lb <= _ipm.FIXED_WIDTH * np.maximum(1.0, np.abs(qp.lb))
+    fixed = _ipm.fixed_coordinates(qp)
     g = sol.reduced_gradient
 
     def upper_of(i: np.ndarray) -> np.ndarray:

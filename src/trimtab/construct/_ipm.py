@@ -130,12 +130,19 @@ class QP:
     def row_values(self, w: np.ndarray, traded: float) -> np.ndarray:
         return self.Aw @ w + self.Ay @ (self.B.T @ w) + self.at * traded + self.const
 
-    def objective(self, x: np.ndarray) -> float:
+    def risk_sigma(self, w: np.ndarray) -> np.ndarray | None:
+        """Σ(w − b_o), or None when the objective has no risk term."""
+        return self.sigma(w - self.risk_center) if self.risk_weight else None
+
+    def objective(self, x: np.ndarray, sa: np.ndarray | None = None) -> float:
+        """φ(x); ``sa`` is Σ(w − b_o) when the caller has it (see :meth:`risk_sigma`)."""
         w = self.weights(x)
-        a = w - self.risk_center
         n = self.n
         traded = x[:n] + x[n:]
-        value = self.risk_weight * (a @ self.sigma(a)) - self.alpha @ w + self.cost @ traded
+        value = -self.alpha @ w + self.cost @ traded
+        if self.risk_weight:
+            risk = self.sigma(w - self.risk_center) if sa is None else sa
+            value += self.risk_weight * ((w - self.risk_center) @ risk)
         if self.impact is not None:
             value += self.impact @ _impact(traded)[0]
         return float(value)
@@ -190,6 +197,11 @@ class _Rows:
         self.ineq = np.concatenate([self.factor_only, self.general])
 
 
+def fixed_coordinates(qp: QP) -> np.ndarray:
+    """Coordinates of x whose box is narrower than FIXED_WIDTH: held at their lower bound."""
+    return qp.ub - qp.lb <= FIXED_WIDTH * np.maximum(1.0, np.abs(qp.lb))
+
+
 def _row_columns(qp: QP) -> np.ndarray:
     """The rows' gradients in w-space (N × rows): Awᵀ + B·Ayᵀ (the trade part is ``qp.at``)."""
     return qp.Aw.T + qp.B @ qp.Ay.T
@@ -211,8 +223,9 @@ def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False, warm: Warm
     """Minimise the QP of the module docstring; see :class:`Solution`.
 
     The iterate with the smallest residuals (relative to their tolerances) is kept; the run stops
-    when it is within every tolerance, when a Newton solve fails or goes non-finite, or after
-    ``max_iter`` iterations. ``converged`` is True only in the first case.
+    when it is within every tolerance (``optimal``), when its steps stall or a Newton solve fails or
+    goes non-finite, or after ``max_iter`` iterations. ``converged`` is True for ``optimal`` and for
+    ``optimal_stalled`` (a stopped run whose best iterate is within the ACCEPT_* residuals).
     """
     # overflow or 0/0 near a failing end is caught by the finiteness checks, not by warnings
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
@@ -226,7 +239,7 @@ class _Run:
         self.qp, self.verbose = qp, verbose
         n = self.n = qp.n
         rows = self.rows = _Rows(qp)
-        self.fixed = qp.ub - qp.lb <= FIXED_WIDTH * np.maximum(1.0, np.abs(qp.lb))
+        self.fixed = fixed_coordinates(qp)
         self.free = ~self.fixed
         self.has_lb = self.free & np.isfinite(qp.lb)
         self.has_ub = self.free & np.isfinite(qp.ub)
@@ -241,7 +254,10 @@ class _Run:
         self.m_lin = self.m_up + len(self.lo_side)
         self.n_caps = len(qp.caps)
         self.b_eq = qp.hi[rows.eq]
-        self.pm = np.concatenate([np.ones(n), -np.ones(n)])
+        # caps on the full Σ around the objective's own centre reuse its Σ(w − b_o)
+        self.cap_shares_risk = [bool(qp.risk_weight) and cap.factor and cap.specific
+                                and (cap.center is qp.risk_center or np.array_equal(cap.center, qp.risk_center))
+                                for cap in qp.caps]
         # starting point; the objective is divided by its gradient's size so multipliers are O(1)
         x = _start(qp, self.fixed)
         grad0 = _objective_gradient(qp, x)
@@ -293,15 +309,17 @@ class _Run:
 
     # ------------------------------------------------------------------ functions of x
     def evaluate(self) -> np.ndarray:
-        """h(x) (inequalities ≤ 0), and the row values and cap gradients at x (kept on self)."""
+        """h(x) (inequalities ≤ 0), and the row values, Σ(w − b_o) and cap gradients at x (kept on self)."""
         qp, x = self.qp, self.x
         w = qp.weights(x)
         self.values = qp.row_values(w, float(x.sum()))
+        self.sa = qp.risk_sigma(w)
         caps = np.zeros(self.n_caps)
         self.cap_grads = []
         for k, cap in enumerate(qp.caps):
             a = w - cap.center
-            qa = qp.sigma(a, cap.factor, cap.specific)
+            shared = self.sa if self.cap_shares_risk[k] else None
+            qa = shared if shared is not None else qp.sigma(a, cap.factor, cap.specific)
             caps[k] = a @ qa / cap.tau2 - 1.0
             grad = 2.0 * qa / cap.tau2
             self.cap_grads.append(grad)
@@ -316,11 +334,12 @@ class _Run:
         caps = np.array([g @ dw for g in self.cap_grads])
         return np.concatenate([row_change[self.up_side], -row_change[self.lo_side], caps])
 
-    def row_multipliers(self, vec: np.ndarray) -> np.ndarray:
-        """Per-row multiplier (upper side +, lower side −) from a vector over the inequality sides."""
+    def row_multipliers(self, vec: np.ndarray, lower_sign: float = -1.0) -> np.ndarray:
+        """Per row, from a vector over the inequality sides: the upper side's entry plus
+        ``lower_sign`` × the lower side's (−1: a signed multiplier; +1: the summed weights ρ)."""
         rm = np.zeros(self.n_rows)
         rm[self.up_side] += vec[: self.m_up]
-        rm[self.lo_side] -= vec[self.m_up: self.m_lin]
+        rm[self.lo_side] += lower_sign * vec[self.m_up: self.m_lin]
         return rm
 
     def jac_t(self, vec: np.ndarray, nu: np.ndarray | None = None) -> np.ndarray:
@@ -335,11 +354,19 @@ class _Run:
         out[self.fixed] = 0.0
         return out
 
-    def lagrangian_gradient(self) -> np.ndarray:
-        """∇φ/scale + J_hᵀz + Aᵀν, without the bounds' multipliers."""
-        g = _objective_gradient(self.qp, self.x) / self.scale + self.reg
-        g[self.fixed] = 0.0
-        return g + self.jac_t(self.z, self.nu)
+    def lagrangian_gradient(self, *, fixed_too: bool = False, regularizer: bool = True) -> np.ndarray:
+        """∇φ/scale + J_hᵀz + Aᵀν, without the bounds' multipliers; 0 on the fixed coordinates
+        unless ``fixed_too`` (their own gradient, for their prices)."""
+        g = _objective_gradient(self.qp, self.x, self.sa) / self.scale + (self.reg if regularizer else 0.0)
+        if not fixed_too:
+            g[self.fixed] = 0.0
+            return g + self.jac_t(self.z, self.nu)
+        rm = self.row_multipliers(self.z)
+        rm[self.rows.eq] += self.nu
+        w_part = self.Gw @ rm
+        for k, gk in enumerate(self.cap_grads):
+            w_part = w_part + self.z[self.m_lin + k] * gk
+        return g + _expand(w_part, float(self.at @ rm))
 
     # ------------------------------------------------------------------ state
     def state(self) -> tuple[np.ndarray, ...]:
@@ -357,7 +384,7 @@ class _Run:
         hl, hu = self.has_lb, self.has_ub
         self.comp = float(self.s @ self.z + (self.gap_l * self.zl)[hl].sum() + (self.gap_u * self.zu)[hu].sum())
         self.mu = self.comp / max(self.n_comp, 1)
-        obj = self.qp.objective(self.x) / self.scale
+        obj = self.qp.objective(self.x, self.sa) / self.scale
         return {
             "primal": float(max(np.max(np.abs(self.r_h), initial=0.0), np.max(np.abs(self.r_eq), initial=0.0))),
             "dual": float(np.max(np.abs(self.r_d), initial=0.0)),
@@ -379,9 +406,7 @@ class _Run:
             if cap.factor:
                 S = S + c * qp.F
         rho = self.z / self.s
-        rho_row = np.zeros(self.n_rows)
-        rho_row[self.up_side] += rho[: self.m_up]
-        rho_row[self.lo_side] += rho[self.m_up: self.m_lin]
+        rho_row = self.row_multipliers(rho, lower_sign=1.0)
         if len(self.rows.factor_only):
             S = S + self.Ay_fac.T @ (rho_row[self.rows.factor_only][:, None] * self.Ay_fac)
         barrier = np.where(self.has_lb, self.zl / self.gap_l, 0.0) + np.where(self.has_ub, self.zu / self.gap_u, 0.0)
@@ -517,14 +542,10 @@ class _Run:
         row_lower[self.lo_side] = z_lo * scale
         row_upper[rows.eq] = np.maximum(self.nu, 0.0) * scale
         row_lower[rows.eq] = np.maximum(-self.nu, 0.0) * scale
-        g = _objective_gradient(qp, self.x) / scale
-        rm = self.row_multipliers(self.z)
-        rm[rows.eq] += self.nu
-        w_part = self.Gw @ rm + sum((z_cap[k] * gk for k, gk in enumerate(self.cap_grads)), np.zeros(self.n))
-        g = g + _expand(w_part, float(self.at @ rm))  # fixed coordinates included: their own gradient
+        g = self.lagrangian_gradient(fixed_too=True, regularizer=False)
         return Solution(
             x=self.x, converged=status in ("optimal", "optimal_stalled"), status=status, iterations=iterations, seconds=seconds,
-            objective=qp.objective(self.x), row_upper=row_upper, row_lower=row_lower, cap_duals=z_cap * scale,
+            objective=qp.objective(self.x, self.sa), row_upper=row_upper, row_lower=row_lower, cap_duals=z_cap * scale,
             bound_upper=self.zu * scale, bound_lower=self.zl * scale, reduced_gradient=g * scale,
             residuals={k: v for k, v in res.items() if k != "objective"},
             warm=Warm(self.x.copy(), self.s.copy(), self.z.copy(), self.zl.copy(), self.zu.copy(), self.nu.copy(),
@@ -532,9 +553,12 @@ class _Run:
         )
 
 
-def _objective_gradient(qp: QP, x: np.ndarray) -> np.ndarray:
-    w = qp.weights(x)
-    gw = 2.0 * qp.risk_weight * qp.sigma(w - qp.risk_center) - qp.alpha
+def _objective_gradient(qp: QP, x: np.ndarray, sa: np.ndarray | None = None) -> np.ndarray:
+    """∇φ in x-space; ``sa`` is Σ(w − b_o) when the caller has it."""
+    gw = -qp.alpha
+    if qp.risk_weight:
+        risk = qp.sigma(qp.weights(x) - qp.risk_center) if sa is None else sa
+        gw = gw + 2.0 * qp.risk_weight * risk
     gt = qp.cost
     if qp.impact is not None:
         n = qp.n
