@@ -164,15 +164,13 @@ def translate(problem: RebalanceProblem, rows: Sequence[Rows]) -> Translation | 
 
 
 def solve(problem: RebalanceProblem, rows: Sequence[Rows], warm: WarmBox | None = None) -> Answer | None:
-    """Run the interior-point method; None when the problem is outside its class or its boxes are empty.
+    """Run the interior-point method on a problem :func:`unsupported` accepted; None when its boxes are empty.
 
     With ``warm`` holding a state of a problem of the same shape the run starts from it; a warm run
     that does not converge is repeated from the cold start, and the next run of the family starts
     cold (measured: failures come in runs, at the linear-like end of a TE sweep). A converged run's
     state is kept in ``warm``.
     """
-    if unsupported(problem, rows) is not None:
-        return None
     start = time.perf_counter()
     tr = translate(problem, rows)
     if tr is None:
