@@ -22,8 +22,11 @@ where R·Rᵀ collects every K×K factor term (objective, caps, factor-exposure 
 hold the specific-variance diagonal, the impact term's curvature (¾·impactᵢ·(uᵢ + vᵢ)^{-1/2} on
 all four entries; u + v > 0 inside the boxes) and the barrier terms of the boxes, and G holds one column per
 other dense row and per cap gradient. H⁻¹ is applied with the Woodbury identity: one Cholesky of an
-(r × r) matrix, r ≈ K + (number of dense rows), and O(N·r²) dense BLAS work. No N×N matrix and no
-sparse factorisation are formed. Equality rows are handled by a Schur complement A·H⁻¹·Aᵀ.
+(r × r) matrix, r ≈ K + (number of dense rows), and O(N·r²) dense BLAS work. The few assets whose
+2×2 blocks are tiny against their share of U·Uᵀ (strictly inside their boxes near the end of a
+linear-like problem, where Woodbury alone cancels catastrophically) are taken out and solved through
+a dense Schur complement of their own (see _Newton). No N×N matrix and no sparse factorisation are
+formed. Equality rows are handled by a Schur complement A·H⁻¹·Aᵀ.
 
 Tolerances are on the unscaled rows (weights, exposures) and on the caps as q/τ² − 1, so a
 converged point is well inside the verification tolerances of :mod:`trimtab.construct._verify`;
@@ -42,17 +45,17 @@ import scipy.linalg as la
 TOL_PRIMAL = 1e-9
 TOL_DUAL = 1e-9
 TOL_GAP = 1e-11
-#: When the run can go no further (a failed or tiny step: in linear programs, and near the end of
-#: some quadratic ones, the Newton solve loses the last digits once the barrier parameter is below
-#: ~1e-12), the best iterate is still accepted, as ``optimal_stalled``, if its residuals are within
-#: these: the objective is then within ~1e-6 of its optimum (relative, in units of its gradient).
+#: When the run can go no further (a failed or tiny step, or STALL_ITER iterations without a better
+#: iterate: once the barrier parameter is far below the gap tolerance, the multipliers of the binding
+#: rows are resolved to fewer digits than the gap, and the dual residual of a few runs stops near
+#: 1e-8 to 1e-7), the best iterate is still accepted, as ``optimal_stalled``, if its residuals are
+#: within these: the objective is then within ~1e-6 of its optimum (relative, in units of its gradient).
 ACCEPT_PRIMAL = 1e-7
 ACCEPT_DUAL = 1e-6
 ACCEPT_GAP = 1e-6
 MAX_ITER = 80
-#: Fraction of the distance to the boundary a step may go (0.9 rather than the usual 0.99+: it keeps
-#: the iterates central enough that linear-like problems finish before the Newton solves lose digits).
-STEP_FRACTION = 0.9
+#: Fraction of the distance to the boundary a step may go.
+STEP_FRACTION = 0.995
 #: A box narrower than this (relative to max(1, |lower|)) fixes its variable at the lower bound.
 FIXED_WIDTH = 1e-13
 #: Starting slack of the inequality rows (at least) and starting complementarity MU0/N.
@@ -64,6 +67,8 @@ MU0 = 0.1
 MIN_STEP = 1e-10
 #: Two steps shorter than this, once an acceptable iterate exists, end the run (stalled).
 SHORT_STEP = 1e-3
+#: Iterations without a better iterate that end a run once an acceptable one exists.
+STALL_ITER = 2
 DIVERGED = 1e8
 #: The impact term |t|^{3/2} is exact from this trade size (a weight of NAV) up; below, see _impact.
 IMPACT_SMOOTHING = 1e-6
@@ -74,6 +79,10 @@ WARM_MU = 1e-1
 REFINE = 3
 #: ... stopping once the residual is below this fraction of the right-hand side.
 REFINE_TOL = 1e-10
+#: Assets whose term Bdᵢ⁻¹·‖Uᵢ‖² in the Newton matrix exceeds SPLIT_WEIGHT are solved densely
+#: (at most MAX_SPLIT of them, the largest), not through Woodbury; see _Newton.
+SPLIT_WEIGHT = 1e6
+MAX_SPLIT = 100
 #: A cap's slack is reset to −h(x) when −h(x) is at least this fraction of it.
 SLACK_RESET = 0.1
 
@@ -210,6 +219,11 @@ def _row_columns(qp: QP) -> np.ndarray:
 def _expand(w_part: np.ndarray, t_part: float | np.ndarray) -> np.ndarray:
     """Eᵀ·w_part + 1·t_part: a w-space gradient plus a coefficient on 1ᵀ(u + v), in x-space."""
     return np.concatenate([w_part + t_part, -w_part + t_part])
+
+
+def _expand_columns(W: np.ndarray, T: np.ndarray) -> np.ndarray:
+    """:func:`_expand` for a matrix of columns (W: N × c, T: c)."""
+    return np.vstack([W + T[None, :], -W + T[None, :]])
 
 
 def _step_to_boundary(v: np.ndarray, dv: np.ndarray) -> float:
@@ -493,7 +507,7 @@ class _Run:
         status = "max_iter"
         best: tuple[float, tuple[np.ndarray, ...], dict[str, float]] | None = None
         acceptable: tuple[float, tuple[np.ndarray, ...], dict[str, float]] | None = None
-        short_steps = 0
+        short_steps = since_best = 0
         it = 0
         for it in range(1, max_iter + 1):
             res = self.residuals()
@@ -522,6 +536,13 @@ class _Run:
                 break
             short_steps = short_steps + 1 if step < SHORT_STEP else 0
             if step < MIN_STEP or (acceptable is not None and short_steps >= 2):
+                status = "stalled"
+                break
+            # once an acceptable iterate exists, STALL_ITER iterations that do not improve on the best
+            # end the run: past the point where the Newton solves lose their last digits the
+            # duality gap still shrinks but the dual residual no longer does
+            since_best = 0 if best[0] == merit else since_best + 1
+            if acceptable is not None and since_best >= STALL_ITER:
                 status = "stalled"
                 break
         assert best is not None
@@ -603,6 +624,14 @@ class _Newton:
     inverses [[p, q], [q, r]] per asset, Bd⁻¹·(EᵀW + 1Tᵀ) = [(p−q)·W + (p+q)·T; (q−r)·W + (q+r)·T]
     and (EᵀW_a + 1T_a)ᵀ·Bd⁻¹·(EᵀW_b + 1T_b) = W_aᵀ·diag(δ1)·W_b + W_aᵀδ2·T_bᵀ + T_a·δ2ᵀW_b +
     (Σδ3)·T_a·T_bᵀ with δ1 = p − 2q + r, δ2 = p − r, δ3 = p + 2q + r.
+
+    Woodbury alone is unstable once some assets' blocks are tiny against their share of U·Uᵀ: in a
+    linear-like problem near its end, an asset strictly inside its box has barrier terms ~1e-9 while
+    the binding rows weigh ~1e10, and H⁻¹·r is then the difference of two numbers 1e9 times larger
+    than itself. Those assets (the set I, at most MAX_SPLIT of them, chosen by the size of their
+    term Bdᵢ⁻¹·‖Uᵢ‖²) are taken out of the Woodbury part and solved densely: with A the others,
+    M_A = I + U_AᵀBd_A⁻¹U_A and the Schur complement S_I = Bd_I + U_I·M_A⁻¹·U_Iᵀ (2|I| × 2|I|, SPD,
+    formed without cancellation), H⁻¹ is applied by block elimination.
     """
 
     def __init__(self, B: np.ndarray, dW: np.ndarray, S: np.ndarray, barrier: np.ndarray, fixed: np.ndarray,
@@ -618,56 +647,99 @@ class _Newton:
         self.a, self.b, self.c = np.where(fixed[:n], 0.0, a), b, np.where(fixed[n:], 0.0, c)
         # inverse blocks [[p, q], [q, r]]
         self.p, self.q, self.r = c / det, -b / det, a / det
+        evals, evecs = np.linalg.eigh(0.5 * (S + S.T))
+        keep = evals > max(evals.max(initial=0.0), 0.0) * 1e-14
+        self.B = B
+        self.R = evecs[:, keep] * np.sqrt(evals[keep])
+        self.s_max = float(evals.max(initial=0.0))
+        self.b_norm2 = np.einsum("ij,ij->i", B, B)
+        self.split = np.zeros(0, dtype=np.intp)
+
+    def _choose_split(self, W: np.ndarray, T: np.ndarray) -> None:
+        """The assets I solved densely (see the class docstring); their inverse blocks are zeroed."""
+        p, q, r = self.p, self.q, self.r
+        # largest eigenvalue of each inverse block times a bound on ‖Uᵢ‖² (u and v rows alike)
+        inv_max = 0.5 * (p + r) + np.sqrt((0.5 * (p - r)) ** 2 + q * q)
+        row = self.s_max * self.b_norm2 + np.einsum("ij,ij->i", W, W) + float(T @ T)
+        weight = inv_max * row
+        both_fixed = self.fixed[: self.n] & self.fixed[self.n:]
+        weight[both_fixed] = 0.0
+        split = np.flatnonzero(weight > SPLIT_WEIGHT)
+        # many such assets share the large terms between them, and Woodbury is then accurate
+        self.split = split if len(split) <= MAX_SPLIT else np.zeros(0, dtype=np.intp)
+
+    def block_inverse(self, v: np.ndarray) -> np.ndarray:
+        n = self.n
+        top, bottom = v[:n], v[n:]
+        if v.ndim == 2:
+            return np.concatenate([self.p[:, None] * top + self.q[:, None] * bottom,
+                                   self.q[:, None] * top + self.r[:, None] * bottom])
+        return np.concatenate([self.p * top + self.q * bottom, self.q * top + self.r * bottom])
+
+    def factor(self, W: np.ndarray, T: np.ndarray, W_eq: np.ndarray, T_eq: np.ndarray) -> None:
+        """U = [Eᵀ·B·R, EᵀW + 1Tᵀ]; M_A = I + U_Aᵀ·Bd_A⁻¹·U_A by one product (Bᵀ·diag(δ1))·[B, W];
+        the dense block S_I of the split assets; the Schur complement of the equality rows."""
+        B, R, n = self.B, self.R, self.n
+        kb, kx, ke = R.shape[1], W.shape[1], W_eq.shape[1]
+        self.Wx, self.Tx = W, T
+        self.T = np.concatenate([np.zeros(kb), T])
+        self._choose_split(W, T)
+        I = self.split
+        if len(I):
+            self.blocks_I = (self.a[I], self.b[I], self.c[I])
+            self.p, self.q, self.r = (v.copy() for v in (self.p, self.q, self.r))
+            self.p[I] = self.q[I] = self.r[I] = 0.0
         self.pq, self.ppq = self.p - self.q, self.p + self.q
         self.qr, self.qpr = self.q - self.r, self.q + self.r
         self.d1 = self.p - 2.0 * self.q + self.r
         self.d2 = self.p - self.r
         self.d3 = float(np.sum(self.p + 2.0 * self.q + self.r))
-        evals, evecs = np.linalg.eigh(0.5 * (S + S.T))
-        keep = evals > max(evals.max(initial=0.0), 0.0) * 1e-14
-        self.B = B
-        self.R = evecs[:, keep] * np.sqrt(evals[keep])
-
-    def block_inverse(self, v: np.ndarray) -> np.ndarray:
-        n = self.n
-        top, bottom = v[:n], v[n:]
-        return np.concatenate([self.p * top + self.q * bottom, self.q * top + self.r * bottom])
-
-    def factor(self, W: np.ndarray, T: np.ndarray, W_eq: np.ndarray, T_eq: np.ndarray) -> None:
-        """U = [Eᵀ·B·R, EᵀW + 1Tᵀ]; M = I + Uᵀ·Bd⁻¹·U by one product (Bᵀ·diag(δ1))·[B, W, W_eq]."""
-        B, R = self.B, self.R
-        kb, kx, ke = R.shape[1], W.shape[1], W_eq.shape[1]
-        self.Wx, self.Tx = W, T
-        self.T = np.concatenate([np.zeros(kb), T])
-        wide = np.hstack([B, W, W_eq])
-        lead = np.vstack([(B.T * self.d1), (W.T * self.d1)])  # (K + kx) × N
-        P = lead @ wide  # [[BᵀD1B, BᵀD1W, BᵀD1We], [WᵀD1B, WᵀD1W, WᵀD1We]]
+        wide = np.hstack([B, W])
+        lead = wide.T * self.d1  # (K + kx) × N
+        P = lead @ wide  # [[BᵀD1B, BᵀD1W], [WᵀD1B, WᵀD1W]]
         k = B.shape[1]
         d2B, d2W = self.d2 @ B, self.d2 @ W
         M = np.empty((kb + kx, kb + kx))
         M[:kb, :kb] = R.T @ P[:k, :k] @ R
-        M[:kb, kb:] = R.T @ (P[:k, k:k + kx] + np.outer(d2B, T))
+        M[:kb, kb:] = R.T @ (P[:k, k:] + np.outer(d2B, T))
         M[kb:, :kb] = M[:kb, kb:].T
-        M[kb:, kb:] = P[k:, k:k + kx] + np.outer(d2W, T) + np.outer(T, d2W) + self.d3 * np.outer(T, T)
+        M[kb:, kb:] = P[k:, k:] + np.outer(d2W, T) + np.outer(T, d2W) + self.d3 * np.outer(T, T)
         M[np.diag_indices_from(M)] += 1.0
         self.chol = la.cho_factor(M, lower=True, check_finite=False)
+        if len(I):
+            self._factor_split()
         self.W_eq, self.T_eq = W_eq, T_eq
         if ke:
             # Z = H⁻¹·A_eqᵀ and the Schur complement A_eq·H⁻¹·A_eqᵀ
-            d2E = self.d2 @ W_eq
-            cross = np.vstack([R.T @ (P[:k, k + kx:] + np.outer(d2B, T_eq)),
-                               P[k:, k + kx:] + np.outer(d2W, T_eq) + np.outer(T, d2E) + self.d3 * np.outer(T, T_eq)])
-            C = la.cho_solve(self.chol, cross, check_finite=False)
-            WC, TC = self.w_times(C), self.T @ C
-            Zt = self.pq[:, None] * (W_eq - WC) + self.ppq[:, None] * (T_eq - TC)[None, :]
-            Zb = self.qr[:, None] * (W_eq - WC) + self.qpr[:, None] * (T_eq - TC)[None, :]
-            Zt[self.fixed[: self.n]] = 0.0
-            Zb[self.fixed[self.n:]] = 0.0
-            self.Z = np.vstack([Zt, Zb])
+            Z = self.apply(_expand_columns(W_eq, T_eq))
+            Z[self.fixed] = 0.0
+            self.Z = Z
+            Zt, Zb = Z[:n], Z[n:]
             schur = W_eq.T @ (Zt - Zb) + np.outer(T_eq, (Zt + Zb).sum(axis=0))
             schur = 0.5 * (schur + schur.T)
             schur[np.diag_indices_from(schur)] += 1e-14 * max(1.0, float(np.trace(schur)))
             self.schur = la.cho_factor(schur, lower=True, check_finite=False)
+
+    def _factor_split(self) -> None:
+        """S_I = Bd_I + U_I·M_A⁻¹·U_Iᵀ over the coordinates (u_I, v_I); fixed ones held at zero."""
+        I, m = self.split, len(self.split)
+        WI = np.hstack([self.B[I] @ self.R, self.Wx[I]])  # m × r
+        U_I = np.vstack([WI + self.T, -WI + self.T])  # rows u_I then v_I
+        self.U_I = U_I
+        S = U_I @ la.cho_solve(self.chol, U_I.T, check_finite=False)
+        a, b, c = self.blocks_I
+        idx = np.arange(m)
+        S[idx, idx] += a
+        S[idx + m, idx + m] += c
+        S[idx, idx + m] += b
+        S[idx + m, idx] += b
+        fixed_I = np.concatenate([self.fixed[I], self.fixed[self.n + I]])
+        S[fixed_I, :] = 0.0
+        S[:, fixed_I] = 0.0
+        S[fixed_I, fixed_I] = 1.0
+        self.fixed_I = fixed_I
+        self.coords_I = np.concatenate([I, self.n + I])
+        self.chol_I = la.cho_factor(S, lower=True, check_finite=False)
 
     def w_times(self, c: np.ndarray) -> np.ndarray:
         """W·c for W = [B·R, Wx] (c a vector or a matrix)."""
@@ -677,14 +749,29 @@ class _Newton:
     def u_t(self, v: np.ndarray) -> np.ndarray:
         n = self.n
         dv = v[:n] - v[n:]
-        return np.concatenate([self.R.T @ (self.B.T @ dv), self.Wx.T @ dv]) + self.T * v.sum()
+        head = np.concatenate([self.R.T @ (self.B.T @ dv), self.Wx.T @ dv])
+        if v.ndim == 2:
+            return head + np.outer(self.T, v.sum(axis=0))
+        return head + self.T * v.sum()
 
     def apply(self, r: np.ndarray) -> np.ndarray:
-        """H⁻¹·r."""
+        """H⁻¹·r (r a vector or a matrix of columns)."""
         t = self.block_inverse(r)
         c = la.cho_solve(self.chol, self.u_t(t), check_finite=False)
-        wc, tc = self.w_times(c), float(self.T @ c)
-        return t - np.concatenate([self.pq * wc + self.ppq * tc, self.qr * wc + self.qpr * tc])
+        if len(self.split):
+            rhs = r[self.coords_I] - self.U_I @ c
+            rhs[self.fixed_I] = 0.0
+            x_I = la.cho_solve(self.chol_I, rhs, check_finite=False)
+            c = c + la.cho_solve(self.chol, self.U_I.T @ x_I, check_finite=False)
+        wc, tc = self.w_times(c), self.T @ c
+        if r.ndim == 2:
+            out = t - np.concatenate([self.pq[:, None] * wc + self.ppq[:, None] * tc[None, :],
+                                      self.qr[:, None] * wc + self.qpr[:, None] * tc[None, :]])
+        else:
+            out = t - np.concatenate([self.pq * wc + self.ppq * tc, self.qr * wc + self.qpr * tc])
+        if len(self.split):
+            out[self.coords_I] = x_I
+        return out
 
     def matvec(self, v: np.ndarray) -> np.ndarray:
         """H·v on the free coordinates (the fixed ones give 0)."""
