@@ -228,6 +228,31 @@ def test_solver_name_in_the_result_and_its_settings():
                                     "constraints": {"fully_invested": True, "long_only": True}}, **fund.kwargs())
     assert result.solver == "FACTOR_IPM"
     assert result.provenance["solver_settings"]["tol_gap"] == _ipm.TOL_GAP
+    assert result.provenance["solver_settings"]["blas_threads"] == 1
+
+
+def test_the_method_runs_with_the_blas_threads_of_its_settings(monkeypatch):
+    from threadpoolctl import threadpool_info
+
+    from trimtab.construct import SOLVER_SETTINGS
+
+    fund = make_fund(40, 4, seed=71)
+    scenario = {"objective": {"minimize": "active_risk"}, "constraints": {"fully_invested": True, "long_only": True}}
+    seen = []
+    original = _ipm.solve
+
+    def recording(qp, **kwargs):
+        seen.append({lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"})
+        return original(qp, **kwargs)
+
+    monkeypatch.setattr(_ipm, "solve", recording)
+    rebalance(fund.model, scenario, **fund.kwargs())
+    assert seen[-1] <= {1}
+    before = {lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"}
+    monkeypatch.setitem(SOLVER_SETTINGS, "FACTOR_IPM", {"blas_threads": None})
+    result = rebalance(fund.model, scenario, **fund.kwargs())
+    assert seen[-1] == before  # None leaves the process's setting alone
+    assert result.provenance["solver_settings"]["blas_threads"] is None
     assert str(result).startswith("Rebalance: optimal (FACTOR_IPM")
     assert isinstance(result.weights, pd.Series)
 

@@ -14,6 +14,8 @@ of the verification).
 
 from __future__ import annotations
 
+import contextlib
+import functools
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -21,15 +23,16 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.sparse as sp
+from threadpoolctl import ThreadpoolController
 
 from trimtab.construct import _ipm
+from trimtab.construct._solve import FACTOR_IPM as NAME
+from trimtab.construct._solve import SOLVER_SETTINGS
 from trimtab.construct.constraints._base import Rows, merge_boxes, split_box_duals
 
 if TYPE_CHECKING:
     from trimtab.construct._problem import RebalanceProblem
 
-#: The name this solver goes by in solver orders, attempts and results.
-NAME = "FACTOR_IPM"
 #: With nothing in the problem pricing trades (no costs, no turnover row), buying and selling the
 #: same asset is free and the split w = w0 + buy − sell is not unique; a cost of this size relative
 #: to the objective's gradient picks the smallest trades (its effect on U is below 1e-9 of it).
@@ -69,9 +72,22 @@ class Answer:
     build_seconds: float
 
 
-#: The settings reported in a result's provenance.
-SETTINGS = {"tol_primal": _ipm.TOL_PRIMAL, "tol_dual": _ipm.TOL_DUAL, "tol_gap": _ipm.TOL_GAP,
-            "max_iter": _ipm.MAX_ITER}
+def settings() -> dict[str, object]:
+    """The settings reported in a result's provenance (the method's tolerances and BLAS threads)."""
+    return {"tol_primal": _ipm.TOL_PRIMAL, "tol_dual": _ipm.TOL_DUAL, "tol_gap": _ipm.TOL_GAP,
+            "max_iter": _ipm.MAX_ITER, **SOLVER_SETTINGS.get(NAME, {})}
+
+
+@functools.cache
+def _thread_controller() -> ThreadpoolController:
+    return ThreadpoolController()  # inspects the loaded BLAS libraries once (a few ms)
+
+
+def _blas_limit() -> contextlib.AbstractContextManager[object]:
+    threads = SOLVER_SETTINGS.get(NAME, {}).get("blas_threads")
+    if threads is None:
+        return contextlib.nullcontext()
+    return _thread_controller().limit(limits=int(threads), user_api="blas")
 
 
 def unsupported(problem: RebalanceProblem, rows: Sequence[Rows]) -> str | None:
@@ -177,13 +193,14 @@ def solve(problem: RebalanceProblem, rows: Sequence[Rows], warm: WarmBox | None 
         return None
     build = time.perf_counter() - start
     sol = None
-    if warm is not None and warm.state is not None and not warm.failed:
-        sol = _ipm.solve(tr.qp, warm=warm.state)
-        warm.failed = not sol.converged
-    elif warm is not None:
-        warm.failed = False
-    if sol is None or not sol.converged:
-        sol = _ipm.solve(tr.qp)
+    with _blas_limit():
+        if warm is not None and warm.state is not None and not warm.failed:
+            sol = _ipm.solve(tr.qp, warm=warm.state)
+            warm.failed = not sol.converged
+        elif warm is not None:
+            warm.failed = False
+        if sol is None or not sol.converged:
+            sol = _ipm.solve(tr.qp)
     if warm is not None and sol.converged:
         warm.state = sol.warm
     return Answer(

@@ -209,7 +209,7 @@ class RebalanceProblem:
                     continue
                 sol = answer.solution
                 attempts.append(_solve.Attempt(solver, sol.status, sol.iterations, time.perf_counter() - start, "",
-                                               dict(_fast.SETTINGS)))
+                                               _fast.settings()))
                 if not sol.converged:
                     rejected.append(f"{name}: {sol.status}")
                     continue

@@ -55,6 +55,9 @@ SOLVER_SETTINGS: dict[str, dict[str, Any]] = {
         "max_iter": 500,
     },
     "SCS": {"eps_abs": 1e-9, "eps_rel": 1e-9, "max_iters": 100_000},
+    # BLAS threads while FACTOR_IPM runs (None: leave the process's setting). Its products are a few
+    # ms each; on two cores a second thread made every measured size slower (docs/performance.md)
+    FACTOR_IPM: {"blas_threads": 1},
 }
 
 #: Tries of the same solver after its settings, in order, while its answer is not ``optimal`` or
