@@ -268,7 +268,7 @@ def test_re_solves_of_a_built_problem_use_it_too():
     assert te["value"] <= 0.01 * (1 + 1e-6) and te["binding"]
 
 
-def test_warm_starts_follow_limit_changes_only():
+def test_warm_starts_follow_every_change_but_a_new_alpha(monkeypatch):
     fund = make_fund(60, 4, seed=73)
     scenario = {"objective": {"maximize": "utility", "risk_aversion": 5},
                 "constraints": {"fully_invested": True, "long_only": True, "tracking_error": {"max": 0.02}}}
@@ -277,7 +277,24 @@ def test_warm_starts_follow_limit_changes_only():
     assert problem.warm.state is not None
     assert problem.update(limits={"tracking_error.max": 0.015}).warm is problem.warm
     assert problem.update(risk_aversion=8.0).warm is problem.warm
+    assert problem.update(holdings=fund.benchmark).warm is problem.warm
     assert problem.update(alpha=fund.alpha * 0.5).warm is not problem.warm
+    # new holdings: the previous weights are re-expressed as trades from them, and the warm run
+    # reaches the cold solve's answer
+    runs = []
+    original = _ipm.solve
+
+    def recording(qp, **kwargs):
+        solution = original(qp, **kwargs)
+        runs.append((kwargs.get("warm") is not None, solution.converged))
+        return solution
+
+    monkeypatch.setattr(_ipm, "solve", recording)
+    moved = problem.solve(holdings=fund.benchmark)
+    assert runs == [(True, True)]
+    fresh = rebalance(fund.model, scenario, **(fund.kwargs() | {"holdings": fund.benchmark}))
+    np.testing.assert_allclose(moved.weights.to_numpy(), fresh.weights.to_numpy(), atol=1e-6)
+    assert moved.objective["total"] == pytest.approx(fresh.objective["total"], rel=1e-8)
     # a warm-started re-solve reaches the cold solve's answer
     warm = problem.solve(limits={"tracking_error.max": 0.015})
     cold = rebalance(fund.model, {**scenario, "constraints": {**scenario["constraints"], "tracking_error": {"max": 0.015}}},

@@ -168,6 +168,8 @@ class Warm:
     zu: np.ndarray
     nu: np.ndarray
     scale: float
+    #: the holdings of the run's problem: with other holdings the same weights are other trades
+    w0: np.ndarray | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -304,10 +306,16 @@ class _Run:
         """
         qp = self.qp
         cold = self.x
+        previous = warm.x
+        if warm.w0 is not None and not np.array_equal(warm.w0, qp.w0):
+            # the previous weights, reached from the new holdings
+            n = self.n
+            w = warm.w0 + previous[:n] - previous[n:]
+            previous = np.concatenate([np.maximum(w - qp.w0, 0.0), np.maximum(qp.w0 - w, 0.0)])
         floor = WARM_GAP * np.where(np.isfinite(cold - qp.lb), cold - qp.lb, 1.0)
         lo = qp.lb + np.minimum(floor, 0.5 * (qp.ub - qp.lb))
         hi = qp.ub - np.minimum(floor, 0.5 * (qp.ub - qp.lb))
-        x = np.where(self.free, np.clip(warm.x, np.where(self.has_lb, lo, -np.inf), np.where(self.has_ub, hi, np.inf)),
+        x = np.where(self.free, np.clip(previous, np.where(self.has_lb, lo, -np.inf), np.where(self.has_ub, hi, np.inf)),
                      cold)
         self.x = x
         h = self.evaluate()
@@ -570,7 +578,7 @@ class _Run:
             bound_upper=self.zu * scale, bound_lower=self.zl * scale, reduced_gradient=g * scale,
             residuals={k: v for k, v in res.items() if k != "objective"},
             warm=Warm(self.x.copy(), self.s.copy(), self.z.copy(), self.zl.copy(), self.zu.copy(), self.nu.copy(),
-                      self.scale),
+                      self.scale, qp.w0.copy()),
         )
 
 
