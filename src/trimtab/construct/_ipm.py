@@ -655,11 +655,18 @@ class _Newton:
         self.a, self.b, self.c = np.where(fixed[:n], 0.0, a), b, np.where(fixed[n:], 0.0, c)
         # inverse blocks [[p, q], [q, r]]
         self.p, self.q, self.r = c / det, -b / det, a / det
-        evals, evecs = np.linalg.eigh(0.5 * (S + S.T))
-        keep = evals > max(evals.max(initial=0.0), 0.0) * 1e-14
         self.B = B
-        self.R = evecs[:, keep] * np.sqrt(evals[keep])
-        self.s_max = float(evals.max(initial=0.0))
+        S = 0.5 * (S + S.T)
+        try:
+            # any R with R·Rᵀ = S will do: Cholesky when S is definite (a tenth of eigh's time) ...
+            self.R = np.linalg.cholesky(S)
+            self.s_max = float(np.trace(S))  # ≥ its largest eigenvalue: a bound is all _choose_split needs
+        except np.linalg.LinAlgError:
+            # ... else the eigenvectors of its positive eigenvalues (no factor term, or a rank-deficient one)
+            evals, evecs = np.linalg.eigh(S)
+            keep = evals > max(evals.max(initial=0.0), 0.0) * 1e-14
+            self.R = evecs[:, keep] * np.sqrt(evals[keep])
+            self.s_max = float(evals.max(initial=0.0))
         self.b_norm2 = np.einsum("ij,ij->i", B, B)
         self.split = np.zeros(0, dtype=np.intp)
 
