@@ -30,7 +30,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab import FactorModel
-from trimtab.construct import build_problem
+from trimtab.construct import SOLVER_SETTINGS, build_problem
 
 
 def random_model(n_assets: int, n_factors: int, seed: int = 0) -> FactorModel:
@@ -110,7 +110,8 @@ def sweep_benchmark(n_points: int, n_assets: int, n_factors: int, baseline_point
     caps = [float(x) for x in np.linspace(0.01, 0.05, n_points)]
     grid = {"tracking_error.max": caps}
     print(f"Load average before the run: {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores; "
-          f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS', 'unset')}")
+          f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS', 'unset')}; FACTOR_IPM blas_threads="
+          f"{SOLVER_SETTINGS.get('FACTOR_IPM', {}).get('blas_threads')}")
     print(f"Sweep of {n_points} TE caps at N = {n_assets:,}, K = {n_factors} (one process)")
     sweep(model, scenario, {"tracking_error.max": caps[:1]}, **book)  # warm-up (imports, first compile), not timed
     start = time.perf_counter()
