@@ -18,6 +18,14 @@ def portfolio_risk(seed: int) -> dict[str, float]:
     return {"variance": float(model.variance(w)), "dense": float(w @ model.covariance() @ w)}
 
 
+def portfolio_risk_on(seed: int, model) -> dict[str, float]:
+    """:func:`portfolio_risk` on a model every run shares (the executor's ``shared``)."""
+    if seed < 0:
+        raise InputError(f"portfolio_risk_on: seed must be ≥ 0, got {seed}")
+    w = np.random.default_rng(seed + 1000).dirichlet(np.ones(model.n_assets))
+    return {"variance": float(model.variance(w)), "dense": float(w @ model.covariance() @ w)}
+
+
 class ClosedFormResult:
     """What the backtest reads from a rebalance result: the target weights."""
 

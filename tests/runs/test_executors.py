@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import sys
+import time
 
 import pytest
 
-from tests.runs._tasks import portfolio_risk
+from tests.conftest import random_model
+from tests.runs._tasks import portfolio_risk, portfolio_risk_on
 from trimtab.errors import InputError
 from trimtab.runs import Outcome, get_executor
 from trimtab.runs._executors import CLOSE_TIMEOUT, STARTUP_TIMEOUT, format_failure, local_cluster_options, resolve_kind
@@ -35,10 +37,28 @@ def _check(outcomes: dict[str, Outcome]) -> None:
         assert o.value["variance"] == pytest.approx(o.value["dense"], rel=1e-12)
 
 
+SHARED = random_model(n_assets=40, n_factors=3, seed=11)
+
+
+def _collect_shared(executor) -> dict[str, Outcome]:
+    """The same seeds on one model passed once as ``shared`` (scattered to Dask workers)."""
+    return {o.label: o for o in executor.map(portfolio_risk_on, SEEDS, labels=[f"seed{s}" for s in SEEDS], shared=SHARED)}
+
+
+def _check_shared(outcomes: dict[str, Outcome], executor_kind: str) -> None:
+    expected = {f"seed{s}": portfolio_risk_on(s, SHARED) for s in SEEDS if s >= 0}
+    for label, value in expected.items():
+        assert outcomes[label].ok and outcomes[label].value == value, executor_kind
+        # the factor form against the dense quadratic form (textbook identity Σ = BFBᵀ + D)
+        assert value["variance"] == pytest.approx(value["dense"], rel=1e-12)
+    assert outcomes["seed-3"].error == "InputError: portfolio_risk_on: seed must be ≥ 0, got -3"
+
+
 @pytest.fixture(scope="module")
 def reference() -> dict[str, Outcome]:
     with get_executor("inprocess") as ex:
         outcomes = _collect(ex)
+        _check_shared(_collect_shared(ex), "inprocess")
     _check(outcomes)
     return outcomes
 
@@ -61,6 +81,7 @@ def test_process_pool_gives_identical_outcomes(reference: dict[str, Outcome]) ->
     with get_executor("processes", workers=2) as ex:
         assert ex.n_workers == 2
         _same(_collect(ex), reference)
+        _check_shared(_collect_shared(ex), "processes")
 
 
 @pytest.fixture
@@ -92,6 +113,12 @@ def test_dask_cluster_on_loopback_gives_identical_outcomes(reference: dict[str, 
             ex.client.wait_for_workers(2, timeout=STARTUP_TIMEOUT)
             assert ex.n_workers == 2
             _same(_collect(ex), reference)
+            _check_shared(_collect_shared(ex), "dask")
+            # the scattered model is released with the run (the scheduler forgets it a moment later)
+            deadline = time.monotonic() + STARTUP_TIMEOUT
+            while any(key.startswith("FactorModel") for key in ex.client.who_has()) and time.monotonic() < deadline:
+                time.sleep(0.05)
+            assert not any(key.startswith("FactorModel") for key in ex.client.who_has())
             hosts = {w.split("://")[1].rsplit(":", 1)[0] for w in ex.client.scheduler_info()["workers"]}
             assert hosts == {"127.0.0.1"}
         assert ex.client.status == "closed"

@@ -131,6 +131,8 @@ class TwoWorkers(InProcessExecutor):
         return 2
 
     def map(self, func, items, **kwargs):
+        if "shared" in kwargs:
+            kwargs["shared"] = pickle.loads(pickle.dumps(kwargs["shared"]))
         return super().map(func, [pickle.loads(pickle.dumps(item)) for item in items], **kwargs)
 
 

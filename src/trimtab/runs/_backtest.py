@@ -180,10 +180,16 @@ class BacktestResult:
 # ---------------------------------------------------------------------------------------------
 @dataclass(frozen=True, eq=False)
 class PathTask:
-    """Everything one scenario path needs; sent whole to a worker."""
+    """What is one scenario path's own: its name and scenario."""
 
     name: str
     scenario: Mapping[str, Any]
+
+
+@dataclass(frozen=True, eq=False)
+class PathInputs:
+    """What every scenario path of a backtest reads alike (sent once to each worker)."""
+
     asset_returns: pd.DataFrame
     factor_returns: pd.DataFrame | None
     alpha_history: pd.DataFrame
@@ -252,39 +258,39 @@ def _euler(model: FactorModel, active: np.ndarray) -> tuple[np.ndarray, float, f
     return x, sigma, specific / sigma
 
 
-def run_path(task: PathTask) -> PathResult:
+def run_path(task: PathTask, inputs: PathInputs) -> PathResult:
     """Walk one scenario forward through its rebalance dates (sequential in time).
 
     At each date t: fit on the trailing window of rows ≤ t; rebalance from the drifted book with
     the alpha and benchmark known at t; then hold through the rows after t up to the next date.
     """
-    rebalance = task.rebalance
+    rebalance = inputs.rebalance
     if rebalance is None:
         from trimtab.construct import rebalance as default_rebalance
 
         rebalance = default_rebalance
-    returns, dates = task.asset_returns, task.dates
-    holdings: pd.Series | None = task.initial_holdings
+    returns, dates = inputs.asset_returns, inputs.dates
+    holdings: pd.Series | None = inputs.initial_holdings
     records, exposures, contributions, weights = [], [], [], {}
     for k, date in enumerate(dates):
         view = AsOf(returns, date)
-        window_returns = view.tail(task.window)
+        window_returns = view.tail(inputs.window)
         window_factors = None
-        if task.factor_returns is not None:
-            window_factors = AsOf(task.factor_returns, date).tail(task.window).reindex(window_returns.index)
+        if inputs.factor_returns is not None:
+            window_factors = AsOf(inputs.factor_returns, date).tail(inputs.window).reindex(window_returns.index)
         with warnings.catch_warnings():
             # assets the estimator drops (too few returns in the window) are counted in n_dropped,
             # not warned about once per date
             warnings.simplefilter("ignore", DataWarning)
-            model = fit_window(task.fit, window_returns, window_factors)
+            model = fit_window(inputs.fit, window_returns, window_factors)
         report = getattr(model, "fit_report", None)
         n_dropped = int(len(report.dropped)) if report is not None else 0
         assets = model.assets
-        alpha_row = AsOf(task.alpha_history, date).last()
+        alpha_row = AsOf(inputs.alpha_history, date).last()
         alpha = (alpha_row if alpha_row is not None else pd.Series(0.0, index=assets)).reindex(assets).fillna(0.0)
         bench = None
-        if task.benchmark is not None:
-            row = AsOf(task.benchmark, date).last()
+        if inputs.benchmark is not None:
+            row = AsOf(inputs.benchmark, date).last()
             if row is None:
                 raise InputError(f"backtest: benchmark has no row dated on or before {date}")
             row = row.fillna(0.0)
@@ -298,10 +304,10 @@ def run_path(task: PathTask) -> PathResult:
         before = holdings.reindex(assets.union(holdings.index)).fillna(0.0)
         start = holdings.reindex(assets).fillna(0.0)
         kwargs: dict[str, Any] = {"holdings": start, "benchmark": bench, "alpha": alpha}
-        if task.attributes is not None:
-            kwargs["attributes"] = task.attributes.reindex(assets)
-        if task.nav is not None:
-            kwargs["nav"] = task.nav
+        if inputs.attributes is not None:
+            kwargs["attributes"] = inputs.attributes.reindex(assets)
+        if inputs.nav is not None:
+            kwargs["nav"] = inputs.nav
         try:
             result = rebalance(model, dict(task.scenario), **kwargs)
             target, status = result.weights.reindex(assets).fillna(0.0).astype(np.float64), "solved"
@@ -312,8 +318,8 @@ def run_path(task: PathTask) -> PathResult:
         trade = target.reindex(before.index).fillna(0.0) - before
         abs_trade = trade.abs()
         cost = float(
-            (task.costs.reindex(abs_trade.index).fillna(0.0) * abs_trade).sum()
-            + (task.impact.reindex(abs_trade.index).fillna(0.0) * abs_trade**1.5).sum()
+            (inputs.costs.reindex(abs_trade.index).fillna(0.0) * abs_trade).sum()
+            + (inputs.impact.reindex(abs_trade.index).fillna(0.0) * abs_trade**1.5).sum()
         )
         active = target.to_numpy() - (bench.to_numpy() if bench is not None else 0.0)
         x, sigma, specific_part = _euler(model, active)
@@ -529,19 +535,17 @@ def backtest(
             bench_frame = pd.DataFrame([benchmark.astype(np.float64)], index=returns.index[:1])
         else:
             bench_frame = _dated(benchmark, "benchmark")
-    tasks = [
-        PathTask(
-            name=str(name), scenario=spec, asset_returns=returns, factor_returns=factors, alpha_history=alpha,
-            benchmark=bench_frame, initial_holdings=initial_holdings, attributes=attributes, nav=nav, dates=dates,
-            window=int(window), fit=fit, costs=_rates(costs, "costs", returns.columns),
-            impact=_rates(impact, "impact", returns.columns), rebalance=rebalance,
-        )
-        for name, spec in scenarios.items()
-    ]
+    tasks = [PathTask(name=str(name), scenario=spec) for name, spec in scenarios.items()]
+    inputs = PathInputs(
+        asset_returns=returns, factor_returns=factors, alpha_history=alpha, benchmark=bench_frame,
+        initial_holdings=initial_holdings, attributes=attributes, nav=nav, dates=dates, window=int(window), fit=fit,
+        costs=_rates(costs, "costs", returns.columns), impact=_rates(impact, "impact", returns.columns),
+        rebalance=rebalance,
+    )
     runner = executor if executor is not None else InProcessExecutor()
     done: dict[str, PathResult] = {}
     failures: dict[str, str] = {}
-    for outcome in runner.map(run_path, tasks, labels=[t.name for t in tasks], progress=progress):
+    for outcome in runner.map(run_path, tasks, labels=[t.name for t in tasks], progress=progress, shared=inputs):
         if outcome.ok:
             done[outcome.label] = outcome.value
         else:

@@ -56,14 +56,19 @@ def _describe(err: BaseException) -> str:
     return f"{type(err).__name__}: {text[0]}" if text else type(err).__name__
 
 
-def call_safely(func: Callable[[Any], Any], item: Any) -> tuple[bool, Any]:
-    """Run ``func(item)``; return ``(True, value)`` or ``(False, "Type: message")``.
+#: ``shared`` not given (None is a value a caller may share)
+NOTHING: Any = object()
+
+
+def call_safely(func: Callable[..., Any], item: Any, shared: Any = NOTHING) -> tuple[bool, Any]:
+    """Run ``func(item)`` (``func(item, shared)`` with ``shared``); return ``(True, value)`` or
+    ``(False, "Type: message")``.
 
     Runs where the work runs (a pool process, a Dask worker), so an exception that does not pickle
     still comes back as text.
     """
     try:
-        return True, func(item)
+        return True, (func(item) if shared is NOTHING else func(item, shared))
     except Exception as err:  # noqa: BLE001 - every failure becomes a reported outcome
         return False, _describe(err)
 
@@ -92,25 +97,30 @@ class Executor:
 
     def map(
         self,
-        func: Callable[[Any], Any],
+        func: Callable[..., Any],
         items: Iterable[Any],
         *,
         labels: Sequence[str] | None = None,
         progress: Callable[[Outcome], None] | None = None,
+        shared: Any = NOTHING,
     ) -> Iterator[Outcome]:
         """Run ``func`` on every item; yield each :class:`Outcome` as it completes.
 
         Parameters
         ----------
         func : callable
-            A function of one argument; for ``processes`` and ``dask`` it must be importable by
-            name (a module-level function) and its items and results picklable.
+            A function of one argument (two with ``shared``); for ``processes`` and ``dask`` it
+            must be importable by name (a module-level function) and its items and results picklable.
         items : iterable
             The parameters of each run.
         labels : sequence of str, optional
             One label per item (default: the positions ``"0"``, ``"1"``, ...).
         progress : callable, optional
             Called with each outcome as it arrives (a progress bar's ``advance``).
+        shared : optional
+            What every run needs alike (the return history of a backtest, the model of a sweep):
+            called as ``func(item, shared)``. A Dask cluster receives it once, scattered to every
+            worker, instead of once inside every task; a process pool still pickles it per run.
 
         Returns
         -------
@@ -124,14 +134,14 @@ class Executor:
         """
         listed = list(items)
         names = _labels(labels, len(listed))
-        for outcome in self._run(func, listed, names):
+        for outcome in self._run(func, listed, names, shared):
             if progress is not None:
                 progress(outcome)
             yield outcome
 
-    def _run(self, func: Callable[[Any], Any], items: list[Any], labels: list[str]) -> Iterator[Outcome]:
+    def _run(self, func: Callable[..., Any], items: list[Any], labels: list[str], shared: Any) -> Iterator[Outcome]:
         for i, item in enumerate(items):
-            ok, value = call_safely(func, item)
+            ok, value = call_safely(func, item, shared)
             yield _outcome(labels, items, i, ok, value)
 
 
@@ -171,8 +181,10 @@ class ProcessPoolRunner(Executor):
     def close(self) -> None:
         self._pool.shutdown(wait=True, cancel_futures=True)
 
-    def _run(self, func: Callable[[Any], Any], items: list[Any], labels: list[str]) -> Iterator[Outcome]:
-        futures = {self._pool.submit(call_safely, func, item): i for i, item in enumerate(items)}
+    def _run(self, func: Callable[..., Any], items: list[Any], labels: list[str], shared: Any) -> Iterator[Outcome]:
+        # NOTHING does not survive pickling as itself: pass ``shared`` only when there is one
+        extra = () if shared is NOTHING else (shared,)
+        futures = {self._pool.submit(call_safely, func, item, *extra): i for i, item in enumerate(items)}
         for future in cf.as_completed(futures):
             i = futures[future]
             try:
@@ -228,17 +240,25 @@ class DaskRunner(Executor):
             if self._cluster is not None:
                 self._cluster.close(timeout=CLOSE_TIMEOUT)
 
-    def _run(self, func: Callable[[Any], Any], items: list[Any], labels: list[str]) -> Iterator[Outcome]:
-        futures = [self._client.submit(call_safely, func, item, pure=False, key=f"trimtab-{labels[i]}-{id(self)}-{i}") for i, item in enumerate(items)]
-        index = {f.key: i for i, f in enumerate(futures)}
-        for future in self._as_completed(futures):
-            i = index[future.key]
-            try:
-                ok, value = future.result()
-            except Exception as err:  # noqa: BLE001 - a lost worker or a pickling failure
-                ok, value = False, _describe(err)
-            future.release()
-            yield _outcome(labels, items, i, ok, value)
+    def _run(self, func: Callable[..., Any], items: list[Any], labels: list[str], shared: Any) -> Iterator[Outcome]:
+        # the shared part travels once to each worker, not inside every task of the graph
+        handle = None if shared is NOTHING else self._client.scatter(shared, broadcast=True, hash=False)
+        extra = () if handle is None else (handle,)
+        try:
+            futures = [self._client.submit(call_safely, func, item, *extra, pure=False,
+                                           key=f"trimtab-{labels[i]}-{id(self)}-{i}") for i, item in enumerate(items)]
+            index = {f.key: i for i, f in enumerate(futures)}
+            for future in self._as_completed(futures):
+                i = index[future.key]
+                try:
+                    ok, value = future.result()
+                except Exception as err:  # noqa: BLE001 - a lost worker or a pickling failure
+                    ok, value = False, _describe(err)
+                future.release()
+                yield _outcome(labels, items, i, ok, value)
+        finally:
+            if handle is not None:
+                handle.release()
 
 
 #: Seconds to wait for a new LocalCluster's workers, and for a client or cluster to close. Generous:

@@ -140,11 +140,17 @@ def _value_text(value: Any) -> str:
 # ---------------------------------------------------------------------------------------------
 @dataclass(frozen=True, eq=False)
 class SweepTask:
-    """A chunk of points sharing one built problem; sent whole to a worker."""
+    """A chunk of points sharing one built problem."""
+
+    points: tuple[dict[str, Any], ...]
+
+
+@dataclass(frozen=True, eq=False)
+class SweepInputs:
+    """What every chunk of a sweep reads alike (sent once to each worker)."""
 
     model: FactorModel
     scenario: Mapping[str, Any]
-    points: tuple[dict[str, Any], ...]
     inputs: Mapping[str, Any]
     reuse: bool = True
     keep_results: bool = False
@@ -204,13 +210,13 @@ def figures(model: FactorModel, result: Any, inputs: Mapping[str, Any]) -> dict[
     return row
 
 
-def run_chunk(task: SweepTask) -> list[dict[str, Any]]:
+def run_chunk(task: SweepTask, shared: SweepInputs) -> list[dict[str, Any]]:
     """Solve a chunk: build the problem for its first point, re-solve it for the others.
 
     A point whose values cannot be a re-solve (a structural change) is solved afresh; an
     infeasible point, a solver failure or bad values are recorded in its row.
     """
-    build = task.build
+    build = shared.build
     if build is None:
         from trimtab.construct import build_problem
 
@@ -225,9 +231,9 @@ def run_chunk(task: SweepTask) -> list[dict[str, Any]]:
         keys = frozenset(point)
         try:
             result = None
-            if task.reuse and problem is not None and keys not in unreachable:
+            if shared.reuse and problem is not None and keys not in unreachable:
                 try:
-                    result = _resolve(problem, _re_solve_arguments(task.scenario, point))
+                    result = _resolve(problem, _re_solve_arguments(shared.scenario, point))
                     row["built"] = False
                 except (_Rebuild, ScenarioError):
                     # not a change the built problem can take (a structural change, or a key path
@@ -235,11 +241,11 @@ def run_chunk(task: SweepTask) -> list[dict[str, Any]]:
                     unreachable.add(keys)
                     result = None
             if result is None:
-                problem = build(task.model, apply_point(task.scenario, point), **task.inputs)
+                problem = build(shared.model, apply_point(shared.scenario, point), **shared.inputs)
                 result = _resolve(problem, {})
                 row["built"] = True
-            row.update(status="solved", **figures(task.model, result, task.inputs))
-            if task.keep_results:
+            row.update(status="solved", **figures(shared.model, result, shared.inputs))
+            if shared.keep_results:
                 row["result"] = result
         except InfeasibleError as err:
             row.update(status="infeasible", error=_first_line(err))
@@ -383,10 +389,12 @@ def sweep(
     inputs = {k: v for k, v in inputs.items() if v is not None or k == "benchmark"}
     runner = executor if executor is not None else InProcessExecutor()
     parts = chunks(points, runner.n_workers)
-    tasks = [SweepTask(model, dict(scenario), part, inputs, reuse, keep_results, build) for part in parts]
+    tasks = [SweepTask(part) for part in parts]
+    shared = SweepInputs(model, dict(scenario), inputs, reuse, keep_results, build)
     order = {point_label(p): i for i, p in enumerate(points)}
     rows: list[dict[str, Any]] = []
-    for outcome in runner.map(run_chunk, tasks, labels=[f"chunk{i}" for i in range(len(tasks))], progress=progress):
+    for outcome in runner.map(run_chunk, tasks, labels=[f"chunk{i}" for i in range(len(tasks))], progress=progress,
+                              shared=shared):
         if outcome.ok:
             rows.extend(outcome.value)
         else:
