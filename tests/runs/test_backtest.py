@@ -196,6 +196,31 @@ def test_scenarios_side_by_side_through_a_process_pool(market: Market) -> None:
     assert "bold:" in local.summary() and "calm:" in local.summary()
 
 
+def test_paths_in_one_process_fit_each_date_once_with_the_same_history(market: Market, monkeypatch) -> None:
+    import trimtab.runs._backtest as bt
+
+    scenarios = {"bold": {"objective": {"risk_aversion": 10.0}}, "calm": {"objective": {"risk_aversion": 80.0}}}
+    common = dict(window=250, frequency=60, factor_returns=market.factors, benchmark=market.benchmark,
+                  rebalance=closed_form_rebalance)
+    fits = []
+    original = bt.fit_window
+    monkeypatch.setattr(bt, "fit_window", lambda *a: fits.append(1) or original(*a))
+    shared = backtest(market.returns, market.alpha, scenarios, **common)  # trimtab's estimator: cached
+    dates = shared.settings["rebalance_dates"]
+    assert len(fits) == len(dates)  # not once per path
+    # a callable fit is not cached (it need not be deterministic): every path fits every date
+    fits.clear()
+    separate = backtest(market.returns, market.alpha, scenarios, fit=lambda r, f: fit_time_series(r, f), **common)
+    assert len(fits) == 2 * len(dates)
+    pd.testing.assert_frame_equal(shared.history, separate.history)
+    # with no room in the cache the paths fit for themselves, and nothing changes
+    fits.clear()
+    monkeypatch.setattr(bt, "MODEL_CACHE_BYTES", 0)
+    uncached = backtest(market.returns, market.alpha, scenarios, **common)
+    assert len(fits) == 2 * len(dates)
+    pd.testing.assert_frame_equal(shared.history, uncached.history)
+
+
 def infeasible_on_odd_dates(model, scenario, *, holdings, benchmark, alpha, **kwargs):
     if int(round(alpha.abs().sum() * 1e6)) % 2:
         raise InfeasibleError("tracking_error.max 0.001 conflicts with weight.min")

@@ -203,6 +203,41 @@ class PathInputs:
     costs: pd.Series
     impact: pd.Series
     rebalance: Callable[..., Any] | None
+    #: models fitted so far by the paths run in this process (in process, or on one worker): every
+    #: path fits the same windows, so each date is fitted once. Only for trimtab's own estimators
+    #: (deterministic), up to MODEL_CACHE_BYTES; never pickled.
+    cache: dict[Any, FactorModel] = field(default_factory=dict, repr=False)
+
+    def __getstate__(self) -> dict[str, Any]:
+        return {**self.__dict__, "cache": {}}
+
+    def model_at(self, date: Any) -> FactorModel:
+        """The model fitted on the trailing window ending at ``date`` (once per process, where it can be)."""
+        known = self.cache.get(date)
+        if known is not None:
+            return known
+        window_returns = AsOf(self.asset_returns, date).tail(self.window)
+        window_factors = None
+        if self.factor_returns is not None:
+            window_factors = AsOf(self.factor_returns, date).tail(self.window).reindex(window_returns.index)
+        with warnings.catch_warnings():
+            # assets the estimator drops (too few returns in the window) are counted in n_dropped,
+            # not warned about once per date
+            warnings.simplefilter("ignore", DataWarning)
+            model = fit_window(self.fit, window_returns, window_factors)
+        # a callable fit need not be deterministic: only trimtab's own estimators are cached
+        if not callable(self.fit) and sum(map(_model_bytes, self.cache.values())) + _model_bytes(model) <= MODEL_CACHE_BYTES:
+            self.cache[date] = model
+        return model
+
+
+#: Memory the fitted models of one backtest may hold in one process.
+MODEL_CACHE_BYTES = 256 * 2**20
+
+
+def _model_bytes(model: FactorModel) -> int:
+    n, k = model.n_assets, model.n_factors
+    return 8 * (n * k + k * k + n)
 
 
 @dataclass(frozen=True, eq=False)
@@ -274,15 +309,7 @@ def run_path(task: PathTask, inputs: PathInputs) -> PathResult:
     records, exposures, contributions, weights = [], [], [], {}
     for k, date in enumerate(dates):
         view = AsOf(returns, date)
-        window_returns = view.tail(inputs.window)
-        window_factors = None
-        if inputs.factor_returns is not None:
-            window_factors = AsOf(inputs.factor_returns, date).tail(inputs.window).reindex(window_returns.index)
-        with warnings.catch_warnings():
-            # assets the estimator drops (too few returns in the window) are counted in n_dropped,
-            # not warned about once per date
-            warnings.simplefilter("ignore", DataWarning)
-            model = fit_window(inputs.fit, window_returns, window_factors)
+        model = inputs.model_at(date)
         report = getattr(model, "fit_report", None)
         n_dropped = int(len(report.dropped)) if report is not None else 0
         assets = model.assets
