@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import sys
+import threading
 import time
 
 import pytest
@@ -119,6 +120,10 @@ def test_dask_cluster_on_loopback_gives_identical_outcomes(reference: dict[str, 
             while any(key.startswith("FactorModel") for key in ex.client.who_has()) and time.monotonic() < deadline:
                 time.sleep(0.05)
             assert not any(key.startswith("FactorModel") for key in ex.client.who_has())
+            # shared inputs that cannot be sent fail every run with the reason, not with a traceback
+            failed = list(ex.map(portfolio_risk_on, [0, 1], shared=threading.Lock()))
+            assert [o.ok for o in failed] == [False, False]
+            assert all(o.error.startswith("the shared inputs could not be sent: ") for o in failed)
             hosts = {w.split("://")[1].rsplit(":", 1)[0] for w in ex.client.scheduler_info()["workers"]}
             assert hosts == {"127.0.0.1"}
         assert ex.client.status == "closed"

@@ -79,8 +79,9 @@ WARM_MU = 1e-1
 REFINE = 3
 #: ... stopping once the residual is below this fraction of the right-hand side.
 REFINE_TOL = 1e-10
-#: Assets whose term Bdᵢ⁻¹·‖Uᵢ‖² in the Newton matrix exceeds SPLIT_WEIGHT are solved densely
-#: (at most MAX_SPLIT of them, the largest), not through Woodbury; see _Newton.
+#: Assets whose term Bdᵢ⁻¹·‖Uᵢ‖² in the Newton matrix exceeds SPLIT_WEIGHT are solved densely, not
+#: through Woodbury, when there are at most MAX_SPLIT of them (more share the large terms between
+#: them, and Woodbury is then accurate); see _Newton.
 SPLIT_WEIGHT = 1e6
 MAX_SPLIT = 100
 #: A cap's slack is reset to −h(x) when −h(x) is at least this fraction of it.
@@ -636,8 +637,8 @@ class _Newton:
     Woodbury alone is unstable once some assets' blocks are tiny against their share of U·Uᵀ: in a
     linear-like problem near its end, an asset strictly inside its box has barrier terms ~1e-9 while
     the binding rows weigh ~1e10, and H⁻¹·r is then the difference of two numbers 1e9 times larger
-    than itself. Those assets (the set I, at most MAX_SPLIT of them, chosen by the size of their
-    term Bdᵢ⁻¹·‖Uᵢ‖²) are taken out of the Woodbury part and solved densely: with A the others,
+    than itself. Those assets (the set I: the terms Bdᵢ⁻¹·‖Uᵢ‖² above SPLIT_WEIGHT, when there are
+    at most MAX_SPLIT of them) are taken out of the Woodbury part and solved densely: with A the others,
     M_A = I + U_AᵀBd_A⁻¹U_A and the Schur complement S_I = Bd_I + U_I·M_A⁻¹·U_Iᵀ (2|I| × 2|I|, SPD,
     formed without cancellation), H⁻¹ is applied by block elimination.
     """

@@ -125,8 +125,8 @@ class RebalanceProblem:
             data = fresh.with_changes(attributes=data.attributes,
                                       sold_outside=data.sold_outside if holdings is None else fresh.sold_outside)
         # a warm start pays for limit, λ, holdings and benchmark changes (measured at 1,000 × 20 to
-        # 5,000 × 50: 12–21 iterations against 18–28 cold, even for an unrelated new book); with a new
-        # alpha the old point costs iterations (30–33 against 21–23 cold), so that starts cold
+        # 5,000 × 50: 12–22 iterations against 18–28 cold, even for an unrelated new book); with a new
+        # alpha the old point costs iterations (28–33 against 19–23 cold), so that starts cold
         warm = self.warm if alpha is None else None
         return RebalanceProblem(spec, data, self.solvers, self.unknown_assets, warm)
 

@@ -242,7 +242,14 @@ class DaskRunner(Executor):
 
     def _run(self, func: Callable[..., Any], items: list[Any], labels: list[str], shared: Any) -> Iterator[Outcome]:
         # the shared part travels once to each worker, not inside every task of the graph
-        handle = None if shared is NOTHING else self._client.scatter(shared, broadcast=True, hash=False)
+        handle = None
+        if shared is not NOTHING:
+            try:
+                handle = self._client.scatter(shared, broadcast=True, hash=False)
+            except Exception as err:  # noqa: BLE001 - e.g. it does not pickle: every run fails alike
+                for i in range(len(items)):
+                    yield _outcome(labels, items, i, False, f"the shared inputs could not be sent: {_describe(err)}")
+                return
         extra = () if handle is None else (handle,)
         try:
             futures = [self._client.submit(call_safely, func, item, *extra, pure=False,
