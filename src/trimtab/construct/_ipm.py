@@ -261,6 +261,7 @@ class _Run:
         self.has_lb = self.free & np.isfinite(qp.lb)
         self.has_ub = self.free & np.isfinite(qp.ub)
         self.Gw = _row_columns(qp)
+        self.b_norm2 = np.einsum("ij,ij->i", qp.B, qp.B)
         self.at = qp.at
         self.Ay_fac = qp.Ay[rows.factor_only]
         self.n_rows = len(qp.lo)
@@ -436,7 +437,7 @@ class _Run:
         curvature = np.zeros(n)
         if qp.impact is not None:
             curvature = qp.impact * _impact(self.x[:n] + self.x[n:])[2] / self.scale
-        kkt = _Newton(qp.B, dW, S, barrier, self.fixed, n, curvature)
+        kkt = _Newton(qp.B, dW, S, barrier, self.fixed, n, curvature, self.b_norm2)
         gen = self.rows.general
         root = np.sqrt(rho_row[gen])
         root_caps = np.sqrt(rho[self.m_lin:])
@@ -644,7 +645,7 @@ class _Newton:
     """
 
     def __init__(self, B: np.ndarray, dW: np.ndarray, S: np.ndarray, barrier: np.ndarray, fixed: np.ndarray,
-                 n: int, curvature: np.ndarray) -> None:
+                 n: int, curvature: np.ndarray, b_norm2: np.ndarray | None = None) -> None:
         self.n = n
         self.fixed = fixed
         big = 1e30
@@ -668,7 +669,7 @@ class _Newton:
             keep = evals > max(evals.max(initial=0.0), 0.0) * 1e-14
             self.R = evecs[:, keep] * np.sqrt(evals[keep])
             self.s_max = float(evals.max(initial=0.0))
-        self.b_norm2 = np.einsum("ij,ij->i", B, B)
+        self.b_norm2 = np.einsum("ij,ij->i", B, B) if b_norm2 is None else b_norm2  # ‖bᵢ‖², per asset
         self.split = np.zeros(0, dtype=np.intp)
 
     def _choose_split(self, W: np.ndarray, T: np.ndarray) -> None:
