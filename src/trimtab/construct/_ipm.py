@@ -220,13 +220,14 @@ def _row_columns(qp: QP) -> np.ndarray:
 
 
 def _expand(w_part: np.ndarray, t_part: float | np.ndarray) -> np.ndarray:
-    """Eᵀ·w_part + 1·t_part: a w-space gradient plus a coefficient on 1ᵀ(u + v), in x-space."""
+    """Eᵀ·w_part + 1·t_part: a w-space gradient plus a coefficient on 1ᵀ(u + v), in x-space (also
+    column by column: w_part N × c, t_part c)."""
     return np.concatenate([w_part + t_part, -w_part + t_part])
 
 
-def _expand_columns(W: np.ndarray, T: np.ndarray) -> np.ndarray:
-    """:func:`_expand` for a matrix of columns (W: N × c, T: c)."""
-    return np.vstack([W + T[None, :], -W + T[None, :]])
+def _per_row(a: np.ndarray, like: np.ndarray) -> np.ndarray:
+    """A per-asset vector shaped to scale the rows of ``like`` (a vector, or a matrix of columns)."""
+    return a[:, None] if like.ndim == 2 else a
 
 
 def _step_to_boundary(v: np.ndarray, dv: np.ndarray) -> float:
@@ -688,17 +689,15 @@ class _Newton:
     def block_inverse(self, v: np.ndarray) -> np.ndarray:
         n = self.n
         top, bottom = v[:n], v[n:]
-        if v.ndim == 2:
-            return np.concatenate([self.p[:, None] * top + self.q[:, None] * bottom,
-                                   self.q[:, None] * top + self.r[:, None] * bottom])
-        return np.concatenate([self.p * top + self.q * bottom, self.q * top + self.r * bottom])
+        p, q, r = (_per_row(a, v) for a in (self.p, self.q, self.r))
+        return np.concatenate([p * top + q * bottom, q * top + r * bottom])
 
     def factor(self, W: np.ndarray, T: np.ndarray, W_eq: np.ndarray, T_eq: np.ndarray) -> None:
         """U = [Eᵀ·B·R, EᵀW + 1Tᵀ]; M_A = I + U_Aᵀ·Bd_A⁻¹·U_A by one product (Bᵀ·diag(δ1))·[B, W];
         the dense block S_I of the split assets; the Schur complement of the equality rows."""
         B, R, n = self.B, self.R, self.n
         kb, kx, ke = R.shape[1], W.shape[1], W_eq.shape[1]
-        self.Wx, self.Tx = W, T
+        self.Wx = W
         self.T = np.concatenate([np.zeros(kb), T])
         self._choose_split(W, T)
         I = self.split
@@ -728,7 +727,7 @@ class _Newton:
         self.W_eq, self.T_eq = W_eq, T_eq
         if ke:
             # Z = H⁻¹·A_eqᵀ and the Schur complement A_eq·H⁻¹·A_eqᵀ
-            Z = self.apply(_expand_columns(W_eq, T_eq))
+            Z = self.apply(_expand(W_eq, T_eq))
             Z[self.fixed] = 0.0
             self.Z = Z
             Zt, Zb = Z[:n], Z[n:]
@@ -767,9 +766,7 @@ class _Newton:
         n = self.n
         dv = v[:n] - v[n:]
         head = np.concatenate([self.R.T @ (self.B.T @ dv), self.Wx.T @ dv])
-        if v.ndim == 2:
-            return head + np.outer(self.T, v.sum(axis=0))
-        return head + self.T * v.sum()
+        return head + np.multiply.outer(self.T, v.sum(axis=0))
 
     def apply(self, r: np.ndarray) -> np.ndarray:
         """H⁻¹·r (r a vector or a matrix of columns)."""
@@ -781,11 +778,8 @@ class _Newton:
             x_I = la.cho_solve(self.chol_I, rhs, check_finite=False)
             c = c + la.cho_solve(self.chol, self.U_I.T @ x_I, check_finite=False)
         wc, tc = self.w_times(c), self.T @ c
-        if r.ndim == 2:
-            out = t - np.concatenate([self.pq[:, None] * wc + self.ppq[:, None] * tc[None, :],
-                                      self.qr[:, None] * wc + self.qpr[:, None] * tc[None, :]])
-        else:
-            out = t - np.concatenate([self.pq * wc + self.ppq * tc, self.qr * wc + self.qpr * tc])
+        pq, ppq, qr, qpr = (_per_row(a, r) for a in (self.pq, self.ppq, self.qr, self.qpr))
+        out = t - np.concatenate([pq * wc + ppq * tc, qr * wc + qpr * tc])
         if len(self.split):
             out[self.coords_I] = x_I
         return out
