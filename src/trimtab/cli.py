@@ -571,6 +571,8 @@ def _register_run_commands() -> None:
 
 
 _register_run_commands()
+from trimtab._cli_explore import register as _register_explore  # noqa: E402 - the live what-if page
+_register_explore(app)
 
 
 def _reflow_help() -> None:

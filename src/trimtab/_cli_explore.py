@@ -1,0 +1,84 @@
+"""``trimtab explore``: the live what-if page on this machine (registered from :mod:`trimtab.cli`).
+
+The web stack is imported only when the command runs, so the other commands start as fast as before.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+def explore(
+    ctx: typer.Context,
+    scenario: Annotated[Path, typer.Argument(help="A scenario YAML file.", metavar="SCENARIO.yaml", show_default=False)],
+    port: Annotated[int, typer.Option("--port", help="Port to listen on.", min=1, max=65535)] = 8765,
+    host: Annotated[str, typer.Option("--host", help="Address to listen on; anything but loopback exposes the page to your network.")] = "127.0.0.1",
+    no_browser: Annotated[bool, typer.Option("--no-browser", help="Do not open the page in a browser.", metavar="")] = False,
+) -> None:
+    """Open a scenario in a local page where the limits move and the portfolio answers.
+
+    Loads the scenario and builds its problem once, then serves a page on this machine: a control for
+    every limit, the re-solved portfolio after each change, a trail of the variants tried with their
+    alpha against tracking error, pinned variants side by side, and "Save as scenario", which writes
+    a new YAML file that extends this one with only the changed limits. The same engine answers the
+    HTTP API in docs/api.md. Ctrl-C stops it.
+    """
+    import threading
+    import webbrowser
+
+    import uvicorn
+
+    from trimtab.app import Explorer
+    from trimtab.app._server import create_app
+    from trimtab.cli import _ui
+
+    ui = _ui(ctx)
+    with ui.progress() as step:
+        step("reading the scenario and building the problem")
+        explorer = Explorer.open(scenario)
+        step("solving the scenario as written")
+        app = create_app(explorer)
+    url = f"http://{_url_host(host)}:{port}/"
+    if not _is_loopback(host):
+        sys.stderr.write(
+            f"trimtab: warning: listening on {host}: anyone who can reach this machine on port {port} can "
+            "see the portfolio and save scenario files; use --host 127.0.0.1 to keep it on this machine\n"
+        )
+    config = uvicorn.Config(app, host=host, port=port, log_level="warning", access_log=False, lifespan="off")
+    server = uvicorn.Server(config)
+    ui.say(f"Exploring {explorer.scenario.name} at {url}  (Ctrl-C stops)")
+    if not no_browser:
+        threading.Timer(1.0, lambda: webbrowser.open(url)).start()
+    server.run()
+    if not server.started:
+        from trimtab.errors import InputError
+
+        raise InputError(f"--port {port}: could not listen on {host}:{port} (in use, or not an address of this machine)")
+    ui.say("Stopped; nothing was written except the scenarios you saved.")
+
+
+def _is_loopback(host: str) -> bool:
+    import ipaddress
+
+    if host == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host).is_loopback
+    except ValueError:
+        return False
+
+
+def _url_host(host: str) -> str:
+    if host in ("0.0.0.0", "::"):
+        return "127.0.0.1"
+    return f"[{host}]" if ":" in host else host
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``explore`` to the command line (guarded like every command: one line per error)."""
+    from trimtab.cli import _guarded
+
+    app.command()(_guarded(explore))

@@ -1,0 +1,203 @@
+"""The HTTP side of ``trimtab explore``: the page, its two assets and a small JSON API (docs/api.md).
+
+Safety: only the package's own assets are served (a fixed list, no paths from the request);
+request bodies are capped (413 above :data:`MAX_BODY`); a POST must be JSON and, when the
+browser names its origin, come from this page; limit keys and values are checked against the
+scenario; solves run one at a time (the explorer's lock); only Save writes a file.
+"""
+
+from __future__ import annotations
+
+from importlib import resources
+from typing import Any
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import HTMLResponse, JSONResponse, Response
+from pydantic import BaseModel, ConfigDict, Field
+from starlette.types import ASGIApp, Message, Receive, Scope, Send
+
+from trimtab._version import __version__
+from trimtab.app._session import Explorer
+from trimtab.errors import TrimtabError
+
+#: Largest request body accepted, in bytes.
+MAX_BODY = 64 * 1024
+#: The files under /static/, with their media types: nothing else is ever read from disk.
+ASSETS = {"explore.js": "text/javascript; charset=utf-8", "explore.css": "text/css; charset=utf-8"}
+
+
+class SolveRequest(BaseModel):
+    """New values for some of the scenario's limits; the others keep the scenario's values."""
+
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
+
+    limits: dict[str, float | None] = Field(
+        default_factory=dict,
+        description="dotted key path → value, as `trimtab sweep` takes them (GET /api/scenario lists them); "
+        "null opens one side of a bound",
+        examples=[{"tracking_error.max": 0.02, "factor_exposure.bounds.momentum.1": 0.1}],
+    )
+    risk_aversion: float | None = Field(None, description="λ of a utility objective (same as limits.risk_aversion)")
+
+
+class SaveRequest(SolveRequest):
+    """A variant to save as a scenario file beside the explored one."""
+
+    name: str = Field(description="the new scenario's name and file name (letters, digits, - and _)", examples=["te_25bp"])
+
+
+class _TooLarge(Exception):
+    pass
+
+
+class BodyLimit:
+    """ASGI middleware: 413 for a request body over ``limit`` bytes (declared or streamed)."""
+
+    def __init__(self, app: ASGIApp, limit: int = MAX_BODY) -> None:
+        self.app = app
+        self.limit = limit
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["type"] != "http":
+            await self.app(scope, receive, send)
+            return
+        declared = dict(scope.get("headers") or []).get(b"content-length")
+        if declared is not None and (not declared.isdigit() or int(declared) > self.limit):
+            await _too_large(self.limit)(scope, receive, send)
+            return
+        received = 0
+        started = False
+
+        async def limited() -> Message:
+            nonlocal received
+            message = await receive()
+            if message["type"] == "http.request":
+                received += len(message.get("body", b""))
+                if received > self.limit:
+                    raise _TooLarge
+            return message
+
+        async def watch(message: Message) -> None:
+            nonlocal started
+            started = started or message["type"] == "http.response.start"
+            await send(message)
+
+        try:
+            await self.app(scope, limited, watch)
+        except _TooLarge:
+            if not started:
+                await _too_large(self.limit)(scope, receive, send)
+
+
+def _too_large(limit: int) -> Response:
+    return JSONResponse({"detail": f"request body over {limit // 1024} KiB"}, status_code=413)
+
+
+def create_app(explorer: Explorer) -> FastAPI:
+    """The web application serving ``explorer``: the page at ``/`` and the API under ``/api``."""
+    app = FastAPI(
+        title="trimtab explore",
+        version=__version__,
+        description="Re-solve one scenario with new limits. Model forecasts, not investment advice; verify "
+        "before trading; your firm's compliance and applicable regulation govern.",
+        docs_url=None,
+        redoc_url=None,
+    )
+    first = explorer.solve({})
+
+    @app.exception_handler(RequestValidationError)
+    async def _invalid(request: Request, exc: RequestValidationError) -> JSONResponse:
+        return JSONResponse({"detail": _one_line(exc.errors())}, status_code=422)
+
+    @app.exception_handler(TrimtabError)
+    async def _bad(request: Request, exc: TrimtabError) -> JSONResponse:
+        return JSONResponse({"detail": _first_line(exc, explorer)}, status_code=_status(exc))
+
+    @app.middleware("http")
+    async def _guard(request: Request, call_next: Any) -> Response:
+        if request.method == "POST":
+            kind = request.headers.get("content-type", "").split(";")[0].strip().lower()
+            if kind != "application/json":
+                return JSONResponse({"detail": "send the body as JSON (Content-Type: application/json)"}, status_code=415)
+            origin = request.headers.get("origin")
+            if origin is not None and origin.split("://", 1)[-1] != request.headers.get("host"):
+                return JSONResponse({"detail": f"requests from {origin} are not accepted"}, status_code=403)
+        response: Response = await call_next(request)
+        response.headers.setdefault("X-Content-Type-Options", "nosniff")
+        response.headers.setdefault("Cache-Control", "no-store")
+        return response
+
+    @app.get("/", response_class=HTMLResponse, include_in_schema=False)
+    def page() -> HTMLResponse:
+        from trimtab.app._view import page_view
+        from trimtab.report import CAUTION
+        from trimtab.report._templates import render
+
+        view = page_view(first)
+        html = render("explore.html.j2", settings=explorer.settings(), first=view, caution=CAUTION)
+        return HTMLResponse(html, headers={"Content-Security-Policy": CSP})
+
+    @app.get("/static/{name}", include_in_schema=False)
+    def asset(name: str) -> Response:
+        if name not in ASSETS:
+            return JSONResponse({"detail": "not found"}, status_code=404)
+        body = resources.files("trimtab.app").joinpath("static", name).read_bytes()
+        return Response(body, media_type=ASSETS[name])
+
+    @app.get("/api/scenario", summary="The scenario and every limit with its key path and value")
+    def scenario() -> dict[str, Any]:
+        return explorer.settings()
+
+    @app.post("/api/solve", summary="Solve with new limits: the result.json document, or the infeasibility document")
+    def solve(body: SolveRequest) -> dict[str, Any]:
+        from trimtab.report import report_document
+
+        variant = explorer.solve(explorer.changes_of(body.limits, body.risk_aversion))
+        return report_document(variant.subject)
+
+    @app.post("/page/solve", include_in_schema=False)
+    def page_solve(body: SolveRequest) -> dict[str, Any]:
+        from trimtab.app._view import page_view
+
+        return page_view(explorer.solve(explorer.changes_of(body.limits, body.risk_aversion)))
+
+    @app.post("/api/save", status_code=201, summary="Save a variant as a scenario file that extends the explored one")
+    def save(body: SaveRequest) -> dict[str, Any]:
+        changes = explorer.changes_of(body.limits, body.risk_aversion)
+        path = explorer.save(body.name, changes)
+        return {"file": str(path), "name": body.name, "extends": explorer.scenario.path.name, "changes": changes}
+
+    app.add_middleware(BodyLimit, limit=MAX_BODY)
+    app.state.explorer = explorer
+    return app
+
+
+#: The page runs only its own script and style; nothing is fetched from anywhere else.
+CSP = "default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; connect-src 'self'; frame-ancestors 'none'"
+
+
+def _one_line(errors: Any) -> str:
+    """The first validation error as ``where: what`` in the request's own key names."""
+    if not errors:
+        return "invalid request"
+    error = errors[0]
+    where = ".".join(str(p) for p in error.get("loc", ()) if p != "body")
+    what = str(error.get("msg", "invalid value"))
+    if error.get("type") == "json_invalid":
+        return "the body is not valid JSON"
+    if error.get("type") == "extra_forbidden":
+        return f"{where}: unknown key (expected limits, risk_aversion{', name' if 'name' in str(errors) else ''})"
+    got = error.get("input")
+    shown = "" if isinstance(got, (dict, list)) or got is None else f" (got {got!r})"
+    return f"{where or 'body'}: {what}{shown}"
+
+
+def _first_line(err: BaseException, explorer: Explorer) -> str:
+    text = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
+    return text.replace(f"{explorer.scenario.path}: ", "")
+
+
+def _status(err: BaseException) -> int:
+    return 409 if "already exists" in str(err) else 422
+
