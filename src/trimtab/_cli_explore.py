@@ -36,6 +36,7 @@ def explore(
     from trimtab.cli import _ui
 
     ui = _ui(ctx)
+    _check_port(host, port)
     with ui.progress() as step:
         step("reading the scenario and building the problem")
         explorer = Explorer.open(scenario)
@@ -52,12 +53,38 @@ def explore(
     ui.say(f"Exploring {explorer.scenario.name} at {url}  (Ctrl-C stops)")
     if not no_browser:
         threading.Timer(1.0, lambda: webbrowser.open(url)).start()
-    server.run()
+    try:
+        server.run()  # uvicorn turns Ctrl-C into a clean shutdown
+    except KeyboardInterrupt:  # uvicorn raises the captured Ctrl-C again once it has shut down
+        pass
+    except SystemExit:  # uvicorn exits when it cannot listen
+        server.started = False
     if not server.started:
-        from trimtab.errors import InputError
-
-        raise InputError(f"--port {port}: could not listen on {host}:{port} (in use, or not an address of this machine)")
+        raise _port_error(host, port)
     ui.say("Stopped; nothing was written except the scenarios you saved.")
+
+
+def _check_port(host: str, port: int) -> None:
+    """Fail at once, before loading anything, when the address cannot be listened on."""
+    import socket
+
+    try:
+        infos = socket.getaddrinfo(host, port, type=socket.SOCK_STREAM)
+    except OSError:
+        raise _port_error(host, port) from None
+    family, kind, proto, _, address = infos[0]
+    with socket.socket(family, kind, proto) as probe:
+        probe.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
+        try:
+            probe.bind(address)
+        except OSError:
+            raise _port_error(host, port) from None
+
+
+def _port_error(host: str, port: int) -> Exception:
+    from trimtab.errors import InputError
+
+    return InputError(f"--host {host} --port {port}: cannot listen there (the port is in use, or the address is not this machine's); try another --port")
 
 
 def _is_loopback(host: str) -> bool:

@@ -47,10 +47,6 @@ class SaveRequest(SolveRequest):
     name: str = Field(description="the new scenario's name and file name (letters, digits, - and _)", examples=["te_25bp"])
 
 
-class _TooLarge(Exception):
-    pass
-
-
 class BodyLimit:
     """ASGI middleware: 413 for a request body over ``limit`` bytes (declared or streamed)."""
 
@@ -66,28 +62,36 @@ class BodyLimit:
         if declared is not None and (not declared.isdigit() or int(declared) > self.limit):
             await _too_large(self.limit)(scope, receive, send)
             return
-        received = 0
-        started = False
-
-        async def limited() -> Message:
-            nonlocal received
+        # read the whole body first (at most ``limit`` bytes), then hand it on in one message
+        body = b""
+        while True:
             message = await receive()
-            if message["type"] == "http.request":
-                received += len(message.get("body", b""))
-                if received > self.limit:
-                    raise _TooLarge
-            return message
-
-        async def watch(message: Message) -> None:
-            nonlocal started
-            started = started or message["type"] == "http.response.start"
-            await send(message)
-
-        try:
-            await self.app(scope, limited, watch)
-        except _TooLarge:
-            if not started:
+            if message["type"] != "http.request":
+                await self.app(scope, _replay(message), send)
+                return
+            body += message.get("body", b"")
+            if len(body) > self.limit:
                 await _too_large(self.limit)(scope, receive, send)
+                return
+            if not message.get("more_body", False):
+                break
+        await self.app(scope, _replay({"type": "http.request", "body": body, "more_body": False}, receive), send)
+
+
+def _replay(first: Message, then: Receive | None = None) -> Receive:
+    """A receive channel that yields ``first``, then whatever ``then`` (the client) sends."""
+    sent = False
+
+    async def receive() -> Message:
+        nonlocal sent
+        if not sent:
+            sent = True
+            return first
+        if then is None:
+            return {"type": "http.disconnect"}
+        return await then()
+
+    return receive
 
 
 def _too_large(limit: int) -> Response:
