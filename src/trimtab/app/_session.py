@@ -173,7 +173,7 @@ class Explorer:
         body.update(diff)
         text = (
             f"# Saved by trimtab explore from {base.name}: only the limits that differ from it.\n"
-            + yaml.safe_dump(body, sort_keys=False, allow_unicode=True)
+            + yaml.safe_dump(body, sort_keys=False, allow_unicode=True, default_flow_style=None, width=100)
         )
         fd, tmp_name = tempfile.mkstemp(prefix=f".{name}.", suffix=".tmp", dir=target_folder)
         tmp = Path(tmp_name)

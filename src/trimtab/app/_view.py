@@ -31,7 +31,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
         rows = display_relaxation(failure.relaxation).to_dict(orient="records") if len(failure.relaxation) else []
         html = {
             "relaxation": render(
-                "partials/relaxation.html.j2", status=failure.status, message=failure.message,
+                "partials/relaxation.html.j2", status=failure.status, message=_message(failure),
                 sentence=relaxation_sentence(failure.relaxation) if rows else "", rows=rows,
                 columns=list(rows[0]) if rows else [],
             )
@@ -147,6 +147,14 @@ def binding_rows(table: pd.DataFrame | None) -> list[dict[str, str]]:
             "shadow_price": num(_number(row.get("shadow_price")), 4),
         })
     return rows
+
+
+def _message(failure: Any) -> str:
+    """The failure's message without its status repeated and without pointers meant for Python users."""
+    text = str(failure.message)
+    if text.lower().startswith(f"{failure.status}: "):
+        text = text[len(failure.status) + 2:]
+    return text.replace(" (see .relaxation for how far each must move)", "")
 
 
 # ---------------------------------------------------------------------- formatting
