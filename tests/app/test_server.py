@@ -143,7 +143,7 @@ def test_save_writes_a_new_scenario_once(client: TestClient, demo_folder: Path) 
     response = client.post("/api/save", json={"name": "api_saved", "limits": {"turnover.max": 0.2}})
     assert response.status_code == 201
     path = Path(response.json()["file"])
-    assert path == demo_folder / "api_saved.yaml" and "turnover:\n    max: 0.2" in path.read_text(encoding="utf-8")
+    assert path == demo_folder / "api_saved.yaml" and "turnover: {max: 0.2}" in path.read_text(encoding="utf-8")
     again = client.post("/api/save", json={"name": "api_saved", "limits": {}})
     assert again.status_code == 409 and again.json() == {"detail": "name: api_saved.yaml already exists beside the scenario; choose another name"}
     bad = client.post("/api/save", json={"name": "../x", "limits": {}})
