@@ -40,10 +40,10 @@ def free_port() -> int:
 
 
 @contextmanager
-def explore_server(scenario: Path, port: int) -> Iterator[subprocess.Popen[str]]:
-    """``trimtab explore SCENARIO --no-browser --port PORT`` until it answers; Ctrl-C on leaving."""
+def explore_server(scenario: Path, port: int, host: str = "127.0.0.1") -> Iterator[subprocess.Popen[str]]:
+    """``trimtab explore SCENARIO --no-browser --port PORT --host HOST`` until it answers; Ctrl-C on leaving."""
     process = subprocess.Popen(
-        [sys.executable, "-m", "trimtab.cli", "explore", str(scenario), "--no-browser", "--port", str(port)],
+        [sys.executable, "-m", "trimtab.cli", "explore", str(scenario), "--no-browser", "--port", str(port), "--host", host],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
     )
     try:

@@ -1,0 +1,52 @@
+"""``trimtab explore`` on the command line: one-line errors, the warning off loopback, Ctrl-C (#15)."""
+
+from __future__ import annotations
+
+import socket
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from tests.app._browser import explore_server, free_port
+from trimtab._cli_explore import _is_loopback, _url_host
+from trimtab.cli import EXIT_BAD_INPUT, app
+
+runner = CliRunner()
+
+
+def test_a_port_in_use_is_one_line_before_anything_is_loaded(tmp_path: Path) -> None:
+    with socket.socket() as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen()
+        port = busy.getsockname()[1]
+        result = runner.invoke(app, ["explore", str(tmp_path / "missing.yaml"), "--no-browser", "--port", str(port)])
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert result.stderr == f"trimtab: error: --host 127.0.0.1 --port {port}: cannot listen there (the port is in use, or the address is not this machine's); try another --port\n"
+
+
+def test_a_missing_scenario_is_one_line(tmp_path: Path) -> None:
+    result = runner.invoke(app, ["explore", str(tmp_path / "missing.yaml"), "--no-browser", "--port", str(free_port())])
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert result.stderr.startswith("trimtab: error: ") and "missing.yaml: no such scenario file" in result.stderr
+    assert result.stderr.count("\n") == 1
+
+
+@pytest.mark.parametrize(("host", "loopback"), [("127.0.0.1", True), ("::1", True), ("localhost", True), ("127.0.0.2", True),
+                                                ("0.0.0.0", False), ("192.168.1.5", False), ("myhost", False)])
+def test_which_hosts_count_as_this_machine_only(host: str, loopback: bool) -> None:
+    assert _is_loopback(host) is loopback
+
+
+def test_the_url_printed_for_a_wildcard_address_is_loopback() -> None:
+    assert _url_host("0.0.0.0") == "127.0.0.1" and _url_host("::1") == "[::1]" and _url_host("localhost") == "localhost"
+
+
+@pytest.mark.slow
+def test_off_loopback_it_warns_and_ctrl_c_stops_it_cleanly(demo_folder: Path) -> None:
+    with explore_server(demo_folder / "base.yaml", free_port(), host="0.0.0.0") as server:
+        pass
+    out, err = server.output
+    assert server.returncode == 0, err
+    assert err.startswith("trimtab: warning: listening on 0.0.0.0: anyone who can reach this machine")
+    assert "Stopped; nothing was written except the scenarios you saved." in out
