@@ -134,7 +134,7 @@ def _label(path: tuple[str, ...]) -> str:
     if parts[-1] in SIDE and len(parts) > 1:
         side = f" ({SIDE[parts.pop()]})"
     if parts[0] == "factor_exposure" and len(parts) >= 3 and parts[1] == "bounds":
-        return f"{parts[2]} exposure{side}"
+        return f"{'every factor' if parts[2] == 'default' else parts[2]} exposure{side}"
     if parts[0] == "group" and "bounds" in parts:
         label = parts[parts.index("bounds") + 1]
         return f"group {'band' if label == 'default' else label}{side}"

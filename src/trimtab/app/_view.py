@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Mapping
 from typing import Any
 
 import pandas as pd
@@ -17,6 +18,8 @@ from trimtab.app._session import Variant
 
 #: Trades and binding limits listed on the page.
 TOP_TRADES = 15
+#: Trades no larger than this (a fraction of NAV) are solver noise, not trades.
+TRADE_TOLERANCE = 1e-8
 
 
 def page_view(variant: Variant) -> dict[str, Any]:
@@ -45,6 +48,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
             "exposures": render("partials/exposures.html.j2", rows=exposure_rows(content)),
             "trades": render("partials/top_trades.html.j2", rows=trade_rows(content.top_trades), total=_count(content.trades)),
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
+            "warnings": render("partials/warnings.html.j2", rows=warning_rows(variant.result)),
         }
     seconds = dict(variant.seconds)
     seconds["render"] = time.perf_counter() - started
@@ -54,7 +58,25 @@ def page_view(variant: Variant) -> dict[str, Any]:
 # ---------------------------------------------------------------------- figures
 def key_figures(result: Any, content: Any) -> dict[str, float | None]:
     """Expected active alpha, tracking error, information ratio, one-way turnover, cost (fractions
-    of NAV, annualised where they are rates), names held, and the risk cap when there is one."""
+    of NAV, annualised where they are rates), names held, bought and sold, and the risk cap.
+
+    The result's own desk figures (``result.figures``) are used when it has them; otherwise they are
+    read from the report content (the objective's alpha and cost, the trade table).
+    """
+    cap = _number(content.risk_budget.cap) if content.risk_budget is not None else None
+    desk = getattr(result, "figures", None)
+    if isinstance(desk, Mapping) and desk:
+        return {
+            "alpha": _number(desk.get("expected_alpha")),
+            "tracking_error": _number(desk.get("tracking_error")),
+            "information_ratio": _number(desk.get("information_ratio")),
+            "turnover": _number(desk.get("turnover")),
+            "cost": _number(desk.get("cost")),
+            "names": _number(desk.get("names_held")),
+            "bought": _number(desk.get("names_bought")),
+            "sold": _number(desk.get("names_sold")),
+            "cap": cap,
+        }
     headline = content.headline
     te = _number(content.risk_budget.post) if content.risk_budget is not None else _cell(headline, "risk", "post")
     objective = content.objective if content.objective is not None else pd.Series(dtype=float)
@@ -63,9 +85,11 @@ def key_figures(result: Any, content: Any) -> dict[str, float | None]:
     turnover = _number(getattr(result, "turnover", None))
     if turnover is None and trades is not None and "trade" in trades.columns:
         turnover = 0.5 * float(trades["trade"].abs().sum())
-    cost = -_number(objective.get("costs")) if _number(objective.get("costs")) is not None else None  # type: ignore[operator]
+    costs = _number(objective.get("costs"))
+    cost = -costs if costs is not None else None
     if cost is None and trades is not None and "cost" in trades.columns:
         cost = float(trades["cost"].sum())
+    moved = trades["trade"] if trades is not None and "trade" in trades.columns else pd.Series(dtype=float)
     return {
         "alpha": alpha,
         "tracking_error": te,
@@ -73,7 +97,9 @@ def key_figures(result: Any, content: Any) -> dict[str, float | None]:
         "turnover": turnover,
         "cost": cost,
         "names": _cell(headline, "n_positions", "post"),
-        "cap": _number(content.risk_budget.cap) if content.risk_budget is not None else None,
+        "bought": float((moved > TRADE_TOLERANCE).sum()),
+        "sold": float((moved < -TRADE_TOLERANCE).sum()),
+        "cap": cap,
     }
 
 
@@ -89,10 +115,27 @@ def headline_cards(figures: dict[str, float | None], content: Any) -> list[dict[
         ("tracking_error", "Tracking error", pct(figures["tracking_error"]), te_note),
         ("turnover", "Turnover (one-way)", pct(figures["turnover"], 1), "of NAV"),
         ("cost", "Estimated cost", bp(figures["cost"]), "of NAV, once"),
-        ("names", "Names held", num(figures["names"], 0), ""),
+        ("names", "Names held", num(figures["names"], 0), _traded(figures)),
     ]
     return [{"key": k, "label": label, "value": value, "note": note} for k, label, value, note in cards
             if figures.get(k) is not None]
+
+
+def warning_rows(result: Any) -> list[dict[str, str]]:
+    """The result's warnings (when it carries any) as kind and message."""
+    items = getattr(result, "warnings", None)
+    if not isinstance(items, (list, tuple)):
+        return []
+    rows = []
+    for item in items:
+        record = item.as_dict() if hasattr(item, "as_dict") else item if isinstance(item, Mapping) else {"message": str(item)}
+        rows.append({"kind": str(record.get("kind", "note")), "message": str(record.get("message", ""))})
+    return rows
+
+
+def _traded(figures: dict[str, float | None]) -> str:
+    bought, sold = figures.get("bought"), figures.get("sold")
+    return "" if bought is None or sold is None else f"{bought:,.0f} bought · {sold:,.0f} sold"
 
 
 def exposure_rows(content: Any) -> list[dict[str, Any]]:
@@ -199,4 +242,4 @@ def _bar(value: float | None, scale: float) -> float:
 def _count(table: pd.DataFrame | None) -> int:
     if table is None or "trade" not in table.columns:
         return 0
-    return int((table["trade"].abs() > 1e-8).sum())
+    return int((table["trade"].abs() > TRADE_TOLERANCE).sum())

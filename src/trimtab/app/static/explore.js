@@ -146,6 +146,7 @@
       (s.round_trip ? ` · round trip ${(1000 * s.round_trip).toFixed(0)} ms` : "");
     $("headline").innerHTML = solved ? variant.html.headline : "";
     $("unsolved").innerHTML = solved ? "" : variant.html.relaxation;
+    $("warnings").innerHTML = solved ? variant.html.warnings || "" : "";
     for (const part of ["trades", "binding", "exposures"]) {
       $(part).innerHTML = solved ? variant.html[part] : '<p class="note">No portfolio for these limits: see above.</p>';
     }
