@@ -150,9 +150,18 @@
     for (const part of ["trades", "binding", "exposures"]) {
       $(part).innerHTML = solved ? variant.html[part] : '<p class="note">No portfolio for these limits: see above.</p>';
     }
+    suggestName(variant);
     drawTrail();
     drawChart();
     drawPinned();
+  }
+
+  function suggestName(variant) {
+    const box = $("save-name");
+    if (!box.value || box.dataset.suggested === box.value) {
+      box.value = `${settings.scenario}_variant${variant.id}`.replace(/[^A-Za-z0-9_-]/g, "_");
+      box.dataset.suggested = box.value;
+    }
   }
 
   function returnTo(variant) { setControls(variant.changes); show(variant); }
@@ -258,6 +267,11 @@
     const message = $("save-message");
     message.className = "";
     if (!shown) return;
+    if (shown.status !== "solved") {
+      message.textContent = `Variant ${shown.id} is ${shown.status}: choose a solved variant to save (click "show" in the trail).`;
+      message.className = "bad";
+      return;
+    }
     const response = await fetch("/api/save", {
       method: "POST", headers: { "Content-Type": "application/json" }, body: JSON.stringify({ name, limits: shown.changes }),
     });
