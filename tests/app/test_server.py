@@ -168,5 +168,5 @@ def test_the_openapi_schema_documents_the_api(client: TestClient) -> None:
     shipped = Path(__file__).parents[2] / "docs" / "openapi.json"
     copy = json.loads(shipped.read_text(encoding="utf-8"))
     assert set(copy["paths"]) == set(schema["paths"]), "regenerate docs/openapi.json (docs/api.md says how)"
-    for model in ("SolveRequest", "SaveRequest"):
+    for model in ("SolveRequest", "SaveRequest", "ScenarioInfo", "LimitInfo", "Saved"):
         assert copy["components"]["schemas"][model] == schema["components"]["schemas"][model]

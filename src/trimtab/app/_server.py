@@ -47,6 +47,44 @@ class SaveRequest(SolveRequest):
     name: str = Field(description="the new scenario's name and file name (letters, digits, - and _)", examples=["te_25bp"])
 
 
+class LimitInfo(BaseModel):
+    """One limit the API accepts (see docs/api.md)."""
+
+    key: str = Field(description="dotted key path, as `trimtab sweep` takes it")
+    value: float | None = Field(description="the scenario's value; null for an optional bound it does not set")
+    section: str
+    label: str
+    unit: str = Field(description="fraction, exposure, count or number")
+    low: float = Field(description="low end of the page's slider")
+    high: float = Field(description="high end of the page's slider")
+    optional: bool = Field(description="a bound the scenario does not set: a value adds it, null removes it")
+
+
+class ModelSize(BaseModel):
+    n_assets: int
+    n_factors: int
+
+
+class ScenarioInfo(BaseModel):
+    """The explored scenario and every limit the API accepts."""
+
+    scenario: str
+    file: str
+    description: str
+    objective: dict[str, Any]
+    model: ModelSize
+    limits: list[LimitInfo]
+
+
+class Saved(BaseModel):
+    """The scenario file Save wrote."""
+
+    file: str = Field(description="path of the new file")
+    name: str
+    extends: str = Field(description="the explored scenario's file name")
+    changes: dict[str, float | None] = Field(description="the limits written, by key path")
+
+
 class BodyLimit:
     """ASGI middleware: 413 for a request body over ``limit`` bytes (declared or streamed)."""
 
@@ -150,8 +188,8 @@ def create_app(explorer: Explorer) -> FastAPI:
         return Response(body, media_type=ASSETS[name])
 
     @app.get("/api/scenario", summary="The scenario and every limit with its key path and value")
-    def scenario() -> dict[str, Any]:
-        return explorer.settings()
+    def scenario() -> ScenarioInfo:
+        return ScenarioInfo.model_validate(explorer.settings())
 
     @app.post("/api/solve", summary="Solve with new limits: the result.json document, or the infeasibility document")
     def solve(body: SolveRequest) -> dict[str, Any]:
@@ -167,10 +205,10 @@ def create_app(explorer: Explorer) -> FastAPI:
         return page_view(explorer.solve(explorer.changes_of(body.limits, body.risk_aversion)))
 
     @app.post("/api/save", status_code=201, summary="Save a variant as a scenario file that extends the explored one")
-    def save(body: SaveRequest) -> dict[str, Any]:
+    def save(body: SaveRequest) -> Saved:
         changes = explorer.changes_of(body.limits, body.risk_aversion)
         path = explorer.save(body.name, changes)
-        return {"file": str(path), "name": body.name, "extends": explorer.scenario.path.name, "changes": changes}
+        return Saved(file=str(path), name=body.name, extends=explorer.scenario.path.name, changes=changes)
 
     app.add_middleware(BodyLimit, limit=MAX_BODY)
     app.state.explorer = explorer
