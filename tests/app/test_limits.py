@@ -103,3 +103,11 @@ def test_saved_changes_hold_only_what_differs() -> None:
         "constraints": {"tracking_error": {"max": 0.025}, "group": {"bounds": {"default": [-0.02, 0.03]}}},
     }
     assert saved_changes(MAPPING, apply(MAPPING, {})) == {}
+
+
+def test_a_stress_limit_is_a_risk_limit_and_its_inline_shocks_are_not() -> None:
+    mapping = {"objective": {"maximize": "alpha"},
+               "constraints": {"stress_loss": {"max": 0.01, "active": True,
+                                               "shocks": {"selloff": {"factors": {"market": -0.1}}}}}}
+    limits = scenario_limits(mapping, [], has_benchmark=True)
+    assert [(limit.key, limit.section, limit.value) for limit in limits] == [("stress_loss.max", "Risk", 0.01)]

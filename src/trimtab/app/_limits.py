@@ -27,8 +27,10 @@ SECTIONS = {
     "tracking_error": "Risk", "active_risk": "Risk", "total_risk": "Risk", "risk_aversion": "Risk",
     "turnover": "Trading", "liquidity": "Trading", "trade": "Trading", "max_names": "Positions",
     "weight": "Positions", "active_weight": "Positions", "long_only": "Positions", "leverage": "Positions",
-    "factor_exposure": "Factor exposure", "beta": "Factor exposure", "group": "Groups",
+    "factor_exposure": "Factor exposure", "beta": "Factor exposure", "group": "Groups", "stress_loss": "Risk",
 }
+#: Numbers under these key paths define inputs (a stress limit's inline shocks), not limits.
+NOT_LIMITS = (("stress_loss", "shocks"),)
 SIDE = {"0": "lower", "1": "upper"}
 
 
@@ -78,6 +80,8 @@ def scenario_limits(mapping: Mapping[str, Any], factors: Sequence[str], *, has_b
             limits.append(_limit(key, (key,), float(objective[key])))
     constraints = mapping.get("constraints") or {}
     for path, value in _numbers(constraints, ()):
+        if any(path[: len(prefix)] == prefix for prefix in NOT_LIMITS):
+            continue
         limits.append(_limit(".".join(path), path, value))
     section = constraints.get("factor_exposure")
     bounded: set[str] = set()
