@@ -7,13 +7,14 @@ import math
 import pandas as pd
 import pytest
 
-from trimtab.report._templates import binding_rows, bp, exposure_rows, num, pct, render, trade_rows, warning_rows
+from trimtab.report._templates import binding_rows, bp, exposure_rows, num, pct, render_trades, trade_rows, warning_rows
 
 
 def test_every_value_is_escaped() -> None:
     trades = pd.DataFrame({"initial_weight": [0.0], "target_weight": [0.01], "trade": [0.01], "shares": [100.0]},
                           index=pd.Index(["<script>alert(1)</script>"], name="asset"))
-    html = render("partials/top_trades.html.j2", rows=trade_rows(trades), total=1)
+    html = render_trades(trade_rows(trades), caption="<b>1 trade</b>")
+    assert "&lt;b&gt;1 trade&lt;/b&gt;" in html
     assert "<script>" not in html and "&lt;script&gt;alert(1)&lt;/script&gt;" in html
 
 
@@ -29,7 +30,7 @@ def test_trade_rows_give_the_side_and_the_shares() -> None:
         {"asset": "A", "side": "sell", "before": "2.00%", "after": "0.00%", "trade": "-2.00%", "shares": ""},
         {"asset": "B", "side": "buy", "before": "0.00%", "after": "1.50%", "trade": "1.50%", "shares": ""},
     ]
-    assert trade_rows(None) == [] and "No trades" in render("partials/top_trades.html.j2", rows=[], total=0)
+    assert trade_rows(None) == [] and "No trades" in render_trades([], caption="")
 
 
 def test_exposure_rows_largest_after_first_with_signed_bars() -> None:

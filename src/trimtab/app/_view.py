@@ -14,7 +14,9 @@ from typing import Any
 import pandas as pd
 
 from trimtab.app._session import Variant
-from trimtab.report._templates import binding_rows, bp, exposure_rows, num, number, pct, trade_rows, warning_rows
+from trimtab.report._templates import (
+    binding_rows, bp, exposure_rows, num, number, pct, render_cards, render_trades, trade_rows, warning_rows,
+)
 
 #: Trades and binding limits listed on the page.
 TOP_TRADES = 15
@@ -45,9 +47,9 @@ def page_view(variant: Variant) -> dict[str, Any]:
         content = gather(variant.result, top=TOP_TRADES)
         figures = key_figures(variant.result, content)
         html = {
-            "headline": render("partials/headline.html.j2", cards=headline_cards(figures, content)),
+            "headline": render_cards(headline_cards(figures, content)),
             "exposures": render("partials/exposures.html.j2", rows=exposure_rows(content.exposures)),
-            "trades": render("partials/top_trades.html.j2", rows=trade_rows(content.top_trades), total=_count(content.trades)),
+            "trades": render_trades(trade_rows(content.top_trades), caption=_trades_caption(content)),
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
             "warnings": render("partials/warnings.html.j2", rows=warning_rows(variant.result)),
         }
@@ -140,6 +142,11 @@ def _cell(table: pd.DataFrame | None, row: str, column: str) -> float | None:
     if table is None or row not in table.index or column not in table.columns:
         return None
     return number(table.loc[row, column])
+
+
+def _trades_caption(content: Any) -> str:
+    shown = 0 if content.top_trades is None else len(content.top_trades)
+    return f"The {shown} largest of {_count(content.trades):,} trades (% of NAV)"
 
 
 def _count(table: pd.DataFrame | None) -> int:

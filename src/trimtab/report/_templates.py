@@ -72,6 +72,25 @@ def trade_rows(table: pd.DataFrame | None) -> list[dict[str, str]]:
     return rows
 
 
+#: The page's trade columns: key, heading, numeric.
+TRADE_COLUMNS = (("asset", "Asset", False), ("side", "Side", False), ("before", "Before", True),
+                 ("after", "After", True), ("trade", "Trade", True), ("shares", "Shares", True))
+
+
+def render_trades(rows: list[dict[str, str]], *, caption: str, columns: Any = TRADE_COLUMNS, empty: str | None = None) -> str:
+    """The top-trades partial: ``columns`` as (key, heading, numeric), ``rows`` of formatted text."""
+    spec = [{"key": key, "label": label, "numeric": numeric} for key, label, numeric in columns]
+    context: dict[str, Any] = {"rows": rows, "columns": spec, "caption": caption}
+    if empty is not None:
+        context["empty"] = empty
+    return render("partials/top_trades.html.j2", **context)
+
+
+def render_cards(cards: list[dict[str, str]]) -> str:
+    """The headline-cards partial: each card a label, a value and a note (key names the figure)."""
+    return render("partials/headline.html.j2", cards=cards)
+
+
 def binding_rows(table: pd.DataFrame | None) -> list[dict[str, str]]:
     """Binding limits: name, the value it binds at, how many rows bind and the shadow price."""
     if table is None or table.empty:
