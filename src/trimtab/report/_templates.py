@@ -77,10 +77,12 @@ TRADE_COLUMNS = (("asset", "Asset", False), ("side", "Side", False), ("before", 
                  ("after", "After", True), ("trade", "Trade", True), ("shares", "Shares", True))
 
 
-def render_trades(rows: list[dict[str, str]], *, caption: str, columns: Any = TRADE_COLUMNS, empty: str | None = None) -> str:
-    """The top-trades partial: ``columns`` as (key, heading, numeric), ``rows`` of formatted text."""
+def render_trades(rows: list[dict[str, str]], *, caption: str, columns: Any = TRADE_COLUMNS, empty: str | None = None,
+                  css: str = "trades") -> str:
+    """The top-trades partial: ``columns`` as (key, heading, numeric), ``rows`` of formatted text,
+    ``css`` the table's class."""
     spec = [{"key": key, "label": label, "numeric": numeric} for key, label, numeric in columns]
-    context: dict[str, Any] = {"rows": rows, "columns": spec, "caption": caption}
+    context: dict[str, Any] = {"rows": rows, "columns": spec, "caption": caption, "css": css}
     if empty is not None:
         context["empty"] = empty
     return render("partials/top_trades.html.j2", **context)
