@@ -55,9 +55,9 @@ def test_binding_rows_read_weights_in_percent_and_count_the_rest() -> None:
 def test_warning_rows_accept_records_and_objects() -> None:
     class Note:
         def as_dict(self) -> dict:
-            return {"kind": "concentration", "message": "five names hold 40%"}
+            return {"kind": "name_concentration", "message": "five names hold 40%"}
 
     result = type("R", (), {"warnings": [Note(), {"kind": "data", "message": "2 ids dropped"}]})()
-    assert warning_rows(result) == [{"kind": "concentration", "message": "five names hold 40%"},
+    assert warning_rows(result) == [{"kind": "name concentration", "message": "five names hold 40%"},
                                     {"kind": "data", "message": "2 ids dropped"}]
     assert warning_rows(object()) == []

@@ -119,7 +119,7 @@ def warning_rows(result: Any) -> list[dict[str, str]]:
     rows = []
     for item in items:
         record = item.as_dict() if hasattr(item, "as_dict") else item if isinstance(item, Mapping) else {"message": str(item)}
-        rows.append({"kind": str(record.get("kind", "note")), "message": str(record.get("message", ""))})
+        rows.append({"kind": str(record.get("kind", "note")).replace("_", " "), "message": str(record.get("message", ""))})
     return rows
 
 
