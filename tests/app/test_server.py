@@ -66,7 +66,7 @@ def test_infeasible_limits_give_the_infeasibility_document(client: TestClient) -
     assert response.status_code == 200
     document = response.json()
     assert document["kind"] == "infeasible"
-    assert any(row["constraint"] == "turnover" for row in document["relaxation"])
+    assert any("turnover" in row["constraint"] for row in document["relaxation"])
 
 
 def test_the_page_solve_shows_the_relaxation_not_an_error(client: TestClient) -> None:
