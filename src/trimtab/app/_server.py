@@ -8,6 +8,7 @@ scenario; solves run one at a time (the explorer's lock); only Save writes a fil
 
 from __future__ import annotations
 
+import json
 from importlib import resources
 from typing import Any
 
@@ -191,12 +192,15 @@ def create_app(explorer: Explorer) -> FastAPI:
     def scenario() -> ScenarioInfo:
         return ScenarioInfo.model_validate(explorer.settings())
 
-    @app.post("/api/solve", summary="Solve with new limits: the result.json document, or the infeasibility document")
-    def solve(body: SolveRequest) -> dict[str, Any]:
+    @app.post("/api/solve", summary="Solve with new limits: the result.json document, or the infeasibility document",
+              response_class=JSONResponse, responses={200: {"description": "the result.json document (docs/outputs.md)"}})
+    def solve(body: SolveRequest) -> Response:
         from trimtab.report import report_document
 
         variant = explorer.solve(explorer.changes_of(body.limits, body.risk_aversion))
-        return report_document(variant.subject)
+        # already plain JSON values (NaN as null): written as result.json is, without a second encoding pass
+        text = json.dumps(report_document(variant.subject), allow_nan=False, ensure_ascii=False)
+        return Response(text, media_type="application/json")
 
     @app.post("/page/solve", include_in_schema=False)
     def page_solve(body: SolveRequest) -> dict[str, Any]:
