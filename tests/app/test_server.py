@@ -172,3 +172,15 @@ def test_the_openapi_schema_documents_the_api(client: TestClient) -> None:
     assert set(copy["paths"]) == set(schema["paths"]), "regenerate docs/openapi.json (docs/api.md says how)"
     for model in ("SolveRequest", "SaveRequest", "ScenarioInfo", "LimitInfo", "Saved"):
         assert copy["components"]["schemas"][model] == schema["components"]["schemas"][model]
+
+
+def test_text_from_the_scenario_cannot_break_out_of_the_page(demo_folder: Path, tmp_path: Path) -> None:
+    hostile = demo_folder / "hostile_description.yaml"
+    hostile.write_text('extends: base.yaml\ndescription: "</script><script>alert(1)</script><b>x</b>"\n', encoding="utf-8")
+    try:
+        page = TestClient(create_app(Explorer.open(hostile))).get("/").text
+    finally:
+        hostile.unlink()
+    assert "<script>alert(1)" not in page and "<b>x</b>" not in page
+    assert "&lt;b&gt;x&lt;/b&gt;" in page  # shown as text in the header
+    html5lib.HTMLParser(strict=True).parse(page)

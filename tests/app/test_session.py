@@ -80,3 +80,10 @@ def test_save_extends_the_scenario_and_reruns_to_the_same_weights(explorer: Expl
 def test_save_refuses_a_name_that_is_not_a_plain_file_name(explorer: Explorer, name: str) -> None:
     with pytest.raises(InputError, match="name: use letters, digits"):
         explorer.save(name, {})
+
+
+def test_opening_both_sides_of_a_new_bound_is_the_scenario_as_written(explorer: Explorer) -> None:
+    base = explorer.solve({}).result
+    opened = explorer.solve(explorer.changes_of({"factor_exposure.bounds.momentum.0": None,
+                                                  "factor_exposure.bounds.momentum.1": None}))
+    np.testing.assert_allclose(_weights(opened.result), _weights(base), atol=1e-6)
