@@ -303,6 +303,40 @@ def _part_risk_cap(path: Path, value: Any) -> dict[str, Any]:
     return _cap(path, value, {"active": f.flag}, {"active": True})
 
 
+def _stress_loss(path: Path, value: Any) -> dict[str, Any]:
+    """``{shocks: {name: {factors: {factor: move}}}, max, active, conditional, soft}``; a shock file's
+    path is replaced by its shocks when the scenario is read (trimtab.scenario), before this check."""
+    from trimtab.stresstest._entries import shock_entries
+
+    body = f.mapping(path, value, ["shocks", "max", "active", "conditional", "soft"], ["shocks", "max"])
+    shocks = body["shocks"]
+    if isinstance(shocks, str):
+        raise (path / "shocks").fail(
+            f"a shock file ({shocks}) is read when a scenario file is loaded; in Python pass the shocks as a "
+            "mapping name → {factors: {factor: move}}"
+        )
+
+    def fail(keys: tuple[str, ...], message: str) -> Exception:
+        where = path / "shocks"
+        for key in keys:
+            where = where / key
+        return where.fail(message)
+
+    entries = shock_entries(shocks, fail)
+    with_specific = [name for name, entry in entries.items() if entry["specific"]]
+    if with_specific:
+        raise (path / "shocks" / with_specific[0] / "specific").fail(
+            "a stress limit moves factors only; specific moves are for stress reports (the scenario's stress: list)"
+        )
+    return {
+        "shocks": {name: {"factors": entry["factors"], "description": entry["description"]} for name, entry in entries.items()},
+        "max": f.number(path / "max", body["max"], minimum=0.0),
+        "active": f.flag(path / "active", body.get("active", True)),
+        "conditional": f.flag(path / "conditional", body.get("conditional", True)),
+        "soft": _soft_of(path, body),
+    }
+
+
 def _liquidity(path: Path, value: Any) -> dict[str, Any]:
     body = f.mapping(path, value, ["max_adv_fraction", "days", "adv_column", "price_column", "soft"], ["max_adv_fraction"])
     return {
@@ -366,6 +400,7 @@ VALIDATORS: dict[str, Callable[[Path, Any], Any]] = {
     "turnover": _risk_cap,
     "trade": _bounds_with_overrides,
     "liquidity": _liquidity,
+    "stress_loss": _stress_loss,
     "no_buy": _asset_list,
     "no_sell": _asset_list,
     "no_trade": _asset_list,
