@@ -26,6 +26,10 @@ from trimtab._validation import list_labels
 from trimtab.errors import InputError, ModelError
 
 
+#: A Cholesky pivot below this fraction of its diagonal entry marks the shocked factors' covariance singular.
+SINGULAR = 1e-12
+
+
 @dataclass(frozen=True, eq=False)
 class ShockSet:
     """Validated shocks: shock × factor moves of the named factors (NaN where a factor is not named)."""
@@ -113,6 +117,10 @@ def _solve_pd(matrix: np.ndarray, rhs: np.ndarray, shock: str, labels: Sequence[
     """matrix⁻¹·rhs for the covariance of the shocked factors; a singular one is an error naming them."""
     try:
         factor = la.cho_factor(matrix, lower=True, check_finite=False)
+        # a pivot that lost (nearly) all of its diagonal: the shocked factors are (nearly) collinear
+        pivots = np.diag(factor[0]) ** 2 / np.maximum(np.diag(matrix), np.finfo(float).tiny)
+        if np.any(pivots < SINGULAR):
+            raise la.LinAlgError("singular")
     except la.LinAlgError:
         raise ModelError(
             f"stress: shock {shock}: the factor covariance of the shocked factors {list_labels(labels)} is singular, "
