@@ -140,6 +140,9 @@ class ScenarioSpec(_Strict):
     data: DataSection
     objective: dict[str, Any]
     constraints: dict[str, Any] = Field(default_factory=dict)
+    stress: str | dict[str, Any] | None = Field(
+        None, description="shocks reported before and after the trade: a shock file, or name → {factors: {factor: move}}"
+    )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
 
     @field_validator("name")

@@ -37,7 +37,7 @@ def shock_entries(value: Any, fail: Fail) -> dict[str, dict[str, Any]]:
         out[name] = {
             "factors": _moves(entry["factors"], fail, (name, "factors"), "factor"),
             "description": description,
-            "specific": _moves(entry["specific"], fail, (name, "specific"), "asset or group") if entry.get("specific") is not None else {},
+            "specific": _moves(entry["specific"], fail, (name, "specific"), "asset or group") if entry.get("specific") else {},
         }
     return out
 
