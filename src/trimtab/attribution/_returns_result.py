@@ -125,14 +125,14 @@ class ReturnAttributionSummary:
         bench = float(np.expm1(np.log1p(r.returns["benchmark"]).sum()))
         title = f"Active return attribution ({span}; {r.linking} linking)"
         lines = [title, "=" * len(title),
-                 f"Book {book:.2%}, benchmark {bench:.2%}, active {r.linked['total']:.2%} (compounded)", ""]
+                 f"Book {book:.2%}, benchmark {bench:.2%} (compounded); active {r.linked['total']:.2%} = ∏(1 + R) − ∏(1 + Rb)", ""]
         lines.append(f"{'component':<24} {'exposure':>9} {'return':>9} {'share':>7} {'risk share':>10}")
         table = self.to_frame()
         factor_rows = table.loc[r.factors].reindex(table.loc[r.factors, "contribution"].abs().sort_values(ascending=False).index)
         for name, row in pd.concat([factor_rows, table.drop(index=r.factors)]).iterrows():
             exposure = "" if pd.isna(row["mean_active_exposure"]) else f"{row['mean_active_exposure']:9.3f}"
-            share = "" if pd.isna(row["share_of_return"]) else f"{row['share_of_return']:7.0%}"
-            risk = "" if pd.isna(row["share_of_risk"]) else f"{row['share_of_risk']:10.0%}"
+            share = "" if pd.isna(row["share_of_return"]) else _share(row["share_of_return"])
+            risk = "" if pd.isna(row["share_of_risk"]) else _share(row["share_of_risk"])
             lines.append(f"{str(name)[:24]:<24} {exposure:>9} {row['contribution']:>9.2%} {share:>7} {risk:>10}")
         lines.append(f"{'total':<24} {'':>9} {r.linked['total']:>9.2%}")
         if r.asset_contributions is not None and self.top:
@@ -143,6 +143,11 @@ class ReturnAttributionSummary:
 
     def __str__(self) -> str:
         return self.as_text()
+
+
+def _share(value: float) -> str:
+    """A share as a whole percentage; below half a percent either way it is shown as 0%."""
+    return "0%" if abs(value) < 0.005 else f"{value:.0%}"
 
 
 def _day(value: Any) -> str:

@@ -105,17 +105,17 @@ class StressSummary:
     def as_text(self) -> str:
         r = self.result
         months = r.horizon / (r.periods_per_year / 12.0)
-        title = f"Stress test ({'conditional' if r.conditional else 'named factors only'}; plausibility over {r.horizon:g} periods ≈ {months:.3g} months)"
+        title = f"Stress test ({'conditional' if r.conditional else 'named factors only'}; plausibility over {r.horizon:g} periods ≈ {months:.3g} month{'' if months == 1 else 's'})"
         lines = [title, "=" * len(title)]
         has_active = r.active_contributions is not None
-        head = f"{'shock':<24} {'book':>9}" + (f" {'benchmark':>10} {'active':>9}" if has_active else "") + f"  {'largest loss from':<24} {'P(χ²≥D²)':>10}"
+        head = f"{'shock':<24} {'book':>9}" + (f" {'benchmark':>10} {'active':>9}" if has_active else "") + f"  {'largest loss from':<32} {'P(χ²≥D²)':>10}"
         lines.append(head)
         for name, row in self.to_frame().iterrows():
             text = f"{str(name)[:24]:<24} {row['book']:>9.2%}"
             if has_active:
                 text += f" {row['benchmark']:>10.2%} {row['active']:>9.2%}"
             worst = f"{row['largest_loss_from']} ({row['largest_loss']:.2%})" if pd.notna(row["largest_loss_from"]) else "–"
-            text += f"  {worst[:24]:<24} {row['tail_probability']:>10.2g}"
+            text += f"  {worst[:32]:<32} {row['tail_probability']:>10.2g}"
             lines.append(text)
         band = r.specific_band
         lines.append("")
