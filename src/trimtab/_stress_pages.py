@@ -39,6 +39,15 @@ def _write(folder: Path, tables: Mapping[str, pd.DataFrame], document: Mapping[s
     return [*written, "result.json", "report.html"]
 
 
+def _plain_dates(frame: pd.DataFrame) -> pd.DataFrame:
+    """Timestamp columns at midnight as YYYY-MM-DD text, for display."""
+    out = frame.copy()
+    for column in out.columns:
+        if pd.api.types.is_datetime64_any_dtype(out[column]) and (out[column] == out[column].dt.normalize()).all():
+            out[column] = out[column].dt.strftime("%Y-%m-%d")
+    return out
+
+
 def bars_chart(frame: pd.DataFrame, *, xlabel: str, name: str) -> str:
     """Horizontal bars per row, one colour per column (fractions shown as percentages)."""
     rows = len(frame)
@@ -103,7 +112,7 @@ def write_replay(result: Any, target: Path, inputs: Sequence[Path], *, cumulativ
         sections = [
             ("Summary", f"<pre>{html.escape(result.summary().as_text())}</pre>"),
             ("Charts", figure_block(charts)),
-            ("Windows", html_table(result.windows, percent_columns=_PERCENT)),
+            ("Windows", html_table(_plain_dates(result.windows), percent_columns=_PERCENT)),
         ]
         notes = ["Move of a window: the sum of its factor returns, applied to today's exposures Bᵀw; the worst windows "
                  "are found greedily and do not overlap. Specific returns are shown as a ±1σ band √(L·Σdᵢwᵢ²)."]
@@ -122,7 +131,7 @@ def write_return_attribution(result: Any, target: Path, inputs: Sequence[Path], 
         files = _write(tmp, tables, {"document": "trimtab.return_attribution", "linking": result.linking,
                                      "total": float(result.linked["total"]), "settings": dict(settings)})
         components = result.by_period.drop(columns="total").mul(result.link_factors, axis=0)
-        order = result.linked.drop(["total", *result.remainder], errors="ignore").abs().sort_values(ascending=False).index[:5]
+        order = result.linked.drop(["total", *result.remainder], errors="ignore").abs().sort_values(ascending=False).index[:4]
         shown = [c for c in [*order, *result.remainder] if c in components.columns]
         path = components[shown].cumsum()
         path["total"] = components.sum(axis=1).cumsum()
@@ -130,7 +139,8 @@ def write_return_attribution(result: Any, target: Path, inputs: Sequence[Path], 
             "Linked active return by component": bars_chart(table[["contribution"]].rename(columns={"contribution": "return"}),
                                                             xlabel="linked contribution to the active return", name="ra-linked"),
             "Return earned against risk taken (share of the active return and of ex-ante active variance)": bars_chart(
-                table.loc[[*order, *[r for r in result.remainder if r in table.index]], ["share_of_return", "share_of_risk"]].fillna(0.0),
+                table.loc[[*order, *[r for r in result.remainder if r in table.index]], ["share_of_return", "share_of_risk"]].fillna(0.0)
+                .rename(columns={"share_of_return": "share of the active return", "share_of_risk": "share of ex-ante active variance"}),
                 xlabel="share", name="ra-shares"),
             "Cumulated linked contributions through the span": lines_chart(path, ylabel="active return", name="ra-path"),
         }

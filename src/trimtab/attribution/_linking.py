@@ -16,6 +16,8 @@ component, ``compounding``, so that the total reconciles too.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pandas as pd
 
@@ -37,10 +39,15 @@ def log_ratio(book: np.ndarray, bench: np.ndarray) -> np.ndarray:
     return np.where(close, 1.0 / (1.0 + 0.5 * (book + bench)), ratio)
 
 
-def link(components: pd.DataFrame, book: pd.Series, bench: pd.Series, linking: str) -> tuple[pd.Series, pd.Series]:
-    """(linked components plus ``total``, the per-period factors k_t/k) for ``linking``."""
+def check_linking(linking: Any) -> str:
     if linking not in LINKINGS:
         raise InputError(f"attribute_returns: linking must be one of {', '.join(LINKINGS)}, got {linking!r}")
+    return str(linking)
+
+
+def link(components: pd.DataFrame, book: pd.Series, bench: pd.Series, linking: str) -> tuple[pd.Series, pd.Series]:
+    """(linked components plus ``total``, the per-period factors k_t/k) for ``linking``."""
+    check_linking(linking)
     r, rb = book.to_numpy(dtype=np.float64), bench.to_numpy(dtype=np.float64)
     if np.any(r <= -1.0) or np.any(rb <= -1.0):
         bad = book.index[(r <= -1.0) | (rb <= -1.0)]

@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import check_finite_frame, check_unique, list_labels
-from trimtab.attribution._linking import link
+from trimtab.attribution._linking import check_linking, link
 from trimtab.attribution._returns_result import ReturnAttribution
 from trimtab.errors import DataWarning, InputError
 
@@ -88,6 +88,7 @@ def attribute_returns(
     >>> result = attribute_returns(model, weights, returns, benchmark=bench)  # doctest: +SKIP
     >>> result.linked.drop("total").sum() == result.linked["total"]  # doctest: +SKIP
     """
+    check_linking(linking)
     returns = _dated(asset_returns, "asset_returns", allow_nan=True)
     dates = returns.index
     assets = model.assets
@@ -187,6 +188,7 @@ def attribute_backtest_returns(
     of factor k weighs each period's Euler contribution cₜₖ to the annualised forecast TE σₜ by its
     length hₜ: Σₜhₜcₜₖσₜ / Σₜhₜσₜ².
     """
+    check_linking(linking)
     history, exposures, contributions = (_scenario_part(result, name, scenario) for name in ("history", "exposures", "risk_contributions"))
     usable = history["realised_active"].notna() & (history["n_periods"] > 0)
     history = history[usable]
