@@ -92,7 +92,7 @@ def full_moves(F: np.ndarray, named: np.ndarray, *, conditional: bool, names: Se
         if not len(U):
             continue
         F_SS = F[np.ix_(S, S)]
-        coef = _solve_pd(F_SS, moves[j, S], names[j] if len(names) else str(j), [factors[i] for i in S] if len(factors) else S)
+        coef = _solve_pd(F_SS, moves[j, S], names[j] if len(names) else str(j), _labels(factors, S))
         moves[j, U] = F[np.ix_(U, S)] @ coef
     return moves
 
@@ -105,12 +105,17 @@ def plausibility(F: np.ndarray, named: np.ndarray, horizon: float, names: Sequen
     for j in range(named.shape[0]):
         S = np.flatnonzero(~np.isnan(named[j]))
         s = named[j, S]
-        coef = _solve_pd(horizon * F[np.ix_(S, S)], s, names[j] if len(names) else str(j), [factors[i] for i in S] if len(factors) else S)
+        coef = _solve_pd(horizon * F[np.ix_(S, S)], s, names[j] if len(names) else str(j), _labels(factors, S))
         d2 = float(s @ coef)
         p = float(stats.chi2.sf(d2, df=len(S)))
         rows.append({"n_shocked": len(S), "mahalanobis": d2, "tail_probability": p,
                      "sigma_equivalent": float(stats.norm.isf(p / 2.0)) if p > 0 else np.inf})
     return pd.DataFrame(rows, index=pd.Index(list(names) if len(names) else range(len(rows)), name="shock"))
+
+
+def _labels(factors: Sequence[Any], positions: np.ndarray) -> list[Any]:
+    """The factor names at ``positions`` (the positions themselves without names)."""
+    return [factors[int(i)] for i in positions] if len(factors) else [int(i) for i in positions]
 
 
 def _solve_pd(matrix: np.ndarray, rhs: np.ndarray, shock: str, labels: Sequence[Any]) -> np.ndarray:
