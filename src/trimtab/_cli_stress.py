@@ -214,7 +214,7 @@ def attribute_returns_command(
     group_by: Annotated[str | None, typer.Option("--group-by", help="Attributes column to sum the asset contributions by.", show_default=False)] = None,
     out: OutOpt = None,
 ) -> None:
-    """Explain a realised active return factor by factor: exposure × factor return, then the rest.
+    """Explain a realised active return factor by factor, and what stock picking added.
 
     Each period's active return splits exactly into factor contributions, the assets' intercepts and a
     specific part; the periods are linked (Carino) so the components add up to the compounded active
