@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 import trimtab
-from trimtab import FactorModel, fit_time_series
+from trimtab import FactorModel, fit_cross_section, fit_time_series
 from trimtab.errors import InputError
 from trimtab.stresstest import worst_windows
 
@@ -131,3 +131,24 @@ def test_bad_replay_input(fitted, kwargs, match):
     model, f, w, b = fitted
     with pytest.raises(InputError, match=match):
         trimtab.replay(model, w, **kwargs)
+
+
+def test_every_estimator_keeps_its_history_for_replay(tmp_path):
+    # statistical: the factor scores; cross section: the estimated factor returns (time series above)
+    rng = np.random.default_rng(4)
+    dates = pd.date_range("2016-01-31", periods=96, freq="ME")
+    assets = [f"S{i:02d}" for i in range(40)]
+    chars = pd.DataFrame({"size": rng.normal(size=40), "value": rng.normal(size=40)}, index=assets)
+    f = rng.normal(0.0, [0.04, 0.01, 0.01], (96, 3))
+    r = pd.DataFrame(f[:, :1] + f[:, 1:] @ chars.to_numpy().T + rng.normal(0, 0.02, (96, 40)), index=dates, columns=assets)
+    w = pd.Series(1.0 / 40, index=assets)
+    for model in (trimtab.fit_statistical(r, n_factors=2), fit_cross_section(r, chars)):
+        history = model.factor_history
+        assert history is not None and list(history.columns) == list(model.factors) and len(history) == 96
+        model.save(tmp_path / model.fit_report.method)
+        loaded = FactorModel.load(tmp_path / model.fit_report.method)
+        pd.testing.assert_frame_equal(loaded.factor_history, history, check_freq=False)
+        found = trimtab.replay(loaded, w, length=3, k=1).windows
+        start = history.index.get_loc(found["start"].iloc[0])
+        x = model.exposures.T.to_numpy() @ w.to_numpy()
+        assert found["book"].iloc[0] == pytest.approx(float(x @ history.iloc[start : start + 3].sum().to_numpy()), rel=1e-12)
