@@ -105,7 +105,7 @@ class StressSummary:
     def as_text(self) -> str:
         r = self.result
         months = r.horizon / (r.periods_per_year / 12.0)
-        title = f"Stress test ({'conditional' if r.conditional else 'named factors only'}; plausibility over {r.horizon:g} periods ≈ {months:.3g} month{'' if months == 1 else 's'})"
+        title = f"Stress test ({'conditional' if r.conditional else 'named factors only'}; plausibility over {r.horizon:g} period{'' if r.horizon == 1 else 's'} ≈ {months:.3g} month{'' if months == 1 else 's'})"
         lines = [title, "=" * len(title)]
         has_active = r.active_contributions is not None
         head = f"{'shock':<24} {'book':>9}" + (f" {'benchmark':>10} {'active':>9}" if has_active else "") + f"  {'largest loss from':<32} {'P(χ²≥D²)':>10}"
