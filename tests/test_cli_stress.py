@@ -141,3 +141,28 @@ def test_a_failed_run_leaves_no_output(demo: Path, tmp_path: Path) -> None:
     result = in_folder(demo, "stress", "--model", "model", *BOOK, "--shocks", "missing.yaml", "--out", out)
     assert result.exit_code == EXIT_BAD_INPUT
     assert not out.exists()
+
+
+def test_attribute_returns_with_a_weights_history(demo: Path, tmp_path: Path) -> None:
+    # a weights file with a row at each rebalance date; each row is held until the next one
+    bench = pd.read_csv(demo / "data" / "benchmark.csv", index_col="asset")["weight"]
+    tilted = bench.copy()
+    tilted.iloc[:20] *= 1.5
+    tilted /= tilted.sum()
+    weights = pd.DataFrame([bench, tilted], index=pd.to_datetime(["2023-06-01", "2023-09-01"]))
+    weights.index.name = "date"
+    weights.to_csv(tmp_path / "weights.csv")
+    result = in_folder(demo, "--json", "attribute-returns", "--model", "model", "--returns", "data/returns.parquet",
+                       "--weights", tmp_path / "weights.csv", "--benchmark", "data/benchmark.csv", "--start", "2023-06-01")
+    assert result.exit_code == 0, result.output
+    document = json.loads(result.stdout)
+    linked = pd.DataFrame(document["linked"]).set_index("component")["contribution"]
+    assert linked.sum() == pytest.approx(document["total"], rel=1e-10)
+    # before the tilt the book is the benchmark: nothing to attribute in June
+    model = trimtab.FactorModel.load(demo / "model")
+    returns = pd.read_parquet(demo / "data" / "returns.parquet").set_index("date").loc["2023-06-01":]
+    held = weights.reindex(returns.index, method="ffill").fillna(0.0)
+    api = trimtab.attribute_returns(model, held.reindex(columns=model.assets, fill_value=0.0), returns,
+                                    benchmark=bench.reindex(model.assets, fill_value=0.0))
+    assert api.linked["total"] == pytest.approx(document["total"], rel=1e-12)
+    assert api.by_period.loc[:"2023-08-31", "total"].abs().max() < 1e-15
