@@ -14,8 +14,10 @@ from __future__ import annotations
 
 import argparse
 import statistics
+import sys
 import time
 from collections.abc import Callable
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -23,24 +25,20 @@ import pandas as pd
 import trimtab
 from trimtab import FactorModel
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from _instances import random_model  # noqa: E402
 
-def random_model(n_assets: int, n_factors: int, seed: int = 0, history: int = 0) -> FactorModel:
+
+def with_history(model: FactorModel, periods: int, seed: int = 0) -> FactorModel:
+    """``model`` carrying a simulated factor-return history f ~ N(0, F) of ``periods`` business days."""
+    from trimtab.model import FitReport
+
     rng = np.random.default_rng(seed)
-    assets = [f"S{i:06d}" for i in range(n_assets)]
-    factors = ["market"] + [f"factor_{k:03d}" for k in range(1, n_factors)]
-    B = rng.normal(scale=0.5, size=(n_assets, n_factors))
-    B[:, 0] = 1.0 + 0.2 * rng.normal(size=n_assets)
-    A = rng.normal(size=(n_factors, n_factors)) / np.sqrt(n_factors)
-    F = (A @ A.T + np.eye(n_factors)) * 1e-5
-    d = rng.uniform(1e-4, 9e-4, n_assets)
-    model = FactorModel(pd.DataFrame(B, index=assets, columns=factors), pd.DataFrame(F, index=factors, columns=factors),
-                        pd.Series(d, index=assets))
-    if history:
-        from trimtab.model import FitReport
-
-        dates = pd.bdate_range("2015-01-01", periods=history)
-        fr = pd.DataFrame(rng.multivariate_normal(np.zeros(n_factors), F, history), index=dates, columns=factors)
-        object.__setattr__(model, "fit_report", FitReport("time_series", pd.DataFrame(index=model.assets), pd.DataFrame(), factor_returns=fr))
+    F = model.factor_covariance.to_numpy()
+    dates = pd.bdate_range("2015-01-01", periods=periods)
+    history = pd.DataFrame(rng.multivariate_normal(np.zeros(model.n_factors), F, periods), index=dates, columns=model.factors)
+    report = FitReport("time_series", pd.DataFrame(index=model.assets), pd.DataFrame(), factor_returns=history)
+    object.__setattr__(model, "fit_report", report)
     return model
 
 
@@ -93,7 +91,7 @@ def main() -> None:
     n, k, repeat = (20_000, 50, 1) if args.quick else (100_000, 100, 5)
     rng = np.random.default_rng(1)
 
-    model = random_model(n, k, history=2520)
+    model = with_history(random_model(n, k), 2520)
     w = pd.Series(rng.dirichlet(np.ones(n)), index=model.assets)
     b = pd.Series(1.0 / n, index=model.assets)
     shocks = {f"shock_{j}": {str(f): float(rng.normal(0, 0.03)) for f in rng.choice(model.factors, 3, replace=False)}
