@@ -44,7 +44,7 @@ import time
 
 import numpy as np
 
-from trimtab.construct._ipm_newton import _expand, _Newton, _per_row
+from trimtab.construct._ipm_newton import _expand, _Newton
 from trimtab.construct._ipm_problem import IMPACT_SMOOTHING, QP, Cap, Solution, Warm, _impact
 
 __all__ = ["IMPACT_SMOOTHING", "QP", "Cap", "Solution", "Warm", "fixed_coordinates", "solve"]
