@@ -235,8 +235,9 @@ def attribute_returns_command(
             if fm is None or fm.factor_history is None:
                 raise InputError("--backtest: give --factor-returns (or --model with a factor history)")
             factors = fm.factor_history
+        if start is not None or end is not None:
+            raise InputError("--start/--end: with --backtest the whole backtest is attributed; run the backtest over the span you want")
         result = attribute_backtest_returns(_backtest_tables(backtest), factors, scenario=scenario, linking=linking)
-        result = _trimmed(result, start, end)
     else:
         if fm is None or returns is None:
             raise InputError("attribute-returns: give --model and --returns (or --backtest FOLDER)")
@@ -273,12 +274,6 @@ def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Pa
     bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
     attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
     return bench, None if attrs is None else attrs.reindex(model.assets)
-
-
-def _trimmed(result: Any, start: str | None, end: str | None) -> Any:
-    if start is None and end is None:
-        return result
-    raise InputError("--start/--end: with --backtest the whole backtest is attributed; run the backtest over the span you want")
 
 
 def register(app: typer.Typer) -> None:

@@ -210,7 +210,7 @@ def stress(
     F, B = model._F, model._B
     factors = list(model.factors)
     moves = full_moves(F, named, conditional=bool(conditional), names=names, factors=factors)
-    extra = specific_moves(model, specific, groups, names)
+    extra = _specific_matrix(model, specific, groups, names)
     x = B.T @ w
     book_contrib = moves * x[None, :]
     book_specific = extra @ w if extra is not None else np.zeros(len(names))
@@ -245,7 +245,7 @@ def stress(
     )
 
 
-def specific_moves(model: FactorModel, specific: Mapping[str, Mapping[Any, float]] | None, groups: pd.Series | None,
+def _specific_matrix(model: FactorModel, specific: Mapping[str, Mapping[Any, float]] | None, groups: pd.Series | None,
                    names: list[str]) -> np.ndarray | None:
     """Shock × asset specific returns e from {shock: {asset or group: move}} (None when none given)."""
     if specific is None:
