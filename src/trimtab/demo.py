@@ -331,6 +331,7 @@ constraints:
   turnover: {max: 0.25}
   liquidity: {max_adv_fraction: 0.10, days: 1}
 stress: shocks.yaml
+replay: {length: 21, count: 3}
 output:
   tables: csv
 """,
@@ -361,7 +362,8 @@ constraints:
     "shocks.yaml": """\
 # Named shocks for the demo fund: each moves the named factors by a return over about a month (the
 # model's other factors move as the model says they co-move with them). The base scenario reports
-# every shock before and after the trade (stress: shocks.yaml); stress_limit.yaml caps their losses.
+# every shock before and after the trade (stress: shocks.yaml), with the three worst months of the
+# model's history (replay:); stress_limit.yaml caps the shocks' losses.
 # `trimtab stress --model model --holdings data/holdings.csv --shocks shocks.yaml` runs them alone.
 description: Invented demo shocks (returns over about a month)
 shocks:

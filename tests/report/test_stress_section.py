@@ -6,6 +6,7 @@ import json
 
 import jsonschema
 import numpy as np
+import pandas as pd
 import pytest
 from rich.console import Console
 
@@ -72,3 +73,36 @@ def test_no_shocks_no_section():
     res = rebalance(fund.model, {"objective": {"minimize": "active_risk"}, "constraints": {"fully_invested": True}}, **fund.kwargs())
     assert res.stress is None
     assert "Stress tests" not in render_html(res)
+
+
+def test_replay_rows_are_the_worst_windows_before_and_after():
+    # the worst windows for the active book before the trade, found by trimtab.replay, replayed on both books
+    rng = np.random.default_rng(8)
+    dates = pd.date_range("2014-01-31", periods=120, freq="ME")
+    f = pd.DataFrame(rng.normal(0.005, [0.045, 0.02], (120, 2)), index=dates, columns=["mkt", "smb"])
+    B = rng.normal([1.0, 0.0], 0.4, (30, 2))
+    r = pd.DataFrame(f.to_numpy() @ B.T + rng.normal(0, 0.03, (120, 30)), index=dates, columns=[f"S{i:02d}" for i in range(30)])
+    model = trimtab.fit_time_series(r, f)
+    bench = pd.Series(1.0 / 30, index=model.assets)
+    holdings = pd.Series(rng.dirichlet(np.ones(30)), index=model.assets)
+    res = rebalance(model, {"objective": {"minimize": "active_risk"}, "constraints": {"fully_invested": True},
+                            "replay": {"length": 3, "count": 2}}, holdings=holdings, benchmark=bench)
+    table = res.stress
+    assert list(table["source"]) == ["replay", "replay"]
+    worst = trimtab.replay(model, holdings, benchmark=bench, length=3, k=2).windows
+    worst = worst[worst["found"] == "worst for active"]
+    np.testing.assert_allclose(table["pre_active"].to_numpy(), worst["active"].to_numpy(), rtol=1e-12)
+    after = trimtab.replay(model, res.weights, benchmark=bench,
+                           windows={n: (s, e) for n, s, e in zip(table.index, worst["start"], worst["end"])}).windows
+    np.testing.assert_allclose(table["post_active"].to_numpy(), after["active"].to_numpy(), rtol=1e-12)
+    assert table.index[0].startswith("history ")
+
+
+def test_replay_settings_are_checked():
+    from trimtab.construct import validate_scenario
+    from trimtab.errors import ScenarioError
+
+    with pytest.raises(ScenarioError, match=r"replay\.length: must be ≥ 1"):
+        validate_scenario({"objective": {"minimize": "active_risk"}, "replay": {"length": 0}})
+    with pytest.raises(ScenarioError, match=r"replay: unknown key\(s\) months"):
+        validate_scenario({"objective": {"minimize": "active_risk"}, "replay": {"length": 21, "months": 3}})

@@ -111,7 +111,7 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     'active_risk'
     """
     top = Path(source)
-    body = f.mapping(top, mapping, ["objective", "constraints", "stress"], ["objective"])
+    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay"], ["objective"])
     objective = _objective(top / "objective", body["objective"])
     raw = body.get("constraints") or {}
     cpath = top / "constraints"
@@ -131,6 +131,8 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     normalised: dict[str, Any] = {"objective": {k: v for k, v in objective.items() if k != "kind"}, "constraints": constraints}
     if body.get("stress") is not None:
         normalised["stress"] = _stress_list(top / "stress", body["stress"], constraints.get("stress_loss"))
+    if body.get("replay") is not None:
+        normalised["replay"] = _replay(top / "replay", body["replay"])
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
 
 
@@ -351,6 +353,13 @@ def _stress_list(path: Path, value: Any, stress_loss: Mapping[str, Any] | None) 
         if name in limited and limited[name]["factors"] != entry["factors"]:
             raise (path / name).fail("a stress_loss shock has this name with other moves; give the two different names")
     return entries
+
+
+def _replay(path: Path, value: Any) -> dict[str, int]:
+    """``{length: periods, count: k}``: the k worst windows of the model's history, before and after."""
+    body = f.mapping(path, value, ["length", "count"], ["length"])
+    return {"length": f.integer(path / "length", body["length"], minimum=1),
+            "count": f.integer(path / "count", body.get("count", 3), minimum=1)}
 
 
 def _liquidity(path: Path, value: Any) -> dict[str, Any]:

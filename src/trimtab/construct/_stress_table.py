@@ -1,7 +1,9 @@
 """Pre- and post-trade stress of a rebalance: every shock of the scenario, before and after the trade.
 
 The shocks are those of the ``stress_loss`` limit (moved as the limit says: conditional or not, with
-its cap beside) and of the scenario's ``stress`` list (conditional moves, specific moves on top).
+its cap beside), of the scenario's ``stress`` list (conditional moves, specific moves on top) and,
+with ``replay: {length, count}``, the worst windows of the model's factor history for the book held
+before the trade (active when there is a benchmark), replayed on the book before and after.
 """
 
 from __future__ import annotations
@@ -39,7 +41,8 @@ def stress_table(model: FactorModel | None, holdings: pd.Series | None, weights:
     extra = {k: v for k, v in listed.items() if not (limit and k in limit["shocks"])}
     if extra:
         groups.append(("stress", extra, True, None))
-    if not groups:
+    replay = scenario.get("replay")
+    if not groups and not replay:
         return None
     frames = []
     for source, entries, conditional, cap in groups:
@@ -59,4 +62,39 @@ def stress_table(model: FactorModel | None, holdings: pd.Series | None, weights:
         }, index=pd.Index(pre.shocks, name="shock"))
         frame["change_active"] = frame["post_active"] - frame["pre_active"]
         frames.append(frame)
+    if replay and model.factor_history is not None:
+        frames.append(_replayed(model, holdings, weights, benchmark, int(replay["length"]), int(replay["count"])))
+    if not frames:
+        return None
     return pd.concat(frames)[list(STRESS_COLUMNS)]
+
+
+def _replayed(model: FactorModel, holdings: pd.Series, weights: pd.Series, benchmark: pd.Series | None,
+              length: int, count: int) -> pd.DataFrame:
+    """The ``count`` worst windows of ``length`` periods for the book before the trade, replayed before and after."""
+    from trimtab.stresstest import replay
+
+    length = min(length, len(model.factor_history))  # type: ignore[arg-type]
+    pre = replay(model, holdings, benchmark=benchmark, length=length, k=count)
+    which = "worst for active" if benchmark is not None else "worst for book"
+    found = pre.windows[pre.windows["found"] == which]
+    spans = {f"history {_day(r.start)} to {_day(r.end)}": (r.start, r.end) for r in found.itertuples()}
+    before = replay(model, holdings, benchmark=benchmark, windows=spans)
+    after = replay(model, weights, benchmark=benchmark, windows=spans)
+    kind = "active book" if benchmark is not None else "book"
+    frame = pd.DataFrame({
+        "source": "replay",
+        "description": [f"worst {length}-period window of the model's history for the {kind} before the trade"] * len(spans),
+        "pre_book": before.windows["book"], "post_book": after.windows["book"],
+        "pre_active": before.windows["active"], "post_active": after.windows["active"],
+        "limit": np.nan, "limit_on": None,
+        "specific_band_active": after.windows["specific_band_active"],
+        "tail_probability": np.nan,
+    }, index=pd.Index(list(spans), name="shock"))
+    frame["change_active"] = frame["post_active"] - frame["pre_active"]
+    return frame
+
+
+def _day(value: Any) -> str:
+    stamp = pd.Timestamp(value)
+    return str(stamp.date()) if stamp == stamp.normalize() else str(stamp)

@@ -143,6 +143,9 @@ class ScenarioSpec(_Strict):
     stress: str | dict[str, Any] | None = Field(
         None, description="shocks reported before and after the trade: a shock file, or name → {factors: {factor: move}}"
     )
+    replay: dict[str, Any] | None = Field(
+        None, description="{length: periods, count: k}: the k worst windows of the model's history, before and after the trade"
+    )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
 
     @field_validator("name")
