@@ -59,7 +59,7 @@ def stress_html(subject: Any, heading: str, salt: str) -> str:
             html.escape(str(row["source"])),
             format_percent(row[f"pre_{column}"]), format_percent(row[f"post_{column}"]),
             format_percent(row["limit"]) + (f" ({row['limit_on']})" if isinstance(row["limit_on"], str) else ""),
-            format_percent(row["specific_band_active"]), f"{row['tail_probability']:.2g}",
+            format_percent(row["specific_band_active"]), _probability(row["tail_probability"]),
             html.escape(str(row["description"] or "")),
         ]
         tds = "".join(f'<td class="{"text" if i in (0, 6) else "num"}">{c}</td>' for i, c in enumerate(cells))
@@ -82,5 +82,10 @@ def print_stress(subject: Any, console: Console) -> None:
     for name, row in frame.iterrows():
         limit = format_percent(row["limit"]) if isinstance(row["limit_on"], str) else ""
         table.add_row(str(name), format_percent(row[f"pre_{column}"]), format_percent(row[f"post_{column}"]), limit,
-                      f"{row['tail_probability']:.2g}")
+                      _probability(row["tail_probability"]))
     console.print(table)
+
+
+def _probability(value: float) -> str:
+    """A tail probability to two significant digits; "–" where there is none (a replayed window)."""
+    return f"{value:.2g}" if isinstance(value, (int, float)) and math.isfinite(value) else "–"

@@ -77,14 +77,14 @@ class ReplaySummary:
         title = "Historical replay on today's exposures"
         lines = [title, "=" * len(title)]
         has_active = self.result.active_contributions is not None
-        head = f"{'window':<22} {'found':<17} {'from':<10} {'to':<10} {'book':>8}" + (f" {'active':>8}" if has_active else "") + f" {'±1σ specific':>13}"
+        head = f"{'window':<22} {'found':<17} {'from':<10} {'to':<10} {'book':>8}" + (f" {'active':>8}" if has_active else "") + f" {'±1σ specific' + (' (active)' if has_active else ''):>22}"
         lines.append(head)
         for name, row in self.to_frame().iterrows():
             band = row["specific_band_active"] if has_active else row["specific_band_book"]
             text = f"{str(name)[:22]:<22} {row['found']:<17} {_day(row['start']):<10} {_day(row['end']):<10} {row['book']:>8.2%}"
             if has_active:
                 text += f" {row['active']:>8.2%}"
-            lines.append(text + f" {band:>13.2%}")
+            lines.append(text + f" {band:>22.2%}")
         return "\n".join(lines)
 
     def __str__(self) -> str:
