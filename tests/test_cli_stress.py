@@ -105,6 +105,9 @@ def test_attribute_a_backtest_folder(demo: Path, tmp_path: Path) -> None:
     assert document["total"] == pytest.approx(compounded, rel=1e-10)
     linked = pd.DataFrame(document["linked"]).set_index("component")["contribution"]
     assert linked.sum() == pytest.approx(compounded, rel=1e-10)
+    # the backtest's own total, ∏(1 + Rₜ − Rbₜ) − 1, is given beside it
+    totals = pd.read_csv(bt / "totals.csv", index_col=0)
+    assert document["compounded_active_returns"] == pytest.approx(totals.loc["base", "active_return"], rel=1e-10)
 
 
 @pytest.mark.parametrize(

@@ -257,6 +257,10 @@ def attribute_returns_command(
         result = attribute_returns(fm, held, asset_returns, factors, benchmark=bench, linking=linking)
         groups = _groups(attrs, group_by)
     text = result.summary().as_text()
+    if backtest is not None:
+        chained = float((1.0 + result.returns["active"]).prod() - 1.0)
+        text += (f"\n\nThe backtest's own totals compound the active returns instead: ∏(1 + Rₜ − Rbₜ) − 1 = {chained:.2%} "
+                 "(the two differ by how book and benchmark growth compound together).")
     if groups is not None:
         by_group = result.by_group(groups)
         text += "\n\nBy " + str(group_by) + " (linked)\n" + by_group.to_string(float_format=lambda v: f"{v:.2%}")
@@ -264,7 +268,10 @@ def attribute_returns_command(
     if out is not None:
         settings = {"linking": linking, "start": start, "end": end, "backtest": str(backtest) if backtest else None}
         files = write_return_attribution(result, out, inputs, settings=settings)
-    _show(ctx, text, {"linked": result.factor_table(), "total": float(result.linked["total"])}, out, files)
+    document: dict[str, Any] = {"linked": result.factor_table(), "total": float(result.linked["total"])}
+    if backtest is not None:
+        document["compounded_active_returns"] = chained
+    _show(ctx, text, document, out, files)
 
 
 def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Path | None) -> tuple[pd.Series | None, pd.DataFrame | None]:
