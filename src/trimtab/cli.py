@@ -574,6 +574,10 @@ _register_run_commands()
 from trimtab._cli_explore import register as _register_explore  # noqa: E402 - the live what-if page
 _register_explore(app)
 
+from trimtab._cli_stress import register as _register_stress_commands  # noqa: E402 - needs app and _guarded above
+
+_register_stress_commands(app)  # stress, replay, attribute-returns
+
 
 def _reflow_help() -> None:
     """Each command's help from its docstring with every paragraph on one line.
