@@ -72,11 +72,18 @@ def build(inputs: ScenarioInputs) -> Any:
 
 def solve(inputs: ScenarioInputs) -> ScenarioRun:
     """Rebalance one scenario; an infeasible problem or a solver failure is kept, not raised."""
+    from trimtab.scenario._notices import alert_settings, alignment_warnings
+
     problem = build(inputs)
     try:
         result = problem.solve()
     except (InfeasibleError, SolverError) as err:
         return ScenarioRun(inputs, error=err)
+    data = inputs.scenario.spec.data
+    files = {"holdings": Path(data.holdings.path).name, **({"benchmark": Path(data.benchmark.path).name} if data.benchmark is not None else {})}
+    result = result.with_context(
+        notices=alignment_warnings(inputs.alignment, files), alerts=alert_settings(inputs.scenario.spec.alerts)
+    )
     return ScenarioRun(inputs, result=result)
 
 

@@ -131,6 +131,14 @@ class OutputSection(_Strict):
     html: bool = True
 
 
+class AlertsSection(_Strict):
+    """Thresholds of the concentration alerts shown with every rebalance (docs/scenarios.md)."""
+
+    factor_share: float = Field(0.5, gt=0, le=1, description="alert when one factor takes more than this share of the variance")
+    asset_share: float = Field(0.2, gt=0, le=1, description="alert when one position takes more than this share of the variance")
+    pinned_positions: int = Field(1, ge=0, description="alert when at least this many positions sit at an upper weight limit (0: off)")
+
+
 class ScenarioSpec(_Strict):
     """A whole scenario file after ``extends`` has been merged."""
 
@@ -141,6 +149,7 @@ class ScenarioSpec(_Strict):
     objective: dict[str, Any]
     constraints: dict[str, Any] = Field(default_factory=dict)
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
+    alerts: AlertsSection = Field(default_factory=AlertsSection)  # type: ignore[arg-type]
 
     @field_validator("name")
     @classmethod
