@@ -307,8 +307,8 @@ def test_compare(work: Path) -> None:
     import pandas as pd
 
     table = pd.read_csv(work / "cmp" / "comparison.csv", index_col=0)
-    assert list(table.columns) == ["base", "low_turnover"]
-    assert table.loc["status"].tolist() == ["solved", "solved"]
+    assert list(table.columns) == ["label", "unit", "base", "low_turnover", "change: low_turnover"]
+    assert table.loc["status", ["base", "low_turnover"]].tolist() == ["solved", "solved"]
     assert {"report.html", "base", "low_turnover"} <= {p.name for p in (work / "cmp").iterdir()}
     # with the infeasible one: the others still run and are written, exit 1
     result = invoke("compare", work / "base.yaml", work / "infeasible.yaml", "--out", work / "cmp")

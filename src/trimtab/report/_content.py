@@ -81,6 +81,13 @@ class ReportContent:
     provenance: dict[str, Any] = field(default_factory=dict)
     scenario: dict[str, Any] = field(default_factory=dict)
     caution: str = CAUTION
+    figures: pd.DataFrame | None = None
+    orders: pd.DataFrame | None = None
+    orders_in_shares: bool = False
+    rounding: dict[str, Any] | None = None
+    warnings: list[dict[str, Any]] = field(default_factory=list)
+    context: dict[str, Any] = field(default_factory=dict)
+    checks: pd.DataFrame | None = None
 
     @property
     def is_rebalance(self) -> bool:
@@ -138,6 +145,13 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         verification=_frame_or_none(getattr(subject, "verification", None)),
         provenance=_plain_mapping(getattr(subject, "provenance", None)),
         scenario=scenario,
+        figures=desk_table(subject),
+        orders=_orders(subject, trades),
+        orders_in_shares=getattr(subject, "trade_list", None) is not None,
+        rounding=_rounding(getattr(subject, "trade_list", None)),
+        warnings=warning_records(subject),
+        context=_context(subject, post),
+        checks=_checks(subject),
     )
 
 
@@ -332,7 +346,7 @@ def _trade_summary(trades: pd.DataFrame | None) -> pd.DataFrame | None:
     if "notional" in trades.columns:
         rows.append(("Notional traded (Σ|notional|)", "amount", float(trades["notional"].abs().sum())))
     if "cost" in trades.columns:
-        rows.append(("Estimated cost (of NAV)", "bp", float(trades["cost"].sum())))
+        rows.append(("Estimated cost (of NAV)", "fraction", float(trades["cost"].sum())))
     if "adv_fraction" in trades.columns:
         rows.append(("Largest fraction of daily volume", "fraction", float(trades["adv_fraction"].abs().max())))
     return pd.DataFrame(rows, columns=["label", "unit", "value"])
@@ -387,3 +401,154 @@ def _plain_mapping(value: Any) -> dict[str, Any]:
     return {str(k): v for k, v in value.items()} if isinstance(value, Mapping) else {}
 
 
+
+
+# ---------------------------------------------------------------------- desk views
+#: Desk figure key → (label, unit); the same keys as :data:`trimtab.construct._figures.DESK_FIGURES`
+#: (repeated here so the report does not import the optimizer).
+DESK_FIGURES: dict[str, tuple[str, str]] = {
+    "expected_alpha": ("Expected active return (alpha)", "fraction"),
+    "information_ratio": ("Information ratio", "ratio"),
+    "tracking_error": ("Tracking error", "fraction"),
+    "total_risk": ("Total risk", "fraction"),
+    "beta": ("Beta", "ratio"),
+    "turnover": ("Turnover (one-way)", "fraction"),
+    "cost": ("Estimated cost (of NAV)", "fraction"),
+    "cost_amount": ("Estimated cost (currency)", "amount"),
+    "names_bought": ("Names bought", "count"),
+    "names_sold": ("Names sold", "count"),
+    "names_held": ("Names held", "count"),
+}
+
+
+def desk_table(subject: Any) -> pd.DataFrame | None:
+    """The desk figures before and after with their change: index figure; label, unit, pre, post, change."""
+    after = getattr(subject, "figures", None)
+    if not isinstance(after, Mapping) or not after:
+        return None
+    before = getattr(subject, "figures_before", None)
+    keys = [k for k in DESK_FIGURES if k in after]
+    table = pd.DataFrame(
+        {
+            "label": [DESK_FIGURES[k][0] for k in keys],
+            "unit": [DESK_FIGURES[k][1] for k in keys],
+            "pre": [float(before.get(k, np.nan)) if isinstance(before, Mapping) else np.nan for k in keys],
+            "post": [float(after[k]) for k in keys],
+        },
+        index=pd.Index(keys, name="figure"),
+    )
+    table["change"] = table["post"] - table["pre"]
+    return table[table[["pre", "post"]].notna().any(axis=1)]
+
+
+def warning_records(subject: Any) -> list[dict[str, Any]]:
+    """The subject's warnings as ``{"kind", "message", "details"}`` records (empty when it has none)."""
+    items = getattr(subject, "warnings", None)
+    if not isinstance(items, (list, tuple)):
+        return []
+    out = []
+    for item in items:
+        if hasattr(item, "as_dict"):
+            out.append(item.as_dict())
+        elif isinstance(item, Mapping):
+            out.append({"kind": str(item.get("kind", "note")), "message": str(item.get("message", "")),
+                        "details": dict(item.get("details", {}))})
+    return out
+
+
+def _orders(subject: Any, trades: pd.DataFrame | None) -> pd.DataFrame | None:
+    """The subject's order list, else one made from its trade table: only the assets that trade,
+    largest first, with side and the weight columns (and shares and notional when given)."""
+    orders = _frame_or_none(getattr(subject, "orders", None))
+    if orders is not None or trades is None or "trade" not in trades.columns:
+        return orders
+    moved = trades[trades["trade"].astype(float).abs() > TRADE_TOLERANCE]
+    frame = pd.DataFrame({"side": np.where(moved["trade"] > 0, "buy", "sell")}, index=moved.index)
+    for column, source in (("shares", "shares"), ("notional", "notional")):
+        if source in moved.columns:
+            frame[column] = moved[source].abs()
+    frame["weight_before"] = moved.get("initial_weight")
+    frame["weight_after"] = moved.get("target_weight")
+    frame["weight_change"] = moved["trade"]
+    frame.index.name = "asset"
+    return frame.iloc[np.argsort(-frame["weight_change"].abs().to_numpy(), kind="stable")]
+
+
+def _rounding(trade_list: Any) -> dict[str, Any] | None:
+    if trade_list is None:
+        return None
+    return {
+        "nav": float(trade_list.nav),
+        "cash_before": float(trade_list.cash_before),
+        "cash_optimal": float(trade_list.cash_optimal),
+        "cash_after": float(trade_list.cash_after),
+        "largest_changes": trade_list.moves,
+    }
+
+
+def _context(subject: Any, post: RiskAttribution) -> dict[str, Any]:
+    """Description, NAV and cash, and the model's date and coverage, for the report's opening lines."""
+    out = dict(_plain_mapping(getattr(subject, "context", None)))
+    model = getattr(post, "model", None)
+    provenance = _plain_mapping(getattr(model, "provenance", None))
+    window = provenance.get("window")
+    if isinstance(window, (list, tuple)) and len(window) == 2:
+        out.setdefault("model_as_of", str(window[1]))
+        out.setdefault("model_window", [str(window[0]), str(window[1])])
+    if model is not None:
+        out.setdefault("model_assets", int(model.n_assets))
+        out.setdefault("model_factors", int(model.n_factors))
+    nav = getattr(subject, "nav", None)
+    if nav is not None:
+        out.setdefault("nav", float(nav))
+    return out
+
+
+def _checks(subject: Any) -> pd.DataFrame | None:
+    """Every limit on the final book: limit, kind, value, lower, upper, slack (to the nearer bound), ok.
+
+    From the rounded book's verification when there is a trade list, else the optimizer's."""
+    trade_list = getattr(subject, "trade_list", None)
+    table = _frame_or_none(getattr(trade_list, "verification", None)) if trade_list is not None else None
+    if table is None:
+        table = _frame_or_none(getattr(subject, "verification", None))
+    if table is None or not {"name", "kind", "value", "lower", "upper", "ok"} <= set(table.columns):
+        return None
+    table = table[~table["name"].isin(["weights_finite", "objective"])].copy()
+    value = pd.to_numeric(table["value"], errors="coerce")
+    lower = pd.to_numeric(table["lower"], errors="coerce")
+    upper = pd.to_numeric(table["upper"], errors="coerce")
+    slack = pd.concat([(upper - value), (value - lower)], axis=1).min(axis=1, skipna=True)
+    out = pd.DataFrame({"kind": table["kind"], "value": value, "lower": lower, "upper": upper, "slack": slack,
+                        "ok": table["ok"].astype(bool)})
+    out.index = pd.Index(table["name"].astype(str), name="limit")
+    return out
+
+
+def settings_rows(mapping: Mapping[str, Any], prefix: str = "") -> list[tuple[str, str]]:
+    """A nested scenario mapping as (key path, value) rows: ``constraints.weight.max → 0.03``."""
+    rows: list[tuple[str, str]] = []
+    for key, value in mapping.items():
+        path = f"{prefix}.{key}" if prefix else str(key)
+        if isinstance(value, Mapping) and value:
+            rows.extend(settings_rows(value, path))
+        elif isinstance(value, list) and value and all(isinstance(v, Mapping) for v in value):
+            for i, item in enumerate(value):
+                rows.extend(settings_rows(item, f"{path}[{i}]"))
+        else:
+            rows.append((path, _setting_text(value)))
+    return rows
+
+
+def _setting_text(value: Any) -> str:
+    if value is None:
+        return "none"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return f"{value:g}"
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_setting_text(v) for v in value) + "]"
+    if isinstance(value, Mapping):
+        return "{}"
+    return str(value)
