@@ -79,7 +79,7 @@ def test_check_ok_prints_alignment_and_json(work: Path) -> None:
 @pytest.mark.parametrize(
     ("edit", "pattern"),
     [
-        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: constraints, data"),
+        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: alerts, constraints, data"),
         (lambda t: t.replace("kind: shares", "kind: lots"), r"data\.holdings\.kind: expected 'weights' or 'shares', got 'lots'"),
         (lambda t: t.replace("model: model", "model: missing_model"), r"missing_model: no such model folder"),
         (lambda t: t.replace("data/alpha.csv", "data/alpha.txt"), r"alpha\.txt: alpha file not found"),
@@ -241,8 +241,14 @@ def test_rebalance_writes_a_complete_folder(work: Path) -> None:
     # the trades recompute the one-way turnover cap of base.yaml: ½·Σ|trade| ≤ 0.25 (+ the verification tolerance)
     import pandas as pd
 
+    book = pd.read_csv(work / "out" / "target_book.csv")
+    assert 0.5 * book["trade"].abs().sum() <= 0.25 + 1e-6
+    # trades.csv is the order list (issue #13): only names that trade, whole shares, named headers
     trades = pd.read_csv(work / "out" / "trades.csv")
-    assert 0.5 * trades["trade"].abs().sum() <= 0.25 + 1e-6
+    assert list(trades.columns[:6]) == ["asset", "side", "shares", "lot", "price", "notional"]
+    assert len(trades) == int((book["trade"].abs() > 1e-10).sum())
+    assert (trades["shares"] == trades["shares"].round()).all() and (trades["shares"] > 0).all()
+    assert 0.5 * trades["weight_change"].abs().sum() <= 0.25 + 1e-6
     # --json: one document with the documented report inside
     result = invoke("--json", "rebalance", work / "low_turnover.yaml", "--out", work / "out2")
     document = json.loads(result.stdout)

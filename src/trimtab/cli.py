@@ -20,19 +20,16 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Annotated, Any, TypeVar
 
-import numpy as np
-import pandas as pd
-import typer
-from rich.console import Console
-from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
-from rich.table import Table
+from typing import TYPE_CHECKING
 
-from trimtab._format import format_percent as _pct
-from trimtab._format import frame_table as _frame_table
+import typer
 
 from trimtab._version import __version__
 from trimtab.errors import InfeasibleError, InputError, SolverError, TrimtabError
-from trimtab.scenario._jsonable import jsonable
+
+if TYPE_CHECKING:  # imported where used: `trimtab --help` loads neither pandas nor the optimizer
+    from rich.console import Console
+    from rich.table import Table
 
 EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
 
@@ -63,10 +60,14 @@ class Ui:
 
     @functools.cached_property
     def out(self) -> Console:
+        from rich.console import Console
+
         return Console(file=sys.stdout, width=_width(), highlight=False, soft_wrap=False)
 
     @functools.cached_property
     def err(self) -> Console:
+        from rich.console import Console
+
         return Console(file=sys.stderr, width=_width(), highlight=False)
 
     @property
@@ -89,11 +90,15 @@ class Ui:
 
     def emit(self, document: Any) -> None:
         if self.json:
+            from trimtab.scenario._jsonable import jsonable
+
             sys.stdout.write(json.dumps(jsonable(document), indent=2) + "\n")
 
     @contextmanager
     def progress(self, total: int | None = None) -> Iterator[Callable[[str], None]]:
         """A rich spinner (or bar, with ``total``) on stderr; yields ``step(label)``."""
+        from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+
         bar = Progress(
             SpinnerColumn(),
             TextColumn("{task.description}"),
@@ -205,6 +210,7 @@ def _print_relaxation(ui: Ui, name: str | None, err: InfeasibleError) -> None:
 
 
 def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
+    from trimtab.scenario._jsonable import jsonable
     from trimtab.scenario._run import relaxation_frame
 
     return jsonable(relaxation_frame(err))  # type: ignore[no-any-return]
@@ -242,6 +248,8 @@ def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
     """
     from trimtab.scenario import load_inputs, load_scenario
     from trimtab.scenario._run import build, describe
+
+    from trimtab._format import frame_table as _frame_table
 
     ui = _ui(ctx)
     with ui.progress() as step:
@@ -508,6 +516,9 @@ def demo(
     Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them and
     writes the HTML reports; prints the headline table and where the files went.
     """
+    from rich.table import Table
+
+    from trimtab._format import format_percent as _pct
     from trimtab.scenario._demo_run import headline_rows, run_demo
 
     ui = _ui(ctx)

@@ -421,6 +421,15 @@ DESK_FIGURES: dict[str, tuple[str, str]] = {
 }
 
 
+#: How a desk figure is shown when its stored unit reads poorly (a cost of 0.000179 of NAV: 1.79 bp).
+DISPLAY_UNITS = {"cost": "bp"}
+
+
+def display_unit(key: Any, unit: str) -> str:
+    """The unit a figure is shown in (:data:`DISPLAY_UNITS`, else its own)."""
+    return DISPLAY_UNITS.get(str(key), unit)
+
+
 def desk_table(subject: Any) -> pd.DataFrame | None:
     """The desk figures before and after with their change: index figure; label, unit, pre, post, change."""
     after = getattr(subject, "figures", None)
@@ -523,6 +532,93 @@ def _checks(subject: Any) -> pd.DataFrame | None:
                         "ok": table["ok"].astype(bool)})
     out.index = pd.Index(table["name"].astype(str), name="limit")
     return out
+
+
+def context_lines(content: ReportContent) -> list[str]:
+    """The report's opening lines: the scenario's description, the fund's NAV and cash, the model's
+    date and coverage."""
+    ctx = content.context
+    lines = []
+    if ctx.get("description"):
+        lines.append(f"Scenario {ctx.get('scenario', '')}: {ctx['description']}".replace("Scenario : ", "Scenario: "))
+    if ctx.get("nav") is not None:
+        cash = ctx.get("cash")
+        held = f"; cash {amount_text(cash)}" if cash is not None else ""
+        source = " (Σ shares·price + cash)" if ctx.get("holdings_kind") == "shares" and ctx.get("nav_given") is False else ""
+        lines.append(f"NAV {amount_text(ctx['nav'])}{source}{held}; weights are fractions of NAV")
+    if ctx.get("model_assets") is not None:
+        when = f", fitted to {ctx['model_as_of']}" if ctx.get("model_as_of") else ""
+        cover = ""
+        if ctx.get("holdings_coverage") is not None:
+            cover = f"; {ctx['holdings_coverage']:.1%} of the held weight is in the model"
+        lines.append(f"Risk model: {ctx['model_assets']:,} assets × {ctx.get('model_factors', '?')} factors{when}{cover}")
+    return lines
+
+
+def rounding_lines(content: ReportContent) -> list[str]:
+    """What rounding the trades to whole shares moved: cash left and the largest weight changes."""
+    r = content.rounding
+    if r is None:
+        if content.orders is not None and not content.orders_in_shares:
+            return ["The trade list is in weights (fractions of NAV): give the fund's NAV and prices for shares."]
+        return []
+    lines = [
+        f"Trades rounded to whole shares (to the lot where a lot size is given) and re-verified against every "
+        f"limit; the figures after the trades are those of the rounded book. Cash: {amount_text(r['cash_before'])} "
+        f"before, {amount_text(r['cash_after'])} after (the unrounded book: {amount_text(r['cash_optimal'])})."
+    ]
+    moves = r["largest_changes"]
+    if isinstance(moves, pd.DataFrame) and len(moves):
+        shown = ", ".join(f"{asset} {1e4 * change:+.3f} bp" for asset, change in moves["change"].head(3).items())
+        lines.append(f"Largest weight changes from rounding: {shown} of NAV.")
+    return lines
+
+
+def binding_assets_text(row: Mapping[str, Any] | pd.Series) -> str:
+    """For a per-asset limit: ``1,183 assets: A, B, C and 1,178 more``; empty for other limits."""
+    n = row.get("n_binding") if hasattr(row, "get") else None
+    names = row.get("binding_assets") if hasattr(row, "get") else None
+    if row.get("asset") is None or (isinstance(row.get("asset"), float) and np.isnan(row.get("asset"))):
+        return ""
+    try:
+        count = int(n)
+    except (TypeError, ValueError):
+        return ""
+    listed = names if isinstance(names, str) and names else str(row.get("asset"))
+    return f"{count:,} asset{'s' if count != 1 else ''}: {listed}"
+
+
+def change_text(value: Any, unit: str) -> str:
+    """A change in its unit, signed: fractions and percents as percentage points (``+0.40 pp``)."""
+    from trimtab.attribution import format_figure
+
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return "n/a"
+    if not np.isfinite(number):
+        return "n/a"
+    if unit == "bp":
+        text = f"{1e4 * number:+.2f} bp"
+    elif unit == "fraction":
+        text = f"{100 * number:+.2f} pp"
+    elif unit == "percent":
+        text = f"{number:+.1f} pp"
+    elif unit in ("count", "amount"):
+        text = f"{number:+,.0f}"
+    else:
+        text = format_figure(number, unit)
+        text = text if text.startswith("-") else "+" + text
+    return "0" if text.lstrip("+-").replace("0", "").replace(".", "").strip() in ("pp", "") else text
+
+
+def amount_text(value: Any) -> str:
+    """A sum of money in the fund's currency, with thousands separators (no currency sign: the
+    fund's currency is that of its NAV and prices)."""
+    try:
+        return f"{float(value):,.0f}"
+    except (TypeError, ValueError):
+        return "n/a"
 
 
 def settings_rows(mapping: Mapping[str, Any], prefix: str = "") -> list[tuple[str, str]]:

@@ -301,7 +301,8 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
 
 
 def binding_text(constraints: pd.DataFrame | None) -> str:
-    """The binding limits in a few words: ``tracking_error, turnover, active_weight (3 assets)``."""
+    """The binding limits in a few words: ``tracking_error, turnover, active_weight (3)`` (a per-asset
+    limit with the number of assets at it)."""
     if constraints is None or "binding" not in constraints.columns:
         return ""
     from trimtab.report._content import flags
@@ -312,7 +313,7 @@ def binding_text(constraints: pd.DataFrame | None) -> str:
         name = str(row["name"])
         n = row.get("n_binding")
         if pd.notna(row.get("asset")) and pd.notna(n) and int(n) >= 1:
-            parts.append(f"{name} ({int(n):,} asset{'s' if int(n) != 1 else ''})")
+            parts.append(f"{name} ({int(n):,})")
         else:
             parts.append(name)
     return ", ".join(parts) if parts else "none"

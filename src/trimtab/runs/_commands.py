@@ -16,14 +16,14 @@ import warnings
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated, Any, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
-import numpy as np
-import pandas as pd
 import typer
-import yaml
 
 from trimtab.errors import InputError, TrimtabError
+
+if TYPE_CHECKING:  # numpy, pandas and yaml are imported where used: registering the commands stays light
+    import pandas as pd
 from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
 EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
@@ -92,6 +92,9 @@ def _executor(executor: str | None, workers: int | None, scheduler: str | None) 
 
 
 def _jsonable(value: Any) -> Any:
+    import numpy as np
+    import pandas as pd
+
     if isinstance(value, Mapping):
         return {str(k): _jsonable(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
@@ -148,6 +151,9 @@ def _default_out(scenario: Any, command: str) -> Path:
 # ---------------------------------------------------------------------------------------------
 def parse_values(text: str, owner: str) -> list[Any]:
     """``a:b:n`` (n evenly spaced values), ``[v1, v2]`` (a YAML list) or ``v1,v2,…`` (YAML scalars)."""
+    import numpy as np
+    import yaml
+
     body = text.strip()
     if not body:
         raise InputError(f"{owner}: no values given; expected v1,v2,… or start:stop:count or [v1, v2]")
@@ -172,6 +178,8 @@ def parse_values(text: str, owner: str) -> list[Any]:
 
 def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[Any]] | list[dict[str, Any]]:
     """``--grid KEY=VALUES`` options (every combination), or a grid file (a mapping or a list of points)."""
+    import yaml
+
     if grid_file is not None:
         if items:
             raise InputError("--grid and --grid-file: give one, not both")
@@ -374,6 +382,8 @@ def backtest_command(
     tracking error (the bias statistic), turnover, costs, exposures and risk contributions through
     time.
     """
+    import pandas as pd
+
     from trimtab.runs._backtest import backtest
     from trimtab.runs._report import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
