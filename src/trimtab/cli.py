@@ -378,8 +378,17 @@ def risk(
             report.print_attribution(attribution, console=ui.out, top=top)
         else:
             ui.out.print(attribution.summary(top=top).as_text())
+        ui.say(_book_line(book, kind, nav))
         if out is not None:
             ui.say(f"Wrote the tables, result.json and report.html to {out}")
+
+
+def _book_line(book: Any, kind: str, nav: float | None) -> str:
+    """How the weights were found: given as weights, or shares·price over the NAV assumed."""
+    if kind != "shares":
+        return "Holdings read as weights (fractions of NAV); NAV and cash play no part."
+    found = "as given (--nav)" if nav is not None else f"Σ shares·price + cash {book.cash:,.0f} (--cash)"
+    return f"Holdings read as shares: weights = shares·price / NAV, NAV {book.nav:,.0f} = {found}."
 
 
 def _optional_report() -> Any:
@@ -424,10 +433,18 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
     with ui.progress() as step:
         step("writing the outputs")
         written = write_rebalance(run, out)
+    _print_warnings(ui, run.result)
     ui.emit({"scenario": loaded.name, "status": "solved", "output": str(written.folder), "files": written.files, **_result_document(run.result)})
     if ui.chatty:
         _print_result(ui, run.result)
         ui.say(f"Wrote {len(written.files)} files to {written.folder}")
+
+
+def _print_warnings(ui: Ui, result: Any, name: str | None = None) -> None:
+    """The run's warnings on stderr, one line each (also with --json; not with --quiet)."""
+    if ui.quiet or result is None:
+        return
+    _report_module().print_warnings(result, console=ui.err, name=name)
 
 
 def _result_document(result: Any) -> dict[str, Any]:
@@ -474,6 +491,8 @@ def compare(
         step("writing the comparison")
         target = out if out is not None else loaded[0].path.resolve().parent / "results" / "compare"
         written = write_comparison(runs, target)
+    for run in runs:
+        _print_warnings(ui, run.result, run.name)
     table = comparison_table(runs)
     ui.emit({"scenarios": names, "status": {r.name: r.status for r in runs}, "comparison": table, "output": str(written.folder)})
     if ui.chatty:
@@ -527,6 +546,8 @@ def demo(
         done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
     fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
+    for run in runs:
+        _print_warnings(ui, run.result, run.name)
     rows = headline_rows(done)
     ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
     if not ui.chatty:

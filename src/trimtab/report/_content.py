@@ -598,6 +598,8 @@ def change_text(value: Any, unit: str) -> str:
         return "n/a"
     if not np.isfinite(number):
         return "n/a"
+    if abs(number) < 5e-7 and unit not in ("count", "amount"):
+        return "0"  # below what the figures are shown to: rounding noise
     if unit == "bp":
         text = f"{1e4 * number:+.2f} bp"
     elif unit == "fraction":

@@ -240,7 +240,8 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
     """The scenarios side by side: what each gains and gives up, below a ``status`` row.
 
     Index ``figure``; columns ``label`` and ``unit``, one column per scenario (in the mapping's order),
-    then ``change: <name>`` for each later scenario: its figure minus the first scenario's. Rows: the
+    then ``change: <name>`` for each later solved scenario: its figure minus the first scenario's
+    (none when the first did not solve). Rows: the
     desk figures (expected active return, information ratio, tracking error, total risk, beta,
     turnover, estimated cost, names bought, sold and held), the share of risk from factors, the
     risk budget used, the binding limits (text), then the other after-trade risk figures. A scenario
@@ -278,19 +279,20 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
             rows.append((key, figure_label(key, kind), HEADLINE_FIGURES[key][1], dict(figures.loc[key].items())))
     rows.append(("risk_budget_used", "Risk budget used", "fraction",
                  {n: c.risk_budget.used if c.risk_budget is not None else np.nan for n, c in contents.items()}))
-    rows.append(("binding_limits", "Binding limits", "text", {n: binding_text(c.constraints) for n, c in contents.items()}))
     for key in figures.index:
         if key in duplicated or key == "factor_percent":
             continue
         values = dict(figures.loc[key].items())
         if any(pd.notna(v) for v in values.values()):
             rows.append((key, figure_label(key, kind), HEADLINE_FIGURES[key][1], values))
+    rows.append(("binding_limits", "Binding limits (assets at a per-asset limit)", "text",
+                 {n: binding_text(c.constraints) for n, c in contents.items()}))
     table = pd.DataFrame(
         [{"label": label, "unit": unit, **{n: values.get(n, np.nan) for n in names}} for _, label, unit, values in rows],
         index=pd.Index([key for key, *_ in rows], name="figure"),
     ).astype(object)
     first = names[0]
-    for name in names[1:]:
+    for name in [n for n in names[1:] if n not in failed] if first not in failed else []:
         column = []
         for key, _, unit, values in rows:
             a, b = values.get(first), values.get(name)
@@ -301,21 +303,22 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
 
 
 def binding_text(constraints: pd.DataFrame | None) -> str:
-    """The binding limits in a few words: ``tracking_error, turnover, active_weight (3)`` (a per-asset
-    limit with the number of assets at it)."""
+    """The binding limits in a few words: ``tracking_error, turnover, active_weight (3)``: a per-asset
+    limit with the number of assets at it, a family of limits (``group.industry[…]``) with the number
+    binding."""
     if constraints is None or "binding" not in constraints.columns:
         return ""
     from trimtab.report._content import flags
 
     rows = constraints[flags(constraints["binding"])]
-    parts = []
+    counts: dict[str, int] = {}
     for _, row in rows.iterrows():
-        name = str(row["name"])
+        name = str(row["name"]).split("[", 1)[0]
         n = row.get("n_binding")
-        if pd.notna(row.get("asset")) and pd.notna(n) and int(n) >= 1:
-            parts.append(f"{name} ({int(n):,})")
-        else:
-            parts.append(name)
+        per_asset = pd.notna(row.get("asset")) and pd.notna(n) and int(n) >= 1
+        counts[name] = counts.get(name, 0) + (int(n) if per_asset else 1)
+    singles = {str(row["name"]).split("[", 1)[0] for _, row in rows.iterrows() if pd.isna(row.get("asset"))}
+    parts = [name if n == 1 and name in singles else f"{name} ({n:,})" for name, n in counts.items()]
     return ", ".join(parts) if parts else "none"
 
 
