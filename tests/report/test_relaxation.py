@@ -101,9 +101,9 @@ def test_html_comparison_shows_the_infeasible_part(result: StandInResult, report
     assert [h.text for h in tree.iter("h2")][:4] == ["Scenarios side by side", "Scenario: base", "Scenario: tight", "Scenario: other"]
     comparison = tree.find(".//section[@id='comparison']")
     head = [th.text for th in comparison.iter("th")]
-    assert head == ["Figure", "base", "tight", "other"]
+    assert head == ["Figure", "base", "tight", "other", "other − base"]  # no change column for an unsolved one
     status = ["".join(td.itertext()) for td in comparison.find(".//tbody/tr").iter("td")]
-    assert status == ["Status", "solved", "infeasible", "solved"]
+    assert status == ["Status", "solved", "infeasible", "solved", ""]
     part = tree.find(".//article[@id='scenario-1']")
     words = " ".join("".join(part.itertext()).split())
     assert "the lower limit of liquidity[POXA] must fall from -0.061% to -0.075% (by 0.014%)" in words
@@ -152,7 +152,7 @@ def test_comparison_json_and_table_keep_every_scenario(result: StandInResult, tm
     assert risk["base"] == pytest.approx(result.post_trade.risk) and risk["tight"] is None and risk["broken"] is None
     assert document["scenarios"]["tight"]["relaxation"][0]["constraint"] == "turnover"
     table = comparison_table(subjects)
-    assert list(table.columns) == ["label", "unit", "base", "tight", "broken", "change: tight", "change: broken"]
+    assert list(table.columns) == ["label", "unit", "base", "tight", "broken"]  # no change columns for unsolved ones
     assert table.index[0] == "status"
     assert list(report_tables(subjects)) == ["comparison"]
     written = write_tables(subjects, tmp_path / "tables")

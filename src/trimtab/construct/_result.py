@@ -284,7 +284,7 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
         trade_list=trade_list,
         alpha=pd.Series(data.alpha, index=assets, name="alpha") if problem.objective.kind in ("utility", "alpha") else None,
         notices=tuple(notices),
-        pinned=pinned_positions(outcome.rows, final),
+        pinned=pinned_positions(outcome.rows, outcome.weights),  # the optimizer's: rounding moves them by < 1 lot
         nav=data.nav,
         cost_per_asset=pd.Series(rates.cost(final - data.holdings), index=assets, name="cost") if rates.any else None,
         _model=problem.model,

@@ -157,7 +157,7 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
     post, pre = content.post, content.pre
     parts = [_run_line(content) + desk.context_section(context_lines(content)), desk.desk_cards(content.figures) + _key_figures(content)]
     if content.is_rebalance:
-        parts.append(desk.warnings_section(content.warnings, h))
+        parts.append(desk.warnings_section(content.warnings, h, f"{key}-warnings"))
     if content.figures is not None:
         parts.append(f"<{h}>What the trades do</{h}>" + desk.figures_table(content.figures))
     if content.orders is not None and len(content.orders):

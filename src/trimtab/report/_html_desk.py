@@ -28,16 +28,16 @@ def context_section(lines: Sequence[str]) -> str:
     return '<div class="context">' + "".join(f"<p>{_e(line)}</p>" for line in lines) + "</div>"
 
 
-def warnings_section(warnings: Sequence[Mapping[str, Any]], heading: str = "h2") -> str:
+def warnings_section(warnings: Sequence[Mapping[str, Any]], heading: str = "h2", anchor: str = "warnings") -> str:
     """Every warning of the run, its kind and message (none: says so)."""
     if not warnings:
-        return f'<{heading} id="warnings">Warnings</{heading}><p class="note">None: no position dropped, no alpha set to 0, ' \
+        return f'<{heading} id="{anchor}">Warnings</{heading}><p class="note">None: no position dropped, no alpha set to 0, ' \
                f"no solver fall-back, no concentration above the alert thresholds.</p>"
     items = "".join(
         f'<li><span class="kind">{_e(str(w.get("kind", "")).replace("_", " "))}</span> {_e(w.get("message", ""))}</li>'
         for w in warnings
     )
-    return f'<{heading} id="warnings">Warnings ({len(warnings)})</{heading}><ul class="warnings">{items}</ul>'
+    return f'<{heading} id="{anchor}">Warnings ({len(warnings)})</{heading}><ul class="warnings">{items}</ul>'
 
 
 def desk_cards(figures: pd.DataFrame | None) -> str:
