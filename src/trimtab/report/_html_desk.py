@@ -86,10 +86,10 @@ _ORDER_COLUMNS = (
     ("cost_bp", "Cost (bp of notional)", "bp1"),
     ("cost", "Cost", "amount"),
     ("adv_percent", "% of daily volume", "pct1"),
-    ("weight_before", "Weight before", "fraction"),
-    ("weight_after", "Weight after", "fraction"),
-    ("weight_change", "Change (pp of NAV)", "pp"),
+    ("weight_change", "Weight change (pp of NAV)", "pp"),
 )
+#: Shown only for a list in weights (the share list has them in trades.csv).
+_WEIGHT_COLUMNS = (("weight_before", "Weight before", "fraction"), ("weight_after", "Weight after", "fraction"))
 
 
 def orders_section(orders: pd.DataFrame | None, in_shares: bool, rounding_lines: Sequence[str], max_rows: int) -> str:
@@ -97,7 +97,8 @@ def orders_section(orders: pd.DataFrame | None, in_shares: bool, rounding_lines:
     if orders is None:
         return ""
     shown = orders.head(max_rows)
-    columns = [(c, h, u) for c, h, u in _ORDER_COLUMNS if c in shown.columns and not shown[c].isna().all()]
+    candidates = _ORDER_COLUMNS if in_shares else (*_ORDER_COLUMNS[:1], *_WEIGHT_COLUMNS, *_ORDER_COLUMNS[1:])
+    columns = [(c, h, u) for c, h, u in candidates if c in shown.columns and not shown[c].isna().all()]
     head = "<th>Asset</th>" + "".join(f'<th class="{"" if u == "text" else "num"}">{_e(h)}</th>' for _, h, u in columns)
     body = "".join(
         f"<tr><td>{_e(asset)}</td>" + "".join(_order_cell(row[c], u) for c, _, u in columns) + "</tr>"

@@ -239,9 +239,9 @@ def _exit_for_points(table: pd.DataFrame) -> None:
     _fail(f"no point solved; first: {table.index[0]}: {first['status']}: {first['error']}", code)
 
 
-def _report_failures(table: pd.DataFrame) -> None:
-    for label, row in table[table["status"] != "solved"].head(5).iterrows():
-        sys.stderr.write(f"trimtab: warning: {label}: {row['status']}: {row['error']}\n")
+def _report_failures(table: pd.DataFrame, label: Callable[[Any], str] = str) -> None:
+    for key, row in table[table["status"] != "solved"].head(5).iterrows():
+        sys.stderr.write(f"trimtab: warning: {label(key)}: {row['status']}: {row['error']}\n")
     extra = int((table["status"] != "solved").sum()) - 5
     if extra > 0:
         sys.stderr.write(f"trimtab: warning: and {extra} more points did not solve (see the table)\n")
@@ -336,7 +336,7 @@ def frontier_command(
         _say(result.summary(), True)
         _say_table(result.tracking_error.drop(columns=["error"]), "Frontier against tracking error (limit = TE cap)", True)
         _say(f"Wrote the tables and report to {target}", True)
-    _report_failures(result.tracking_error.set_index("limit"))
+    _report_failures(result.tracking_error.set_index("limit"), label=lambda cap: f"tracking-error cap {100 * float(cap):.2f}%")
     _exit_for_points(result.tracking_error.set_index("limit"))
 
 
