@@ -39,8 +39,8 @@ def test_orders_are_whole_lots_with_sides_and_notionals(lot: float) -> None:
     np.testing.assert_allclose(np.mod(orders.loc[~exits, "shares"] / lot, 1.0), 0.0, atol=1e-9)
     # side follows the weight change; notional = shares·price; the change = ±notional / NAV
     assert (orders["side"] == np.where(orders["weight_change"] > 0, "buy", "sell")).all()
-    np.testing.assert_allclose(orders["notional"], orders["shares"] * price, rtol=1e-12)
-    signed = np.where(orders["side"] == "buy", 1.0, -1.0) * orders["notional"] / fund.nav
+    np.testing.assert_allclose(orders["notional"], orders["shares"] * price, rtol=0, atol=0.005)  # to the cent
+    signed = np.where(orders["side"] == "buy", 1.0, -1.0) * orders["shares"] * price / fund.nav
     np.testing.assert_allclose(orders.loc[~exits, "weight_change"], signed[~exits], rtol=1e-9, atol=1e-12)
     # an exit sells the whole holding; holdings given as weights hold a fraction of a share, rounded here
     assert ((orders.loc[exits, "weight_change"] - signed[exits]).abs() <= 0.5 * price[exits] / fund.nav + 1e-15).all()
@@ -52,8 +52,9 @@ def test_orders_are_whole_lots_with_sides_and_notionals(lot: float) -> None:
     lot_weight = lot * fund.attributes["price"] / fund.nav
     assert ((tl.weights - result.weights).abs() <= lot_weight + 1e-12).all()
     # cost: bp of the notional and currency agree; % of ADV from shares
-    np.testing.assert_allclose(orders["cost"], orders["cost_bp"] * orders["notional"] / 1e4, rtol=1e-9)
-    np.testing.assert_allclose(orders["adv_percent"], 100 * orders["shares"] / fund.attributes["adv"].reindex(orders.index))
+    np.testing.assert_allclose(orders["cost"], orders["cost_bp"] * orders["notional"] / 1e4, rtol=1e-4, atol=0.01)
+    np.testing.assert_allclose(orders["adv_percent"], 100 * orders["shares"] / fund.attributes["adv"].reindex(orders.index),
+                               atol=5e-5)
 
 
 def test_rounded_book_is_reverified_independently() -> None:

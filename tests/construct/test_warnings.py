@@ -84,15 +84,18 @@ def test_heuristic_applied() -> None:
 
 def test_rounding_past_a_limit_is_stated() -> None:
     verification = pd.DataFrame(
-        {"name": ["fully_invested", "tracking_error"], "kind": ["budget", "tracking_error"], "value": [1.0000003, 0.02],
-         "lower": [1.0, np.nan], "upper": [1.0, 0.03], "breach": [3e-7, 0.0], "tolerance": [1e-7, 1e-7],
-         "moved": [4e-7, 1e-9], "soft": [False, False], "ok": [True, True]}
+        {"name": ["fully_invested", "tracking_error"], "kind": ["budget", "tracking_error"], "value": [1.000003, 0.02],
+         "lower": [1.0, np.nan], "upper": [1.0, 0.03], "breach": [3e-6, 0.0], "tolerance": [1e-7, 1e-7],
+         "moved": [4e-6, 1e-9], "soft": [False, False], "ok": [True, True]}
     )
     empty = pd.DataFrame(columns=["optimal", "rounded", "change"])
     trade_list = TradeList(pd.DataFrame(), pd.Series(dtype=float), verification, 1e8, 0.0, 0.0, -30.0, empty)
     (warning,) = _rounding_warnings(trade_list)
     assert warning.kind == "rounding" and warning.details["limit"] == "fully_invested"
-    assert "takes fully_invested past its limit by 3e-07" in warning.message
+    assert "takes fully_invested past its limit by 3e-06" in warning.message
+    # a smaller excess (below 1e-6 in the limit's unit) shows in the limits table only
+    small = verification.assign(breach=[5e-7, 0.0])
+    assert _rounding_warnings(TradeList(pd.DataFrame(), pd.Series(dtype=float), small, 1e8, 0.0, 0.0, -30.0, empty)) == []
 
 
 def test_factor_and_asset_concentration_and_positions_pinned_at_caps() -> None:

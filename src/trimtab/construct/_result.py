@@ -417,10 +417,15 @@ def _trade_list(problem: RebalanceProblem, outcome: Outcome) -> TradeList | None
     return rounded
 
 
+#: A limit exceeded after rounding by more than this (in its unit: 0.01 bp of NAV for a weight) is a
+#: ``rounding`` warning; smaller excesses show in the limits table only.
+ROUNDING_NOTE = 1e-6
+
+
 def _rounding_warnings(trade_list: TradeList) -> list[RunWarning]:
-    """Limits that hold on the rounded book only thanks to the rounding allowance."""
+    """Limits that hold on the rounded book only thanks to the rounding allowance (by more than ROUNDING_NOTE)."""
     table = trade_list.verification
-    over = table[(table["breach"] > table["tolerance"]) & ~table["soft"].astype(bool)]
+    over = table[(table["breach"] > np.maximum(table["tolerance"], ROUNDING_NOTE)) & ~table["soft"].astype(bool)]
     return [
         RunWarning(
             "rounding",

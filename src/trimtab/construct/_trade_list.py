@@ -49,8 +49,9 @@ class TradeList:
     orders : pandas.DataFrame
         Index ``asset``; only the assets that trade, largest notional first. Columns: ``side`` (buy or
         sell), ``shares`` (whole shares, a multiple of ``lot``), ``lot``, ``price``, ``notional``
-        (shares·price, currency), ``cost_bp`` (estimated cost in bp of the notional), ``cost``
-        (currency), ``adv_percent`` (shares as % of average daily volume), ``weight_before``,
+        (shares·price, currency, to the cent), ``cost_bp`` (estimated cost in bp of the notional, four
+        decimals), ``cost`` (currency, to the cent), ``adv_percent`` (shares as % of average daily
+        volume, four decimals), ``weight_before``,
         ``weight_after``, ``weight_change`` (fractions of NAV). Cost and volume columns are NaN when
         the inputs lack them.
     weights : pandas.Series
@@ -146,7 +147,7 @@ def build_trade_list(
     exits = (np.abs(w) <= TRADE_TOL) & (np.abs(holdings) > TRADE_TOL)
     shares = np.where(exits, np.round(shares), shares)
     traded = np.abs(trade_w) > TRADE_TOL
-    notional = np.abs(shares) * price
+    notional = np.round(np.abs(shares) * price, 2)  # currency, to the cent
     frame = pd.DataFrame(
         {
             "side": np.where(trade_w > 0, "buy", "sell"),
@@ -165,12 +166,12 @@ def build_trade_list(
     )
     if cost is not None:
         amount = np.asarray(cost(trade_w), dtype=np.float64) * nav
-        frame["cost"] = amount
+        frame["cost"] = np.round(amount, 2)
         with np.errstate(divide="ignore", invalid="ignore"):
-            frame["cost_bp"] = np.where(notional > 0, 1e4 * amount / notional, 0.0)
+            frame["cost_bp"] = np.round(np.where(notional > 0, 1e4 * amount / notional, 0.0), 4)
     if adv is not None:
         with np.errstate(divide="ignore", invalid="ignore"):
-            frame["adv_percent"] = 100.0 * np.abs(shares) / np.asarray(adv, dtype=np.float64)
+            frame["adv_percent"] = np.round(100.0 * np.abs(shares) / np.asarray(adv, dtype=np.float64), 4)
     orders = frame[traded]
     orders = orders.iloc[np.argsort(-orders["notional"].to_numpy(), kind="stable")]
     for column in ("shares", "lot"):
