@@ -93,5 +93,7 @@ def test_the_readme_demo_command(tmp_path: Path) -> None:
     # active risk is mostly one size bet; nothing else (no error, no traceback)
     lines = done.stderr.strip().splitlines()
     assert all(line.startswith("trimtab: warning [") for line in lines), done.stderr
-    assert any("[base]: alpha set to 0 for 75 model assets" in line for line in lines)
-    assert any("[base]: factor size takes" in line for line in lines)
+    # one line per message, naming every scenario it applies to
+    (zeroed,) = [line for line in lines if "alpha set to 0 for 75 model assets" in line]
+    assert zeroed.startswith("trimtab: warning [base, neutral_size_momentum, low_turnover]: ")
+    assert any(line.startswith("trimtab: warning [base]: factor size takes") for line in lines)

@@ -447,6 +447,21 @@ def _print_warnings(ui: Ui, result: Any, name: str | None = None) -> None:
     _report_module().print_warnings(result, console=ui.err, name=name)
 
 
+def _print_run_warnings(ui: Ui, runs: Sequence[Any]) -> None:
+    """Several scenarios' warnings on stderr; one the scenarios share is printed once, naming them all."""
+    if ui.quiet:
+        return
+    from trimtab.report._content import warning_records
+
+    seen: dict[str, list[str]] = {}
+    for run in runs:
+        if run.result is not None:
+            for record in warning_records(run.result):
+                seen.setdefault(record["message"], []).append(run.name)
+    for message, names in seen.items():
+        sys.stderr.write(f"trimtab: warning [{', '.join(names)}]: {message}\n")
+
+
 def _result_document(result: Any) -> dict[str, Any]:
     """The documented report document (docs/outputs.md) under the key ``report``."""
     return {"report": _report_module().report_document(result)}
@@ -491,8 +506,7 @@ def compare(
         step("writing the comparison")
         target = out if out is not None else loaded[0].path.resolve().parent / "results" / "compare"
         written = write_comparison(runs, target)
-    for run in runs:
-        _print_warnings(ui, run.result, run.name)
+    _print_run_warnings(ui, runs)
     table = comparison_table(runs)
     ui.emit({"scenarios": names, "status": {r.name: r.status for r in runs}, "comparison": table, "output": str(written.folder)})
     if ui.chatty:
@@ -546,8 +560,7 @@ def demo(
         done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
     fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
-    for run in runs:
-        _print_warnings(ui, run.result, run.name)
+    _print_run_warnings(ui, runs)
     rows = headline_rows(done)
     ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
     if not ui.chatty:
