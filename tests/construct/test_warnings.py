@@ -84,17 +84,18 @@ def test_heuristic_applied() -> None:
 
 def test_rounding_past_a_limit_is_stated() -> None:
     verification = pd.DataFrame(
-        {"name": ["fully_invested", "tracking_error"], "kind": ["budget", "tracking_error"], "value": [1.000003, 0.02],
-         "lower": [1.0, np.nan], "upper": [1.0, 0.03], "breach": [3e-6, 0.0], "tolerance": [1e-7, 1e-7],
-         "moved": [4e-6, 1e-9], "soft": [False, False], "ok": [True, True]}
+        {"name": ["turnover", "fully_invested"], "kind": ["turnover", "budget"], "value": [0.250003, 1.000003],
+         "lower": [np.nan, 1.0], "upper": [0.25, 1.0], "breach": [3e-6, 3e-6], "tolerance": [1e-7, 1e-7],
+         "moved": [4e-6, 4e-6], "soft": [False, False], "ok": [True, True]}
     )
     empty = pd.DataFrame(columns=["optimal", "rounded", "change"])
     trade_list = TradeList(pd.DataFrame(), pd.Series(dtype=float), verification, 1e8, 0.0, 0.0, -30.0, empty)
     (warning,) = _rounding_warnings(trade_list)
-    assert warning.kind == "rounding" and warning.details["limit"] == "fully_invested"
-    assert "takes fully_invested past its limit by 3e-06" in warning.message
+    # the budget's residual is the cash left, stated with the trade list: not a warning
+    assert warning.kind == "rounding" and warning.details["limit"] == "turnover"
+    assert "takes turnover past its limit by 3e-06" in warning.message
     # a smaller excess (below 1e-6 in the limit's unit) shows in the limits table only
-    small = verification.assign(breach=[5e-7, 0.0])
+    small = verification.assign(breach=[5e-7, 5e-7])
     assert _rounding_warnings(TradeList(pd.DataFrame(), pd.Series(dtype=float), small, 1e8, 0.0, 0.0, -30.0, empty)) == []
 
 

@@ -220,7 +220,8 @@ class RebalanceResult:
         return self.constraints[self.constraints["binding"].astype(bool)]
 
     def summary(self) -> str:
-        """A short text: status, solver, the objective, risk, turnover and the binding limits."""
+        """A short text: status, solver, risk, expected alpha and information ratio, turnover, the
+        orders, the warnings, the objective and the binding limits."""
         lines = [
             f"Rebalance: {self.status} ({self.solver}, {self.iterations} iterations, "
             f"build {self.build_time:.3f} s, solve {self.solve_time:.3f} s)",
@@ -229,6 +230,17 @@ class RebalanceResult:
         for key, label in (("tracking_error", "Ex-ante tracking error"), ("total_risk", "Ex-ante total risk")):
             if key in self.ex_ante:
                 lines.append(f"{label} (annualised): {self.ex_ante[key]:.2%}")
+        figures = self.figures
+        if figures and np.isfinite(figures.get("expected_alpha", np.nan)):
+            lines.append(
+                f"Expected active return {figures['expected_alpha']:.2%}, information ratio {figures['information_ratio']:.2f}; "
+                f"{int(figures['names_bought'])} names bought, {int(figures['names_sold'])} sold"
+                + (f"; estimated cost {1e4 * figures['cost']:.2f} bp of NAV" if np.isfinite(figures.get("cost", np.nan)) else "")
+            )
+        if self.trade_list is not None:
+            lines.append(f"Orders: {len(self.trade_list.orders)} in whole shares (cash after {self.trade_list.cash_after:,.0f})")
+        for warning in self.warnings:
+            lines.append(f"Warning: {warning.message}")
         lines.append("Objective: " + ", ".join(f"{k} {v:.6g}" for k, v in self.objective.items()))
         binding = self.binding
         if len(binding):
@@ -425,7 +437,9 @@ ROUNDING_NOTE = 1e-6
 def _rounding_warnings(trade_list: TradeList) -> list[RunWarning]:
     """Limits that hold on the rounded book only thanks to the rounding allowance (by more than ROUNDING_NOTE)."""
     table = trade_list.verification
-    over = table[(table["breach"] > np.maximum(table["tolerance"], ROUNDING_NOTE)) & ~table["soft"].astype(bool)]
+    # the budget's residual is the cash left, stated with the trade list itself
+    over = table[(table["breach"] > np.maximum(table["tolerance"], ROUNDING_NOTE)) & ~table["soft"].astype(bool)
+                 & (table["kind"] != "budget")]
     return [
         RunWarning(
             "rounding",

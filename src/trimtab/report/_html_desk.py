@@ -148,7 +148,7 @@ def limits_section(checks: pd.DataFrame | None, units: Mapping[str, str] | None 
     n_ok = int(checks["ok"].astype(bool).sum())
     return (
         f'<p>{n_ok} of {len(checks)} checks hold on the final book, recomputed with numpy from its weights '
-        "(for a per-asset limit, the asset closest to it).</p>"
+        "(for a block of limits, per asset or per group, the one closest to its limit; limits.csv has the same rows).</p>"
         '<div class="wide"><table class="limits"><thead><tr><th>Limit</th><th>Kind</th><th class="num">Value</th>'
         '<th class="num">Lower</th><th class="num">Upper</th><th class="num">Slack</th><th>Check</th></tr></thead>'
         f"<tbody>{''.join(rows)}</tbody></table></div>"
