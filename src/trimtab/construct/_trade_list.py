@@ -229,6 +229,11 @@ def rounding_rows(assets: pd.Index, optimal: np.ndarray, w0: np.ndarray, lot_w: 
                 evaluate=lambda v: np.where(exits, 0.0, (v - optimal) / lot_w))
 
 
+def _constant(value: np.ndarray) -> Callable[[np.ndarray], np.ndarray]:
+    """An ``evaluate`` that returns a value already computed."""
+    return lambda _weights: value
+
+
 def verify_rounded(rows: Sequence[Rows], optimal: np.ndarray, rounded: np.ndarray) -> pd.DataFrame:
     """Every limit on the rounded book, with how far rounding moved it (the module docstring's rule)."""
     records = []
@@ -239,7 +244,7 @@ def verify_rounded(rows: Sequence[Rows], optimal: np.ndarray, rounded: np.ndarra
             continue
         before = np.asarray(r.evaluate(optimal), dtype=np.float64)
         after = np.asarray(r.evaluate(rounded), dtype=np.float64)
-        record = check_rows(replace(r, evaluate=lambda _w, value=after: value), rounded)  # evaluated once
+        record = check_rows(replace(r, evaluate=_constant(after)), rounded)  # evaluated once
         moved = float(np.max(np.abs(after - before), initial=0.0))
         # the optimal book passed its own verification (a round_lots book with its rounding allowance)
         breach_before = float(np.max(r.breach(before), initial=0.0))

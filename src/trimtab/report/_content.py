@@ -576,9 +576,10 @@ def rounding_lines(content: ReportContent) -> list[str]:
 
 def binding_assets_text(row: Mapping[str, Any] | pd.Series) -> str:
     """For a per-asset limit: ``1,183 assets: A, B, C and 1,178 more``; empty for other limits."""
-    n = row.get("n_binding") if hasattr(row, "get") else None
-    names = row.get("binding_assets") if hasattr(row, "get") else None
-    if row.get("asset") is None or (isinstance(row.get("asset"), float) and np.isnan(row.get("asset"))):
+    n: Any = row.get("n_binding")
+    names = row.get("binding_assets")
+    asset: Any = row.get("asset")
+    if asset is None or (isinstance(asset, float) and np.isnan(asset)):
         return ""
     try:
         count = int(n)

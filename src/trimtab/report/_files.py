@@ -297,7 +297,7 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
         for key, _, unit, values in rows:
             a, b = values.get(first), values.get(name)
             numeric = unit != "text" and isinstance(a, (int, float, np.floating)) and isinstance(b, (int, float, np.floating))
-            column.append(float(b) - float(a) if numeric and name not in failed and first not in failed else np.nan)
+            column.append(float(b) - float(a) if numeric and name not in failed and first not in failed else np.nan)  # type: ignore[arg-type]
         table[f"change: {name}"] = column
     return table
 

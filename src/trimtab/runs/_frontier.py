@@ -95,10 +95,11 @@ def _unbound_tracking_error(model: FactorModel, scenario: Mapping[str, Any], bui
 
     free = apply_point(scenario, {})
     free["constraints"] = {k: v for k, v in dict(free.get("constraints") or {}).items() if k != "tracking_error"}
-    if build is None:
-        from trimtab.construct import build_problem as build
+    from trimtab.construct import build_problem
+
+    builder = build if build is not None else build_problem
     try:
-        result = build(model, free, **inputs).solve()
+        result = builder(model, free, **inputs).solve()
     except TrimtabError:
         return None
     return result.ex_ante.get("tracking_error")
