@@ -378,17 +378,11 @@ def risk(
             report.print_attribution(attribution, console=ui.out, top=top)
         else:
             ui.out.print(attribution.summary(top=top).as_text())
-        ui.say(_book_line(book, kind, nav))
+        from trimtab.report._desk import holdings_line
+
+        ui.say(holdings_line(kind, book.nav, book.cash, nav is not None))
         if out is not None:
             ui.say(f"Wrote the tables, result.json and report.html to {out}")
-
-
-def _book_line(book: Any, kind: str, nav: float | None) -> str:
-    """How the weights were found: given as weights, or shares·price over the NAV assumed."""
-    if kind != "shares":
-        return "Holdings read as weights (fractions of NAV); NAV and cash play no part."
-    found = "as given (--nav)" if nav is not None else f"Σ shares·price + cash {book.cash:,.0f} (--cash)"
-    return f"Holdings read as shares: weights = shares·price / NAV, NAV {book.nav:,.0f} = {found}."
 
 
 def _optional_report() -> Any:
@@ -440,26 +434,11 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
         ui.say(f"Wrote {len(written.files)} files to {written.folder}")
 
 
-def _print_warnings(ui: Ui, result: Any, name: str | None = None) -> None:
-    """The run's warnings on stderr, one line each (also with --json; not with --quiet)."""
-    if ui.quiet or result is None:
-        return
-    _report_module().print_warnings(result, console=ui.err, name=name)
-
-
-def _print_run_warnings(ui: Ui, runs: Sequence[Any]) -> None:
-    """Several scenarios' warnings on stderr; one the scenarios share is printed once, naming them all."""
-    if ui.quiet:
-        return
-    from trimtab.report._content import warning_records
-
-    seen: dict[str, list[str]] = {}
-    for run in runs:
-        if run.result is not None:
-            for record in warning_records(run.result):
-                seen.setdefault(record["message"], []).append(run.name)
-    for message, names in seen.items():
-        sys.stderr.write(f"trimtab: warning [{', '.join(names)}]: {message}\n")
+def _print_warnings(ui: Ui, subject: Any) -> None:
+    """Warnings on stderr, one line each (also with --json; not with --quiet): one result's, or a
+    comparison's (scenario name → result) with a shared warning printed once."""
+    if not ui.quiet and subject is not None:
+        _report_module().print_warnings(subject, console=ui.err)
 
 
 def _result_document(result: Any) -> dict[str, Any]:
@@ -506,7 +485,7 @@ def compare(
         step("writing the comparison")
         target = out if out is not None else loaded[0].path.resolve().parent / "results" / "compare"
         written = write_comparison(runs, target)
-    _print_run_warnings(ui, runs)
+    _print_warnings(ui, {r.name: r.result for r in runs if r.result is not None})
     table = comparison_table(runs)
     ui.emit({"scenarios": names, "status": {r.name: r.status for r in runs}, "comparison": table, "output": str(written.folder)})
     if ui.chatty:
@@ -560,7 +539,7 @@ def demo(
         done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
     fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
-    _print_run_warnings(ui, runs)
+    _print_warnings(ui, {r.name: r.result for r in runs if r.result is not None})
     rows = headline_rows(done)
     ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
     if not ui.chatty:

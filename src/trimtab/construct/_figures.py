@@ -16,21 +16,8 @@ from typing import Any
 
 import numpy as np
 
-#: Figure key → (label, unit); units as in :func:`trimtab.attribution.format_figure`
-#: ("fraction" shows as %, "ratio" as a plain number, "count" whole, "amount" in currency).
-DESK_FIGURES: dict[str, tuple[str, str]] = {
-    "expected_alpha": ("Expected active return (alpha)", "fraction"),
-    "information_ratio": ("Information ratio", "ratio"),
-    "tracking_error": ("Tracking error", "fraction"),
-    "total_risk": ("Total risk", "fraction"),
-    "beta": ("Beta", "ratio"),
-    "turnover": ("Turnover (one-way)", "fraction"),
-    "cost": ("Estimated cost (of NAV)", "fraction"),
-    "cost_amount": ("Estimated cost (currency)", "amount"),
-    "names_bought": ("Names bought", "count"),
-    "names_sold": ("Names sold", "count"),
-    "names_held": ("Names held", "count"),
-}
+from trimtab._desk_figures import DESK_FIGURES  # noqa: F401 - re-exported: the figures this module computes
+
 
 #: A weight or trade above this (absolute) counts.
 TOL = 1e-8

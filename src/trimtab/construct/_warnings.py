@@ -16,17 +16,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from trimtab._desk_figures import WARNING_KINDS
+
 #: Every warning kind, with what it means.
-KINDS: dict[str, str] = {
-    "dropped_assets": "holdings or benchmark positions the risk model lacks were dropped or sold outside the optimizer",
-    "zeroed_alpha": "model assets without an alpha score were given alpha 0",
-    "solver_fallback": "the first solver was not used or its answer was rejected; another solver's was accepted",
-    "heuristic": "a post-solve heuristic (max_names, min_trade, round_lots) changed the book",
-    "rounding": "rounding the trades to whole shares or lots moved the book",
-    "factor_concentration": "one factor takes more than the set share of the (active) variance",
-    "asset_concentration": "one position takes more than the set share of the (active) variance",
-    "pinned_at_cap": "positions sit at an upper weight limit",
-}
+KINDS = WARNING_KINDS
 
 #: How many names a message lists before "and n more".
 SHOWN = 5

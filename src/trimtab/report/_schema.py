@@ -7,13 +7,9 @@ from __future__ import annotations
 
 from typing import Any
 
+from trimtab._desk_figures import WARNING_KINDS
 from trimtab.attribution import HEADLINE_FIGURES
 
-#: The warning kinds of ``warnings`` (docs/outputs.md; the same as trimtab.construct._warnings.KINDS).
-WARNING_KINDS = (
-    "dropped_assets", "zeroed_alpha", "solver_fallback", "heuristic", "rounding", "factor_concentration",
-    "asset_concentration", "pinned_at_cap",
-)
 
 _NUMBER = {"type": ["number", "null"]}
 
@@ -105,7 +101,7 @@ JSON_SCHEMA: dict[str, Any] = {
                 "type": "object",
                 "required": ["kind", "message", "details"],
                 "properties": {
-                    "kind": {"enum": list(WARNING_KINDS)},
+                    "kind": {"enum": list(WARNING_KINDS)},  # trimtab._desk_figures.WARNING_KINDS
                     "message": {"type": "string"},
                     "details": {"type": "object"},
                 },

@@ -119,26 +119,30 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
 
 
 def print_warnings(warnings: Any, console: Console | None = None, *, name: str | None = None) -> None:
-    """One line per warning, ``warning: <message>`` (``warning [name]: …`` with a scenario name).
+    """One line per warning, ``trimtab: warning: <message>`` (``warning [name]: …`` with a scenario name).
 
     Parameters
     ----------
-    warnings : list of RunWarning or of {"kind", "message"} mappings, or a result carrying them
+    warnings : a result carrying ``warnings``, a list of RunWarning or ``{"kind", "message"}``
+        mappings, or a mapping scenario name → such a result (a comparison: a warning several
+        scenarios share is printed once, naming them all; an unsolved scenario has none)
     console : rich.console.Console, optional
         Typically the standard-error console.
     """
     from trimtab.report._content import warning_records
 
-    records = warning_records(warnings) if not isinstance(warnings, (list, tuple)) else warning_records(_Carrier(warnings))
+    if isinstance(warnings, Mapping):
+        seen: dict[str, list[str]] = {}
+        for scenario, subject in warnings.items():
+            for record in warning_records(subject):
+                seen.setdefault(record["message"], []).append(str(scenario))
+        lines = [(", ".join(names), message) for message, names in seen.items()]
+    else:
+        lines = [(name or "", record["message"]) for record in warning_records(warnings)]
     out = console or Console(stderr=True)
-    where = f" [{name}]" if name else ""
-    for record in records:
-        out.print(f"trimtab: warning{where}: {record['message']}", markup=False, highlight=False, soft_wrap=True)
-
-
-class _Carrier:
-    def __init__(self, warnings: Any) -> None:
-        self.warnings = warnings
+    for where, message in lines:
+        label = f" [{where}]" if where else ""
+        out.print(f"trimtab: warning{label}: {message}", markup=False, highlight=False, soft_wrap=True)
 
 
 def _figures_table(figures: pd.DataFrame, title: str) -> Table:
