@@ -416,3 +416,23 @@ def test_command_help_paragraphs_are_not_broken_mid_sentence() -> None:
         assert command.help, command.name
         for paragraph in command.help.split("\n\n"):
             assert "\n" not in paragraph, (command.name, paragraph)
+
+
+def test_warnings_on_stderr_and_alert_thresholds_from_the_scenario(work: Path) -> None:
+    # issue #13: warnings reach stderr and result.json; the scenario's alerts section sets the thresholds
+    result = invoke("rebalance", work / "base.yaml", "--out", work / "warned")
+    assert result.exit_code == 0, result.output
+    lines = result.stderr.strip().splitlines()
+    assert lines and all(line.startswith("trimtab: warning: ") for line in lines)
+    assert any("alpha set to 0 for" in line for line in lines)
+    document = json.loads((work / "warned" / "result.json").read_text(encoding="utf-8"))
+    assert [w["message"] for w in document["warnings"]] == [line.removeprefix("trimtab: warning: ") for line in lines]
+    quiet = work / "quiet.yaml"
+    quiet.write_text("extends: base.yaml\nname: quiet\nalerts: {factor_share: 1.0, asset_share: 1.0, pinned_positions: 0}\n",
+                     encoding="utf-8")
+    result = invoke("rebalance", quiet, "--out", work / "quiet-out")
+    assert result.exit_code == 0, result.output
+    kinds = [w["kind"] for w in json.loads((work / "quiet-out" / "result.json").read_text(encoding="utf-8"))["warnings"]]
+    assert not {"factor_concentration", "asset_concentration", "pinned_at_cap"} & set(kinds)
+    quiet.write_text("extends: base.yaml\nname: quiet\nalerts: {factor_shares: 0.3}\n", encoding="utf-8")
+    one_error_line(invoke("check", quiet), r"quiet\.yaml: alerts\.factor_shares: unknown key")
