@@ -271,7 +271,10 @@ def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
     ui.table(_frame_table(sizes.astype(int), "Inputs aligned to the model's assets"))
     if not inputs.alignment.table.empty:
         ui.say(inputs.alignment.summary(changes_only=True))
-    ui.say(f"Objective: {dict(loaded.spec.objective)}")
+    ui.say("Objective: " + "; ".join(
+        f"{k}: " + (", ".join(f"{a}={b}" for a, b in v.items()) if isinstance(v, dict) else str(v))
+        for k, v in loaded.spec.objective.items()
+    ))
     ui.say(f"Constraints: {', '.join(loaded.spec.constraints) or 'none'}")
     ui.say(f"Outputs would go to {loaded.output_dir}")
     ui.say("[green]OK[/green]: the scenario and its files are valid.")
