@@ -110,3 +110,21 @@ def test_without_prices_the_list_is_in_weights() -> None:
     assert (orders["weight_change"].abs() > 1e-10).all()
     assert (np.diff(orders["weight_change"].abs().to_numpy()) <= 0).all()
     pd.testing.assert_series_equal(result.final_weights, result.weights)
+
+
+def test_positions_sold_outside_the_optimizer_are_in_the_list() -> None:
+    from trimtab.errors import DataWarning
+
+    fund = make_fund(30, 3, seed=135)
+    holdings = pd.concat([fund.holdings * 0.97, pd.Series({"GONE": 0.03})])
+    scenario = {"objective": {"minimize": "active_risk"},
+                "constraints": {"fully_invested": True, "long_only": True, "turnover": {"max": 0.2}}}
+    with pytest.warns(DataWarning, match=r"sold to zero outside the optimizer: GONE"):
+        result = _solve(fund, scenario, holdings=holdings, unknown_assets="zero")
+    gone = result.orders.loc["GONE"]
+    assert gone["side"] == "sell" and gone["notional"] == pytest.approx(0.03 * fund.nav)
+    assert pd.isna(gone["shares"]) and gone["weight_change"] == pytest.approx(-0.03)
+    # the cash before counts the position sold outside as held
+    tl = result.trade_list
+    assert tl.cash_before == pytest.approx(fund.nav * (1 - holdings.sum()), abs=1e-3)  # ~0: float noise at NAV 1e8
+    assert result.figures["names_sold"] == float((result.orders["side"] == "sell").sum())

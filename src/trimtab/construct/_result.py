@@ -421,6 +421,7 @@ def _trade_list(problem: RebalanceProblem, outcome: Outcome) -> TradeList | None
     rounded = build_trade_list(
         assets=data.assets, holdings=data.holdings, target=outcome.weights, nav=data.nav, price=price, lot=lot,
         lower=lower, upper=upper, rows=outcome.rows, adv=adv, cost=rates.cost if rates.any else None,
+        sold_outside=data.sold_outside if len(data.sold_outside) else None,
     )
     if not rounded.ok:
         from trimtab.construct._verify import describe_failures

@@ -102,6 +102,7 @@ def build_trade_list(
     rows: Sequence[Rows],
     cost: Callable[[np.ndarray], np.ndarray] | None = None,
     adv: np.ndarray | None = None,
+    sold_outside: pd.Series | None = None,
     top_moves: int = 10,
 ) -> TradeList:
     """Round the trades ``target − holdings`` to whole lots and verify the rounded book.
@@ -126,6 +127,9 @@ def build_trade_list(
         The cost model: trade weights (N,) → estimated cost per asset as a fraction of NAV.
     adv : ndarray, shape (N,), optional
         Average daily volume in shares.
+    sold_outside : pandas.Series, optional
+        Weights of held assets the model lacks, sold outside the optimizer (``unknown_assets: zero``):
+        listed as sells of the whole position with their notional; shares and price unknown (NaN).
 
     Returns
     -------
@@ -173,10 +177,22 @@ def build_trade_list(
         with np.errstate(divide="ignore", invalid="ignore"):
             frame["adv_percent"] = np.round(100.0 * np.abs(shares) / np.asarray(adv, dtype=np.float64), 4)
     orders = frame[traded]
+    if sold_outside is not None and len(sold_outside):
+        extra = pd.DataFrame(
+            {"side": "sell", "shares": np.nan, "lot": np.nan, "price": np.nan,
+             "notional": np.round(sold_outside.to_numpy(dtype=np.float64) * nav, 2), "cost_bp": np.nan, "cost": np.nan,
+             "adv_percent": np.nan, "weight_before": sold_outside.to_numpy(dtype=np.float64), "weight_after": 0.0,
+             "weight_change": -sold_outside.to_numpy(dtype=np.float64)},
+            index=pd.Index(sold_outside.index, name="asset"),
+        )
+        orders = pd.concat([orders, extra])
     orders = orders.iloc[np.argsort(-orders["notional"].to_numpy(), kind="stable")]
     for column in ("shares", "lot"):
-        if np.all(np.mod(orders[column].to_numpy(), 1.0) == 0):
+        values = orders[column].to_numpy(dtype=np.float64)
+        if np.all(np.mod(values, 1.0) == 0):
             orders = orders.astype({column: np.int64})
+        elif np.all(np.mod(values[np.isfinite(values)], 1.0) == 0):
+            orders = orders.astype({column: "Int64"})  # whole numbers, missing for positions sold outside
     change = w - target
     moves = pd.DataFrame({"optimal": target, "rounded": w, "change": change}, index=pd.Index(assets, name="asset"))
     moves = moves.iloc[np.argsort(-np.abs(change), kind="stable")[:top_moves]]
@@ -186,7 +202,7 @@ def build_trade_list(
         weights=pd.Series(w, index=assets, name="weight"),
         verification=verify_rounded([*rows, rounding_rows(pd.Index(assets), target, holdings, lot_w)], target, w),
         nav=float(nav),
-        cash_before=float(nav * (1.0 - holdings.sum())),
+        cash_before=float(nav * (1.0 - holdings.sum() - (0.0 if sold_outside is None else float(sold_outside.sum())))),
         cash_optimal=float(nav * (1.0 - target.sum())),
         cash_after=float(nav * (1.0 - w.sum())),
         moves=moves,
