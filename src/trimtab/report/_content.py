@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from trimtab.report._stress import stress_frame
 from trimtab.attribution import (
     HEADLINE_FIGURES,
     RiskAttribution,
@@ -98,6 +99,8 @@ class ReportContent:
     verification: pd.DataFrame | None = None
     provenance: dict[str, Any] = field(default_factory=dict)
     scenario: dict[str, Any] = field(default_factory=dict)
+    #: every shock of the scenario before and after the trade (see trimtab.report._stress)
+    stress: pd.DataFrame | None = None
     caution: str = CAUTION
     figures: pd.DataFrame | None = None
     orders: pd.DataFrame | None = None
@@ -170,6 +173,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         warnings=warning_records(subject),
         context=run_context(subject, post),
         checks=final_limits(subject),
+        stress=stress_frame(subject),
     )
 
 

@@ -22,6 +22,7 @@ from trimtab._version import __version__
 from trimtab.attribution import HEADLINE_FIGURES, RiskAttribution, compare_many, figure_label
 from trimtab.errors import InputError
 from trimtab.report._content import CAUTION, DESK_FIGURES, gather, group_columns, warning_records
+from trimtab.report._stress import stress_frame, stress_records
 from trimtab.report._relaxation import Unsolved, is_unsolved, split_subjects, unsolved
 
 #: Version of the JSON document layout described in docs/outputs.md.
@@ -103,6 +104,8 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         tables["warnings"] = pd.DataFrame(
             [{"kind": w["kind"], "message": w["message"]} for w in content.warnings]
         )
+    if (stress := stress_frame(subject)) is not None:
+        tables["stress"] = stress
     return tables
 
 
@@ -230,6 +233,7 @@ def report_document(subject: Any) -> dict[str, Any]:
         "objective": None if content.objective is None else dict(content.objective.items()),
         "verification": _records(content.verification, None),
         "limits": _records(content.checks, "limit"),
+        "stress": stress_records(subject),
         "provenance": content.provenance,
         "scenario": content.scenario,
     }

@@ -29,6 +29,7 @@ from trimtab.report._content import (
     no_bound,
     rounding_lines,
 )
+from trimtab.report._stress import stress_html
 from trimtab.report._files import atomic_write_text
 from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
 from trimtab.report._relaxation import (
@@ -248,6 +249,8 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
                      units=list(content.trade_summary["unit"]))
             + trades_table
         )
+    if content.stress is not None:
+        parts.append(stress_html(content, h, key))
     if content.constraints is not None:
         parts.append(f"<{h}>Constraints</{h}>" + _constraint_table(content.constraints))
     if content.checks is not None:
