@@ -211,13 +211,9 @@ def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
 
 
 def _infeasible_line(err: InfeasibleError) -> str:
-    """'infeasible: these limits conflict: a, b (…)' from the relaxation table, else the error's text."""
-    from trimtab._validation import list_labels
-    from trimtab.scenario._run import relaxation_frame
-
-    frame = relaxation_frame(err)
-    if "constraint" in frame.columns and len(frame):
-        return f"infeasible: these limits conflict: {list_labels(frame['constraint'].astype(str))} (the table shows how far each must move)"
+    """'infeasible: these limits cannot all hold: a, b (…)' from the conflict set, else the error's text."""
+    if err.conflict:
+        return f"infeasible: these limits cannot all hold: {', '.join(err.conflict)} (the table above shows how far each must move)"
     return str(err)
 
 

@@ -74,6 +74,8 @@ class RebalanceProblem:
         self.objective = Objective(spec, data)
         for c in self.constraints:
             _ = c.rows  # build (and check against the data) now, before any solve
+        #: scenario keys a variant scenario set itself: named first when limits conflict
+        self.changed: tuple[str, ...] = ()
         _heuristics.check(self)
 
     @property
@@ -128,7 +130,9 @@ class RebalanceProblem:
         # 5,000 × 50: 12–22 iterations against 18–28 cold, even for an unrelated new book); with a new
         # alpha the old point costs iterations (28–33 against 19–23 cold), so that starts cold
         warm = self.warm if alpha is None else None
-        return RebalanceProblem(spec, data, self.solvers, self.unknown_assets, warm)
+        problem = RebalanceProblem(spec, data, self.solvers, self.unknown_assets, warm)
+        problem.changed = self.changed
+        return problem
 
     def solve(self, **changes: Any) -> Any:
         """Solve (after :meth:`update` with ``changes`` when given) and return a RebalanceResult.
@@ -152,6 +156,15 @@ class RebalanceProblem:
             outcome = self.solve_convex()
             outcome = _heuristics.apply(self, outcome)
         return make_result(self, outcome)
+
+    def relaxed(self, moves: Sequence[Mapping[str, Any]]) -> RebalanceProblem:
+        """The same problem with the limits of a relaxation option loosened (see ``_elastic.relaxation``)."""
+        fresh = RebalanceProblem(self.spec, self.data, self.solvers, self.unknown_assets, self.warm)
+        moved = {id(m["rows"]) for m in moves}
+        for old, new in zip(self.constraints, fresh.constraints, strict=True):
+            new.__dict__["rows"] = [_elastic.loosen(r, moves) if id(r) in moved else r for r in old.rows]
+        fresh.changed = self.changed
+        return fresh
 
     # ------------------------------------------------------------------ the convex solve
     def all_rows(self, extra: Sequence[Rows] = ()) -> list[Rows]:
@@ -250,6 +263,8 @@ class RebalanceProblem:
             weights, table = accepted
             return Outcome(weights, attempt.status, solver, attempt.iterations, attempt.seconds, build_time,
                            attempts, table, assembly.duals(), rows, solver_objective, notes(name))
+        # a solver that fails near infeasibility gets the same diagnosis as an infeasible status
+        _elastic.diagnose(self, extra, attempts)
         raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(skipped + rejected))
 
 

@@ -21,6 +21,7 @@ from trimtab.report._relaxation import (
     Unsolved,
     display_relaxation,
     is_unsolved,
+    conflict_sentence,
     relaxation_sentence,
     split_subjects,
     unsolved,
@@ -284,10 +285,11 @@ def _unsolved_body(failure: Unsolved) -> str:
     """Status, message and (for an infeasible scenario) the relaxation table in each limit's unit."""
     parts = [f'<p class="meta">Status <span class="status bad">{_e(failure.status)}</span></p>']
     if failure.status == "infeasible":
+        parts.append(f'<p class="relaxation"><strong>{_e(conflict_sentence(failure))}</strong></p>')
         parts.append(f'<p class="relaxation">{_e(relaxation_sentence(failure.relaxation))}</p>')
         if not failure.relaxation.empty:
             shown = display_relaxation(failure.relaxation)
-            text_columns = {"constraint", "kind", "side", "unit"}
+            text_columns = {"option", "constraint", "kind", "side", "unit"}
             head = "".join(f'<th class="{"" if c in text_columns else "num"}">{_e(_header(c, _RELAXATION_HEADERS))}</th>'
                            for c in shown.columns)
             body = "".join(
@@ -306,7 +308,7 @@ def _unsolved_body(failure: Unsolved) -> str:
     return "".join(f"<section>{p}</section>" for p in parts)
 
 
-_RELAXATION_HEADERS = {"needed": "value needed", "relax_by": "move by", "scale": "unit of concern"}
+_RELAXATION_HEADERS = {"needed": "value needed", "relax_by": "move by"}
 
 
 def _nav(items: Sequence[tuple[str, str]], *, comparison: bool) -> str:
