@@ -4,14 +4,14 @@ from __future__ import annotations
 
 import time
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import cvxpy as cp
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _elastic, _fast, _heuristics, _solve
+from trimtab.construct import _elastic, _fast, _heuristics, _passive, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._data import ProblemData, prepare
 from trimtab.construct._objective import Objective
@@ -74,6 +74,8 @@ class RebalanceProblem:
         self.objective = Objective(spec, data)
         for c in self.constraints:
             _ = c.rows  # build (and check against the data) now, before any solve
+        #: positions the market carried beyond a per-asset limit, moved back as far as trading allows
+        self.passive_notes = _passive.cure(self)
         #: scenario keys a variant scenario set itself: named first when limits conflict
         self.changed: tuple[str, ...] = ()
         _heuristics.check(self)
@@ -155,6 +157,8 @@ class RebalanceProblem:
         else:
             outcome = self.solve_convex()
             outcome = _heuristics.apply(self, outcome)
+        if self.passive_notes:
+            outcome = replace(outcome, notes=[*self.passive_notes, *outcome.notes])
         return make_result(self, outcome)
 
     def relaxed(self, moves: Sequence[Mapping[str, Any]]) -> RebalanceProblem:

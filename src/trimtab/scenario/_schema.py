@@ -131,6 +131,14 @@ class OutputSection(_Strict):
     html: bool = True
 
 
+class BacktestSection(_Strict):
+    """How a walk-forward backtest treats a date on which the scenario does not solve as written."""
+
+    when_infeasible: Literal["relax", "hold", "stop"] = Field(
+        "relax", description="relax: trade at the minimally relaxed limits; hold: keep the drifted book; stop: end the path"
+    )
+
+
 class ScenarioSpec(_Strict):
     """A whole scenario file after ``extends`` has been merged."""
 
@@ -141,6 +149,7 @@ class ScenarioSpec(_Strict):
     objective: dict[str, Any]
     constraints: dict[str, Any] = Field(default_factory=dict)
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
+    backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]
 
     @field_validator("name")
     @classmethod
