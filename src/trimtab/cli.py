@@ -213,7 +213,9 @@ def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
 def _infeasible_line(err: InfeasibleError) -> str:
     """'infeasible: these limits cannot all hold: a, b (…)' from the conflict set, else the error's text."""
     if err.conflict:
-        return f"infeasible: these limits cannot all hold: {', '.join(err.conflict)} (the table above shows how far each must move)"
+        from trimtab._format import compact_limits
+
+        return f"infeasible: these limits cannot all hold: {compact_limits(err.conflict)} (the table above shows how far each must move)"
     return str(err)
 
 

@@ -25,6 +25,7 @@ from typing import TYPE_CHECKING, Any
 import cvxpy as cp
 import numpy as np
 
+from trimtab._format import compact_limits
 from trimtab.construct import _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._variables import Variables
@@ -80,7 +81,7 @@ class Conflict:
 
     def sentence(self) -> str:
         """``these limits cannot all hold: A, B, C``."""
-        return "these limits cannot all hold: " + ", ".join(self.paths)
+        return "these limits cannot all hold: " + compact_limits(self.paths)
 
 
 # ---------------------------------------------------------------------------------------------

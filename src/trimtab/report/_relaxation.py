@@ -18,6 +18,7 @@ from typing import Any
 
 import pandas as pd
 
+from trimtab._format import compact_limits
 from trimtab.errors import InfeasibleError, SolverError
 
 #: Columns of a relaxation table, in display order.
@@ -64,7 +65,7 @@ def conflict_sentence(failure: Unsolved | InfeasibleError) -> str:
     conflict = failure.conflict if isinstance(failure, Unsolved) else tuple(getattr(failure, "conflict", None) or ())
     if not conflict:
         return "The optimizer found no set of conflicting limits for this infeasible scenario."
-    return f"These limits cannot all hold: {', '.join(conflict)}."
+    return f"These limits cannot all hold: {compact_limits(conflict)}."
 
 
 def split_subjects(subjects: Mapping[str, Any]) -> tuple[dict[str, Any], dict[str, Unsolved]]:

@@ -27,6 +27,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from trimtab._format import compact_limits
 from trimtab.errors import DataWarning, InfeasibleError, InputError, SolverError
 from trimtab.model import FactorModel
 from trimtab.runs._asof import AsOf
@@ -197,7 +198,7 @@ def _decide(rebalance: Callable[..., Any], model: FactorModel, task: PathTask, k
     try:
         return rebalance(model, dict(task.scenario), **kwargs), "solved", "", ""
     except InfeasibleError as err:
-        reason = "these limits cannot all hold: " + ", ".join(err.conflict) if err.conflict else str(err)
+        reason = "these limits cannot all hold: " + compact_limits(err.conflict) if err.conflict else str(err)
         if task.when_infeasible == "stop":
             return None, "stopped", reason, ""
         if task.when_infeasible == "hold" or err.relaxed is None:
