@@ -168,7 +168,8 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[
     return None
 
 
-def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed: Sequence[str] = ()) -> Conflict | None:
+def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed: Sequence[str] = (),
+                 hint: Sequence[str] | None = None) -> Conflict | None:
     """The deletion filter over limit groups; None when the limits turn out to be satisfiable together.
 
     Parameters
@@ -178,6 +179,10 @@ def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed:
         Rows added by the post-solve steps.
     changed : sequence of str
         Scenario keys the variant set itself (tested last, so kept in preference).
+    hint : sequence of str, optional
+        Paths of groups likely to hold a conflict (those an elastic solve had to move). When they
+        are infeasible on their own, every other group is dropped in one test, which the deletion
+        filter allows (the rest stays infeasible), and the filter runs over the hint only.
 
     Returns
     -------
@@ -186,11 +191,19 @@ def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed:
     """
     groups = limit_groups(problem, extra)
     solvers = cvxpy_solvers(problem)
-    solves = 1
-    if feasible(problem, [g.restricted() for g in groups], solvers) is not False:
-        return None
-    order = sorted(range(len(groups)), key=lambda i: groups[i].key in changed)
-    keep = set(range(len(groups)))
+    solves = 0
+    keep: set[int] = set()
+    hinted = {i for i, g in enumerate(groups) if g.path in set(hint or ())}
+    if hinted:
+        solves += 1
+        if feasible(problem, [groups[i].restricted() for i in sorted(hinted)], solvers) is False:
+            keep = hinted  # a subset is infeasible, so the whole set is too
+    if not keep:
+        solves += 1
+        if feasible(problem, [g.restricted() for g in groups], solvers) is not False:
+            return None
+        keep = set(range(len(groups)))
+    order = sorted(keep, key=lambda i: groups[i].key in changed)
     sure = True
     for i in order:
         trial = keep - {i}

@@ -51,7 +51,7 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
     Returns without raising when the limits turn out to be satisfiable together (the solver's
     infeasibility was numerical).
     """
-    conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()))
+    conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
     if conflict is None:
         return
     table, moves = relaxation(problem, extra, conflict)
@@ -109,6 +109,25 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
             return np.asarray(variables.w.value, dtype=np.float64)
         if attempt.status in _solve.INFEASIBLE:
             return None
+    return None
+
+
+def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str] | None:
+    """Groups that are infeasible together, by the elastic filter (Chinneck 2008, ch. 6): solve the
+    elastic problem, make every group it had to move hard, repeat until the hard groups alone are
+    infeasible. The result holds a conflict set, usually with few other groups, so the deletion
+    filter that follows need not visit every group of the scenario. None when it finds nothing."""
+    groups = limit_groups(problem, extra)
+    enforced: list[LimitGroup] = []
+    for _ in range(len(groups)):
+        movable = [g for g in groups if g not in enforced]
+        weights = elastic_weights(problem, extra, movable) if movable else None
+        if weights is None:
+            return [g.path for g in enforced] or None
+        moved = [g for g in movable if _moves(problem, g, weights)]
+        if not moved:
+            return None
+        enforced.extend(moved)
     return None
 
 
