@@ -17,7 +17,7 @@ fraction of ADV the scenario sets (``max_adv_fraction``) asset by asset.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
@@ -167,7 +167,7 @@ def _moves(problem: RebalanceProblem, group: LimitGroup, weights: np.ndarray) ->
     value = np.asarray(rows.evaluate(weights), dtype=np.float64)
     elements = range(rows.size) if group.index is None else group.index
     per_unit = _liquidity_per_fraction(problem) if group.key == "liquidity" else None
-    out = []
+    out: list[dict[str, Any]] = []
     for i in elements:
         for side, gap, limit in (("upper", value[i] - rows.upper[i], rows.upper[i]),
                                  ("lower", rows.lower[i] - value[i], rows.lower[i])):
@@ -203,7 +203,7 @@ def _meaningful(moves: Sequence[dict[str, Any]]) -> bool:
     return all(abs(m["needed"]) <= 1.0 + 1e-9 for m in moves if m["kind"] in WEIGHT_RANGE)
 
 
-def loosen(rows: Rows, moves: Sequence[dict[str, Any]]) -> Rows:
+def loosen(rows: Rows, moves: Sequence[Mapping[str, Any]]) -> Rows:
     """The rows with each moved element's limit loosened to the needed value (plus RELAX_MARGIN)."""
     lower, upper = rows.lower.copy(), rows.upper.copy()
     for m in moves:

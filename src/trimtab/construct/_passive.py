@@ -57,7 +57,8 @@ def cure(problem: RebalanceProblem) -> list[str]:
                 continue
             upper = np.where(above, reach_lo - off, rows.upper)
             lower = np.where(below, reach_hi - off, rows.lower)
-            for i in np.flatnonzero(above | below):
+            assert off is not None  # box rows carry their offset
+            for i in map(int, np.flatnonzero(above | below)):
                 side, limit, allowed = ("max", rows.upper[i], upper[i]) if above[i] else ("min", rows.lower[i], lower[i])
                 notes.append(
                     f"passive breach: constraints.{c.key}.{side}[{rows.labels[i]}] is {w0[i] - off[i]:.4%} after "

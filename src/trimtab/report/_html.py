@@ -301,7 +301,7 @@ def _unsolved_body(failure: Unsolved) -> str:
             )
             parts.append(
                 '<div class="wide"><table class="relaxation"><caption>How far each conflicting limit must move '
-                "for the others to hold (one minimal way; the CSV and JSON files keep the raw numbers).</caption>"
+                "(each numbered option alone, every other limit as written; the CSV and JSON files keep the raw numbers).</caption>"
                 f"<thead><tr>{head}</tr></thead><tbody>{body}</tbody></table></div>"
             )
     parts.append(f'<p class="note">{_e(failure.message)}</p>')
