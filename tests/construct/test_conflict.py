@@ -175,3 +175,13 @@ def test_a_clarabel_only_run_gets_the_same_diagnosis() -> None:
     for solvers in (["CLARABEL"], ["SCS"]):
         err = conflict_of(fund, constraints, solvers=solvers)
         assert "constraints.tracking_error.max" in err.conflict
+
+
+def test_the_error_travels_between_processes_without_its_problem() -> None:
+    import pickle
+
+    fund = make_fund(40, 4, seed=4)
+    err = conflict_of(fund, {"fully_invested": True, "weight": {"max": 0.01}})
+    back = pickle.loads(pickle.dumps(err))  # executors send errors back from worker processes
+    assert back.conflict == err.conflict and str(back) == str(err) and back.relaxed is None
+    pd.testing.assert_frame_equal(back.relaxation, err.relaxation)
