@@ -266,6 +266,7 @@ def test_rebalance_infeasible_exits_1_with_the_relaxation_table(work: Path) -> N
     document = json.loads(result.stdout)
     assert document["status"] == "infeasible"
     assert document["relaxation"][0]["constraint"] == "constraints.tracking_error.max"
+    assert document["conflict"] == ["constraints.tracking_error.max", "constraints.turnover.max"]
 
 
 def test_rebalance_bad_limits_exit_2(work: Path) -> None:

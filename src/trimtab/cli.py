@@ -407,7 +407,7 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
         run = solve(inputs)
     if isinstance(run.error, InfeasibleError):
         _print_relaxation(ui, loaded.name, run.error)
-        ui.emit({"scenario": loaded.name, "status": "infeasible", "relaxation": _relaxation_rows(run.error)})
+        ui.emit({"scenario": loaded.name, "status": "infeasible", "conflict": list(run.error.conflict or []), "relaxation": _relaxation_rows(run.error)})
         _fail(f"{loaded.path}: {_infeasible_line(run.error)}", EXIT_INFEASIBLE)
     if run.error is not None:
         raise run.error
