@@ -142,7 +142,7 @@ class RebalanceProblem:
         Raises
         ------
         InfeasibleError
-            With the relaxation table of the elastic re-solve.
+            With the conflict set and the relaxation options (:mod:`trimtab.construct._elastic`).
         SolverError
             When every solver failed or returned weights that breach a constraint.
         """
@@ -174,16 +174,14 @@ class RebalanceProblem:
     def all_rows(self, extra: Sequence[Rows] = ()) -> list[Rows]:
         return [r for c in self.constraints for r in c.rows] + list(extra)
 
-    def build(self, extra: Sequence[Rows] = (), *, elastic: bool = False) -> tuple[cp.Problem, Variables, Assembly]:
-        """The cvxpy problem in factor form (maximise U − penalties; elastic: minimise Σ slack/scale)."""
+    def build(self, extra: Sequence[Rows] = ()) -> tuple[cp.Problem, Variables, Assembly]:
+        """The cvxpy problem in factor form: maximise U − soft-limit penalties."""
         variables = Variables(self.data)
-        assembly = Assembly(variables, elastic=elastic)
+        assembly = Assembly(variables)
         for c in self.constraints:
             c.add(assembly)
         for r in extra:
             assembly.add(r)
-        if elastic:
-            return cp.Problem(cp.Minimize(assembly.penalty), assembly.finish()), variables, assembly
         # the objective may create variables (trades, impact) whose definitions finish() must collect
         goal = self.objective.expression(variables) - assembly.penalty
         return cp.Problem(cp.Maximize(goal), assembly.finish()), variables, assembly
@@ -250,7 +248,7 @@ class RebalanceProblem:
                 )
             if attempt.status in _solve.INFEASIBLE:
                 _elastic.diagnose(self, extra, attempts)  # raises InfeasibleError when confirmed
-                rejected.append(f"{name}: {attempt.status} but the elastic re-solve found no conflict")
+                rejected.append(f"{name}: {attempt.status} but the limits can all hold (no conflict set)")
                 continue
             if variables.w.value is None or attempt.status not in (*_solve.OPTIMAL, cp.OPTIMAL_INACCURATE):
                 rejected.append(f"{name}: {attempt.status}{' ' + attempt.message if attempt.message else ''}")
