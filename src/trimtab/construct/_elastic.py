@@ -173,7 +173,7 @@ def _moves(problem: RebalanceProblem, group: LimitGroup, weights: np.ndarray) ->
                                  ("lower", rows.lower[i] - value[i], rows.lower[i])):
             if not np.isfinite(limit) or gap <= ELASTIC_TOL * max(1.0, abs(limit)):
                 continue
-            label = rows.labels[i] if rows.per_asset else None
+            label = rows.labels[i] if group.label is None and (rows.per_asset or rows.size > 1) else None
             record = {
                 "constraint": group.path if label is None else f"{group.path}[{label}]",
                 "kind": rows.kind, "side": side, "limit": float(limit), "needed": float(value[i]),

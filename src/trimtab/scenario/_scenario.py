@@ -47,8 +47,16 @@ class Scenario:
         return self.spec.name
 
     def rebalance_mapping(self) -> dict[str, Any]:
-        """The ``objective`` and ``constraints`` sections, as :func:`trimtab.rebalance` takes them."""
-        return {"objective": dict(self.spec.objective), "constraints": dict(self.spec.constraints)}
+        """The ``objective`` and ``constraints`` sections (and ``stress``, ``replay``), as :func:`trimtab.rebalance`
+        takes them, with shock files read."""
+        from trimtab.scenario._shocks import resolve_shock_files
+
+        mapping: dict[str, Any] = {"objective": dict(self.spec.objective), "constraints": dict(self.spec.constraints)}
+        if self.spec.stress is not None:
+            mapping["stress"] = self.spec.stress
+        if self.spec.replay is not None:
+            mapping["replay"] = self.spec.replay
+        return resolve_shock_files(mapping)
 
     @property
     def output_dir(self) -> Path:
