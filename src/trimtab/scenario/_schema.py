@@ -139,6 +139,14 @@ class AlertsSection(_Strict):
     pinned_positions: int = Field(1, ge=0, description="alert when at least this many positions sit at an upper weight limit (0: off)")
 
 
+class BacktestSection(_Strict):
+    """How a walk-forward backtest treats a date on which the scenario does not solve as written."""
+
+    when_infeasible: Literal["relax", "hold", "stop"] = Field(
+        "relax", description="relax: trade at the minimally relaxed limits; hold: keep the drifted book; stop: end the path"
+    )
+
+
 class ScenarioSpec(_Strict):
     """A whole scenario file after ``extends`` has been merged."""
 
@@ -156,6 +164,7 @@ class ScenarioSpec(_Strict):
     )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
     alerts: AlertsSection = Field(default_factory=AlertsSection)  # type: ignore[arg-type]
+    backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]
 
     @field_validator("name")
     @classmethod
