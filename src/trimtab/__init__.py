@@ -20,10 +20,11 @@ from trimtab.errors import (
     SolverError,
     TrimtabError,
 )
-from trimtab.model import FactorModel, FitReport
-
-# name -> module that defines it; resolved lazily by __getattr__
+# name -> module that defines it; resolved lazily by __getattr__ (``trimtab --help`` imports this
+# package: it must not pull in pandas, scipy or cvxpy)
 _LAZY = {
+    "FactorModel": "trimtab.model",
+    "FitReport": "trimtab.model",
     "fit_time_series": "trimtab.model",
     "fit_cross_section": "trimtab.model",
     "fit_statistical": "trimtab.model",
@@ -54,8 +55,6 @@ __all__ = [
     "__version__",
     "ConvergenceWarning",
     "DataWarning",
-    "FactorModel",
-    "FitReport",
     "InfeasibleError",
     "InputError",
     "ModelError",

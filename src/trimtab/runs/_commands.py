@@ -16,14 +16,14 @@ import warnings
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated, Any, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
-import numpy as np
-import pandas as pd
 import typer
-import yaml
 
 from trimtab.errors import InputError, TrimtabError
+
+if TYPE_CHECKING:  # numpy, pandas and yaml are imported where used: registering the commands stays light
+    import pandas as pd
 from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
 EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
@@ -92,6 +92,9 @@ def _executor(executor: str | None, workers: int | None, scheduler: str | None) 
 
 
 def _jsonable(value: Any) -> Any:
+    import numpy as np
+    import pandas as pd
+
     if isinstance(value, Mapping):
         return {str(k): _jsonable(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
@@ -148,6 +151,9 @@ def _default_out(scenario: Any, command: str) -> Path:
 # ---------------------------------------------------------------------------------------------
 def parse_values(text: str, owner: str) -> list[Any]:
     """``a:b:n`` (n evenly spaced values), ``[v1, v2]`` (a YAML list) or ``v1,v2,…`` (YAML scalars)."""
+    import numpy as np
+    import yaml
+
     body = text.strip()
     if not body:
         raise InputError(f"{owner}: no values given; expected v1,v2,… or start:stop:count or [v1, v2]")
@@ -172,6 +178,8 @@ def parse_values(text: str, owner: str) -> list[Any]:
 
 def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[Any]] | list[dict[str, Any]]:
     """``--grid KEY=VALUES`` options (every combination), or a grid file (a mapping or a list of points)."""
+    import yaml
+
     if grid_file is not None:
         if items:
             raise InputError("--grid and --grid-file: give one, not both")
@@ -231,9 +239,9 @@ def _exit_for_points(table: pd.DataFrame) -> None:
     _fail(f"no point solved; first: {table.index[0]}: {first['status']}: {first['error']}", code)
 
 
-def _report_failures(table: pd.DataFrame) -> None:
-    for label, row in table[table["status"] != "solved"].head(5).iterrows():
-        sys.stderr.write(f"trimtab: warning: {label}: {row['status']}: {row['error']}\n")
+def _report_failures(table: pd.DataFrame, label: Callable[[Any], str] = str) -> None:
+    for key, row in table[table["status"] != "solved"].head(5).iterrows():
+        sys.stderr.write(f"trimtab: warning: {label(key)}: {row['status']}: {row['error']}\n")
     extra = int((table["status"] != "solved").sum()) - 5
     if extra > 0:
         sys.stderr.write(f"trimtab: warning: and {extra} more points did not solve (see the table)\n")
@@ -328,7 +336,7 @@ def frontier_command(
         _say(result.summary(), True)
         _say_table(result.tracking_error.drop(columns=["error"]), "Frontier against tracking error (limit = TE cap)", True)
         _say(f"Wrote the tables and report to {target}", True)
-    _report_failures(result.tracking_error.set_index("limit"))
+    _report_failures(result.tracking_error.set_index("limit"), label=lambda cap: f"tracking-error cap {100 * float(cap):.2f}%")
     _exit_for_points(result.tracking_error.set_index("limit"))
 
 
@@ -374,6 +382,8 @@ def backtest_command(
     tracking error (the bias statistic), turnover, costs, exposures and risk contributions through
     time.
     """
+    import pandas as pd
+
     from trimtab.runs._backtest import backtest
     from trimtab.runs._report import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
@@ -414,7 +424,8 @@ def backtest_command(
         schedule = schedule[:max_dates]
     if not schedule:
         raise InputError(f"--start {start}: no rebalance date left (the returns end {returns.index[-1].date()})")
-    mappings = {i.scenario.name: i.scenario.rebalance_mapping() for i in inputs}
+    mappings = {i.scenario.name: {**i.scenario.rebalance_mapping(),
+                                  "backtest": {"when_infeasible": i.scenario.spec.backtest.when_infeasible}} for i in inputs}
     with _executor(executor, workers, scheduler) as runner, progress_bar(len(mappings), "backtest", quiet) as tick:
         result = backtest(
             returns, alpha, mappings, window=window, rebalance_dates=schedule, factor_returns=factors,

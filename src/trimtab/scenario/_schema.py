@@ -131,6 +131,22 @@ class OutputSection(_Strict):
     html: bool = True
 
 
+class AlertsSection(_Strict):
+    """Thresholds of the concentration alerts shown with every rebalance (docs/scenarios.md)."""
+
+    factor_share: float = Field(0.5, gt=0, le=1, description="alert when one factor takes more than this share of the variance")
+    asset_share: float = Field(0.2, gt=0, le=1, description="alert when one position takes more than this share of the variance")
+    pinned_positions: int = Field(1, ge=0, description="alert when at least this many positions sit at an upper weight limit (0: off)")
+
+
+class BacktestSection(_Strict):
+    """How a walk-forward backtest treats a date on which the scenario does not solve as written."""
+
+    when_infeasible: Literal["relax", "hold", "stop"] = Field(
+        "relax", description="relax: trade at the minimally relaxed limits; hold: keep the drifted book; stop: end the path"
+    )
+
+
 class ScenarioSpec(_Strict):
     """A whole scenario file after ``extends`` has been merged."""
 
@@ -147,6 +163,8 @@ class ScenarioSpec(_Strict):
         None, description="{length: periods, count: k}: the k worst windows of the model's history, before and after the trade"
     )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
+    alerts: AlertsSection = Field(default_factory=AlertsSection)  # type: ignore[arg-type]
+    backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]
 
     @field_validator("name")
     @classmethod
