@@ -49,7 +49,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
         html = {
             "headline": render_cards(headline_cards(figures, content)),
             "exposures": render("partials/exposures.html.j2", rows=exposure_rows(content.exposures)),
-            "trades": render_trades(trade_rows(content.top_trades), caption=_trades_caption(content)),
+            "trades": _trades(content),
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
             "warnings": render("partials/warnings.html.j2", rows=warning_rows(variant.result)),
         }
@@ -142,6 +142,19 @@ def _cell(table: pd.DataFrame | None, row: str, column: str) -> float | None:
     if table is None or row not in table.index or column not in table.columns:
         return None
     return number(table.loc[row, column])
+
+
+def _trades(content: Any) -> str:
+    """The report's order list (the same partial and rows) when the content has one, else the top trades."""
+    orders = getattr(content, "orders", None)
+    if orders is not None and len(orders):
+        from trimtab.report._html_desk import order_columns, order_rows, table_columns
+
+        shown = orders.head(TOP_TRADES)
+        columns = order_columns(shown, bool(getattr(content, "orders_in_shares", False)))
+        return render_trades(order_rows(shown, columns), caption=f"The {len(shown)} largest of {len(orders):,} orders",
+                             css="orders", columns=table_columns(columns))
+    return render_trades(trade_rows(content.top_trades), caption=_trades_caption(content))
 
 
 def _trades_caption(content: Any) -> str:

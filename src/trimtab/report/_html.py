@@ -32,6 +32,7 @@ from trimtab.report._content import (
 from trimtab.report._stress import stress_html
 from trimtab.report._files import atomic_write_text
 from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
+from trimtab.report._templates import render_cards
 from trimtab.report._relaxation import (
     Unsolved,
     display_relaxation,
@@ -354,25 +355,16 @@ def _key_figures(content: ReportContent) -> str:
         if key not in headline.index:
             continue
         row = headline.loc[key]
-        was = ""
-        if "pre" in headline.columns:
-            was = f'<div class="was">before {format_figure(row["pre"], row["unit"])}</div>'
-        cards.append(
-            f'<div class="keyfigure"><div class="label">{_e(row["label"])}</div>'
-            f'<div class="value">{format_figure(row["post"], row["unit"])}</div>{was}</div>'
-        )
+        was = f"before {format_figure(row['pre'], row['unit'])}" if "pre" in headline.columns else ""
+        cards.append({"key": key, "label": str(row["label"]), "value": format_figure(row["post"], row["unit"]), "note": was})
     if content.risk_budget is not None:
         budget = content.risk_budget
-        cards.insert(
-            1,
-            '<div class="keyfigure"><div class="label">Risk budget used</div>'
-            f'<div class="value">{format_figure(budget.used, "fraction")}</div>'
-            f'<div class="was">cap {format_figure(budget.cap, "fraction")}</div></div>',
-        )
+        cards.insert(1, {"key": "risk_budget_used", "label": "Risk budget used", "value": format_figure(budget.used, "fraction"),
+                         "note": f"cap {format_figure(budget.cap, 'fraction')}"})
     note = ""
     if content.post.is_zero_risk:
         note = '<p class="note">The portfolio has zero risk: contributions are undefined and shown as n/a.</p>'
-    return f'<div class="keyfigures">{"".join(cards)}</div>{note}'
+    return render_cards(cards) + note
 
 
 def _headline_table(content: ReportContent) -> str:

@@ -16,6 +16,7 @@ import pandas as pd
 from trimtab.attribution import format_figure
 from trimtab.report._content import change_text, display_unit, settings_rows
 from trimtab.report._html_parts import _e
+from trimtab.report._templates import render_cards, render_trades
 
 #: Desk figures shown as cards at the top of a rebalance report, in order.
 DESK_CARDS = ("expected_alpha", "information_ratio", "tracking_error", "turnover", "cost", "names_bought", "names_sold")
@@ -42,7 +43,7 @@ def warnings_section(warnings: Sequence[Mapping[str, Any]], heading: str = "h2",
 
 def desk_cards(figures: pd.DataFrame | None) -> str:
     """Headline cards: expected alpha, information ratio, tracking error, turnover, cost, names bought
-    and sold, each after the trades with its value before."""
+    and sold, each after the trades with its value before (the headline partial the explore page uses)."""
     if figures is None:
         return ""
     cards = []
@@ -53,12 +54,10 @@ def desk_cards(figures: pd.DataFrame | None) -> str:
         unit = display_unit(key, str(row["unit"]))
         was = ""
         if pd.notna(row.get("pre")) and key not in ("turnover", "cost", "names_bought", "names_sold"):
-            was = f'<div class="was">before {format_figure(row["pre"], unit)} ({change_text(row["change"], unit)})</div>'
-        cards.append(
-            f'<div class="keyfigure desk"><div class="label">{_e(row["label"])}</div>'
-            f'<div class="value">{format_figure(row["post"], unit)}</div>{was}</div>'
-        )
-    return f'<div class="keyfigures">{"".join(cards)}</div>' if cards else ""
+            was = f"before {format_figure(row['pre'], unit)} ({change_text(row['change'], unit)})"
+        cards.append({"key": str(key), "kind": "desk", "label": str(row["label"]),
+                      "value": format_figure(row["post"], unit), "note": was})
+    return render_cards(cards) if cards else ""
 
 
 def figures_table(figures: pd.DataFrame) -> str:
@@ -92,37 +91,50 @@ _ORDER_COLUMNS = (
 _WEIGHT_COLUMNS = (("weight_before", "Weight before", "fraction"), ("weight_after", "Weight after", "fraction"))
 
 
+def order_columns(orders: pd.DataFrame, in_shares: bool) -> list[tuple[str, str, str]]:
+    """The order list's columns shown: (column, heading, unit), those with any value only."""
+    candidates = _ORDER_COLUMNS if in_shares else (*_ORDER_COLUMNS[:1], *_WEIGHT_COLUMNS, *_ORDER_COLUMNS[1:])
+    return [(c, h, u) for c, h, u in candidates if c in orders.columns and not orders[c].isna().all()]
+
+
+def table_columns(columns: Sequence[tuple[str, str, str]]) -> list[tuple[str, str, bool]]:
+    """The top-trades partial's columns for an order list: asset, then each column (numeric unless text)."""
+    return [("asset", "Asset", False), *((c, h, u != "text") for c, h, u in columns)]
+
+
+def order_rows(orders: pd.DataFrame, columns: Sequence[tuple[str, str, str]]) -> list[dict[str, str]]:
+    """The orders as rows of formatted text: asset, each column, and side (the row's class)."""
+    rows = []
+    for asset, row in orders.iterrows():
+        cells = {c: _order_text(row[c], u) for c, _, u in columns}
+        rows.append({"asset": str(asset), **cells, "side": str(row.get("side", ""))})
+    return rows
+
+
 def orders_section(orders: pd.DataFrame | None, in_shares: bool, rounding_lines: Sequence[str], max_rows: int) -> str:
-    """The largest orders as a desk would send them, and what rounding to whole shares moved."""
+    """The largest orders as a desk would send them (the top-trades partial the explore page uses),
+    and what rounding to whole shares moved."""
     if orders is None:
         return ""
     shown = orders.head(max_rows)
-    candidates = _ORDER_COLUMNS if in_shares else (*_ORDER_COLUMNS[:1], *_WEIGHT_COLUMNS, *_ORDER_COLUMNS[1:])
-    columns = [(c, h, u) for c, h, u in candidates if c in shown.columns and not shown[c].isna().all()]
-    head = "<th>Asset</th>" + "".join(f'<th class="{"" if u == "text" else "num"}">{_e(h)}</th>' for _, h, u in columns)
-    body = "".join(
-        f"<tr><td>{_e(asset)}</td>" + "".join(_order_cell(row[c], u) for c, _, u in columns) + "</tr>"
-        for asset, row in shown.iterrows()
-    )
+    columns = order_columns(shown, in_shares)
     what = "in whole shares" if in_shares else "in weights (no NAV or prices given: fractions of NAV)"
     caption = (
         f"The largest {len(shown)} of {len(orders):,} orders by size, {what}; trades.csv holds every order "
         "and target_book.csv every asset's weight before and after."
     )
+    table = render_trades(order_rows(shown, columns), caption=caption, css="orders", columns=table_columns(columns))
     notes = "".join(f'<p class="note">{_e(line)}</p>' for line in rounding_lines)
-    return (
-        f'<div class="wide"><table class="orders"><caption>{_e(caption)}</caption><thead><tr>{head}</tr></thead>'
-        f"<tbody>{body}</tbody></table></div>{notes}"
-    )
+    return f'<div class="wide">{table}</div>{notes}'
 
 
-def _order_cell(value: Any, unit: str) -> str:
+def _order_text(value: Any, unit: str) -> str:
     if unit == "text":
-        return f"<td>{_e(value)}</td>"
+        return "" if value is None else str(value)
     if value is None or (isinstance(value, float) and np.isnan(value)):
-        return '<td class="num">n/a</td>'
+        return "n/a"
     number = float(value)
-    text = {
+    return {
         "shares": f"{number:,.0f}",
         "price": f"{number:,.2f}",
         "amount": f"{number:,.0f}",
@@ -130,7 +142,6 @@ def _order_cell(value: Any, unit: str) -> str:
         "pct1": f"{number:.1f}%",
         "pp": f"{100 * number:+.3f}",
     }.get(unit) or format_figure(number, unit)
-    return f'<td class="num">{text}</td>'
 
 
 def limits_section(checks: pd.DataFrame | None, units: Mapping[str, str] | None = None) -> str:
