@@ -53,7 +53,7 @@ def test_good_file_and_defaults(tmp_path: Path) -> None:
         (GOOD.replace("model: model", "model: {fit: {method: time_series, returns: r.csv}}"), r"model\.fit: method time_series needs factor_returns"),
         (GOOD.replace("model: model", "model: {fit: {method: guess, returns: r.csv}}"), r"model\.fit\.method: expected 'time_series', 'cross_section' or 'statistical', got 'guess'"),
         (GOOD + "name: ../elsewhere\n", r"s\.yaml: name: expected a name usable as a folder name \(no / or \\, not \. or \.\.\), got '\.\./elsewhere'"),
-        (GOOD + "data: {holdings: 5}\n", r"data\.holdings: expected a valid dictionary or instance of HoldingsFile, got 5"),
+        (GOOD.replace("  holdings: {path: holdings.csv, kind: shares, cash: 100}", "  holdings: 5"), r"data\.holdings: expected a valid dictionary or instance of HoldingsFile, got 5"),
     ],
 )
 def test_errors_name_file_key_path_and_expectation(tmp_path: Path, text: str, message: str) -> None:

@@ -21,8 +21,8 @@ from typing import Annotated, Any, TypeVar
 import numpy as np
 import pandas as pd
 import typer
-import yaml
 
+from trimtab._strict_yaml import load_yaml_text, read_yaml
 from trimtab.errors import InputError, TrimtabError
 from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
@@ -153,7 +153,7 @@ def parse_values(text: str, owner: str) -> list[Any]:
         raise InputError(f"{owner}: no values given; expected v1,v2,… or start:stop:count or [v1, v2]")
     try:
         if body.startswith("["):
-            values = yaml.safe_load(body)
+            values = load_yaml_text(body, owner)
             if not isinstance(values, list) or not values:
                 raise InputError(f"{owner}: expected a non-empty YAML list, got {body!r}")
             return values
@@ -165,8 +165,8 @@ def parse_values(text: str, owner: str) -> list[Any]:
             if count < 2:
                 raise InputError(f"{owner}: a range needs a count ≥ 2, got {count}")
             return [round(float(x), 12) for x in np.linspace(start, stop, count)]  # 0.045, not 0.045000000000000005
-        return [yaml.safe_load(part.strip()) for part in body.split(",")]
-    except (ValueError, yaml.YAMLError) as err:
+        return [load_yaml_text(part.strip(), owner) for part in body.split(",")]
+    except ValueError as err:
         raise InputError(f"{owner}: could not read {body!r} as values ({str(err).splitlines()[0]})") from None
 
 
@@ -175,12 +175,7 @@ def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[A
     if grid_file is not None:
         if items:
             raise InputError("--grid and --grid-file: give one, not both")
-        try:
-            loaded = yaml.safe_load(Path(grid_file).read_text(encoding="utf-8"))
-        except OSError as err:
-            raise InputError(f"{grid_file}: cannot read the grid file ({err.strerror})") from None
-        except yaml.YAMLError as err:
-            raise InputError(f"{grid_file}: not valid YAML ({str(err).splitlines()[0]})") from None
+        loaded = read_yaml(grid_file, "grid")
         if not isinstance(loaded, (dict, list)) or not loaded:
             raise InputError(f"{grid_file}: expected a mapping parameter → list of values, or a list of points")
         return loaded

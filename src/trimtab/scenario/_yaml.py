@@ -13,9 +13,9 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-import yaml
 from pydantic import BaseModel, ValidationError
 
+from trimtab._strict_yaml import read_yaml
 from trimtab.errors import ScenarioError
 
 #: Key paths (within a scenario) whose value is a file path or a table spec with a ``path``.
@@ -38,30 +38,26 @@ NOT_INHERITED: tuple[tuple[str, ...], ...] = (("name",), ("output", "dir"))
 
 
 def read_yaml_mapping(path: Path, what: str = "scenario") -> dict[str, Any]:
-    """Parse ``path`` with ``yaml.safe_load``; the top level must be a mapping."""
-    if not path.exists():
-        raise ScenarioError(f"{path}: no such {what} file")
-    if path.is_dir():
-        raise ScenarioError(f"{path}: is a folder; expected a {what} YAML file")
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as err:
-        raise ScenarioError(f"{path}: could not read the {what} file: {err}") from None
-    try:
-        raw = yaml.safe_load(text)
-    except yaml.YAMLError as err:
-        mark = getattr(err, "problem_mark", None)
-        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
-        problem = getattr(err, "problem", None) or str(err).splitlines()[0]
-        raise ScenarioError(f"{path}: {where}not valid YAML: {problem}") from None
+    """Read ``path`` with the strict loader (:func:`trimtab._strict_yaml.read_yaml`); the top level
+    must be a mapping with text keys."""
+    raw = read_yaml(path, what)
     if raw is None:
         raise ScenarioError(f"{path}: the {what} file is empty; expected a mapping of keys")
     if not isinstance(raw, dict):
-        raise ScenarioError(f"{path}: expected a mapping of keys at the top level, got {type(raw).__name__}")
+        raise ScenarioError(f"{path}: expected a mapping of keys at the top level, got {_kind(raw)}")
     bad = [k for k in raw if not isinstance(k, str)]
     if bad:
         raise ScenarioError(f"{path}: keys must be text, got {bad[0]!r}")
     return raw
+
+
+def _kind(value: Any) -> str:
+    """The YAML word for the type of ``value``."""
+    if isinstance(value, list):
+        return "a list"
+    if isinstance(value, str):
+        return f"text {_short(value)}"
+    return f"{_short(value)}"
 
 
 def anchor_paths(raw: dict[str, Any], folder: Path, key_paths: tuple[tuple[str, ...], ...]) -> dict[str, Any]:
