@@ -16,6 +16,7 @@ from typing import Any
 
 from trimtab.construct import _spec_fields as f
 from trimtab.construct._spec_fields import Path
+from trimtab.errors import Problem, ScenarioError
 
 #: Objective kinds: the key and the values it takes.
 MAXIMIZE = ("utility", "alpha")
@@ -112,24 +113,35 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     """
     top = Path(source)
     body = f.mapping(top, mapping, ["objective", "constraints"], ["objective"])
-    objective = _objective(top / "objective", body["objective"])
+    problems: list[Problem] = []
+    objective = _collect(problems, _objective, top / "objective", body["objective"])
     raw = body.get("constraints") or {}
     cpath = top / "constraints"
     if not isinstance(raw, Mapping):
         raise cpath.fail(f"expected a mapping, got {f.describe(raw)}")
     unknown = [k for k in raw if k not in VALIDATORS]
     if unknown:
-        raise cpath.fail(
-            f"unknown constraint(s) {f.list_labels(unknown)}; allowed: {', '.join(VALIDATORS)}"
-        )
+        problems.extend(f.unknown_keys(cpath, unknown, VALIDATORS).problems)
     constraints: dict[str, Any] = {}
     for key, value in raw.items():
-        checked = VALIDATORS[key](cpath / key, value)
-        if checked is not None:
-            constraints[key] = checked
+        if key in VALIDATORS:
+            checked = _collect(problems, VALIDATORS[key], cpath / key, value)
+            if checked is not None:
+                constraints[key] = checked
+    if problems:
+        raise ScenarioError.of(problems)
     _cross_checks(cpath, objective, constraints)
     normalised = {"objective": {k: v for k, v in objective.items() if k != "kind"}, "constraints": constraints}
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
+
+
+def _collect(problems: list[Problem], check: Callable[[Path, Any], Any], path: Path, value: Any) -> Any:
+    """``check(path, value)``, its problems added to ``problems`` instead of raised."""
+    try:
+        return check(path, value)
+    except ScenarioError as err:
+        problems.extend(err.problems or [Problem(path.source, str(path), str(err))])
+        return None
 
 
 # ---------------------------------------------------------------------- objective

@@ -6,12 +6,13 @@ naming it, what is allowed and what was received.
 
 from __future__ import annotations
 
+import difflib
 import math
 from collections.abc import Iterable, Mapping
 from typing import Any
 
 from trimtab._validation import list_labels
-from trimtab.errors import ScenarioError
+from trimtab.errors import Problem, ScenarioError
 
 
 class Path:
@@ -28,7 +29,18 @@ class Path:
         return ".".join(self.parts) if self.parts else "(top level)"
 
     def fail(self, message: str) -> ScenarioError:
-        return ScenarioError(f"{self.source}: {self}: {message}")
+        return ScenarioError(f"{self.source}: {self}: {message}", [Problem(self.source, str(self), message)])
+
+
+def unknown_keys(path: Path, keys: Iterable[Any], allowed: Iterable[str]) -> ScenarioError:
+    """One problem per unknown key at ``path``, each with the closest allowed key or the allowed list."""
+    options = list(allowed)
+    problems = []
+    for key in keys:
+        close = difflib.get_close_matches(str(key), options, n=1, cutoff=0.6)
+        hint = f"did you mean {close[0]}?" if close else f"allowed here: {', '.join(options)}"
+        problems.append(Problem(path.source, str(path / key), f"unknown key; {hint}", True))
+    return ScenarioError.of(problems)
 
 
 def describe(value: Any) -> str:
@@ -44,7 +56,7 @@ def mapping(path: Path, value: Any, allowed: Iterable[str], required: Iterable[s
     allowed = list(allowed)
     unknown = [k for k in value if k not in allowed]
     if unknown:
-        raise path.fail(f"unknown key(s) {list_labels(unknown)}; allowed: {', '.join(allowed)}")
+        raise unknown_keys(path, unknown, allowed)
     missing = [k for k in required if k not in value]
     if missing:
         raise path.fail(f"missing required key(s) {', '.join(missing)}")

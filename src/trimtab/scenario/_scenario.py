@@ -11,7 +11,7 @@ from typing import Any
 
 import pandas as pd
 
-from trimtab.errors import InputError, ScenarioError
+from trimtab.errors import InputError, Problem, ScenarioError
 from trimtab.model import FactorModel
 from trimtab.scenario._align import AlignmentReport, align_inputs
 from trimtab.scenario._fit import fit_model
@@ -100,27 +100,54 @@ def load_scenario(path: str | Path, *, deep: bool = True) -> Scenario:
     """
     source = Path(path)
     merged, chain, origins = load_merged(source)
-    spec = validate_model(ScenarioSpec, merged, source, origins)
+    origins = {key: source if file == chain[0] else file for key, file in origins.items()}
+    try:
+        spec = validate_model(ScenarioSpec, merged, source, origins)
+    except ScenarioError as err:
+        problems = list(err.problems)
+        if deep and isinstance(merged.get("objective"), Mapping):
+            problems += deep_problems(merged, source, origins)
+        raise ScenarioError.of(problems) from None
     assert isinstance(spec, ScenarioSpec)
     scenario = Scenario(source, spec, merged, chain)
     if deep:
-        deep_validate(scenario, origins)
+        problems = deep_problems(merged, source, origins)
+        if problems:
+            raise ScenarioError.of(problems)
     return scenario
+
+
+def deep_problems(
+    merged: Mapping[str, Any], source: Path, origins: Mapping[tuple[str, ...], Path] | None = None
+) -> list[Problem]:
+    """The objective's and constraints' problems from the optimizer's own validator (if installed),
+    each under the file that set its key."""
+    try:
+        from trimtab.construct import validate_scenario
+    except ImportError:
+        return []
+    mapping = {"objective": merged.get("objective"), "constraints": merged.get("constraints") or {}}
+    try:
+        validate_scenario(mapping, source=str(source))
+    except ScenarioError as err:
+        found = err.problems or (Problem(str(source), "", str(err).removeprefix(f"{source}: ")),)
+        return [p._replace(source=str(_origin(p.key_path, origins) or p.source)) for p in found]
+    return []
+
+
+def _origin(key_path: str, origins: Mapping[tuple[str, ...], Path] | None) -> Path | None:
+    parts = tuple(key_path.split("."))
+    for n in range(len(parts), 0, -1):
+        if origins and parts[:n] in origins:
+            return origins[parts[:n]]
+    return None
 
 
 def deep_validate(scenario: Scenario, origins: Mapping[tuple[str, ...], Path] | None = None) -> None:
     """Hand the objective and constraints to the optimizer's own validator, if it is installed."""
-    try:
-        from trimtab.construct import validate_scenario
-    except ImportError:
-        return
-    try:
-        validate_scenario(scenario.rebalance_mapping(), source=str(scenario.path))
-    except ScenarioError as err:
-        message = str(err)
-        if str(scenario.path) not in message:
-            message = f"{scenario.path}: {message}"
-        raise ScenarioError(message) from None
+    problems = deep_problems(scenario.mapping, scenario.path, origins)
+    if problems:
+        raise ScenarioError.of(problems)
 
 
 @dataclass(frozen=True, eq=False)
