@@ -6,6 +6,7 @@ files are merged, so a base scenario in another folder keeps pointing at its own
 
 from __future__ import annotations
 
+import datetime
 import difflib
 import os
 import types
@@ -17,6 +18,7 @@ from typing import Any
 from pydantic import BaseModel, ValidationError
 
 from trimtab._strict_yaml import read_yaml
+from trimtab._validation import number_as_text
 from trimtab.errors import Problem, ScenarioError
 
 #: Key paths (within a scenario) whose value is a file path or a table spec with a ``path``.
@@ -239,6 +241,10 @@ def _problem_text(problem: Any, kind: str, cls: type[BaseModel], loc: tuple[str,
             return f"unknown key; did you mean {close[0]}?"
         return "unknown key" + (f"; allowed here: {', '.join(allowed)}" if allowed else "")
     if kind in _EXPECTED:
+        if isinstance(value, str) and kind.startswith(("float", "int")):
+            return number_as_text(value)
+        if isinstance(value, int) and not isinstance(value, bool) and abs(value) > 10**300:
+            return f"expected a number of sensible size, got one with {len(str(abs(value))):,} digits"
         return f"expected {_EXPECTED[kind]}, got {_short(value)}"
     context = problem.get("ctx") or {}
     bounds = {"greater_than": ">", "greater_than_equal": "≥", "less_than": "<", "less_than_equal": "≤"}
@@ -256,7 +262,7 @@ def _problem_text(problem: Any, kind: str, cls: type[BaseModel], loc: tuple[str,
 
 
 def _short(value: Any, limit: int = 60) -> str:
-    text = repr(value)
+    text = value.isoformat() if isinstance(value, (datetime.date, datetime.datetime)) else repr(value)
     return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
