@@ -8,11 +8,9 @@ what was expected, never a traceback; outputs written to a temporary folder, the
 
 from __future__ import annotations
 
-import functools
 import json
 import math
 import sys
-import warnings
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
@@ -22,11 +20,12 @@ import numpy as np
 import pandas as pd
 import typer
 
+from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
+from trimtab._cli_guard import fail as _fail
 from trimtab._strict_yaml import load_yaml_text, read_yaml
-from trimtab.errors import InputError, TrimtabError
+from trimtab.errors import InputError
 from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
-EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
 F = TypeVar("F", bound=Callable[..., Any])
 
 
@@ -37,38 +36,6 @@ def _flags(ctx: typer.Context, json_output: bool, quiet: bool) -> tuple[bool, bo
     """--json / --quiet given to the command or to the main app before it."""
     root = ctx.find_root().obj
     return json_output or bool(getattr(root, "json", False)), quiet or bool(getattr(root, "quiet", False))
-
-
-def _fail(message: str, code: int) -> None:
-    lines = message.strip().splitlines()
-    sys.stderr.write(f"trimtab: error: {lines[0] if lines else 'unknown error'}\n")
-    raise typer.Exit(code)
-
-
-def guarded(fn: F) -> F:
-    """Turn trimtab's errors into one line on stderr and their exit code; warnings once each."""
-
-    @functools.wraps(fn)
-    def wrapper(*args: Any, **kwargs: Any) -> Any:
-        try:
-            with warnings.catch_warnings(record=True) as caught:
-                warnings.simplefilter("always")
-                try:
-                    return fn(*args, **kwargs)
-                finally:
-                    for text in dict.fromkeys(str(w.message).strip().splitlines()[0] for w in caught if str(w.message).strip()):
-                        sys.stderr.write(f"trimtab: warning: {text}\n")
-        except typer.Exit:
-            raise
-        except TrimtabError as err:
-            _fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
-        except KeyboardInterrupt:
-            _fail("interrupted; nothing was written", 130)
-        except Exception as err:  # noqa: BLE001 - a bug: one line, as the main app does
-            _fail(f"internal error ({type(err).__name__}: {err}); this is a bug in trimtab", EXIT_INTERNAL)
-        return None
-
-    return wrapper  # type: ignore[return-value]
 
 
 @contextmanager
