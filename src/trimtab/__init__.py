@@ -20,10 +20,12 @@ from trimtab.errors import (
     SolverError,
     TrimtabError,
 )
-from trimtab.model import FactorModel, FitReport
 
-# name -> module that defines it; resolved lazily by __getattr__
+# name -> module that defines it; resolved lazily by __getattr__ (so the command line can install its
+# signal handlers before numpy and pandas are imported)
 _LAZY = {
+    "FactorModel": "trimtab.model",
+    "FitReport": "trimtab.model",
     "fit_time_series": "trimtab.model",
     "fit_cross_section": "trimtab.model",
     "fit_statistical": "trimtab.model",
@@ -47,8 +49,6 @@ __all__ = [
     "__version__",
     "ConvergenceWarning",
     "DataWarning",
-    "FactorModel",
-    "FitReport",
     "InfeasibleError",
     "InputError",
     "ModelError",

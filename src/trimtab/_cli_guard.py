@@ -40,15 +40,26 @@ _CAUSES = {
 }
 
 
-class Terminated(KeyboardInterrupt):
-    """Raised by the SIGTERM handler, so a termination unwinds (and cleans up) like Ctrl-C."""
+class Terminated(BaseException):
+    """Raised by the SIGTERM handler, so a termination unwinds (and cleans up) like Ctrl-C.
+
+    Not a KeyboardInterrupt, which the command-line framework would turn into exit 130 silently.
+    """
+
+
+#: Whether a ``trimtab: error:`` line was written (the entry point adds one for a late interrupt).
+REPORTED: list[str] = []
 
 
 def interrupt_line(err: BaseException) -> tuple[str, int]:
     """The line and exit code for an interrupt (Ctrl-C) or a termination (SIGTERM)."""
-    if isinstance(err, Terminated):
-        return "terminated; nothing was written", EXIT_TERMINATED
-    return "interrupted; nothing was written", EXIT_INTERRUPTED
+    from trimtab._paths import COMPLETED
+
+    what, code = ("terminated", EXIT_TERMINATED) if isinstance(err, Terminated) else ("interrupted", EXIT_INTERRUPTED)
+    if COMPLETED:
+        done = ", ".join(str(p) for p in COMPLETED)
+        return f"{what}; {done} had been written completely before, nothing else was written", code
+    return f"{what}; nothing was written", code
 
 
 def environment_line(err: OSError) -> str:
@@ -68,7 +79,8 @@ def one_line(message: str) -> str:
 
 def write_error(message: str) -> None:
     """``trimtab: error: <one line>`` on stderr."""
-    sys.stderr.write(f"trimtab: error: {one_line(message)}\n")
+    REPORTED.append(one_line(message))
+    sys.stderr.write(f"trimtab: error: {REPORTED[-1]}\n")
     sys.stderr.flush()
 
 
@@ -116,7 +128,7 @@ def guarded(fn: F, *, on_infeasible: Callable[[Any, BaseException], None] | None
             fail(str(err), EXIT_INFEASIBLE)
         except TrimtabError as err:
             fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
-        except KeyboardInterrupt as err:
+        except (KeyboardInterrupt, Terminated) as err:
             fail(*interrupt_line(err))
         except OSError as err:
             if err.errno is None and not getattr(root, "verbose", False):

@@ -19,6 +19,8 @@ from pathlib import Path
 
 _STALE = re.compile(r"^\..+\.(?:partial|old)-(?P<pid>\d+)-[A-Za-z0-9_]{8}$")
 _UMASK_LOCK = threading.Lock()
+#: Output folders this process has finished (renamed into place), for an honest interrupt message.
+COMPLETED: list[Path] = []
 
 
 def current_umask() -> int:

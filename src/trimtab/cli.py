@@ -545,8 +545,10 @@ _reflow_help()
 
 # ---------------------------------------------------------------------- entry point
 def main() -> None:
-    """Console-script entry point (``trimtab``)."""
-    app(prog_name="trimtab")
+    """Console-script entry point (``trimtab``): signal handlers, then the app (see :mod:`trimtab._entry`)."""
+    from trimtab._entry import main as entry
+
+    entry()
 
 
 if __name__ == "__main__":  # pragma: no cover

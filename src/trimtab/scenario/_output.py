@@ -15,7 +15,7 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, TypeVar
 
-from trimtab._paths import ensure_parent_folder, file_mode, make_partial, remove_stale_partials
+from trimtab._paths import COMPLETED, ensure_parent_folder, file_mode, make_partial, remove_stale_partials
 from trimtab.errors import InputError
 
 T = TypeVar("T")
@@ -74,6 +74,7 @@ def output_folder(target: str | Path, inputs: Iterable[str | Path] = ()) -> Iter
             shutil.rmtree(old, ignore_errors=True)
         else:
             _at(final, os.replace, tmp, final)
+        COMPLETED.append(final)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
