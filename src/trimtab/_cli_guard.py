@@ -13,6 +13,7 @@ from __future__ import annotations
 import errno
 import functools
 import os
+import re
 import sys
 import warnings
 from collections.abc import Callable, Sequence
@@ -70,9 +71,28 @@ def environment_line(err: OSError) -> str:
     return f"{where}{cause} (fix the disk or the path and rerun; the inputs are unchanged)"
 
 
+#: Hints in messages shared with the Python API (keyword arguments, attributes) → a scenario's words.
+_PASS_HINTS = {
+    "nav": "set data.holdings.nav, or give the holdings as shares with prices",
+    "benchmark": "set data.benchmark",
+    "alpha": "set data.alpha",
+    "attributes": "set data.attributes",
+}
+_PASS = re.compile(r"\(pass (\w+)=\.\.\.\)")
+_UNKNOWN = re.compile(r"\(pass unknown_assets='drop' or 'zero'[^)]*\)")
+_RELAXATION = re.compile(r"\(see \.relaxation[^)]*\)")
+
+
+def in_file_words(message: str) -> str:
+    """``message`` with its Python hints (``pass nav=...``, ``see .relaxation``) in a scenario's words."""
+    message = _PASS.sub(lambda m: f"({_PASS_HINTS.get(m[1], f'set {m[1]}')})", message)
+    message = _UNKNOWN.sub("(set data.unknown_assets: drop or zero)", message)
+    return _RELAXATION.sub("(the relaxation table shows how far each must move)", message)
+
+
 def one_line(message: str) -> str:
-    """The first line of ``message``, files under the working folder shown relative to it."""
-    first = message.strip().splitlines()[0] if message.strip() else "unknown error"
+    """The first line of ``message`` in a scenario's words, files under the working folder relative."""
+    first = in_file_words(message.strip().splitlines()[0]) if message.strip() else "unknown error"
     cwd = os.getcwd() if os.path.isdir(".") else "/"
     return first.replace(f"{cwd}/", "") if cwd != "/" else first
 

@@ -59,7 +59,7 @@ def test_zero_policy_sells_unknown_holdings_and_counts_their_turnover(small):
         ({"holdings": "frame"}, r"^holdings: expected a pandas Series by asset, got DataFrame$"),
         ({"holdings": "dup"}, r"^holdings: duplicate asset ids: A0001$"),
         ({"holdings": "text"}, r"^holdings: expected numbers, got dtype"),
-        ({"nav": -5.0}, r"^rebalance: nav must be a positive number \(currency\), got -5\.0$"),
+        ({"nav": -5.0}, r"^rebalance: nav must be a positive, finite number \(currency\), got -5\.0$"),
         ({"unknown_assets": "ignore"}, r"^rebalance: unknown_assets must be one of error, drop, zero, got 'ignore'$"),
         ({"attributes": "list"}, r"^attributes: expected a DataFrame by asset, got list$"),
         ({"solvers": ["NOPE"]}, r"^rebalance: solvers not installed: NOPE; installed: "),

@@ -154,8 +154,13 @@ def prepare(
         bad = model.assets[~(model._d >= 0)]
         raise ModelError(f"rebalance: the model has negative or undefined specific variance for assets: {list_labels(bad)}")
     if nav is not None:
-        if isinstance(nav, bool) or not isinstance(nav, (int, float)) or not np.isfinite(nav) or nav <= 0:
-            raise InputError(f"rebalance: nav must be a positive number (currency), got {nav!r}")
+        try:
+            ok = not isinstance(nav, bool) and isinstance(nav, (int, float)) and np.isfinite(float(nav)) and nav > 0
+        except OverflowError:
+            ok = False
+        if not ok:
+            shown = repr(nav) if len(repr(nav)) <= 40 else repr(nav)[:39] + "…"
+            raise InputError(f"rebalance: nav must be a positive, finite number (currency), got {shown}")
         nav = float(nav)
     w0, sold = _weights(model, holdings, "holdings", unknown_assets, sell_unknown=True)
     if long_book and w0.sum() + sold.sum() > 1.0 + HOLDINGS_SUM_TOL:

@@ -207,8 +207,8 @@ def load_holdings(spec: HoldingsFile, attributes: pd.DataFrame | None = None) ->
         raise InputError(f"{path}: prices must be positive; not so for {list_labels(bad)}")
     value = shares * prices
     nav = float(spec.nav) if spec.nav is not None else float(value.sum() + spec.cash)
-    if not nav > 0:
-        raise InputError(f"{path}: the book's value Σ shares·price + cash is {nav:g}; expected a positive NAV")
+    if not (np.isfinite(nav) and nav > 0):
+        raise InputError(f"{path}: the book's value Σ shares·price + cash is {nav:g}; expected a positive, finite NAV")
     return Holdings((value / nav).rename("weight"), nav, shares=shares, prices=prices, cash=spec.cash)
 
 

@@ -14,7 +14,7 @@ from typing import Any
 import pandas as pd
 import yaml
 
-from trimtab.errors import InfeasibleError, SolverError
+from trimtab.errors import InfeasibleError, InputError, SolverError
 from trimtab.model import FactorModel
 from trimtab.scenario._fit import require
 from trimtab.scenario._output import output_folder
@@ -65,9 +65,22 @@ def build(inputs: ScenarioInputs) -> Any:
     Messages about the scenario's keys name the scenario file.
     """
     build_problem = require("trimtab.construct", "build_problem")
-    return build_problem(
-        inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path), **inputs.rebalance_kwargs()
-    )
+    try:
+        return build_problem(
+            inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path), **inputs.rebalance_kwargs()
+        )
+    except InputError as err:
+        raise type(err)(_file_named(str(err), inputs)) from None
+
+
+def _file_named(message: str, inputs: ScenarioInputs) -> str:
+    """A message about a rebalance argument (``holdings: …``) under the file the scenario read it from."""
+    data = inputs.scenario.spec.data
+    files = {"holdings": data.holdings, "benchmark": data.benchmark, "alpha": data.alpha, "attributes": data.attributes}
+    for name, spec in files.items():
+        if spec is not None and message.startswith(f"{name}: "):
+            return f"{spec.path}: {message}"
+    return message
 
 
 def solve(inputs: ScenarioInputs) -> ScenarioRun:
