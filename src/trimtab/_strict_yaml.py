@@ -144,7 +144,10 @@ def read_yaml(path: str | Path, what: str = "scenario") -> Any:
 
 def load_yaml_text(text: str, source: str | Path) -> Any:
     """Parse ``text`` under the rules of this module; messages are prefixed with ``source``."""
-    loader = StrictLoader(text)
+    try:
+        loader = StrictLoader(text)
+    except yaml.YAMLError as err:  # the reader refuses some characters (a raw NUL) on sight
+        raise ScenarioError(f"{source}: {_yaml_problem(err)}") from None
     try:
         try:
             node = loader.get_single_node()
