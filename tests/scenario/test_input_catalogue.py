@@ -176,8 +176,8 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     # ---------------------------------------------------------------- values
     ("value-impossible-date", edit(BASE_NAME, "description: 2024-13-01"), ["check", "base.yaml"], BAD_INPUT,
      r"base\.yaml: line 5: description: '2024-13-01' is not a valid date \(month must be in 1\.\.12\)"),
-    ("value-date-as-text", edit(BASE_NAME, "description: 2024-01-31"), ["check", "base.yaml"], BAD_INPUT,
-     r"base\.yaml: description: expected text, got 2024-01-31"),
+    ("value-date-for-nav", edit("cash: 6000000", "cash: 6000000, nav: 2024-01-31"), ["check", "base.yaml"], BAD_INPUT,
+     r"base\.yaml: data\.holdings\.nav: expected a number, got 2024-01-31"),
     ("value-empty-float-tag", edit("tracking_error: {max: 0.03}", "tracking_error: {max: !!float }"), ["check", "base.yaml"], BAD_INPUT,
      r"line 21: constraints\.tracking_error\.max: '' is not a valid number"),
     ("value-empty-int-tag", edit("days: 1", "days: !!int "), ["check", "base.yaml"], BAD_INPUT,
@@ -363,3 +363,35 @@ def test_environment_fault_under_a_private_mount(work: Path, options: str, patte
     assert result.returncode == ENVIRONMENT, result.stderr
     assert_one_line(result.stderr, result.stdout, pattern)
     assert snapshot(work) == before  # the mount went with the namespace; nothing beneath it changed
+
+
+# ---------------------------------------------------------------------- the Python API, same values
+API_MAPPING = {"objective": {"minimize": "active_risk"}, "constraints": {"fully_invested": True}}
+
+
+@pytest.mark.parametrize(
+    ("arguments", "error", "pattern"),
+    [
+        ({"nav": float("inf")}, "InputError", r"^rebalance: nav must be a positive, finite number \(currency\), got inf$"),
+        ({"nav": 10**400}, "InputError", r"^rebalance: nav must be a positive, finite number \(currency\), got 1000"),
+        ({"nav": "1e8"}, "InputError", r"^rebalance: nav must be a positive, finite number"),
+        ({"constraints": {"tracking_error": {"max": 10**400}}}, "ScenarioError", r"constraints\.tracking_error\.max: expected a number of sensible size"),
+        ({"constraints": {"max_names": 10**400}}, "ScenarioError", r"constraints\.max_names: expected a whole number of sensible size"),
+        ({"constraints": {"no_buy": [{"A0001"}]}}, "ScenarioError", r"constraints\.no_buy: expected asset ids \(text or numbers\), got \{'A0001'\}"),
+        ({"constraints": {"turnover": {"max": "0.25"}}}, "ScenarioError", r"constraints\.turnover\.max: expected a number, got text '0\.25'; write it without quotes"),
+        ({"constraints": {"tracking_error": {"max": 3}}}, "ScenarioError", r"constraints\.tracking_error\.max: 3 would mean 300%.*did you mean 0\.03\?"),
+        ({"holdings": [0.5, 0.5]}, "InputError", r"^holdings: expected a pandas Series by asset, got list$"),
+    ],
+    ids=["nav-inf", "nav-400-digits", "nav-text", "limit-400-digits", "max-names-400-digits", "set-of-ids", "limit-text", "limit-percentage", "holdings-list"],
+)
+def test_python_api_raises_trimtabs_own_errors_naming_the_argument(arguments: dict, error: str, pattern: str) -> None:  # type: ignore[type-arg]
+    import pandas as pd
+
+    import trimtab
+    from tests.conftest import random_model
+
+    model = random_model()
+    mapping = {**API_MAPPING, "constraints": {**API_MAPPING["constraints"], **arguments.pop("constraints", {})}}
+    kwargs = {"holdings": pd.Series(1 / model.n_assets, index=model.assets), **arguments}
+    with pytest.raises(getattr(trimtab, error), match=pattern):
+        trimtab.rebalance(model, mapping, **kwargs)

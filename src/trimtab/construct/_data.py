@@ -22,6 +22,7 @@ import pandas as pd
 
 from trimtab._validation import check_unique, list_labels
 from trimtab.errors import DataWarning, InputError, ModelError
+from trimtab.model._arguments import is_positive_number
 from trimtab.model import FactorModel
 
 POLICIES = ("error", "drop", "zero")
@@ -154,11 +155,7 @@ def prepare(
         bad = model.assets[~(model._d >= 0)]
         raise ModelError(f"rebalance: the model has negative or undefined specific variance for assets: {list_labels(bad)}")
     if nav is not None:
-        try:
-            ok = not isinstance(nav, bool) and isinstance(nav, (int, float)) and np.isfinite(float(nav)) and nav > 0
-        except OverflowError:
-            ok = False
-        if not ok:
+        if not is_positive_number(nav):
             shown = repr(nav) if len(repr(nav)) <= 40 else repr(nav)[:39] + "…"
             raise InputError(f"rebalance: nav must be a positive, finite number (currency), got {shown}")
         nav = float(nav)

@@ -110,6 +110,8 @@ def integer(path: Path, value: Any, *, minimum: int = 0) -> int:
         raise path.fail(f"expected a whole number, got {describe(value)}")
     if value < minimum:
         raise path.fail(f"must be ≥ {minimum} (got {value})")
+    if value > 2**53:
+        raise path.fail(f"expected a whole number of sensible size, got one with {len(str(value)):,} digits")
     return int(value)
 
 

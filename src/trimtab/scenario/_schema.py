@@ -7,6 +7,7 @@ for their deep validation, so the optimizer owns its own vocabulary.
 
 from __future__ import annotations
 
+import datetime
 from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
@@ -156,6 +157,12 @@ class ScenarioSpec(_Strict):
     objective: dict[str, Any]
     constraints: dict[str, Any] = Field(default_factory=dict)
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
+
+    @field_validator("name", "description", mode="before")
+    @classmethod
+    def _date_as_text(cls, value: Any) -> Any:
+        """A name or description YAML reads as a date (``2024-06-28``) is kept as the text written."""
+        return value.isoformat() if isinstance(value, (datetime.date, datetime.datetime)) else value
 
     @field_validator("name")
     @classmethod
