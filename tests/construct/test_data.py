@@ -165,3 +165,16 @@ def test_update_keeps_the_unknown_asset_policy(small):
     with pytest.warns(DataWarning, match=r"holdings: 1 assets not in the risk model dropped: NEWCO"):
         changed = problem.update(holdings=drifted)
     assert changed.unknown_assets == "drop"
+
+
+def test_negative_benchmark_weight_is_named_not_reported_as_a_sum(small_model) -> None:  # type: ignore[no-untyped-def]
+    # issue #11: a negative weight was reported as "weights must sum to 1"
+    import pandas as pd
+
+    import trimtab
+
+    benchmark = pd.Series(1 / small_model.n_assets, index=small_model.assets)
+    benchmark.iloc[0], benchmark.iloc[1] = -0.01, benchmark.iloc[1] + 0.01 + 1 / small_model.n_assets
+    holdings = pd.Series(1 / small_model.n_assets, index=small_model.assets)
+    with pytest.raises(trimtab.InputError, match=r"^benchmark: weights must be ≥ 0; negative for assets: A0000$"):
+        trimtab.rebalance(small_model, {"objective": {"minimize": "active_risk"}}, holdings=holdings, benchmark=benchmark)

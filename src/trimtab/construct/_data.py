@@ -168,6 +168,10 @@ def prepare(
     b = None
     if benchmark is not None:
         b, _ = _weights(model, benchmark, "benchmark", unknown_assets, sell_unknown=False)
+        if (b < 0).any():
+            raise InputError(
+                f"benchmark: weights must be ≥ 0; negative for assets: {list_labels(model.assets[b < 0])}"
+            )
         if abs(b.sum() - 1.0) > BENCHMARK_SUM_TOL:
             raise InputError(f"benchmark: weights must sum to 1 (got {b.sum():.8g})")
     a = np.zeros(model.n_assets)
