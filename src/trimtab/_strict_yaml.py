@@ -44,7 +44,7 @@ _REFUSED_TAGS = {
     "tag:yaml.org,2002:pairs": "a list of pairs (!!pairs)",
     "tag:yaml.org,2002:binary": "binary data (!!binary)",
 }
-_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
+_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029]")
 _EXPONENT = re.compile(r"^[-+]?(?:[0-9][0-9_]*)(?:\.[0-9_]*)?[eE][-+]?[0-9]+$")
 
 
@@ -69,7 +69,17 @@ class StrictLoader(yaml.SafeLoader):
             self._depth -= 1
 
 
-StrictLoader.add_implicit_resolver("tag:yaml.org,2002:float", _EXPONENT, list("-+0123456789"))
+class StrictDumper(yaml.SafeDumper):
+    """``yaml.SafeDumper`` that quotes text :class:`StrictLoader` would read as a number (``'1e5'``)."""
+
+
+for _cls in (StrictLoader, StrictDumper):
+    _cls.add_implicit_resolver("tag:yaml.org,2002:float", _EXPONENT, list("-+0123456789"))
+
+
+def dump_yaml(value: Any) -> str:
+    """``value`` as YAML that :func:`load_yaml_text` reads back as the same value."""
+    return yaml.dump(value, Dumper=StrictDumper, sort_keys=False, allow_unicode=True)
 
 
 def read_regular_file(path: str | Path, what: str, limit: int | None = None, error: type[InputError] = InputError) -> bytes:

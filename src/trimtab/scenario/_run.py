@@ -12,8 +12,8 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
-import yaml
 
+from trimtab._strict_yaml import dump_yaml
 from trimtab.errors import InfeasibleError, InputError, SolverError
 from trimtab.model import FactorModel
 from trimtab.scenario._fit import require
@@ -124,7 +124,7 @@ def scenario_yaml(scenario: Scenario, folder: Path) -> str:
     chain = " ← ".join(p.name for p in scenario.chain)
     mapping = relative_paths(scenario.mapping, folder.resolve(), SCENARIO_PATHS)
     mapping.get("output", {}).pop("dir", None)
-    body = yaml.safe_dump(mapping, sort_keys=False, allow_unicode=True)
+    body = dump_yaml(mapping)
     return f"# scenario {scenario.name}, merged from {chain}; paths relative to this folder\n{body}"
 
 
