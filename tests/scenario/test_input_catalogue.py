@@ -337,12 +337,12 @@ def test_partial_folder_of_a_killed_run_is_removed_by_the_next_run(work: Path, m
     assert stat.S_IMODE((work / "results" / "base" / "trades.csv").stat().st_mode) == 0o666 & ~mask
 
 
-def _can_mount() -> str | None:
+def _can_mount(folder: Path) -> str | None:
     if os.geteuid() != 0:
         return "needs root for a private mount namespace"
     if shutil.which("unshare") is None:
         return "needs unshare(1)"
-    probe = subprocess.run(["unshare", "-m", "sh", "-c", "mount -t tmpfs tmpfs /mnt"], capture_output=True)
+    probe = subprocess.run(["unshare", "-m", "sh", "-c", f"mount -t tmpfs tmpfs '{folder}'"], capture_output=True)
     return None if probe.returncode == 0 else f"cannot mount in a private namespace: {probe.stderr.decode().strip()}"
 
 
@@ -352,10 +352,10 @@ def _can_mount() -> str | None:
     ids=["read-only-disk", "full-disk"],
 )
 def test_environment_fault_under_a_private_mount(work: Path, options: str, pattern: str) -> None:
-    reason = _can_mount()
+    (work / "results").mkdir()
+    reason = _can_mount(work / "results")
     if reason is not None:
         pytest.skip(reason)
-    (work / "results").mkdir()
     before = snapshot(work)
     script = 'mount -t tmpfs -o "$0" tmpfs results && exec "$@"'
     result = subprocess.run(["unshare", "-m", "sh", "-c", script, options, *trimtab_command("rebalance", "base.yaml")],
