@@ -28,7 +28,7 @@ from typing import Any
 import yaml
 from yaml.nodes import MappingNode, Node, ScalarNode, SequenceNode
 
-from trimtab.errors import InputError, ScenarioError
+from trimtab.errors import InputError, Problem, ScenarioError
 
 #: Largest YAML file read, in bytes.
 MAX_BYTES = 8 * 1024 * 1024
@@ -193,13 +193,18 @@ def _first_line(err: BaseException) -> str:
 
 
 class _Checker:
-    """One walk over the composed nodes: repeated keys, expansion size, cycles, refused values."""
+    """One walk over the composed nodes: repeated keys, expansion size, cycles, refused values.
+
+    Repeated keys and values that cannot be read are collected and raised together (every problem
+    in one pass); a cycle or an expansion past :data:`MAX_NODES` stops the walk at once.
+    """
 
     def __init__(self, loader: StrictLoader, source: str | Path) -> None:
         self.loader = loader
         self.source = source
         self.sizes: dict[int, int] = {}
         self.open: set[int] = set()
+        self.problems: list[Problem] = []
 
     def check(self, node: Node) -> None:
         total = self._walk(node, ())
@@ -207,11 +212,18 @@ class _Checker:
             raise ScenarioError(
                 f"{self.source}: anchors and aliases expand to more than {MAX_NODES:,} values; not read"
             )
+        if self.problems:
+            raise ScenarioError.of(self.problems)
+
+    def _problem(self, node: Node, key_path: tuple[str, ...], message: str) -> Problem:
+        where = f"line {node.start_mark.line + 1}" + (f": {'.'.join(key_path)}" if key_path else "")
+        return Problem(str(self.source), where, message)
 
     def _fail(self, node: Node, key_path: tuple[str, ...], message: str) -> ScenarioError:
-        where = f"line {node.start_mark.line + 1}: "
-        path = f"{'.'.join(key_path)}: " if key_path else ""
-        return ScenarioError(f"{self.source}: {where}{path}{message}")
+        return ScenarioError.of([self._problem(node, key_path, message)])
+
+    def _note(self, node: Node, key_path: tuple[str, ...], message: str) -> None:
+        self.problems.append(self._problem(node, key_path, message))
 
     def _walk(self, node: Node, key_path: tuple[str, ...]) -> int:
         ident = id(node)
@@ -220,8 +232,9 @@ class _Checker:
         if ident in self.open:
             raise self._fail(node, key_path, "an alias refers to the value that contains it")
         if node.tag in _REFUSED_TAGS:
-            raise self._fail(node, key_path, f"{_REFUSED_TAGS[node.tag]} is not a value trimtab reads; use a list or a mapping")
-        if isinstance(node, ScalarNode):
+            self._note(node, key_path, f"{_REFUSED_TAGS[node.tag]} is not a value trimtab reads; use a list or a mapping")
+            size = 1
+        elif isinstance(node, ScalarNode):
             size = 1
             self._scalar(node, key_path)
         else:
@@ -246,22 +259,20 @@ class _Checker:
             if key_node.tag == _MERGE_TAG:
                 total += self._walk(value_node, key_path)
                 continue
-            if not isinstance(key_node, ScalarNode):
-                raise self._fail(key_node, key_path, "a key must be plain text or a number, not a list or a mapping")
+            if not isinstance(key_node, ScalarNode) or key_node.tag in _REFUSED_TAGS:
+                self._note(key_node, key_path, "a key must be plain text or a number, not a list or a mapping")
+                continue
             key = self._scalar(key_node, key_path)
             label = str(key)
-            try:
-                first = seen.get(key)
-            except TypeError:
-                raise self._fail(key_node, key_path, f"key {label!r} cannot be used as a key") from None
+            first = seen.get(key) if key is not _UNREADABLE else None
             if first is not None:
-                raise self._fail(
+                self._note(
                     key_node,
                     (*key_path, label),
-                    f"key written twice (lines {first} and {key_node.start_mark.line + 1}); "
-                    "a key may appear once in a mapping — merge the two or delete one",
+                    f"key written twice (lines {first} and {key_node.start_mark.line + 1}); merge them or delete one",
                 )
-            seen[key] = key_node.start_mark.line + 1
+            else:
+                seen[key] = key_node.start_mark.line + 1
             total += 1 + self._walk(value_node, (*key_path, label))
         return total
 
@@ -276,13 +287,18 @@ class _Checker:
                 detail = f" ({_first_line(err)})"
             elif tag == "int" and len(node.value) > 1000:
                 detail = f" (it has {len(node.value):,} digits)"
-            raise self._fail(node, key_path, f"{text!r} is not a valid {_TAG_WORDS.get(tag, tag)}{detail}") from None
+            self._note(node, key_path, f"{text!r} is not a valid {_TAG_WORDS.get(tag, tag)}{detail}")
+            return _UNREADABLE
         finally:
             self.loader.constructed_objects.pop(node, None)
         if isinstance(value, str) and _CONTROL.search(value):
             code = ord(_CONTROL.search(value).group())  # type: ignore[union-attr]
-            raise self._fail(node, key_path, f"text holds a control character (code {code}); remove it")
+            self._note(node, key_path, f"text holds a control character (code {code}); remove it")
         return value
+
+
+#: What :meth:`_Checker._scalar` returns for a value it could not build (its problem is noted).
+_UNREADABLE = object()
 
 
 _TAG_WORDS = {"timestamp": "date", "float": "number", "int": "whole number", "bool": "true/false", "null": "null"}

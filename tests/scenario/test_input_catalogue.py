@@ -133,7 +133,7 @@ DIGITS_400 = "9" * 400
 CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     # ---------------------------------------------------------------- YAML
     ("yaml-repeated-constraints-block", append("constraints:\n  long_only: true\n"), ["check", "base.yaml"], BAD_INPUT,
-     r"base\.yaml: line 26: constraints: key written twice \(lines 15 and 26\); a key may appear once in a mapping"),
+     r"base\.yaml: line 26: constraints: key written twice \(lines 15 and 26\); merge them or delete one"),
     ("yaml-repeated-data-block", append("data:\n  holdings: data/holdings.csv\n"), ["check", "base.yaml"], BAD_INPUT,
      r"base\.yaml: line 26: data: key written twice \(lines 7 and 26\)"),
     ("yaml-repeated-nested-key", edit("  turnover: {max: 0.25}", "  turnover: {max: 0.25, max: 0.9}"), ["check", "base.yaml"], BAD_INPUT,
@@ -151,6 +151,10 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     ("yaml-unknown-constraint-suggested", edit("  long_only: true", "  long_onyl: true"), ["check", "base.yaml"], BAD_INPUT,
      r"constraints\.long_onyl: unknown key; did you mean long_only\?"),
     ("yaml-alias-bomb", write(BOMB), ["check", "s.yaml"], BAD_INPUT, r"s\.yaml: line \d+: anchors and aliases expand to more than 1,000,000 values"),
+    ("yaml-every-problem-of-the-file", both(append("constraints:\n  long_only: true\n"), edit(BASE_NAME, "description: 2024-13-01"),
+                                            edit("days: 1", "days: !!int ")), ["check", "base.yaml"], BAD_INPUT,
+     r"base\.yaml: 3 problems: \(1\) line 5: description: '2024-13-01' is not a valid date \(month must be in 1\.\.12\) "
+     r"\(2\) line 23: constraints\.liquidity\.days: '' is not a valid whole number \(3\) line 26: constraints: key written twice"),
     ("yaml-recursive-alias", write("model: &m [*m]\n"), ["check", "s.yaml"], BAD_INPUT, r"s\.yaml: line 1: model\.0: an alias refers to the value that contains it"),
     ("yaml-nested-20000-deep", write("x: " + "[" * 20000 + "]" * 20000 + "\n"), ["check", "s.yaml"], BAD_INPUT, r"s\.yaml: line 1: nested more than 64 levels deep"),
     ("yaml-extends-dev-zero", write("extends: /dev/zero\n"), ["check", "s.yaml"], BAD_INPUT, r"/dev/zero: is a device; expected a scenario file"),
