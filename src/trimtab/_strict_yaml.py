@@ -120,7 +120,8 @@ def read_regular_file(path: str | Path, what: str, limit: int | None = None, err
                 break
             size += len(chunk)
             if size > cap:
-                raise error(f"{p}: the {what} file is larger than {cap // (1024 * 1024)} MiB; not read")
+                shown = f"{cap // (1024 * 1024)} MiB" if cap >= 1024 * 1024 else f"{cap:,} bytes"
+                raise error(f"{p}: the {what} file is larger than {shown}; not read")
             chunks.append(chunk)
         return b"".join(chunks)
     except OSError as err:
