@@ -22,7 +22,7 @@ from trimtab.scenario._loaders import read_table
 
 #: Characters that make YAML structure, so random text often parses.
 YAML_ALPHABET = st.sampled_from(list("ab01 :-[]{},&*!#'\"\n\t.e+%<>?|") + ["\x00", "\x85", "é", "!!set ", "!!float ", "<<: "])
-BOUNDED = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+BOUNDED = settings(max_examples=150, deadline=None, database=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 
 
 def _same(a: object, b: object) -> bool:
