@@ -27,7 +27,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._paths import ensure_parent_folder, make_partial, remove_stale_partials
+from trimtab._paths import COMPLETED, ensure_parent_folder, make_partial, remove_stale_partials
 from trimtab._strict_yaml import check_regular, read_regular_file
 from trimtab._version import __version__
 from trimtab.errors import InputError, ModelError
@@ -133,6 +133,7 @@ def save_model(model: Any, path: str | Path, *, file_format: str = "parquet", ov
             shutil.rmtree(old, ignore_errors=True)
         else:
             os.replace(tmp, target)
+        COMPLETED.append(target)
     except OSError as err:
         shutil.rmtree(tmp, ignore_errors=True)
         if err.errno is None:
