@@ -127,12 +127,14 @@ def guarded(fn: F, *, on_infeasible: Callable[[Any, BaseException], None] | None
     """
     import typer
 
+    from trimtab._paths import COMPLETED
     from trimtab.errors import InfeasibleError, TrimtabError
 
     @functools.wraps(fn)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
         ctx = next((a for a in [*args, *kwargs.values()] if hasattr(a, "find_root")), None)
         root = ctx.find_root().obj if ctx is not None else None
+        COMPLETED.clear()  # what this command writes, for an honest interrupt line
         try:
             with warnings.catch_warnings(record=True) as caught:
                 warnings.simplefilter("always")
