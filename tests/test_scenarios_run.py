@@ -19,7 +19,8 @@ from tests.demo_helpers import make_demo_folder
 REPO = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((REPO / "scenarios").glob("*.yaml"))
 FIT_CONFIGS = [p for p in SCENARIOS if p.stem.startswith("fit")]
-REBALANCE = [p for p in SCENARIOS if not p.stem.startswith("fit")]
+SHOCK_FILES = [p for p in SCENARIOS if p.stem.startswith("shocks")]
+REBALANCE = [p for p in SCENARIOS if not p.stem.startswith(("fit", "shocks"))]
 EXAMPLES = sorted((REPO / "examples").glob("*.py"))
 
 

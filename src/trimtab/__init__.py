@@ -43,6 +43,13 @@ _LAZY = {
     "frontier": "trimtab.runs",
     "backtest": "trimtab.runs",
     "get_executor": "trimtab.runs",
+    "stress": "trimtab.stresstest",
+    "replay": "trimtab.stresstest",
+    "StressResult": "trimtab.stresstest",
+    "ReplayResult": "trimtab.stresstest",
+    "attribute_returns": "trimtab.attribution",
+    "attribute_backtest_returns": "trimtab.attribution",
+    "ReturnAttribution": "trimtab.attribution",
 }
 
 __all__ = [

@@ -526,6 +526,9 @@ def _register_run_commands() -> None:
 
 
 _register_run_commands()
+from trimtab._cli_stress import register as _register_stress_commands  # noqa: E402 - needs app and _guarded above
+
+_register_stress_commands(app)  # stress, replay, attribute-returns
 
 
 def _reflow_help() -> None:

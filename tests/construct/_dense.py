@@ -58,6 +58,20 @@ def dense_solve(model, scenario, *, holdings, benchmark, alpha, attributes=None,
             bounds = fe["bounds"].get(name, fe["bounds"].get("default"))
             if bounds is not None:
                 cons += [x[k] >= bounds[0], x[k] <= bounds[1]]
+    if "stress_loss" in c:
+        # the full move by dense Gaussian conditioning, m_U = F_US·inv(F_SS)·s, written here with
+        # an explicit inverse (not trimtab's Cholesky solve); loss −(B·m)ᵀ(w − b) or −(B·m)ᵀw
+        sl = c["stress_loss"]
+        Fm = model.factor_covariance.to_numpy()
+        names = list(model.factors)
+        for shock in sl["shocks"].values():
+            S = [names.index(k) for k in shock["factors"]]
+            U = [k for k in range(len(names)) if k not in S]
+            m = np.zeros(len(names))
+            m[S] = list(shock["factors"].values())
+            if sl.get("conditional", True) and U:
+                m[U] = Fm[np.ix_(U, S)] @ np.linalg.inv(Fm[np.ix_(S, S)]) @ m[S]
+            cons.append(-(B @ m) @ (act if sl.get("active", True) else w) <= sl["max"])
     if "beta" in c:
         sb = sigma @ b
         beta = sb @ w / (b @ sb)

@@ -1,4 +1,5 @@
-"""Risk attribution from the factored covariance: Euler contributions by factor, group and asset.
+"""Risk attribution from the factored covariance (Euler contributions by factor, group and asset, ex
+ante) and return attribution of realised returns by factor, linked over periods (ex post).
 
 Pure numerics (no I/O). See docs/attribution.md for every formula.
 """
@@ -11,6 +12,9 @@ from trimtab.attribution._compare import (
     exposure_changes,
 )
 from trimtab.attribution._compute import attribute
+from trimtab.attribution._linking import LINKINGS, link
+from trimtab.attribution._returns import attribute_backtest_returns, attribute_returns
+from trimtab.attribution._returns_result import ReturnAttribution, ReturnAttributionSummary
 from trimtab.attribution._result import (
     HEADLINE_FIGURES,
     TRADING_DAYS_PER_YEAR,
@@ -24,6 +28,12 @@ __all__ = [
     "HEADLINE_FIGURES",
     "TRADING_DAYS_PER_YEAR",
     "AttributionSummary",
+    "LINKINGS",
+    "ReturnAttribution",
+    "ReturnAttributionSummary",
+    "attribute_backtest_returns",
+    "attribute_returns",
+    "link",
     "RiskAttribution",
     "as_attribution",
     "attribute",

@@ -92,6 +92,14 @@ class RebalanceResult:
         """Risk attribution of the target weights, active when there is a benchmark."""
         return self._attribution(self.weights)
 
+    @cached_property
+    def stress(self) -> pd.DataFrame | None:
+        """Every shock of the scenario (stress_loss and stress), before and after the trade; see
+        :func:`trimtab.construct._stress_table.stress_table`. None when the scenario has no shocks."""
+        from trimtab.construct._stress_table import stress_table
+
+        return stress_table(self._model, self._holdings, self.weights, self.benchmark, self.scenario)
+
     def _attribution(self, weights: pd.Series | None) -> RiskAttribution | None:
         # the seam to trimtab.attribution: absent module (or no model) → no pre/post attribution
         if self._model is None or weights is None:

@@ -79,7 +79,7 @@ class RebalanceSpec:
             if not isinstance(node, dict) or parts[-1] not in node:
                 raise self.path("constraints", *parts).fail("no such limit in this scenario")
             node[parts[-1]] = value
-        return validate_scenario({"objective": self.mapping["objective"], "constraints": constraints}, source=self.source)
+        return validate_scenario({**self.mapping, "constraints": constraints}, source=self.source)
 
     def with_risk_aversion(self, risk_aversion: float) -> RebalanceSpec:
         """A copy with a new λ (utility objectives only)."""
@@ -87,7 +87,7 @@ class RebalanceSpec:
         if "risk_aversion" not in objective:
             raise self.path("objective", "risk_aversion").fail("only the utility objective takes a risk aversion")
         objective["risk_aversion"] = risk_aversion
-        return validate_scenario({"objective": objective, "constraints": self.mapping["constraints"]}, source=self.source)
+        return validate_scenario({**self.mapping, "objective": objective}, source=self.source)
 
 
 def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpec:
@@ -119,7 +119,7 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     'active_risk'
     """
     top = Path(source)
-    body = f.mapping(top, mapping, ["objective", "constraints"], ["objective"])
+    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay"], ["objective"])
     problems: list[Problem] = []
     objective = _collect(problems, _objective, top / "objective", body["objective"])
     raw = body.get("constraints") or {}
@@ -138,7 +138,11 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     if problems:
         raise ScenarioError.of(problems)
     _cross_checks(cpath, objective, constraints)
-    normalised = {"objective": {k: v for k, v in objective.items() if k != "kind"}, "constraints": constraints}
+    normalised: dict[str, Any] = {"objective": {k: v for k, v in objective.items() if k != "kind"}, "constraints": constraints}
+    if body.get("stress") is not None:
+        normalised["stress"] = _stress_list(top / "stress", body["stress"], constraints.get("stress_loss"))
+    if body.get("replay") is not None:
+        normalised["replay"] = _replay(top / "replay", body["replay"])
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
 
 
@@ -332,6 +336,61 @@ def _part_risk_cap(path: Path, value: Any) -> dict[str, Any]:
     return _cap(path, value, {"active": f.flag}, {"active": True})
 
 
+def _shocks(path: Path, value: Any) -> dict[str, dict[str, Any]]:
+    """Named shocks ``{name: {factors: {factor: move}, description, specific}}``; a shock file's path is
+    replaced by its shocks when a scenario file is read (trimtab.scenario), before this check."""
+    from trimtab.stresstest._entries import shock_entries
+
+    if isinstance(value, str):
+        raise path.fail(
+            f"a shock file ({value}) is read when a scenario file is loaded; in Python pass the shocks as a "
+            "mapping name → {factors: {factor: move}}"
+        )
+
+    def fail(keys: tuple[str, ...], message: str) -> Exception:
+        where = path
+        for key in keys:
+            where = where / key
+        return where.fail(message)
+
+    return shock_entries(value, fail)
+
+
+def _stress_loss(path: Path, value: Any) -> dict[str, Any]:
+    """``{shocks, max, active, conditional, soft}``: the loss under each shock at most max."""
+    body = f.mapping(path, value, ["shocks", "max", "active", "conditional", "soft"], ["shocks", "max"])
+    entries = _shocks(path / "shocks", body["shocks"])
+    with_specific = [name for name, entry in entries.items() if entry["specific"]]
+    if with_specific:
+        raise (path / "shocks" / with_specific[0] / "specific").fail(
+            "a stress limit moves factors only; specific moves are for stress reports (the scenario's stress: list)"
+        )
+    return {
+        "shocks": {name: {"factors": entry["factors"], "description": entry["description"]} for name, entry in entries.items()},
+        "max": f.number(path / "max", body["max"], minimum=0.0),
+        "active": f.flag(path / "active", body.get("active", True)),
+        "conditional": f.flag(path / "conditional", body.get("conditional", True)),
+        "soft": _soft_of(path, body),
+    }
+
+
+def _stress_list(path: Path, value: Any, stress_loss: Mapping[str, Any] | None) -> dict[str, Any]:
+    """The ``stress`` section: shocks reported before and after the trade (no limit)."""
+    entries = _shocks(path, value)
+    limited = (stress_loss or {}).get("shocks", {})
+    for name, entry in entries.items():
+        if name in limited and limited[name]["factors"] != entry["factors"]:
+            raise (path / name).fail("a stress_loss shock has this name with other moves; give the two different names")
+    return entries
+
+
+def _replay(path: Path, value: Any) -> dict[str, int]:
+    """``{length: periods, count: k}``: the k worst windows of the model's history, before and after."""
+    body = f.mapping(path, value, ["length", "count"], ["length"])
+    return {"length": f.integer(path / "length", body["length"], minimum=1),
+            "count": f.integer(path / "count", body.get("count", 3), minimum=1)}
+
+
 def _liquidity(path: Path, value: Any) -> dict[str, Any]:
     body = f.mapping(path, value, ["max_adv_fraction", "days", "adv_column", "price_column", "soft"], ["max_adv_fraction"])
     return {
@@ -395,6 +454,7 @@ VALIDATORS: dict[str, Callable[[Path, Any], Any]] = {
     "turnover": _turnover,
     "trade": _trade,
     "liquidity": _liquidity,
+    "stress_loss": _stress_loss,
     "no_buy": _asset_list,
     "no_sell": _asset_list,
     "no_trade": _asset_list,

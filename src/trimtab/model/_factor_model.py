@@ -140,6 +140,15 @@ class FactorModel:
             f"periods_per_year={self.periods_per_year:g})"
         )
 
+    @property
+    def factor_history(self) -> pd.DataFrame | None:
+        """Dates × factors: the factor returns the model was fitted on (observed for a time-series fit,
+        estimated for a cross-section fit, the factor scores of a statistical fit); None for a model
+        built by hand or saved without them. Saved and loaded with the model; replayed by
+        :func:`trimtab.replay` and used by :func:`trimtab.attribution.attribute_returns`."""
+        report = self.fit_report
+        return None if report is None else report.factor_returns
+
     # ------------------------------------------------------------------ cached arrays
     @cached_property
     def _B(self) -> np.ndarray:

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from trimtab.report._stress import stress_frame
 from trimtab.attribution import (
     HEADLINE_FIGURES,
     RiskAttribution,
@@ -80,6 +81,8 @@ class ReportContent:
     verification: pd.DataFrame | None = None
     provenance: dict[str, Any] = field(default_factory=dict)
     scenario: dict[str, Any] = field(default_factory=dict)
+    #: every shock of the scenario before and after the trade (see trimtab.report._stress)
+    stress: pd.DataFrame | None = None
     caution: str = CAUTION
 
     @property
@@ -138,6 +141,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         verification=_frame_or_none(getattr(subject, "verification", None)),
         provenance=_plain_mapping(getattr(subject, "provenance", None)),
         scenario=scenario,
+        stress=stress_frame(subject),
     )
 
 

@@ -21,6 +21,7 @@ from trimtab._validation import list_labels
 from trimtab._version import __version__
 from trimtab.attribution import RiskAttribution, compare_many
 from trimtab.errors import InputError
+from trimtab.report._stress import stress_frame, stress_records
 from trimtab.report._content import CAUTION, gather, group_columns
 from trimtab.report._relaxation import Unsolved, is_unsolved, split_subjects, unsolved
 
@@ -93,6 +94,8 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         tables["objective"] = content.objective.to_frame("value").rename_axis("term")
     if content.verification is not None:
         tables["verification"] = content.verification
+    if (stress := stress_frame(subject)) is not None:
+        tables["stress"] = stress
     return tables
 
 
@@ -199,6 +202,7 @@ def report_document(subject: Any) -> dict[str, Any]:
         "constraints": _records(content.constraints, None),
         "objective": None if content.objective is None else dict(content.objective.items()),
         "verification": _records(content.verification, None),
+        "stress": stress_records(subject),
         "provenance": content.provenance,
         "scenario": content.scenario,
     }

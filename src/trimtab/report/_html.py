@@ -15,6 +15,7 @@ import pandas as pd
 from trimtab._version import __version__
 from trimtab.attribution import compare_many, format_figure
 from trimtab.report import _charts
+from trimtab.report._stress import stress_html
 from trimtab.report._content import CAUTION, ReportContent, flags, gather, gather_many, labelled, no_bound
 from trimtab.report._files import atomic_write_text
 from trimtab.report._relaxation import (
@@ -229,6 +230,8 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
                      units=list(content.trade_summary["unit"]))
             + trades_table
         )
+    if content.stress is not None:
+        parts.append(stress_html(content, h, key))
     if content.constraints is not None:
         parts.append(f"<{h}>Constraints</{h}>" + _constraint_table(content.constraints))
     if content.objective is not None:

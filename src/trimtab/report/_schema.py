@@ -98,6 +98,7 @@ JSON_SCHEMA: dict[str, Any] = {
         "verification": _rows(nullable=True),
         "provenance": {"type": "object"},
         "scenario": {"type": "object"},
+        "stress": _rows("shock", "pre_book", "post_book", nullable=True),
     },
 }
 

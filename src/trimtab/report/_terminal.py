@@ -10,6 +10,7 @@ from rich.console import Console, JustifyMethod
 from rich.table import Table
 
 from trimtab.attribution import compare_many, format_figure
+from trimtab.report._stress import print_stress
 from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled, no_bound
 from trimtab.report._relaxation import Unsolved, display_relaxation, relaxation_sentence, split_subjects, unsolved
 
@@ -71,6 +72,7 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
         )
     out.print(_headline_table(content, "Risk before and after"))
     _print_body(out, content, top)
+    print_stress(content, out)
     binding = content.binding_constraints
     if binding is not None:
         table = Table(title="Binding constraints", title_justify="left")

@@ -50,6 +50,10 @@ def input_files(inputs: ScenarioInputs) -> list[Path]:
     for item in (spec.data.holdings, spec.data.benchmark, spec.data.alpha, spec.data.attributes):
         if item is not None:
             files.append(Path(item.path))
+    limit = spec.constraints.get("stress_loss")
+    for shocks in (spec.stress, limit.get("shocks") if isinstance(limit, dict) else None):
+        if isinstance(shocks, str):  # a shock file
+            files.append(Path(shocks))
     if spec.model.path is not None:
         files.append(Path(spec.model.path))
     elif spec.model.fit is not None:

@@ -47,8 +47,16 @@ class Scenario:
         return self.spec.name
 
     def rebalance_mapping(self) -> dict[str, Any]:
-        """The ``objective`` and ``constraints`` sections, as :func:`trimtab.rebalance` takes them."""
-        return {"objective": dict(self.spec.objective), "constraints": dict(self.spec.constraints)}
+        """The ``objective`` and ``constraints`` sections (and ``stress``, ``replay``), as :func:`trimtab.rebalance`
+        takes them, with shock files read."""
+        from trimtab.scenario._shocks import resolve_shock_files
+
+        mapping: dict[str, Any] = {"objective": dict(self.spec.objective), "constraints": dict(self.spec.constraints)}
+        if self.spec.stress is not None:
+            mapping["stress"] = self.spec.stress
+        if self.spec.replay is not None:
+            mapping["replay"] = self.spec.replay
+        return resolve_shock_files(mapping)
 
     @property
     def output_dir(self) -> Path:
@@ -106,27 +114,29 @@ def load_scenario(path: str | Path, *, deep: bool = True) -> Scenario:
     except ScenarioError as err:
         problems = list(err.problems)
         if deep and isinstance(merged.get("objective"), Mapping):
-            problems += deep_problems(merged, source, origins)
+            # the limits are checked too, so one pass lists every problem; shock files are read
+            # only once the file validates, so stress_loss waits until then
+            constraints = merged.get("constraints")
+            if isinstance(constraints, Mapping):
+                constraints = {k: v for k, v in constraints.items() if k != "stress_loss"}
+            problems += deep_problems({"objective": merged["objective"], "constraints": constraints or {}}, source, origins)
         raise ScenarioError.of(problems) from None
     assert isinstance(spec, ScenarioSpec)
     scenario = Scenario(source, spec, merged, chain)
     if deep:
-        problems = deep_problems(merged, source, origins)
-        if problems:
-            raise ScenarioError.of(problems)
+        deep_validate(scenario, origins)
     return scenario
 
 
 def deep_problems(
-    merged: Mapping[str, Any], source: Path, origins: Mapping[tuple[str, ...], Path] | None = None
+    mapping: Mapping[str, Any], source: Path, origins: Mapping[tuple[str, ...], Path] | None = None
 ) -> list[Problem]:
-    """The objective's and constraints' problems from the optimizer's own validator (if installed),
-    each under the file that set its key."""
+    """The problems of a rebalance mapping (objective, constraints, stress, replay) from the
+    optimizer's own validator (if installed), each under the file that set its key."""
     try:
         from trimtab.construct import validate_scenario
     except ImportError:
         return []
-    mapping = {"objective": merged.get("objective"), "constraints": merged.get("constraints") or {}}
     try:
         validate_scenario(mapping, source=str(source))
     except ScenarioError as err:
@@ -144,8 +154,9 @@ def _origin(key_path: str, origins: Mapping[tuple[str, ...], Path] | None) -> Pa
 
 
 def deep_validate(scenario: Scenario, origins: Mapping[tuple[str, ...], Path] | None = None) -> None:
-    """Hand the objective and constraints to the optimizer's own validator, if it is installed."""
-    problems = deep_problems(scenario.mapping, scenario.path, origins)
+    """Hand the objective, constraints, stress and replay (shock files read) to the optimizer's own
+    validator, if it is installed; every problem in one ScenarioError."""
+    problems = deep_problems(scenario.rebalance_mapping(), scenario.path, origins)
     if problems:
         raise ScenarioError.of(problems)
 

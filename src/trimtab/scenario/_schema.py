@@ -156,6 +156,12 @@ class ScenarioSpec(_Strict):
     data: DataSection
     objective: dict[str, Any]
     constraints: dict[str, Any] = Field(default_factory=dict)
+    stress: str | dict[str, Any] | None = Field(
+        None, description="shocks reported before and after the trade: a shock file, or name → {factors: {factor: move}}"
+    )
+    replay: dict[str, Any] | None = Field(
+        None, description="{length: periods, count: k}: the k worst windows of the model's history, before and after the trade"
+    )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
 
     @field_validator("name", "description", mode="before")

@@ -32,6 +32,8 @@ SCENARIO_PATHS: tuple[tuple[str, ...], ...] = (
     ("data", "alpha"),
     ("data", "attributes"),
     ("output", "dir"),
+    ("stress",),
+    ("constraints", "stress_loss", "shocks"),
 )
 #: The same for a standalone fit config.
 FIT_PATHS: tuple[tuple[str, ...], ...] = (("returns",), ("factor_returns",), ("exposures",))

@@ -17,6 +17,7 @@ from trimtab.construct.constraints.leverage import Leverage, LongOnly
 from trimtab.construct.constraints.liquidity import Liquidity
 from trimtab.construct.constraints.lists import MustHold, NoBuy, NoSell, NoTrade
 from trimtab.construct.constraints.risk import FactorRisk, SpecificRisk, TotalRisk, TrackingError
+from trimtab.construct.constraints.stress_loss import StressLoss
 from trimtab.construct.constraints.trade import Trade
 from trimtab.construct.constraints.turnover import Turnover
 from trimtab.construct.constraints.weight import ActiveWeight, Weight
@@ -27,7 +28,7 @@ REGISTRY: dict[str, type[Constraint]] = {
     for cls in (
         FullyInvested, Cash, LongOnly, Leverage, Weight, ActiveWeight, Group, FactorExposure, Beta,
         TrackingError, TotalRisk, FactorRisk, SpecificRisk, Turnover, Trade, Liquidity,
-        NoBuy, NoSell, NoTrade, MustHold,
+        NoBuy, NoSell, NoTrade, MustHold, StressLoss,
     )
 }
 #: Scenario keys handled after the convex solve.

@@ -1,0 +1,292 @@
+"""The ``trimtab stress``, ``trimtab replay`` and ``trimtab attribute-returns`` commands.
+
+:func:`register` adds them to the main app. They follow its conventions: one line on stderr naming
+the file, key or column and exit code 2 for bad input, never a traceback; ``--json`` and ``--quiet``
+before the command; outputs (``--out``) written to a temporary folder, then renamed.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from types import SimpleNamespace
+from typing import Annotated, Any
+
+import pandas as pd
+import typer
+
+from trimtab.errors import InputError
+
+ModelOpt = Annotated[Path, typer.Option("--model", "-m", help="A model folder written by `trimtab fit`.", show_default=False)]
+HoldingsOpt = Annotated[Path, typer.Option("--holdings", help="Holdings file: asset, weight (or asset, shares with prices).", show_default=False)]
+BenchmarkOpt = Annotated[Path | None, typer.Option("--benchmark", help="Benchmark file: asset, weight. Adds the benchmark and active figures.")]
+AttributesOpt = Annotated[Path | None, typer.Option("--attributes", help="Attributes file (prices for shares; group columns).")]
+CashOpt = Annotated[float, typer.Option("--cash", help="Cash besides the positions (currency), for holdings given as shares.", min=0.0)]
+NavOpt = Annotated[float | None, typer.Option("--nav", help="Net asset value (currency); default Σ shares·price + cash.", min=0.0)]
+OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Write the tables, result.json and report.html to this folder.", show_default=False)]
+
+
+# ---------------------------------------------------------------------- shared reading
+def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path | None, cash: float, nav: float | None) -> SimpleNamespace:
+    """Holdings (weights or shares), benchmark and attributes read and aligned to the model's assets."""
+    from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
+    from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
+
+    attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
+    columns = set(read_table(holdings, what="holdings").columns)
+    kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
+    book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav}), attrs)
+    bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
+    aligned = align_inputs(model.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
+                           files={"holdings": str(holdings), "benchmark": str(benchmark)})
+    return SimpleNamespace(holdings=aligned.holdings, benchmark=aligned.benchmark, attributes=aligned.attributes)
+
+
+def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | None:
+    if column is None:
+        return None
+    if attributes is None:
+        raise InputError(f"--group-by {column}: needs --attributes (the file with that column)")
+    if column not in attributes.columns:
+        raise InputError(f"--group-by {column}: the attributes file has no column {column!r}; it has: {', '.join(map(str, attributes.columns))}")
+    return attributes[column]
+
+
+def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None) -> None:
+    from trimtab.cli import _ui
+
+    ui = _ui(ctx)
+    ui.emit({**document, "output": str(out) if out is not None else None, "files": files})
+    if ui.chatty:
+        ui.out.print(text, markup=False, highlight=False)
+        if out is not None and files:
+            ui.say(f"Wrote {len(files)} files to {out}")
+        from trimtab.report import CAUTION
+
+        ui.out.print(f"[italic]{CAUTION}[/italic]")
+
+
+# ---------------------------------------------------------------------- stress
+def stress_command(
+    ctx: typer.Context,
+    model: ModelOpt,
+    holdings: HoldingsOpt,
+    shocks: Annotated[Path, typer.Option("--shocks", help="A shock file (YAML): shocks: {name: {factors: {factor: move}}}.", show_default=False)],
+    benchmark: BenchmarkOpt = None,
+    attributes: AttributesOpt = None,
+    cash: CashOpt = 0.0,
+    nav: NavOpt = None,
+    unconditional: Annotated[bool, typer.Option("--unconditional", help="Move only the named factors (default: the others move as the model says they co-move).", metavar="")] = False,
+    horizon: Annotated[float | None, typer.Option("--horizon", help="Length of a shock in the model's periods, for plausibility (default one month).", min=0.0, show_default=False)] = None,
+    group_by: Annotated[str | None, typer.Option("--group-by", help="Attributes column whose labels a shock's specific moves may name.", show_default=False)] = None,
+    out: OutOpt = None,
+) -> None:
+    """Run the book through named factor shocks: book, benchmark and active return under each.
+
+    Factors a shock does not name move by their conditional expectation under the model (Gaussian
+    conditioning). Each shock's plausibility is its Mahalanobis distance under the model over the
+    horizon, with its χ² tail probability.
+    """
+    from trimtab import FactorModel
+    from trimtab._stress_pages import write_stress
+    from trimtab.scenario._shocks import load_shocks
+    from trimtab.stresstest import stress
+    from trimtab.stresstest._entries import factor_moves, specific_moves
+
+    fm = FactorModel.load(model)
+    entries = load_shocks(shocks)
+    book = _book(fm, holdings, benchmark, attributes, cash, nav)
+    result = stress(fm, book.holdings, factor_moves(entries), benchmark=book.benchmark, conditional=not unconditional,
+                    horizon=horizon, specific=specific_moves(entries), groups=_groups(book.attributes, group_by))
+    files = None
+    if out is not None:
+        settings = {"model": str(model), "holdings": str(holdings), "shocks": str(shocks), "conditional": result.conditional,
+                    "horizon": result.horizon}
+        files = write_stress(result, out, [model, holdings, shocks, *(p for p in (benchmark, attributes) if p)], settings=settings)
+    _show(ctx, result.summary().as_text(), {"shocks": result.table(), "factor_moves": result.factor_moves}, out, files)
+
+
+# ---------------------------------------------------------------------- replay
+def _windows(values: list[str] | None) -> dict[str, tuple[str, str]]:
+    out: dict[str, tuple[str, str]] = {}
+    for value in values or []:
+        name, sep, span = value.partition("=")
+        start, colon, end = span.partition(":")
+        if not sep or not colon or not name or not start or not end:
+            raise InputError(f"--window: expected NAME=START:END (dates YYYY-MM-DD), got {value!r}")
+        if name in out:
+            raise InputError(f"--window: the name {name!r} is given twice")
+        out[name] = (start, end)
+    return out
+
+
+def replay_command(
+    ctx: typer.Context,
+    model: ModelOpt,
+    holdings: HoldingsOpt,
+    benchmark: BenchmarkOpt = None,
+    attributes: AttributesOpt = None,
+    cash: CashOpt = 0.0,
+    nav: NavOpt = None,
+    length: Annotated[int | None, typer.Option("--length", help="Find the worst windows of this many periods (e.g. 21 days).", min=1, show_default=False)] = None,
+    worst: Annotated[int, typer.Option("--worst", help="How many worst windows to find (they do not overlap).", min=1)] = 5,
+    window: Annotated[list[str] | None, typer.Option("--window", help="A named date range to replay, NAME=START:END; repeat for more.", show_default=False)] = None,
+    out: OutOpt = None,
+) -> None:
+    """Replay the model's own factor-return history on today's exposures.
+
+    Each window's summed factor returns are applied to the book's exposures today; --length finds
+    the worst non-overlapping windows for the book (and, with --benchmark, for the active book).
+    Without --length or --window the worst month (a twelfth of a year of periods) is searched.
+    """
+    from trimtab import FactorModel
+    from trimtab._stress_pages import write_replay
+    from trimtab.stresstest import factor_history, replay
+
+    fm = FactorModel.load(model)
+    book = _book(fm, holdings, benchmark, attributes, cash, nav)
+    chosen = _windows(window)
+    if length is None and not chosen:
+        length = max(1, round(fm.periods_per_year / 12))
+    result = replay(fm, book.holdings, benchmark=book.benchmark, windows=chosen or None, length=length, k=worst)
+    files = None
+    if out is not None:
+        history = factor_history(fm)
+        x = fm.factor_exposure(book.holdings).to_numpy()
+        cumulative = pd.DataFrame({"book": (history.to_numpy() @ x).cumsum()}, index=history.index)
+        if book.benchmark is not None:
+            xa = x - fm.factor_exposure(book.benchmark).to_numpy()
+            cumulative["active"] = (history.to_numpy() @ xa).cumsum()
+        settings = {"model": str(model), "holdings": str(holdings), "length": length, "worst": worst, "windows": chosen}
+        files = write_replay(result, out, [model, holdings, *(p for p in (benchmark, attributes) if p)],
+                             cumulative=cumulative, settings=settings)
+    _show(ctx, result.summary().as_text(), {"windows": result.windows, "factor_moves": result.factor_moves}, out, files)
+
+
+# ---------------------------------------------------------------------- attribute-returns
+def _backtest_tables(folder: Path) -> SimpleNamespace:
+    """history, exposures and risk_contributions of a ``trimtab backtest`` output folder."""
+    tables = {}
+    for name in ("history", "exposures", "risk_contributions"):
+        path = folder / f"{name}.csv"
+        if not path.exists():
+            raise InputError(f"{folder}: not a backtest output folder ({name}.csv missing)")
+        frame = pd.read_csv(path)
+        if list(frame.columns[:2]) != ["scenario", "date"]:
+            raise InputError(f"{path}: expected the columns scenario, date first (as `trimtab backtest` writes them)")
+        frame["date"] = pd.to_datetime(frame["date"])
+        tables[name] = frame.set_index(["scenario", "date"])
+    return SimpleNamespace(**tables)
+
+
+def _dated_file(path: Path, what: str) -> pd.DataFrame:
+    from trimtab.scenario import load_returns
+    from trimtab.scenario._schema import ReturnsFile
+
+    return load_returns(ReturnsFile.model_validate({"path": str(path)}), what=what)
+
+
+def _span(frame: pd.DataFrame, start: str | None, end: str | None) -> pd.DataFrame:
+    try:
+        begin = pd.Timestamp(start) if start else None
+        finish = pd.Timestamp(end) if end else None
+    except ValueError:
+        raise InputError(f"--start/--end: expected dates YYYY-MM-DD, got {start!r} and {end!r}") from None
+    out = frame.loc[begin:finish]  # type: ignore[misc]
+    if out.empty:
+        raise InputError(f"--start {start} --end {end}: no date of the returns in that span")
+    return out
+
+
+def attribute_returns_command(
+    ctx: typer.Context,
+    model: Annotated[Path | None, typer.Option("--model", "-m", help="A model folder written by `trimtab fit` (its factor history is the default factor returns).", show_default=False)] = None,
+    returns: Annotated[Path | None, typer.Option("--returns", help="Asset returns file (dates × assets, wide or long).", show_default=False)] = None,
+    weights: Annotated[Path | None, typer.Option("--weights", help="Weights at the start of each period (dates × assets).", show_default=False)] = None,
+    holdings: Annotated[Path | None, typer.Option("--holdings", help="Instead of --weights: one holdings file held fixed.", show_default=False)] = None,
+    benchmark: BenchmarkOpt = None,
+    attributes: AttributesOpt = None,
+    factor_returns: Annotated[Path | None, typer.Option("--factor-returns", help="Factor returns file (dates × factors); default the model's own history.", show_default=False)] = None,
+    backtest: Annotated[Path | None, typer.Option("--backtest", help="Attribute a `trimtab backtest` output folder instead.", show_default=False)] = None,
+    scenario: Annotated[str | None, typer.Option("--scenario", help="With --backtest: which scenario (when it ran several).", show_default=False)] = None,
+    start: Annotated[str | None, typer.Option("--start", help="First date to attribute.", metavar="YYYY-MM-DD", show_default=False)] = None,
+    end: Annotated[str | None, typer.Option("--end", help="Last date to attribute.", metavar="YYYY-MM-DD", show_default=False)] = None,
+    linking: Annotated[str, typer.Option("--linking", help="How periods are linked: carino (logarithmic) or sum.", metavar="carino|sum")] = "carino",
+    group_by: Annotated[str | None, typer.Option("--group-by", help="Attributes column to sum the asset contributions by.", show_default=False)] = None,
+    out: OutOpt = None,
+) -> None:
+    """Explain a realised active return factor by factor, and what stock picking added.
+
+    Each period's active return splits exactly into factor contributions, the assets' intercepts and a
+    specific part; the periods are linked (Carino) so the components add up to the compounded active
+    return. Beside each factor: its share of the ex-ante active risk over the same span. With
+    --backtest, a backtest's stored history is attributed (factor returns from --factor-returns or
+    the model's history).
+    """
+    from trimtab import FactorModel
+    from trimtab._stress_pages import write_return_attribution
+    from trimtab.attribution import attribute_backtest_returns, attribute_returns
+
+    fm = FactorModel.load(model) if model is not None else None
+    factors = _dated_file(factor_returns, "factor returns") if factor_returns is not None else None
+    inputs = [p for p in (model, returns, weights, holdings, benchmark, attributes, factor_returns, backtest) if p is not None]
+    groups = None
+    if backtest is not None:
+        if factors is None:
+            if fm is None or fm.factor_history is None:
+                raise InputError("--backtest: give --factor-returns (or --model with a factor history)")
+            factors = fm.factor_history
+        if start is not None or end is not None:
+            raise InputError("--start/--end: with --backtest the whole backtest is attributed; run the backtest over the span you want")
+        result = attribute_backtest_returns(_backtest_tables(backtest), factors, scenario=scenario, linking=linking)
+    else:
+        if fm is None or returns is None:
+            raise InputError("attribute-returns: give --model and --returns (or --backtest FOLDER)")
+        if (weights is None) == (holdings is None):
+            raise InputError("attribute-returns: give exactly one of --weights (dates × assets) or --holdings (held fixed)")
+        asset_returns = _span(_dated_file(returns, "returns"), start, end)
+        if holdings is not None:
+            book = _book(fm, holdings, benchmark, attributes, 0.0, None)
+            held: Any = book.holdings
+            bench = book.benchmark
+            attrs = book.attributes
+        else:
+            assert weights is not None
+            # a row dated t is held over the period whose return is dated t, until the next row
+            held = _dated_file(weights, "weights").reindex(asset_returns.index, method="ffill").fillna(0.0)
+            bench, attrs = _benchmark_and_attributes(fm, benchmark, attributes)
+        result = attribute_returns(fm, held, asset_returns, factors, benchmark=bench, linking=linking)
+        groups = _groups(attrs, group_by)
+    text = result.summary().as_text()
+    if backtest is not None:
+        chained = float((1.0 + result.returns["active"]).prod() - 1.0)
+        text += (f"\n\nThe backtest's own totals compound the active returns instead: ∏(1 + Rₜ − Rbₜ) − 1 = {chained:.2%} "
+                 "(the two differ by how book and benchmark growth compound together).")
+    if groups is not None:
+        by_group = result.by_group(groups)
+        text += "\n\nBy " + str(group_by) + " (linked)\n" + by_group.to_string(float_format=lambda v: f"{v:.2%}")
+    files = None
+    if out is not None:
+        settings = {"linking": linking, "start": start, "end": end, "backtest": str(backtest) if backtest else None}
+        files = write_return_attribution(result, out, inputs, settings=settings)
+    document: dict[str, Any] = {"linked": result.factor_table(), "total": float(result.linked["total"])}
+    if backtest is not None:
+        document["compounded_active_returns"] = chained
+    _show(ctx, text, document, out, files)
+
+
+def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Path | None) -> tuple[pd.Series | None, pd.DataFrame | None]:
+    from trimtab.scenario import load_attributes, load_series
+    from trimtab.scenario._schema import AttributesFile, SeriesFile
+
+    bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
+    attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
+    return bench, None if attrs is None else attrs.reindex(model.assets)
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``stress``, ``replay`` and ``attribute-returns`` to the main command-line app."""
+    from trimtab.cli import _guarded
+
+    app.command("stress")(_guarded(stress_command))
+    app.command("replay")(_guarded(replay_command))
+    app.command("attribute-returns")(_guarded(attribute_returns_command))

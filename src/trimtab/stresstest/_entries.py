@@ -1,0 +1,72 @@
+"""The shape of a named-shock list as scenario files and shock files write it (validation only, no I/O).
+
+Each shock is ``name: {factors: {factor: move}, description: text, specific: {asset or group: move}}``
+with ``factors`` required. Messages name the key path in the file's own words.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+from typing import Any
+
+from trimtab._validation import list_labels
+
+ENTRY_KEYS = ("factors", "description", "specific")
+Fail = Callable[[tuple[str, ...], str], Exception]
+
+
+def shock_entries(value: Any, fail: Fail) -> dict[str, dict[str, Any]]:
+    """Validated shocks: name → {factors, description, specific}; ``fail(key_path, message)`` makes the error."""
+    if not isinstance(value, Mapping) or not value:
+        raise fail((), f"expected a mapping of shock name → {{factors: {{factor: move}}}}, got {_short(value)}")
+    out: dict[str, dict[str, Any]] = {}
+    for name, entry in value.items():
+        if not isinstance(name, str) or not name:
+            raise fail((), f"a shock name must be non-empty text, got {name!r}")
+        if not isinstance(entry, Mapping):
+            raise fail((name,), f"expected a mapping with factors: {{factor: move}}, got {_short(entry)}")
+        unknown = [k for k in entry if k not in ENTRY_KEYS]
+        if unknown:
+            raise fail((name,), f"unknown key(s) {list_labels(unknown)}; allowed: {', '.join(ENTRY_KEYS)}")
+        if "factors" not in entry:
+            raise fail((name,), "missing required key factors (factor → move, a return over the shock)")
+        description = entry.get("description")
+        if description is not None and not isinstance(description, str):
+            raise fail((name, "description"), f"expected text, got {_short(description)}")
+        out[name] = {
+            "factors": _moves(entry["factors"], fail, (name, "factors"), "factor"),
+            "description": description,
+            "specific": _moves(entry["specific"], fail, (name, "specific"), "asset or group") if entry.get("specific") else {},
+        }
+    return out
+
+
+def _moves(value: Any, fail: Fail, where: tuple[str, ...], what: str) -> dict[Any, float]:
+    if not isinstance(value, Mapping) or not value:
+        raise fail(where, f"expected a mapping {what} → move (a return, 0.05 is 5%), got {_short(value)}")
+    out: dict[Any, float] = {}
+    for key, move in value.items():
+        if isinstance(move, bool) or not isinstance(move, (int, float)) or not math.isfinite(float(move)):
+            raise fail((*where, str(key)), f"expected a finite number (a return, -0.10 is -10%), got {_short(move)}")
+        if abs(float(move)) >= 1.0 and what == "factor":
+            # a move of 100% or more is almost always a percentage typed as a number
+            raise fail((*where, str(key)), f"a move of {float(move):g} is {100 * float(move):g}%; write returns as fractions (-0.10 is -10%)")
+        out[key] = float(move)
+    return out
+
+
+def factor_moves(entries: Mapping[str, Mapping[str, Any]]) -> dict[str, dict[str, float]]:
+    """name → {factor: move}, as :func:`trimtab.stress` takes them."""
+    return {name: dict(entry["factors"]) for name, entry in entries.items()}
+
+
+def specific_moves(entries: Mapping[str, Mapping[str, Any]]) -> dict[str, dict[Any, float]] | None:
+    """name → {asset or group: move} for the shocks that give any (None when none does)."""
+    out = {name: dict(entry["specific"]) for name, entry in entries.items() if entry.get("specific")}
+    return out or None
+
+
+def _short(value: Any, limit: int = 60) -> str:
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 1] + "…"
