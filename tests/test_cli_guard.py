@@ -24,7 +24,7 @@ from trimtab._cli_guard import (
         (errno.EROFS, "the file system is read-only"),
         (errno.ENOSPC, "no space left on the disk"),
         (errno.EACCES, "permission denied"),
-        (errno.ENOTDIR, "is a file, not a folder"),
+        (errno.ENOTDIR, "is a file, so no folder can be made below it"),
         (errno.EDQUOT, "the disk quota is exceeded"),
     ],
     ids=["read-only", "full", "permission", "below-a-file", "quota"],

@@ -30,7 +30,7 @@ _CAUSES = {
     errno.EDQUOT: "the disk quota is exceeded",
     errno.EACCES: "permission denied",
     errno.EPERM: "operation not permitted",
-    errno.ENOTDIR: "is a file, not a folder (nothing can be written below it)",
+    errno.ENOTDIR: "is a file, so no folder can be made below it",
     errno.EISDIR: "is a folder",
     errno.EEXIST: "exists and is not a folder",
     errno.ENAMETOOLONG: "the name is too long",

@@ -246,7 +246,7 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     ("file-grid-is-fifo", fifo("grid.yaml"), ["sweep", "base.yaml", "--grid-file", "grid.yaml"], BAD_INPUT, r"grid\.yaml: is a named pipe; expected a grid file"),
     # ---------------------------------------------------------------- environment
     ("env-output-below-a-file", write("not a folder\n", "afile"), ["rebalance", "base.yaml", "--out", "afile/sub"], ENVIRONMENT,
-     r"afile: is a file, not a folder \(nothing can be written below it\)"),
+     r"afile: is a file, so no folder can be made below it \(fix the disk or the path and rerun"),
     ("env-output-folder-not-ours", write("keep me\n", "mine/notes.txt"), ["rebalance", "base.yaml", "--out", "mine"], BAD_INPUT,
      r"mine: folder exists and was not written by trimtab; refusing to replace it"),
 ]
