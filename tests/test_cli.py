@@ -79,7 +79,7 @@ def test_check_ok_prints_alignment_and_json(work: Path) -> None:
 @pytest.mark.parametrize(
     ("edit", "pattern"),
     [
-        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: constraints, data"),
+        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: backtest, constraints, data"),
         (lambda t: t.replace("kind: shares", "kind: lots"), r"data\.holdings\.kind: expected 'weights' or 'shares', got 'lots'"),
         (lambda t: t.replace("model: model", "model: missing_model"), r"missing_model: no such model folder"),
         (lambda t: t.replace("data/alpha.csv", "data/alpha.txt"), r"alpha\.txt: alpha file not found"),
@@ -256,14 +256,17 @@ def test_rebalance_infeasible_exits_1_with_the_relaxation_table(work: Path) -> N
     result = invoke("rebalance", work / "infeasible.yaml", "--out", work / "out")
     assert result.exit_code == 1
     assert "how far each conflicting limit must move" in result.stdout
-    assert "turnover" in result.stdout
-    one_error_line(result, r"infeasible\.yaml: infeasible: these limits conflict: turnover")
+    # issue #12: the first line names the tracking-error cap the variant set
+    first = result.stdout.strip().splitlines()[0]
+    assert first == "infeasible: These limits cannot all hold: constraints.tracking_error.max, constraints.turnover.max."
+    one_error_line(result, r"infeasible\.yaml: infeasible: these limits cannot all hold: constraints\.tracking_error\.max")
     assert not (work / "out").exists()  # nothing written
     result = invoke("--json", "rebalance", work / "infeasible.yaml")
     assert result.exit_code == 1
     document = json.loads(result.stdout)
     assert document["status"] == "infeasible"
-    assert document["relaxation"][0]["constraint"] == "turnover"
+    assert document["relaxation"][0]["constraint"] == "constraints.tracking_error.max"
+    assert document["conflict"] == ["constraints.tracking_error.max", "constraints.turnover.max"]
 
 
 def test_rebalance_bad_limits_exit_2(work: Path) -> None:
@@ -320,9 +323,11 @@ def test_compare(work: Path) -> None:
     assert [c.strip() for c in status.split("│")[2:4]] == ["solved", "infeasible"]
     assert "Infeasible (infeasible): how far each conflicting limit must move" in result.stdout
     page = (work / "cmp" / "report.html").read_text(encoding="utf-8")
-    assert "Scenario: infeasible</h2>" in page and "limits conflict" in page and "the upper limit of turnover must rise" in page
+    assert "Scenario: infeasible</h2>" in page and "These limits cannot all hold: constraints.tracking_error.max" in page
+    assert "constraints.tracking_error.max from 0.500% to" in page or "constraints.tracking_error.max 0.500% →" in page
     raw = pd.read_csv(work / "cmp" / "infeasible" / "relaxation.csv")
-    turnover = raw.set_index("constraint").loc["turnover"]
+    assert "scale" not in raw.columns
+    turnover = raw.set_index("constraint").loc["constraints.turnover.max"]
     # the terminal shows the raw fractions of NAV as percent with three decimals
     assert f"{100 * turnover['limit']:.3f}%" in result.stdout and f"{100 * turnover['needed']:.3f}%" in result.stdout
     document = json.loads((work / "cmp" / "infeasible" / "result.json").read_text(encoding="utf-8"))

@@ -25,3 +25,12 @@ def test_frame_table_percent_columns_and_index() -> None:
     Console(file=out, width=120).print(frame_table(frame, "t", percent=["tracking_error"]))
     text = out.getvalue()
     assert "2.00%" in text and "2.5" in text and "p1" in text and "point" in text
+
+
+def test_compact_limits_folds_default_bands() -> None:
+    from trimtab._format import compact_limits
+
+    paths = ["constraints.fully_invested"] + [f"constraints.group.bounds.default ({x})" for x in "ABCD"]
+    assert compact_limits(paths) == "constraints.fully_invested, constraints.group.bounds.default (4 bands: A, B, C, …)"
+    assert compact_limits(["constraints.group.bounds.default (A)", "constraints.turnover.max"]) == \
+        "constraints.group.bounds.default (A), constraints.turnover.max"

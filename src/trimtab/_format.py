@@ -51,3 +51,33 @@ def frame_table(frame: pd.DataFrame, title: str, *, percent: Iterable[str] = (),
     if len(frame) > max_rows:
         table.caption = f"{len(frame) - max_rows} more rows not shown"
     return table
+
+
+def compact_limits(paths: Iterable[str], shown: int = 3) -> str:
+    """Limit key paths joined with commas; bands from one ``default`` are folded into one entry.
+
+    ``constraints.group.bounds.default (A)``, ``… (B)``, ``… (C)``, ``… (D)`` read as
+    ``constraints.group.bounds.default (4 bands: A, B, C, …)``.
+    """
+    order: list[str] = []
+    labels: dict[str, list[str]] = {}
+    for path in paths:
+        head, sep, rest = path.partition(" (")
+        if sep and rest.endswith(")"):
+            if head not in labels:
+                order.append(head)
+                labels[head] = []
+            labels[head].append(rest[:-1])
+        else:
+            order.append(path)
+    out = []
+    for item in order:
+        if item not in labels:
+            out.append(item)
+        elif len(labels[item]) == 1:
+            out.append(f"{item} ({labels[item][0]})")
+        else:
+            names = labels[item]
+            more = ", …" if len(names) > shown else ""
+            out.append(f"{item} ({len(names)} bands: {', '.join(names[:shown])}{more})")
+    return ", ".join(out)

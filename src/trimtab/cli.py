@@ -166,13 +166,11 @@ def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
 
 
 def _infeasible_line(err: InfeasibleError) -> str:
-    """'infeasible: these limits conflict: a, b (…)' from the relaxation table, else the error's text."""
-    from trimtab._validation import list_labels
-    from trimtab.scenario._run import relaxation_frame
+    """'infeasible: these limits cannot all hold: a, b (…)' from the conflict set, else the error's text."""
+    if err.conflict:
+        from trimtab._format import compact_limits
 
-    frame = relaxation_frame(err)
-    if "constraint" in frame.columns and len(frame):
-        return f"infeasible: these limits conflict: {list_labels(frame['constraint'].astype(str))} (the table shows how far each must move)"
+        return f"infeasible: these limits cannot all hold: {compact_limits(err.conflict)} (the table above shows how far each must move)"
     return str(err)
 
 
@@ -364,7 +362,7 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
         run = solve(inputs)
     if isinstance(run.error, InfeasibleError):
         _print_relaxation(ui, loaded.name, run.error)
-        ui.emit({"scenario": loaded.name, "status": "infeasible", "relaxation": _relaxation_rows(run.error)})
+        ui.emit({"scenario": loaded.name, "status": "infeasible", "conflict": list(run.error.conflict or []), "relaxation": _relaxation_rows(run.error)})
         _fail(f"{loaded.path}: {_infeasible_line(run.error)}", EXIT_INFEASIBLE)
     if run.error is not None:
         raise run.error

@@ -351,10 +351,10 @@ constraints:
 """,
     "infeasible.yaml": """\
 # Deliberately impossible: a 0.5% tracking-error cap for a book that starts far further from its
-# benchmark, with only 2% one-way turnover allowed to get there. trimtab stops with exit code 1
-# and prints how far each conflicting limit would have to move.
+# benchmark, with only 2% one-way turnover allowed to get there. trimtab stops with exit code 1,
+# names the limits that cannot all hold, and prints how far each would have to move on its own.
 extends: base.yaml
-description: Conflicting limits, to show the relaxation report
+description: Conflicting limits, to show the conflict set and the relaxation options
 constraints:
   tracking_error: {max: 0.005}
   turnover: {max: 0.02}

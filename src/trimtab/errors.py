@@ -85,15 +85,30 @@ class InfeasibleError(TrimtabError):
     Attributes
     ----------
     relaxation : pandas.DataFrame or None
-        One row per constraint that had to move in the elastic re-solve: its name, the limit, the
-        value it would need and how far it must move.
+        One row per limit to move: its option (each numbered option restores feasibility alone),
+        key path, the limit, the value it would need and how far it must move, in the user's units.
+    conflict : list of str or None
+        The conflict set: the key paths of the limits that cannot all hold together, each needed
+        for the conflict (drop any one and the others can hold).
+    relaxed : callable or None
+        Solves the same problem at the first option's relaxed limits and returns its result.
     """
 
     exit_code = 1
 
-    def __init__(self, message: str, relaxation: Any = None) -> None:
+    def __init__(self, message: str, relaxation: Any = None, *, conflict: Any = None, relaxed: Any = None) -> None:
         super().__init__(message)
         self.relaxation = relaxation
+        self.conflict = conflict
+        self.relaxed = relaxed
+
+    def __reduce__(self) -> Any:
+        # ``relaxed`` holds the built problem: it stays in the process that raised
+        return (_infeasible, (str(self), self.relaxation, self.conflict))
+
+
+def _infeasible(message: str, relaxation: Any, conflict: Any) -> InfeasibleError:
+    return InfeasibleError(message, relaxation, conflict=conflict)
 
 
 class SolverError(TrimtabError):

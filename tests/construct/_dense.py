@@ -8,8 +8,8 @@ import numpy as np
 import pandas as pd
 
 
-def dense_solve(model, scenario, *, holdings, benchmark, alpha, attributes=None, nav=None):
-    """Maximise the same objective under the same limits, written on Σ = BFBᵀ + diag(d) directly."""
+def dense_constraints(model, scenario, *, holdings, benchmark, attributes=None, nav=None):
+    """The variable w and every limit of the scenario's ``constraints`` on the dense Σ."""
     sigma = model.covariance().to_numpy()
     # dense square root: Σ = RᵀR with R the (N×N) Cholesky factor
     R = np.linalg.cholesky(sigma).T
@@ -18,7 +18,6 @@ def dense_solve(model, scenario, *, holdings, benchmark, alpha, attributes=None,
     assets = model.assets
     w0 = holdings.reindex(assets).fillna(0.0).to_numpy()
     b = benchmark.reindex(assets).fillna(0.0).to_numpy() if benchmark is not None else np.zeros(n)
-    a = alpha.reindex(assets).fillna(0.0).to_numpy() if alpha is not None else np.zeros(n)
     B = model.exposures.to_numpy()
     w = cp.Variable(n)
     t = w - w0
@@ -37,17 +36,20 @@ def dense_solve(model, scenario, *, holdings, benchmark, alpha, attributes=None,
         cons.append(cp.norm1(w) <= lev["gross"])
         cons += [cp.sum(w) >= lev["net"][0], cp.sum(w) <= lev["net"][1]]
         cons.append(cp.sum(cp.neg(w)) <= lev["short"])
-    if "weight" in c:
-        cons += [w >= c["weight"]["min"], w <= c["weight"]["max"]]
-    if "active_weight" in c:
-        cons += [act >= c["active_weight"]["min"], act <= c["active_weight"]["max"]]
-    if "trade" in c:
-        cons += [t >= c["trade"]["min"], t <= c["trade"]["max"]]
+    for key, value in (("weight", w), ("active_weight", act), ("trade", t)):
+        if key in c:
+            if c[key].get("min") is not None:
+                cons.append(value >= c[key]["min"])
+            if c[key].get("max") is not None:
+                cons.append(value <= c[key]["max"])
     if "group" in c:
         g = c["group"]
         labels = attributes[g["by"]].reindex(assets)
-        lo, hi = g["bounds"]["default"]
         for label in sorted(labels.unique()):
+            band = g["bounds"].get(label, g["bounds"].get("default"))
+            if band is None:
+                continue
+            lo, hi = band
             member = (labels == label).to_numpy().astype(float)
             value = member @ (act if g.get("active") else w)
             cons += [value >= lo, value <= hi]
@@ -103,6 +105,24 @@ def dense_solve(model, scenario, *, holdings, benchmark, alpha, attributes=None,
     if "must_hold" in c:
         for asset in c["must_hold"]["assets"]:
             cons.append(w[pos[asset]] >= c["must_hold"]["min_weight"])
+    return w, cons, (R, ppy, n, assets, t, act)
+
+
+def dense_feasible(model, scenario, *, holdings, benchmark, attributes=None, nav=None):
+    """Whether the scenario's limits can all hold (Clarabel on the dense formulation, no objective)."""
+    _, cons, _ = dense_constraints(model, scenario, holdings=holdings, benchmark=benchmark, attributes=attributes, nav=nav)
+    problem = cp.Problem(cp.Minimize(0), cons)
+    problem.solve(solver="CLARABEL", tol_feas=1e-10, tol_gap_abs=1e-10, tol_gap_rel=1e-10)
+    assert problem.status in ("optimal", "infeasible"), problem.status
+    return problem.status == "optimal"
+
+
+def dense_solve(model, scenario, *, holdings, benchmark, alpha, attributes=None, nav=None):
+    """Maximise the same objective under the same limits, written on Σ = BFBᵀ + diag(d) directly."""
+    w, cons, parts = dense_constraints(model, scenario, holdings=holdings, benchmark=benchmark,
+                                       attributes=attributes, nav=nav)
+    R, ppy, n, assets, t, act = parts
+    a = alpha.reindex(assets).fillna(0.0).to_numpy() if alpha is not None else np.zeros(n)
     o = scenario["objective"]
     goal = a @ act - o.get("risk_aversion", 0.0) * ppy * cp.sum_squares(R @ act)
     if o.get("costs"):

@@ -78,5 +78,6 @@ def test_max_names_that_cannot_hold_the_limits_is_reported_as_infeasible():
     from trimtab.errors import InfeasibleError
 
     fund = make_fund(60, 4, seed=61)
-    with pytest.raises(InfeasibleError, match=r"max_names\.fixed\[A\d+\] \(upper 0 → "):
+    with pytest.raises(InfeasibleError, match=r"these limits cannot all hold: .*constraints\.max_names") as caught:
         solve(fund, {"max_names": 25})
+    assert "constraints.max_names" in caught.value.conflict

@@ -133,3 +133,17 @@ def test_with_limits_revalidates():
         spec.with_limits({"turnover.max": -1})
     with pytest.raises(ScenarioError, match=r"constraints\.weight\.max: no such limit in this scenario"):
         spec.with_limits({"weight.max": 0.1})
+
+
+# issue #12: limits held in lists (group bands, factor bounds) change in re-solves and sweeps
+def test_with_limits_reaches_limits_held_in_lists() -> None:
+    spec = validate_scenario({"objective": {"minimize": "active_risk"}, "constraints": {
+        "group": {"by": "industry", "active": True, "bounds": {"default": [-0.03, 0.03]}},
+        "factor_exposure": {"bounds": {"size": [-0.1, 0.1]}}}})
+    changed = spec.with_limits({"group.bounds.default.max": 0.05, "factor_exposure.bounds.size.min": -0.2})
+    assert changed.constraints["group"][0]["bounds"]["default"] == [-0.03, 0.05]
+    assert changed.constraints["factor_exposure"]["bounds"]["size"] == [-0.2, 0.1]
+    whole = spec.with_limits({"group.bounds.default": [-0.01, 0.02], "group.0.bounds.default.0": -0.02})
+    assert whole.constraints["group"][0]["bounds"]["default"] == [-0.02, 0.02]
+    with pytest.raises(ScenarioError, match=r"constraints\.group\.bounds\.tech: no such limit in this scenario"):
+        spec.with_limits({"group.bounds.tech": [0, 1]})

@@ -327,8 +327,6 @@ def _bad_cases():
     text_styles = styles.assign(value=["x"] * len(styles))
     constant = styles.assign(size=1.0)
     collinear = styles.assign(combo=styles["size"] + 2 * styles["value"])
-    no_members = returns.copy()
-    no_members.loc[returns.index[2], industry.index[industry == "retail"]] = np.nan
     long = pd.DataFrame({"date": [returns.index[0]] * 2, "asset": ["A000", "A000"], "size": [1.0, 2.0]})
     few = returns.copy()
     few.iloc[3, 4:] = np.nan
@@ -340,7 +338,6 @@ def _bad_cases():
         ((returns, other_ids), {}, r"asset ids do not match between exposures \(X0, X1, .*\) and asset_returns \(A000"),
         ((returns, nan_styles), {}, r"1 NaN or infinite values, at A007/value"),
         ((returns, text_styles), {}, r"exposures: non-numeric columns: value"),
-        ((no_members, styles), {"industry": industry}, r"industry 'retail' has no member with a return on dates: 2024-01-04"),
         ((returns, constant), {"industry": industry}, r"style column 'size' is constant across assets"),
         ((returns, collinear), {}, r"exposures are collinear on date 2024-01-02"),
         ((few, styles), {"industry": industry}, r"fewer assets with a return and exposures than min_assets=7 .* on dates: 2024-01-05"),
@@ -364,6 +361,25 @@ def _bad_cases():
         ((returns.set_axis(pd.date_range("2000", periods=8, freq="20D")), styles), {}, r"median date spacing of 20 days"),
         ((returns.iloc[:, :0], styles), {}, r"asset_returns has no asset columns"),
     ]
+
+
+def test_an_industry_without_members_on_a_date_is_left_out_of_that_date():
+    # issue #12: the fit goes on without that industry's factor on that date, with a warning
+    returns, styles, industry, weights = _panel(gaps=False)
+    day = returns.index[2]
+    no_members = returns.copy()
+    no_members.loc[day, industry.index[industry == "retail"]] = np.nan
+    with pytest.warns(DataWarning, match=r"industry 'retail' has no member with a return on 1 dates; .*: 2024-01-04"):
+        model = fit_cross_section(no_members, styles, industry=industry, weights=weights)
+    assert model.fit_report.factor_returns.loc[day, "retail"] == 0.0
+    # Reference: statsmodels WLS on that date with the market, the dummies of the industries present but
+    # one, and the styles: the same column space as the restricted design, so the same residuals
+    y = no_members.loc[day].dropna()
+    labels = industry[y.index]
+    present = sorted(labels.unique())
+    X = np.column_stack([np.ones(len(y))] + [(labels == j).to_numpy(float) for j in present[1:]] + [styles.loc[y.index].to_numpy()])
+    reference = sm.WLS(y.to_numpy(), X, weights=weights[y.index].to_numpy()).fit()
+    np.testing.assert_allclose(model.fit_report.residuals.loc[day, y.index].to_numpy(), reference.resid, atol=1e-12)
 
 
 @pytest.mark.parametrize("args, kwargs, message", _bad_cases())

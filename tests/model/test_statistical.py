@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -236,3 +238,18 @@ def test_saved_model_round_trips_with_its_provenance(panel, tmp_path):
     assert loaded.provenance["settings"]["criterion"] == "IC_p2"
     assert loaded.provenance["window"] == model.provenance["window"]
     assert loaded.fit_report.method == "statistical"
+
+
+def test_a_choice_at_the_top_of_the_search_range_warns() -> None:
+    # issue #12: four strong factors searched up to 2 only: IC_p2 (Bai & Ng 2002) falls all the way to
+    # k = 2, the edge of the range, so the choice says more about max_factors than about the data
+    rng = np.random.default_rng(12)
+    f = rng.normal(0, 0.02, (300, 4))
+    panel = pd.DataFrame(f @ rng.normal(0, 1, (4, 60)) + rng.normal(0, 0.005, (300, 60)),
+                         index=pd.bdate_range("2024-01-01", periods=300))
+    with pytest.warns(DataWarning, match=r"IC_p2 picked k = 2, the top of its search range \(max_factors = 2\)"):
+        model = fit_statistical(panel, max_factors=2)
+    assert model.n_factors == 2
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert fit_statistical(panel, max_factors=8).n_factors == 4  # inside the range: no warning

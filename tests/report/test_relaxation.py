@@ -15,6 +15,7 @@ from trimtab import FactorModel, InputError
 from trimtab.attribution import format_figure
 from trimtab.construct._elastic import COLUMNS
 from trimtab.errors import InfeasibleError, SolverError
+from trimtab.report._relaxation import unsolved
 from trimtab.report import (
     COMPARISON_SCHEMA,
     JSON_SCHEMA,
@@ -24,6 +25,7 @@ from trimtab.report import (
     print_comparison,
     print_relaxation,
     relaxation_sentence,
+    conflict_sentence,
     render_html,
     report_document,
     report_tables,
@@ -35,16 +37,18 @@ from .conftest import StandInResult, stand_in
 
 
 def infeasible() -> InfeasibleError:
-    """An error laid out as the optimizer's elastic re-solve lays it out (its own column list)."""
+    """An error laid out as the optimizer's diagnosis lays it out (its own column list)."""
     table = pd.DataFrame(
         [
-            ["turnover", "turnover", "upper", 0.02, 0.5646, 0.5446, 1.0, "weight (one-way)"],
-            ["liquidity[POXA]", "liquidity", "lower", -0.0006074, -0.000748, 0.0001406, 1.0, "weight"],
-            ["tracking_error", "tracking_error", "upper", 0.005, 0.0123, 0.0073, 0.01, "annualised volatility"],
+            ["1", "constraints.turnover.max", "turnover", "upper", 0.02, 0.5646, 0.5446, "weight (one-way)"],
+            ["1", "constraints.weight.min[POXA]", "weight", "lower", -0.0006074, -0.000748, 0.0001406, "weight"],
+            ["2", "constraints.tracking_error.max", "tracking_error", "upper", 0.005, 0.0123, 0.0073, "annualised volatility"],
         ],
         columns=COLUMNS,
     )
-    return InfeasibleError("scenarios/tight.yaml: infeasible: these limits conflict: turnover", table)
+    return InfeasibleError("scenarios/tight.yaml: infeasible: these limits cannot all hold: constraints.tracking_error.max, "
+                           "constraints.turnover.max", table,
+                           conflict=["constraints.tracking_error.max", "constraints.turnover.max"])
 
 
 def recorded() -> Console:
@@ -60,19 +64,25 @@ def test_numbers_read_in_their_unit() -> None:
     assert format_in_unit(12.0, "names") == "12"
     assert format_in_unit(float("inf"), "weight") == "n/a"
     assert format_in_unit(-1e-9, "weight") == "0.000%"  # no "-0.000%"
+    assert format_in_unit(0.123, "fraction of ADV") == "12.300%"
     shown = display_relaxation(infeasible().relaxation)
-    assert list(shown.columns) == COLUMNS
-    assert shown.loc[1].tolist() == ["liquidity[POXA]", "liquidity", "lower", "-0.061%", "-0.075%", "0.014%", "100.000%", "% of NAV"]
+    assert list(shown.columns) == [c for c in COLUMNS if c != "kind"]  # the key path says the kind
+    assert shown.loc[1].tolist() == ["1", "constraints.weight.min[POXA]", "lower", "-0.061%", "-0.075%", "0.014%", "% of NAV"]
     assert shown.loc[2, "unit"] == "% a year (volatility)" and shown.loc[2, "needed"] == "1.230%"
 
 
 def test_sentence_names_each_limit_and_its_move() -> None:
     text = relaxation_sentence(infeasible().relaxation)
-    assert text.startswith("These 3 limits conflict (turnover, liquidity[POXA], tracking_error)")
-    assert "the upper limit of turnover must rise from 2.000% to 56.460% (by 54.460%)" in text
-    assert "the lower limit of liquidity[POXA] must fall from -0.061% to -0.075% (by 0.014%)" in text
-    many = pd.concat([infeasible().relaxation] * 3, ignore_index=True)
-    assert relaxation_sentence(many).endswith("; and 4 more limits in the table.")
+    assert text.startswith("Any one of these alone restores feasibility, every other limit as written: ")
+    assert "move 2 limits (constraints.turnover.max 2.000% → 56.460%; constraints.weight.min[POXA] -0.061% → -0.075%)" in text
+    assert text.endswith("; or raise constraints.tracking_error.max from 0.500% to 1.230%.")
+    many = infeasible().relaxation.assign(option=[str(i) for i in range(3)])
+    many = pd.concat([many.assign(option=many["option"] + f"-{k}") for k in range(3)], ignore_index=True)
+    assert relaxation_sentence(many).endswith("; or one of 4 more options in the table.")
+    together = infeasible().relaxation.assign(option="together")
+    assert relaxation_sentence(together).startswith("No single limit is enough; together: move 3 limits")
+    assert conflict_sentence(unsolved(infeasible())) == (
+        "These limits cannot all hold: constraints.tracking_error.max, constraints.turnover.max.")
     assert relaxation_sentence(pd.DataFrame()) == "The optimizer gave no relaxation table for this infeasible scenario."
 
 
@@ -85,6 +95,8 @@ def test_terminal_comparison_keeps_the_infeasible_column(result: StandInResult) 
     risk_row = next(line for line in text.splitlines() if "Active risk (tracking error)" in line)
     assert format_figure(result.post_trade.risk, "fraction") in risk_row and risk_row.count("n/a") == 2
     assert "Infeasible (tight): how far each conflicting limit must move" in text
+    # the conflict set comes first, before the table
+    assert text.index("tight: These limits cannot all hold: constraints.tracking_error.max") < text.index("Infeasible (tight)")
     assert "-0.061%" in text and "-0.0006074" not in text
     assert "broken: solver failure: every solver failed" in text
 
@@ -106,12 +118,13 @@ def test_html_comparison_shows_the_infeasible_part(result: StandInResult, report
     assert status == ["Status", "solved", "infeasible", "solved"]
     part = tree.find(".//article[@id='scenario-1']")
     words = " ".join("".join(part.itertext()).split())
-    assert "the lower limit of liquidity[POXA] must fall from -0.061% to -0.075% (by 0.014%)" in words
+    assert "These limits cannot all hold: constraints.tracking_error.max, constraints.turnover.max." in words
+    assert words.index("These limits cannot all hold") < words.index("Any one of these alone")
     cells = [" ".join("".join(td.itertext()).split()) for td in part.find(".//table[@class='relaxation']/tbody/tr").iter("td")]
-    assert cells == ["turnover", "turnover", "upper", "2.000%", "56.460%", "54.460%", "100.000%", "% of NAV (one-way)"]
-    assert "scenarios/tight.yaml" not in words and "infeasible: these limits conflict: turnover" in words
+    assert cells == ["1", "constraints.turnover.max", "upper", "2.000%", "56.460%", "54.460%", "% of NAV (one-way)"]
+    assert "scenarios/tight.yaml" not in words
     only = render_html({"tight": infeasible()})
-    assert "These 3 limits conflict" in only and "Risk budget used" in only
+    assert "These limits cannot all hold" in only and "Risk budget used" in only
 
 
 def test_json_and_tables_of_an_unsolved_scenario(tmp_path: Path) -> None:
@@ -119,6 +132,7 @@ def test_json_and_tables_of_an_unsolved_scenario(tmp_path: Path) -> None:
     jsonschema.validate(document, JSON_SCHEMA)  # reference JSON Schema implementation
     assert document["kind"] == "infeasible" and document["run"]["status"] == "infeasible"
     assert document["relaxation"][1]["limit"] == -0.0006074  # raw numbers kept
+    assert document["conflict"] == ["constraints.tracking_error.max", "constraints.turnover.max"]
     failure = report_document(SolverError("solver gave up"))
     jsonschema.validate(failure, JSON_SCHEMA)
     assert failure["kind"] == "solver_failure" and failure["relaxation"] == []
@@ -150,7 +164,7 @@ def test_comparison_json_and_table_keep_every_scenario(result: StandInResult, tm
     assert document["status"] == {"base": "solved", "tight": "infeasible", "broken": "solver failure"}
     risk = next(row for row in document["comparison"] if row["figure"] == "risk")
     assert risk["base"] == pytest.approx(result.post_trade.risk) and risk["tight"] is None and risk["broken"] is None
-    assert document["scenarios"]["tight"]["relaxation"][0]["constraint"] == "turnover"
+    assert document["scenarios"]["tight"]["relaxation"][0]["constraint"] == "constraints.turnover.max"
     table = comparison_table(subjects)
     assert list(table.columns) == ["base", "tight", "broken"] and table.index[0] == "status"
     assert list(report_tables(subjects)) == ["comparison"]

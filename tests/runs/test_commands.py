@@ -194,3 +194,25 @@ def test_backtest_names_must_differ(app: typer.Typer, demo) -> None:
     result = invoke(app, "backtest", str(demo / "base.yaml"), str(demo / "base.yaml"), "--fit", str(demo / "fit.yaml"))
     assert result.exit_code == 2
     assert result.stderr == "trimtab: error: backtest: scenario names must differ; base appears twice (set name: in the files)\n"
+
+
+def test_backtest_policy_key_from_the_scenario_file(app: typer.Typer, demo) -> None:
+    # issue #12: backtest.when_infeasible in the YAML; a scenario that cannot trade holds and says why
+    (demo / "frozen.yaml").write_text(
+        "extends: base.yaml\nconstraints:\n  turnover: {max: 0.0}\n  tracking_error: {max: 0.0001}\n"
+        "backtest: {when_infeasible: hold}\n", encoding="utf-8")
+    out = demo / "frozen-out"
+    result = invoke(app, "backtest", str(demo / "frozen.yaml"), "--fit", str(demo / "fit.yaml"),
+                    "--every", "60", "--max-dates", "2", "--out", str(out))
+    assert result.exit_code == 0, result.stderr
+    assert "frozen: 0 of 2 dates solved as written, 0 relaxed, 2 held, 0 failed" in result.stdout
+    assert "this backtest is not evidence about scenario frozen" in result.stdout
+    history = pd.read_csv(out / "history.csv", index_col=[0, 1])
+    assert (history["status"] == "held").all()
+    # the 0.01% TE cap conflicts with the turnover cap of 0 and with the 1-day liquidity limit alike
+    assert history["reason"].str.startswith("these limits cannot all hold: constraints.tracking_error.max, ").all()
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert "Dates that did not solve as written" in page
+    (demo / "bad_policy.yaml").write_text("extends: base.yaml\nbacktest: {when_infeasible: skip}\n", encoding="utf-8")
+    bad = invoke(app, "backtest", str(demo / "bad_policy.yaml"), "--fit", str(demo / "fit.yaml"))
+    assert bad.exit_code == 2 and "backtest.when_infeasible" in bad.stderr

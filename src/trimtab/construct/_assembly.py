@@ -2,9 +2,9 @@
 
 Hard box rows (per-asset bounds on w − offset) are merged into one lower and one upper bound on w:
 the tightest limit wins element by element and receives the dual. Other rows become
-``expr ≤ factor·upper``, ``expr ≥ factor·lower`` or ``expr == factor·value``. A soft row (or every
-row, in the elastic re-solve) gets a slack s ≥ 0: ``expr ≤ factor·(upper + s)`` and
-``expr ≥ factor·(lower − s)``, with ``penalty·Σs`` subtracted from the objective.
+``expr ≤ factor·upper``, ``expr ≥ factor·lower`` or ``expr == factor·value``. A soft row gets a
+slack s ≥ 0: ``expr ≤ factor·(upper + s)`` and ``expr ≥ factor·(lower − s)``, with ``penalty·Σs``
+subtracted from the objective (the infeasibility diagnosis makes the limits it may move soft).
 
 Shadow prices: the problem is solved as minimise −U. For ``e ≤ c`` the dual μ ≥ 0 is −∂(−U*)/∂c, so
 ∂U*/∂upper = μ·factor: the objective gained per unit the limit is loosened (alpha given up per unit
@@ -24,8 +24,6 @@ from trimtab.construct.constraints._base import Rows, merge_boxes, split_box_dua
 
 #: Box limits equal within this are one equality.
 _EQUAL_TOL = 0.0
-#: In the elastic re-solve a soft row's slack costs this fraction of a hard row's.
-ELASTIC_SOFT_WEIGHT = 1e-6
 
 
 class Assembly:
@@ -34,13 +32,10 @@ class Assembly:
     Parameters
     ----------
     variables : Variables
-    elastic : bool
-        Make every row soft with penalty 1/scale (the infeasibility diagnosis).
     """
 
-    def __init__(self, variables: Variables, *, elastic: bool = False) -> None:
+    def __init__(self, variables: Variables) -> None:
         self.variables = variables
-        self.elastic = elastic
         self.constraints: list[cp.Constraint] = []
         self.penalty_terms: list[cp.Expression] = []
         self.rows: list[Rows] = []
@@ -53,12 +48,7 @@ class Assembly:
     # ------------------------------------------------------------------ building
     def add(self, rows: Rows) -> None:
         self.rows.append(rows)
-        # elastic: hard rows cost 1/scale per unit of slack; soft rows stay soft at a token price
-        penalty: float | None
-        if self.elastic:
-            penalty = (1.0 / rows.scale) * (ELASTIC_SOFT_WEIGHT if rows.soft is not None else 1.0)
-        else:
-            penalty = rows.soft
+        penalty = rows.soft
         if rows.box and penalty is None:
             self._box.append(rows)
             return

@@ -1,77 +1,217 @@
-"""Infeasibility diagnosis: the elastic re-solve.
+"""Infeasibility diagnosis: the conflict set first, then the fewest limits to move and how far.
 
-Every hard row gets a slack s ≥ 0 (``expr ≤ upper + s``, ``expr ≥ lower − s``) and the problem
-minimises Σ s / scale, where a row's scale is the size of one unit of concern: 1 for weights,
-exposures and beta, the cap itself (at least 1%) for risk caps. The rows whose slack is positive at
-the optimum are the conflicting limits; each must move by at least its slack for the others to hold
-as they are (one minimal-weighted way of restoring feasibility, not the only one).
+On an infeasible problem :func:`diagnose` finds the conflict set (:mod:`trimtab.construct._conflict`)
+and then, for each limit of the set that is a number (not a yes/no rule such as long only), solves
+the *elastic* problem in which only that limit may move: every element of it gets a slack s ≥ 0
+(``value ≤ upper + s``, ``value ≥ lower − s``), every other limit of the scenario holds as written,
+and Σs is minimised. When that problem is feasible, moving that one limit by its slack is a way
+out on its own (an *option*); the relaxation table lists each option. When no single limit is
+enough, the limits of the conflict set move together (weighted by 1/|limit| so each is measured
+relative to its own size), and failing that every numeric limit of the scenario.
+
+A limit is never proposed beyond its meaningful range: a weight, trade or band beyond ±100% of NAV
+is discarded; risk caps, turnover and liquidity only ever rise from their values, so never below 0.
+The table is in the user's units: weights and risk as fractions (shown as %), liquidity as the
+fraction of ADV the scenario sets (``max_adv_fraction``) asset by asset.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
+from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
+import cvxpy as cp
 import numpy as np
 import pandas as pd
 
 from trimtab.construct import _solve
+from trimtab.construct._assembly import Assembly
+from trimtab.construct._conflict import Conflict, LimitGroup, conflict_set, cvxpy_solvers, limit_groups
+from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 from trimtab.errors import InfeasibleError
 
 if TYPE_CHECKING:
     from trimtab.construct._problem import RebalanceProblem
 
-COLUMNS = ["constraint", "kind", "side", "limit", "needed", "relax_by", "scale", "unit"]
+COLUMNS = ["option", "constraint", "kind", "side", "limit", "needed", "relax_by", "unit"]
 #: A slack counts when above max(ELASTIC_TOL, ELASTIC_TOL·|limit|).
 ELASTIC_TOL = 1e-6
+#: Kinds whose limits are fractions of NAV: never proposed beyond ±100%.
+WEIGHT_RANGE = ("weight", "active_weight", "trade", "group", "active_group", "must_hold")
+#: A relaxed limit is loosened by this much beyond the elastic optimum, so a re-solve at the
+#: relaxed limits is not on the edge of feasibility (relative to the limit, at least 1e-7).
+RELAX_MARGIN = 1e-6
 
 
-def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[Any]) -> None:
-    """Solve the elastic problem; raise InfeasibleError naming the conflicts when there are any."""
-    cvx, variables, assembly = problem.build(extra, elastic=True)
-    # the same ladder of settings as the main solve: Clarabel can stall at its tightest tolerance
-    for solver, settings in _solve.plan(problem.solvers):
-        attempt = _solve.run(cvx, solver, settings)
-        attempts.append(attempt)
-        if attempt.status == _solve.cp.OPTIMAL and variables.w.value is not None:
-            break
-    else:
-        raise InfeasibleError(
-            f"{problem.spec.source}: the problem is infeasible and the elastic re-solve failed "
-            f"({', '.join(a.status for a in attempts)})", None)
-    weights = np.asarray(variables.w.value, dtype=np.float64)
-    table = relaxation_table(problem.all_rows(extra), weights)
-    if table.empty:
+def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[Any], changed: Sequence[str] = ()) -> None:
+    """Find the conflict set and the relaxation options; raise InfeasibleError with both when infeasible.
+
+    Returns without raising when the limits turn out to be satisfiable together (the solver's
+    infeasibility was numerical).
+    """
+    conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
+    if conflict is None:
         return
-    shown = [f"{r.constraint} ({r.side} {r.limit:.4g} → {r.needed:.4g})" for r in table.head(5).itertuples()]
-    more = f" and {len(table) - 5} more" if len(table) > 5 else ""
-    raise InfeasibleError(
-        f"{problem.spec.source}: infeasible: these limits conflict: {'; '.join(shown)}{more} "
-        "(see .relaxation for how far each must move)",
-        table,
-    )
+    table, moves = relaxation(problem, extra, conflict)
+    source = problem.spec.source
+    head = f"{source}: infeasible: {conflict.sentence()}"
+    if not table.empty:
+        alone = table.loc[table["option"] != "together", "option"].nunique()
+        tail = (f"; any one of {alone} moves alone restores feasibility (see the relaxation table)" if alone > 1
+                else "; the relaxation table shows how far to move")
+    else:
+        tail = "; no relaxation of the numeric limits restores feasibility"
+    raise InfeasibleError(head + tail, table, conflict=conflict.paths,
+                          relaxed=(lambda: problem.relaxed(moves).solve()) if moves else None)
 
 
-def relaxation_table(rows: Sequence[Rows], weights: np.ndarray) -> pd.DataFrame:
-    """One line per row breached at the elastic optimum: the limit, the value needed, the move."""
-    records = []
-    for r in rows:
-        if r.soft is not None:
-            continue  # a soft limit may be exceeded: it never conflicts
-        value = np.asarray(r.evaluate(weights), dtype=np.float64)
-        over = value - r.upper
-        under = r.lower - value
-        for i in range(r.size):
-            for side, gap, limit in (("upper", over[i], r.upper[i]), ("lower", under[i], r.lower[i])):
-                if np.isfinite(limit) and gap > ELASTIC_TOL * max(1.0, abs(limit)) * max(1.0, r.scale):
-                    label = r.labels[i] if (r.per_asset or r.size > 1) else None
-                    records.append({
-                        "constraint": r.name if label is None else f"{r.name}[{label}]",
-                        "kind": r.kind, "side": side, "limit": float(limit), "needed": float(value[i]),
-                        "relax_by": float(gap), "scale": r.scale, "unit": r.unit,
-                    })
-    table = pd.DataFrame.from_records(records, columns=COLUMNS)
-    if len(table):
-        table = table.sort_values("relax_by", ascending=False, key=lambda s: s / table.loc[s.index, "scale"])
-    return table.reset_index(drop=True)
+# ---------------------------------------------------------------------------------------------
+# Elastic problems
+# ---------------------------------------------------------------------------------------------
+def _penalty(rows: Rows, index: np.ndarray | None) -> float:
+    """1/|limit| (at least 1%): a move is measured relative to the limit's own size."""
+    lo = rows.lower if index is None else rows.lower[index]
+    hi = rows.upper if index is None else rows.upper[index]
+    finite = np.concatenate([np.abs(lo[np.isfinite(lo)]), np.abs(hi[np.isfinite(hi)])])
+    return 1.0 / max(0.01, float(finite.max()) if len(finite) else 0.0)
+
+
+def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: Sequence[LimitGroup]) -> np.ndarray | None:
+    """The weights minimising the weighted moves of ``movable`` with every other hard limit as written."""
+    free: dict[int, list[LimitGroup]] = {}
+    for g in movable:
+        free.setdefault(id(g.rows), []).append(g)
+    variables = Variables(problem.data)
+    assembly = Assembly(variables)
+    for rows in problem.all_rows(extra):
+        if rows.soft is not None:
+            continue  # a soft limit never blocks
+        groups = free.get(id(rows))
+        if not groups:
+            assembly.add(rows)
+            continue
+        whole = any(g.index is None for g in groups)
+        index = None if whole else np.concatenate([g.index for g in groups])  # type: ignore[misc]
+        soft = replace(rows, soft=_penalty(rows, index))
+        if whole:
+            assembly.add(soft)
+            continue
+        mask = np.zeros(rows.size, dtype=bool)
+        mask[index] = True
+        assembly.add(replace(rows, lower=np.where(mask, -np.inf, rows.lower), upper=np.where(mask, np.inf, rows.upper)))
+        assembly.add(replace(soft, lower=np.where(mask, rows.lower, -np.inf), upper=np.where(mask, rows.upper, np.inf)))
+    cvx = cp.Problem(cp.Minimize(assembly.penalty), assembly.finish())
+    for solver, settings in _solve.plan(cvxpy_solvers(problem)):
+        attempt = _solve.run(cvx, solver, settings)
+        if attempt.status == cp.OPTIMAL and variables.w.value is not None:
+            return np.asarray(variables.w.value, dtype=np.float64)
+        if attempt.status in _solve.INFEASIBLE:
+            return None
+    return None
+
+
+def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str] | None:
+    """Groups that are infeasible together, by the elastic filter (Chinneck 2008, ch. 6): solve the
+    elastic problem, make every group it had to move hard, repeat until the hard groups alone are
+    infeasible. The result holds a conflict set, usually with few other groups, so the deletion
+    filter that follows need not visit every group of the scenario. None when it finds nothing."""
+    groups = limit_groups(problem, extra)
+    enforced: list[LimitGroup] = []
+    for _ in range(len(groups)):
+        movable = [g for g in groups if g not in enforced]
+        weights = elastic_weights(problem, extra, movable) if movable else None
+        if weights is None:
+            return [g.path for g in enforced] or None
+        moved = [g for g in movable if _moves(problem, g, weights)]
+        if not moved:
+            return None
+        enforced.extend(moved)
+    return None
+
+
+def relaxation(problem: RebalanceProblem, extra: Sequence[Rows], conflict: Conflict) -> tuple[pd.DataFrame, list[dict[str, Any]]]:
+    """The relaxation table (options, each alone enough) and the moves of the first option."""
+    numeric = [g for g in conflict.groups if not g.rule]
+    records: list[dict[str, Any]] = []
+    first: list[dict[str, Any]] = []
+    option = 0
+    for group in numeric:
+        weights = elastic_weights(problem, extra, [group])
+        if weights is None:
+            continue
+        moves = _moves(problem, group, weights)
+        if not moves or not _meaningful(moves):
+            continue
+        option += 1
+        records.extend({"option": str(option), **m} for m in moves)
+        first = first or moves
+    if not records:
+        for movable in (numeric, [g for g in limit_groups(problem, extra) if not g.rule]):
+            weights = elastic_weights(problem, extra, movable) if movable else None
+            if weights is None:
+                continue
+            moves = [m for g in movable for m in _moves(problem, g, weights)]
+            if moves and _meaningful(moves):
+                records = [{"option": "together", **m} for m in moves]
+                first = moves
+                break
+    table = pd.DataFrame.from_records([{k: r[k] for k in COLUMNS} for r in records], columns=COLUMNS)
+    return table, first
+
+
+def _moves(problem: RebalanceProblem, group: LimitGroup, weights: np.ndarray) -> list[dict[str, Any]]:
+    """One record per element of the group breached at ``weights``: limit, needed value, move, in user units."""
+    rows = group.rows
+    value = np.asarray(rows.evaluate(weights), dtype=np.float64)
+    elements = range(rows.size) if group.index is None else group.index
+    per_unit = _liquidity_per_fraction(problem) if group.key == "liquidity" else None
+    out: list[dict[str, Any]] = []
+    for i in elements:
+        for side, gap, limit in (("upper", value[i] - rows.upper[i], rows.upper[i]),
+                                 ("lower", rows.lower[i] - value[i], rows.lower[i])):
+            if not np.isfinite(limit) or gap <= ELASTIC_TOL * max(1.0, abs(limit)):
+                continue
+            label = rows.labels[i] if group.label is None and (rows.per_asset or rows.size > 1) else None
+            record = {
+                "constraint": group.path if label is None else f"{group.path}[{label}]",
+                "kind": rows.kind, "side": side, "limit": float(limit), "needed": float(value[i]),
+                "relax_by": float(gap), "unit": rows.unit, "rows": rows, "element": int(i),
+                "raw_side": side, "raw_by": float(gap),
+            }
+            if per_unit is not None and per_unit[i] > 0:
+                # the cap is fraction·days·ADV·price/NAV: the user's number is the fraction of ADV
+                record.update(side="max", limit=abs(limit) / per_unit[i], needed=abs(value[i]) / per_unit[i],
+                              relax_by=gap / per_unit[i], unit="fraction of ADV")
+            out.append(record)
+    order = sorted(out, key=lambda r: -r["relax_by"] / max(abs(r["limit"]), 0.01))
+    return order
+
+
+def _liquidity_per_fraction(problem: RebalanceProblem) -> np.ndarray | None:
+    """Weight of NAV that one unit of ``max_adv_fraction`` allows, per asset (days·ADV·price/NAV)."""
+    for c in problem.constraints:
+        if c.key == "liquidity":
+            cap = np.asarray(c.rows[0].upper, dtype=np.float64)
+            return cap / float(c.options["max_adv_fraction"]) if c.options["max_adv_fraction"] > 0 else None
+    return None
+
+
+def _meaningful(moves: Sequence[dict[str, Any]]) -> bool:
+    """False when a proposed limit leaves its meaningful range (a weight or band beyond ±100% of NAV)."""
+    return all(abs(m["needed"]) <= 1.0 + 1e-9 for m in moves if m["kind"] in WEIGHT_RANGE)
+
+
+def loosen(rows: Rows, moves: Sequence[Mapping[str, Any]]) -> Rows:
+    """The rows with each moved element's limit loosened to the needed value (plus RELAX_MARGIN)."""
+    lower, upper = rows.lower.copy(), rows.upper.copy()
+    for m in moves:
+        if m["rows"] is not rows:
+            continue
+        i = m["element"]
+        if m["raw_side"] == "upper":
+            upper[i] += m["raw_by"] + RELAX_MARGIN * max(1.0, abs(upper[i]))
+        else:
+            lower[i] -= m["raw_by"] + RELAX_MARGIN * max(1.0, abs(lower[i]))
+    return replace(rows, lower=lower, upper=upper)

@@ -4,14 +4,14 @@ from __future__ import annotations
 
 import time
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import cvxpy as cp
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _elastic, _fast, _heuristics, _solve
+from trimtab.construct import _elastic, _fast, _heuristics, _passive, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._data import ProblemData, prepare
 from trimtab.construct._objective import Objective
@@ -74,6 +74,10 @@ class RebalanceProblem:
         self.objective = Objective(spec, data)
         for c in self.constraints:
             _ = c.rows  # build (and check against the data) now, before any solve
+        #: positions the market carried beyond a per-asset limit, moved back as far as trading allows
+        self.passive_notes = _passive.cure(self)
+        #: scenario keys a variant scenario set itself: named first when limits conflict
+        self.changed: tuple[str, ...] = ()
         _heuristics.check(self)
 
     @property
@@ -128,7 +132,9 @@ class RebalanceProblem:
         # 5,000 × 50: 12–22 iterations against 18–28 cold, even for an unrelated new book); with a new
         # alpha the old point costs iterations (28–33 against 19–23 cold), so that starts cold
         warm = self.warm if alpha is None else None
-        return RebalanceProblem(spec, data, self.solvers, self.unknown_assets, warm)
+        problem = RebalanceProblem(spec, data, self.solvers, self.unknown_assets, warm)
+        problem.changed = self.changed
+        return problem
 
     def solve(self, **changes: Any) -> Any:
         """Solve (after :meth:`update` with ``changes`` when given) and return a RebalanceResult.
@@ -136,7 +142,7 @@ class RebalanceProblem:
         Raises
         ------
         InfeasibleError
-            With the relaxation table of the elastic re-solve.
+            With the conflict set and the relaxation options (:mod:`trimtab.construct._elastic`).
         SolverError
             When every solver failed or returned weights that breach a constraint.
         """
@@ -151,22 +157,31 @@ class RebalanceProblem:
         else:
             outcome = self.solve_convex()
             outcome = _heuristics.apply(self, outcome)
+        if self.passive_notes:
+            outcome = replace(outcome, notes=[*self.passive_notes, *outcome.notes])
         return make_result(self, outcome)
+
+    def relaxed(self, moves: Sequence[Mapping[str, Any]]) -> RebalanceProblem:
+        """The same problem with the limits of a relaxation option loosened (see ``_elastic.relaxation``)."""
+        fresh = RebalanceProblem(self.spec, self.data, self.solvers, self.unknown_assets, self.warm)
+        moved = {id(m["rows"]) for m in moves}
+        for old, new in zip(self.constraints, fresh.constraints, strict=True):
+            new.__dict__["rows"] = [_elastic.loosen(r, moves) if id(r) in moved else r for r in old.rows]
+        fresh.changed = self.changed
+        return fresh
 
     # ------------------------------------------------------------------ the convex solve
     def all_rows(self, extra: Sequence[Rows] = ()) -> list[Rows]:
         return [r for c in self.constraints for r in c.rows] + list(extra)
 
-    def build(self, extra: Sequence[Rows] = (), *, elastic: bool = False) -> tuple[cp.Problem, Variables, Assembly]:
-        """The cvxpy problem in factor form (maximise U − penalties; elastic: minimise Σ slack/scale)."""
+    def build(self, extra: Sequence[Rows] = ()) -> tuple[cp.Problem, Variables, Assembly]:
+        """The cvxpy problem in factor form: maximise U − soft-limit penalties."""
         variables = Variables(self.data)
-        assembly = Assembly(variables, elastic=elastic)
+        assembly = Assembly(variables)
         for c in self.constraints:
             c.add(assembly)
         for r in extra:
             assembly.add(r)
-        if elastic:
-            return cp.Problem(cp.Minimize(assembly.penalty), assembly.finish()), variables, assembly
         # the objective may create variables (trades, impact) whose definitions finish() must collect
         goal = self.objective.expression(variables) - assembly.penalty
         return cp.Problem(cp.Maximize(goal), assembly.finish()), variables, assembly
@@ -233,7 +248,7 @@ class RebalanceProblem:
                 )
             if attempt.status in _solve.INFEASIBLE:
                 _elastic.diagnose(self, extra, attempts)  # raises InfeasibleError when confirmed
-                rejected.append(f"{name}: {attempt.status} but the elastic re-solve found no conflict")
+                rejected.append(f"{name}: {attempt.status} but the limits can all hold (no conflict set)")
                 continue
             if variables.w.value is None or attempt.status not in (*_solve.OPTIMAL, cp.OPTIMAL_INACCURATE):
                 rejected.append(f"{name}: {attempt.status}{' ' + attempt.message if attempt.message else ''}")
@@ -250,6 +265,8 @@ class RebalanceProblem:
             weights, table = accepted
             return Outcome(weights, attempt.status, solver, attempt.iterations, attempt.seconds, build_time,
                            attempts, table, assembly.duals(), rows, solver_objective, notes(name))
+        # a solver that fails near infeasibility gets the same diagnosis as an infeasible status
+        _elastic.diagnose(self, extra, attempts)
         raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(skipped + rejected))
 
 

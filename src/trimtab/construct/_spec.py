@@ -66,19 +66,23 @@ class RebalanceSpec:
         """The key path ``parts`` under this spec's source, for messages raised at build time."""
         return Path(self.source, tuple(parts))
 
-    def with_limits(self, limits: Mapping[str, float]) -> RebalanceSpec:
-        """A copy with limits replaced: ``{"tracking_error.max": 0.02, "turnover.max": 0.1}``."""
+    def with_limits(self, limits: Mapping[str, Any]) -> RebalanceSpec:
+        """A copy with limits replaced: ``{"tracking_error.max": 0.02, "turnover.max": 0.1}``.
+
+        Limits held in lists are reached too: ``group.bounds.default`` (a whole band ``[lo, hi]``),
+        ``group.bounds.default.max`` or ``.1`` (its upper end; ``.min`` or ``.0`` the lower),
+        ``group.1.bounds.tech`` (the second grouping of a list), ``factor_exposure.bounds.size.min``.
+        """
         constraints = json.loads(json.dumps(self.mapping["constraints"]))
         for dotted, value in limits.items():
             parts = dotted.split(".")
             node: Any = constraints
             for part in parts[:-1]:
-                if not isinstance(node, dict) or part not in node:
+                node = _step(node, part)
+                if node is None:
                     raise self.path("constraints", *parts).fail("no such limit in this scenario")
-                node = node[part]
-            if not isinstance(node, dict) or parts[-1] not in node:
+            if not _assign(node, parts[-1], value):
                 raise self.path("constraints", *parts).fail("no such limit in this scenario")
-            node[parts[-1]] = value
         return validate_scenario({**self.mapping, "constraints": constraints}, source=self.source)
 
     def with_risk_aversion(self, risk_aversion: float) -> RebalanceSpec:
@@ -88,6 +92,47 @@ class RebalanceSpec:
             raise self.path("objective", "risk_aversion").fail("only the utility objective takes a risk aversion")
         objective["risk_aversion"] = risk_aversion
         return validate_scenario({**self.mapping, "objective": objective}, source=self.source)
+
+
+#: Ends of an interval [lower, upper] by name.
+_ENDS = {"min": 0, "max": 1}
+
+
+def _position(node: list[Any], part: str) -> int | None:
+    """A list position from ``0``, ``1``, … or, for an interval, ``min``/``max``."""
+    if part.isdigit() and int(part) < len(node):
+        return int(part)
+    if part in _ENDS and len(node) == 2:
+        return _ENDS[part]
+    return None
+
+
+def _step(node: Any, part: str) -> Any:
+    """One level down a normalised constraints mapping (a one-element list is looked through)."""
+    if isinstance(node, list):
+        at = _position(node, part)
+        if at is not None:
+            return node[at]
+        if len(node) == 1 and isinstance(node[0], dict):
+            return node[0].get(part)
+        return None
+    return node.get(part) if isinstance(node, dict) else None
+
+
+def _assign(node: Any, part: str, value: Any) -> bool:
+    if isinstance(node, list):
+        at = _position(node, part)
+        if at is None:
+            if len(node) == 1 and isinstance(node[0], dict) and part in node[0]:
+                node[0][part] = value
+                return True
+            return False
+        node[at] = value
+        return True
+    if isinstance(node, dict) and part in node:
+        node[part] = value
+        return True
+    return False
 
 
 def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpec:

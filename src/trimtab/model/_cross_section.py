@@ -191,10 +191,10 @@ def _check_blocks(
     min_assets: int,
     n_free: int,
 ) -> dict[tuple[int, bytes], np.ndarray]:
-    """Rows of each block's regression; raises on too few assets, empty industries, constant styles."""
+    """Rows of each block's regression; raises on too few assets or constant styles (an industry with
+    no member on a date is left out of that date's regression, see :func:`_fit_block`)."""
     rows_of: dict[tuple[int, bytes], np.ndarray] = {}
     few: list[Any] = []
-    empty: dict[Any, list[Any]] = {}
     constant: dict[Any, list[Any]] = {}
     for key, ts in blocks.items():
         snap = snapshots[key[0]]
@@ -205,10 +205,6 @@ def _check_blocks(
         if len(rows) < min_assets:
             few.extend(on)
             continue
-        if industries:
-            counts = np.bincount(snap.codes[rows], minlength=len(industries))
-            for j in np.flatnonzero(counts == 0):
-                empty.setdefault(industries[j], []).extend(on)
         if (market or industries) and len(styles):
             spread = np.ptp(snap.styles[rows], axis=0)
             for k in np.flatnonzero(spread == 0):
@@ -218,12 +214,6 @@ def _check_blocks(
             f"{OWNER}: fewer assets with a return and exposures than min_assets={min_assets} "
             f"(the regression has {n_free} free factor returns) on dates: {list_labels([date_label(d) for d in sorted(few)])}"
         )
-    if empty:
-        name, where = next(iter(empty.items()))
-        raise InputError(
-            f"{OWNER}: industry {name!r} has no member with a return on dates: "
-            f"{list_labels([date_label(d) for d in sorted(where)])}; merge it into another industry or drop it"
-        )
     if constant:
         name, where = next(iter(constant.items()))
         raise InputError(
@@ -231,6 +221,32 @@ def _check_blocks(
             f"factors) on dates: {list_labels([date_label(d) for d in sorted(where)])}"
         )
     return rows_of
+
+
+def _fit_block(styles: np.ndarray, codes: np.ndarray, n_industries: int, weight: np.ndarray, Y: np.ndarray,
+               market: bool) -> tuple[_BlockFit, np.ndarray]:
+    """:func:`restricted_wls` on the industries with a member in this block; the others' factor
+    returns are not identified there (NaN, t NaN, weight 0). Returns the fit and the absent industries."""
+    if not n_industries:
+        return restricted_wls(styles, codes, 0, weight, Y, market), np.zeros(0, dtype=bool)
+    absent = np.bincount(codes, minlength=n_industries) == 0
+    if not absent.any():
+        return restricted_wls(styles, codes, n_industries, weight, Y, market), absent
+    present = np.flatnonzero(~absent)
+    renumber = np.full(n_industries, -1)
+    renumber[present] = np.arange(len(present))
+    fit = restricted_wls(styles, renumber[codes], len(present), weight, Y, market)
+    m = int(market)
+    keep = np.r_[np.arange(m), m + present, np.arange(m + n_industries, m + n_industries + styles.shape[1])]
+
+    def widen(values: np.ndarray) -> np.ndarray:
+        out = np.full((m + n_industries + styles.shape[1], values.shape[1]), np.nan)
+        out[keep] = values
+        return out
+
+    weights = np.zeros(n_industries)
+    weights[present] = fit.industry_weight
+    return _BlockFit(widen(fit.factor_returns), fit.residuals, widen(fit.t_stats), fit.r_squared, weights), absent
 
 
 def _dropped_assets(
@@ -304,15 +320,17 @@ def fit_cross_section(
     ------
     InputError
         For duplicate dates or assets, non-numeric or NaN exposures, asset ids that do not match
-        between exposures and returns, missing industry labels or weights, an industry with no member
-        on a date, a style column that is constant across assets, collinear exposures, or fewer
+        between exposures and returns, missing industry labels or weights, a style column that is
+        constant across assets, collinear exposures, or fewer
         assets than ``min_assets`` on a date.
 
     Warns
     -----
     DataWarning
         When assets are left out (no exposures, no returns, too few specific returns; all listed in
-        ``fit_report.dropped``) or dates are skipped (no returns, or no exposures known before them).
+        ``fit_report.dropped``), dates are skipped (no returns, or no exposures known before them), or
+        an industry has no member with a return on some dates: its factor is left out of those dates'
+        regressions and its factor return taken as 0 there (t-statistic NaN, weight 0).
 
     Notes
     -----
@@ -400,12 +418,13 @@ def fit_cross_section(
     c_all = np.full((n_dates, n_industries), np.nan)
     u_all = np.full(values.shape, np.nan)
     used = np.zeros(n_dates, dtype=bool)
+    unidentified: dict[str, list[Any]] = {}  # industry → dates on which it had no member with a return
     for key, ts in blocks.items():
         snap, rows = snapshots[key[0]], rows_of[key]
         cols = columns[key[0]][rows]
         codes = snap.codes[rows] if n_industries else snap.codes
         try:
-            fit = restricted_wls(snap.styles[rows], codes, n_industries, snap.weight[rows], values[np.ix_(ts, cols)].T, market)
+            fit, absent = _fit_block(snap.styles[rows], codes, n_industries, snap.weight[rows], values[np.ix_(ts, cols)].T, market)
         except np.linalg.LinAlgError:
             raise InputError(
                 f"{OWNER}: exposures are collinear on date {date_label(returns.index[ts[0]])}: some style "
@@ -418,6 +437,8 @@ def fit_cross_section(
             c_all[ts] = fit.industry_weight
         u_all[np.ix_(ts, cols)] = fit.residuals.T
         used[ts] = True
+        for j in np.flatnonzero(absent):
+            unidentified.setdefault(industry_names[j], []).extend(returns.index[ts])
 
     used_dates = returns.index[used]
     if used.sum() < 2:
@@ -426,6 +447,15 @@ def fit_cross_section(
         warnings.warn(
             f"{OWNER}: skipped {len(skipped)} dates with no returns or no exposures known before them: "
             f"{list_labels([date_label(d) for d in skipped])}",
+            DataWarning,
+            stacklevel=2,
+        )
+    for name, where in unidentified.items():
+        # not estimable there: its factor return is taken as 0 on those dates (F needs complete rows)
+        f_all[returns.index.isin(where), factors.index(name)] = 0.0
+        warnings.warn(
+            f"{OWNER}: industry {name!r} has no member with a return on {len(where)} dates; its factor is left out "
+            f"of those dates' regressions and its return taken as 0 there: {list_labels([date_label(d) for d in sorted(where)])}",
             DataWarning,
             stacklevel=2,
         )

@@ -213,7 +213,8 @@ def fit_statistical(
     The criteria, with V(k) = Σ e²/(N T) and C² = min(N, T):
     IC_p1 = ln V(k) + k (N+T)/(NT) ln(NT/(N+T)); IC_p2 = ln V(k) + k (N+T)/(NT) ln C²;
     IC_p3 = ln V(k) + k ln(C²)/C². k = argmin over 1 … max_factors (a DataWarning says so when
-    k = 0 would score lower).
+    k = 0 would score lower, and when k is max_factors itself, the top of the search range: the
+    criterion may still fall beyond it).
 
     References
     ----------
@@ -263,6 +264,14 @@ def fit_statistical(
         if scores[0] < scores[k]:
             warnings.warn(
                 f"{OWNER}: {criterion} is lowest with no factor at all; using k = {k}, the best k >= 1",
+                DataWarning,
+                stacklevel=2,
+            )
+        if k == k_max and k_max < limit:
+            # the criterion was still falling at the edge of its range: the choice is the range's, not the data's
+            warnings.warn(
+                f"{OWNER}: {criterion} picked k = {k}, the top of its search range (max_factors = {k_max}); "
+                f"the criterion may fall further: raise max_factors (up to {limit}) or set n_factors",
                 DataWarning,
                 stacklevel=2,
             )

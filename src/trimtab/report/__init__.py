@@ -17,7 +17,7 @@ from trimtab.report._files import (
 )
 from trimtab.report._schema import COMPARISON_SCHEMA, JSON_SCHEMA
 from trimtab.report._html import render_html, write_html
-from trimtab.report._relaxation import Unsolved, display_relaxation, format_in_unit, relaxation_sentence
+from trimtab.report._relaxation import Unsolved, conflict_sentence, display_relaxation, format_in_unit, relaxation_sentence
 from trimtab.report._terminal import print_attribution, print_comparison, print_rebalance, print_relaxation
 
 __all__ = [
@@ -30,6 +30,7 @@ __all__ = [
     "ReportContent",
     "RiskBudget",
     "comparison_table",
+    "conflict_sentence",
     "display_relaxation",
     "format_in_unit",
     "gather",

@@ -262,6 +262,7 @@ def _unsolved_document(failure: Unsolved) -> dict[str, Any]:
         "cautions": [CAUTION],
         "run": {"status": failure.status, "message": failure.message},
         "risk_budget": None,
+        "conflict": list(failure.conflict),
         "relaxation": _records(failure.relaxation, None),
         "headline": [],
         "attribution": {"pre_trade": None, "post_trade": None},

@@ -22,6 +22,7 @@ from trimtab.report._relaxation import (
     Unsolved,
     display_relaxation,
     is_unsolved,
+    conflict_sentence,
     relaxation_sentence,
     split_subjects,
     unsolved,
@@ -287,10 +288,11 @@ def _unsolved_body(failure: Unsolved) -> str:
     """Status, message and (for an infeasible scenario) the relaxation table in each limit's unit."""
     parts = [f'<p class="meta">Status <span class="status bad">{_e(failure.status)}</span></p>']
     if failure.status == "infeasible":
+        parts.append(f'<p class="relaxation"><strong>{_e(conflict_sentence(failure))}</strong></p>')
         parts.append(f'<p class="relaxation">{_e(relaxation_sentence(failure.relaxation))}</p>')
         if not failure.relaxation.empty:
             shown = display_relaxation(failure.relaxation)
-            text_columns = {"constraint", "kind", "side", "unit"}
+            text_columns = {"option", "constraint", "kind", "side", "unit"}
             head = "".join(f'<th class="{"" if c in text_columns else "num"}">{_e(_header(c, _RELAXATION_HEADERS))}</th>'
                            for c in shown.columns)
             body = "".join(
@@ -302,14 +304,14 @@ def _unsolved_body(failure: Unsolved) -> str:
             )
             parts.append(
                 '<div class="wide"><table class="relaxation"><caption>How far each conflicting limit must move '
-                "for the others to hold (one minimal way; the CSV and JSON files keep the raw numbers).</caption>"
+                "(each numbered option alone, every other limit as written; the CSV and JSON files keep the raw numbers).</caption>"
                 f"<thead><tr>{head}</tr></thead><tbody>{body}</tbody></table></div>"
             )
     parts.append(f'<p class="note">{_e(failure.message)}</p>')
     return "".join(f"<section>{p}</section>" for p in parts)
 
 
-_RELAXATION_HEADERS = {"needed": "value needed", "relax_by": "move by", "scale": "unit of concern"}
+_RELAXATION_HEADERS = {"needed": "value needed", "relax_by": "move by"}
 
 
 def _nav(items: Sequence[tuple[str, str]], *, comparison: bool) -> str:

@@ -1,10 +1,12 @@
 """Scenarios that did not solve: their status, and the relaxation table read in each limit's unit.
 
-An :class:`~trimtab.errors.InfeasibleError` carries a relaxation table (one row per conflicting limit:
-constraint, kind, side, limit, needed, relax_by, scale, unit, with numbers in the solver's raw units,
-e.g. weights as fractions of NAV); a :class:`~trimtab.errors.SolverError` carries only its message.
-The writers show the table formatted by unit (weights as % of NAV, annualised volatility as %) and
-keep the raw numbers in CSV and JSON.
+An :class:`~trimtab.errors.InfeasibleError` carries the conflict set (the key paths of the limits that
+cannot all hold together), shown first, and a relaxation table: one row per limit to move, grouped in
+numbered options that each restore feasibility alone (``together`` when only a joint move does):
+option, constraint (key path), kind, side, limit, needed, relax_by, unit, numbers in the scenario's
+own units (fractions of NAV, annualised volatility, fraction of ADV). A
+:class:`~trimtab.errors.SolverError` carries only its message. The writers show the table formatted
+by unit (weights as % of NAV, annualised volatility as %) and keep the raw numbers in CSV and JSON.
 """
 
 from __future__ import annotations
@@ -16,12 +18,13 @@ from typing import Any
 
 import pandas as pd
 
+from trimtab._format import compact_limits
 from trimtab.errors import InfeasibleError, SolverError
 
 #: Columns of a relaxation table, in display order.
-RELAXATION_COLUMNS = ("constraint", "kind", "side", "limit", "needed", "relax_by", "scale", "unit")
+RELAXATION_COLUMNS = ("option", "constraint", "side", "limit", "needed", "relax_by", "unit")
 #: Numeric columns of a relaxation table, all in the row's unit.
-RELAXATION_NUMBERS = ("limit", "needed", "relax_by", "scale")
+RELAXATION_NUMBERS = ("limit", "needed", "relax_by")
 #: Conflicting limits named one by one in the sentence above the table; the rest are counted.
 MAX_NAMED = 5
 
@@ -33,6 +36,8 @@ class Unsolved:
     status: str
     message: str
     relaxation: pd.DataFrame
+    #: the conflict set: key paths of the limits that cannot all hold together
+    conflict: tuple[str, ...] = ()
 
 
 def is_unsolved(value: Any) -> bool:
@@ -51,7 +56,16 @@ def unsolved(error: InfeasibleError | SolverError) -> Unsolved:
     head, sep, rest = text.partition(": ")
     if sep and head.endswith((".yaml", ".yml")):
         text = rest
-    return Unsolved(status=status, message=text, relaxation=table.reset_index(drop=True))
+    conflict = tuple(getattr(error, "conflict", None) or ())
+    return Unsolved(status=status, message=text, relaxation=table.reset_index(drop=True), conflict=conflict)
+
+
+def conflict_sentence(failure: Unsolved | InfeasibleError) -> str:
+    """``These limits cannot all hold: A, B.`` (the first line shown for an infeasible scenario)."""
+    conflict = failure.conflict if isinstance(failure, Unsolved) else tuple(getattr(failure, "conflict", None) or ())
+    if not conflict:
+        return "The optimizer found no set of conflicting limits for this infeasible scenario."
+    return f"These limits cannot all hold: {compact_limits(conflict)}."
 
 
 def split_subjects(subjects: Mapping[str, Any]) -> tuple[dict[str, Any], dict[str, Unsolved]]:
@@ -81,7 +95,7 @@ def format_in_unit(value: Any, unit: Any) -> str:
     if not math.isfinite(number):
         return "n/a"
     kind = str(unit).lower()
-    if kind.startswith("weight") or kind in ("share of risk", "annualised volatility", "volatility", "fraction"):
+    if kind.startswith("weight") or kind in ("share of risk", "annualised volatility", "volatility", "fraction", "fraction of adv"):
         text = f"{100.0 * number:.3f}%"
     elif kind in ("names", "lots", "count"):
         text = f"{number:,.0f}"
@@ -102,6 +116,8 @@ def unit_label(unit: Any) -> str:
         return "% a year (volatility)"
     if kind == "share of risk":
         return "% of risk"
+    if kind == "fraction of adv":
+        return "% of daily volume"
     return str(unit)
 
 
@@ -121,20 +137,33 @@ def display_relaxation(table: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
+_VERBS = {"upper": "raise", "max": "raise", "lower": "lower"}
+
+
+def _option_text(rows: pd.DataFrame) -> str:
+    """``raise constraints.turnover.max from 2.000% to 41.252%`` (per-asset options: the first few assets)."""
+    first = rows.iloc[0]
+    verb = _VERBS.get(str(first["side"]), "move")
+    unit = first.get("unit", "")
+    if len(rows) == 1:
+        return f"{verb} {first['constraint']} from {format_in_unit(first['limit'], unit)} to {format_in_unit(first['needed'], unit)}"
+    shown = [f"{r['constraint']} {format_in_unit(r['limit'], r.get('unit', ''))} → {format_in_unit(r['needed'], r.get('unit', ''))}"
+             for _, r in rows.head(3).iterrows()]
+    more = f" and {len(rows) - 3} more" if len(rows) > 3 else ""
+    return f"move {len(rows)} limits ({'; '.join(shown)}{more})"
+
+
 def relaxation_sentence(table: pd.DataFrame) -> str:
-    """One sentence: which limits conflict and how far each must move for the others to hold."""
+    """One sentence: the options that restore feasibility and how far each limit must move."""
     if table.empty or not {"constraint", "side", "limit", "needed"} <= set(table.columns):
         return "The optimizer gave no relaxation table for this infeasible scenario."
-    parts = []
-    for _, row in table.head(MAX_NAMED).iterrows():
-        unit = row.get("unit", "")
-        direction = "rise" if str(row["side"]) == "upper" else "fall"
-        gap = row.get("relax_by", abs(float(row["needed"]) - float(row["limit"])))
-        parts.append(
-            f"the {row['side']} limit of {row['constraint']} must {direction} from {format_in_unit(row['limit'], unit)} "
-            f"to {format_in_unit(row['needed'], unit)} (by {format_in_unit(gap, unit)})"
-        )
-    more = f"; and {len(table) - MAX_NAMED} more limits in the table" if len(table) > MAX_NAMED else ""
-    names = ", ".join(str(c) for c in table["constraint"].head(MAX_NAMED))
-    count = "This limit conflicts with the others" if len(table) == 1 else f"These {len(table)} limits conflict"
-    return f"{count} ({names}{', …' if len(table) > MAX_NAMED else ''}): for the others to hold as they are, " + "; ".join(parts) + more + "."
+    if "option" not in table.columns:
+        table = table.assign(option="together")
+    options = list(dict.fromkeys(table["option"].astype(str)))
+    texts = [_option_text(table[table["option"].astype(str) == o]) for o in options[:MAX_NAMED]]
+    more = f"; or one of {len(options) - MAX_NAMED} more options in the table" if len(options) > MAX_NAMED else ""
+    if options == ["together"]:
+        return f"No single limit is enough; together: {texts[0]}."
+    if len(options) == 1:
+        return f"The smallest way out, every other limit as written: {texts[0]}."
+    return "Any one of these alone restores feasibility, every other limit as written: " + "; or ".join(texts) + more + "."

@@ -83,8 +83,9 @@ JSON_SCHEMA: dict[str, Any] = {
             },
         },
         "relaxation": _rows(
-            "constraint", "kind", "side", "limit", "needed", "relax_by", "scale", "unit", nullable=True
+            "option", "constraint", "kind", "side", "limit", "needed", "relax_by", "unit", nullable=True
         ),
+        "conflict": {"type": "array", "items": {"type": "string"}},
         "headline": _rows("figure", "label", "unit", "post"),
         "attribution": {
             "type": "object",

@@ -12,7 +12,7 @@ from rich.table import Table
 from trimtab.attribution import compare_many, format_figure
 from trimtab.report._stress import print_stress
 from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled, no_bound
-from trimtab.report._relaxation import Unsolved, display_relaxation, relaxation_sentence, split_subjects, unsolved
+from trimtab.report._relaxation import Unsolved, conflict_sentence, display_relaxation, relaxation_sentence, split_subjects, unsolved
 
 
 def print_attribution(attr: Any, console: Console | None = None, *, top: int = 10) -> None:
@@ -158,13 +158,14 @@ def print_relaxation(error: Any, console: Console | None = None, *, name: str | 
     failure = error if isinstance(error, Unsolved) else unsolved(error)
     out = console or Console()
     title = f"Infeasible{f' ({name})' if name else ''}: how far each conflicting limit must move"
+    out.print(f"{f'{name}: ' if name else ''}{conflict_sentence(failure)}", markup=False, highlight=False)
     frame = failure.relaxation
     if frame.empty:
         out.print(f"[bold]{title}[/bold]: the optimizer gave no relaxation table")
         return
     shown = display_relaxation(frame)
     table = Table(title=title, title_justify="left", header_style="bold")
-    headers = {"needed": "needed", "relax_by": "move by", "scale": "scale"}
+    headers = {"needed": "needed", "relax_by": "move by"}
     for column in shown.columns:
         table.add_column(headers.get(column, column), justify="left" if column in ("constraint", "kind", "side", "unit") else "right")
     for _, row in shown.head(max_rows).iterrows():

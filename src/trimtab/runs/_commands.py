@@ -376,7 +376,8 @@ def backtest_command(
         schedule = schedule[:max_dates]
     if not schedule:
         raise InputError(f"--start {start}: no rebalance date left (the returns end {returns.index[-1].date()})")
-    mappings = {i.scenario.name: i.scenario.rebalance_mapping() for i in inputs}
+    mappings = {i.scenario.name: {**i.scenario.rebalance_mapping(),
+                                  "backtest": {"when_infeasible": i.scenario.spec.backtest.when_infeasible}} for i in inputs}
     with _executor(executor, workers, scheduler) as runner, progress_bar(len(mappings), "backtest", quiet) as tick:
         result = backtest(
             returns, alpha, mappings, window=window, rebalance_dates=schedule, factor_returns=factors,

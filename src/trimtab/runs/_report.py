@@ -306,8 +306,13 @@ def write_backtest(result: Any, target: str | Path, *, inputs: Sequence[str | Pa
             "bias": result.bias, "totals": result.totals,
         })
         failures = "".join(f"<li>{html.escape(k)}: {html.escape(v)}</li>" for k, v in result.failures.items())
+        history = result.history
+        unsolved = history.loc[history["status"] != "solved", [c for c in ("status", "relaxed", "reason") if c in history.columns]] \
+            if "status" in history.columns else history.iloc[:0]
         sections = [
             ("Summary", f"<pre>{html.escape(result.summary())}</pre>" + (f"<p>Failed:</p><ul>{failures}</ul>" if failures else "")),
+            ("Dates that did not solve as written",
+             html_table(unsolved) if len(unsolved) else "<p>Every date solved with its limits as written.</p>"),
             ("Realised against forecast risk", html_table(result.bias)
              + '<p class="note">Bias statistic b = std(rₜ/σₜ) over the holding periods; inside 1 ± √(2/T) the forecasts held.</p>'),
             ("Totals", html_table(result.totals, percent_columns=_PERCENT)),

@@ -92,6 +92,8 @@ def _set(node: Any, part: str, value: Any, key: str) -> None:
 
 
 def _list_index(node: list, part: str, key: str) -> int:
+    if part in ("min", "max") and len(node) == 2:  # the ends of an interval [lower, upper]
+        return 0 if part == "min" else 1
     if not part.isdigit() or int(part) >= len(node):
         raise InputError(f"sweep: parameter {key}: {part!r} is not a position in a list of {len(node)}")
     return int(part)

@@ -70,11 +70,13 @@ def build(inputs: ScenarioInputs) -> Any:
     """
     build_problem = require("trimtab.construct", "build_problem")
     try:
-        return build_problem(
+        problem = build_problem(
             inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path), **inputs.rebalance_kwargs()
         )
     except InputError as err:
         raise type(err)(_file_named(str(err), inputs)) from None
+    problem.changed = variant_limits(inputs.scenario)
+    return problem
 
 
 def _file_named(message: str, inputs: ScenarioInputs) -> str:
@@ -85,6 +87,20 @@ def _file_named(message: str, inputs: ScenarioInputs) -> str:
         if spec is not None and message.startswith(f"{name}: "):
             return f"{spec.path}: {message}"
     return message
+
+
+def variant_limits(scenario: Scenario) -> tuple[str, ...]:
+    """The constraint keys a scenario that extends another sets in its own file (named first in a conflict)."""
+    if len(scenario.chain) < 2:
+        return ()
+    from trimtab.scenario._yaml import load_merged
+
+    _, _, origins = load_merged(scenario.path)
+    own = Path(scenario.chain[0]).resolve()
+    return tuple(dict.fromkeys(
+        key[1] for key, origin in origins.items()
+        if len(key) > 1 and key[0] == "constraints" and Path(origin).resolve() == own
+    ))
 
 
 def solve(inputs: ScenarioInputs) -> ScenarioRun:

@@ -147,6 +147,14 @@ class OutputSection(_Strict):
     _dir_text = field_validator("dir")(_no_control)
 
 
+class BacktestSection(_Strict):
+    """How a walk-forward backtest treats a date on which the scenario does not solve as written."""
+
+    when_infeasible: Literal["relax", "hold", "stop"] = Field(
+        "relax", description="relax: trade at the minimally relaxed limits; hold: keep the drifted book; stop: end the path"
+    )
+
+
 class ScenarioSpec(_Strict):
     """A whole scenario file after ``extends`` has been merged."""
 
@@ -163,6 +171,7 @@ class ScenarioSpec(_Strict):
         None, description="{length: periods, count: k}: the k worst windows of the model's history, before and after the trade"
     )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
+    backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]
 
     @field_validator("name", "description", mode="before")
     @classmethod

@@ -5,8 +5,8 @@ A constraint turns its scenario options into one or more :class:`Rows`. Each Row
 - ``expression(variables)``: the value as a cvxpy expression in factor form, times ``factor`` (the
   solver's units, e.g. per-period volatility for an annualised risk cap);
 - ``evaluate(w)``: the same value with plain numpy, used by the verification;
-- the limits, the unit and the scale (the size of one "unit of concern", used to weight the elastic
-  slack when the problem is infeasible).
+- the limits, the unit and the scale (the size of one "unit of concern"; the infeasibility diagnosis
+  measures a move against the limit itself, :mod:`trimtab.construct._elastic`).
 
 Rows whose value is the weight itself minus a constant (``offset``) are *box rows*: the builder merges
 all hard box rows into one pair of bounds on w, so N-long limits cost the solver one row per asset.

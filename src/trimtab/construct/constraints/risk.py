@@ -15,7 +15,7 @@ import numpy as np
 from trimtab.construct._variables import Variables, variance_numpy
 from trimtab.construct.constraints._base import Constraint, Risk, Rows, scalar
 
-#: The elastic re-solve measures a risk cap's slack relative to the cap, but at least this (1%).
+#: A risk cap's unit of concern (Rows.scale) is the cap, but at least this (1%).
 MIN_RISK_SCALE = 0.01
 
 
