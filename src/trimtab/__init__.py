@@ -21,8 +21,9 @@ from trimtab.errors import (
     TrimtabError,
 )
 
-# name -> module that defines it; resolved lazily by __getattr__ (so the command line can install its
-# signal handlers before numpy and pandas are imported)
+# name -> module that defines it; resolved lazily by __getattr__ (``trimtab --help`` imports this
+# package: it must not pull in pandas, scipy or cvxpy, and the command line installs its signal
+# handlers before they are imported)
 _LAZY = {
     "FactorModel": "trimtab.model",
     "FitReport": "trimtab.model",

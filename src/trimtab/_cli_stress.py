@@ -9,12 +9,14 @@ from __future__ import annotations
 
 from pathlib import Path
 from types import SimpleNamespace
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated, Any
 
-import pandas as pd
 import typer
 
 from trimtab.errors import InputError
+
+if TYPE_CHECKING:  # pandas is imported inside the commands: registering them keeps `trimtab --help` light
+    import pandas as pd
 
 ModelOpt = Annotated[Path, typer.Option("--model", "-m", help="A model folder written by `trimtab fit`.", show_default=False)]
 HoldingsOpt = Annotated[Path, typer.Option("--holdings", help="Holdings file: asset, weight (or asset, shares with prices).", show_default=False)]
@@ -138,6 +140,8 @@ def replay_command(
     the worst non-overlapping windows for the book (and, with --benchmark, for the active book).
     Without --length or --window the worst month (a twelfth of a year of periods) is searched.
     """
+    import pandas as pd
+
     from trimtab import FactorModel
     from trimtab._stress_pages import write_replay
     from trimtab.stresstest import factor_history, replay
@@ -165,6 +169,8 @@ def replay_command(
 # ---------------------------------------------------------------------- attribute-returns
 def _backtest_tables(folder: Path) -> SimpleNamespace:
     """history, exposures and risk_contributions of a ``trimtab backtest`` output folder."""
+    import pandas as pd
+
     tables = {}
     for name in ("history", "exposures", "risk_contributions"):
         path = folder / f"{name}.csv"
@@ -186,6 +192,8 @@ def _dated_file(path: Path, what: str) -> pd.DataFrame:
 
 
 def _span(frame: pd.DataFrame, start: str | None, end: str | None) -> pd.DataFrame:
+    import pandas as pd
+
     try:
         begin = pd.Timestamp(start) if start else None
         finish = pd.Timestamp(end) if end else None

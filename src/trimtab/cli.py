@@ -19,21 +19,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Annotated, Any, TypeVar
 
-import numpy as np
-import pandas as pd
-import typer
-from rich.console import Console
-from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
-from rich.table import Table
+from typing import TYPE_CHECKING
 
-from trimtab._format import format_percent as _pct
-from trimtab._format import frame_table as _frame_table
+import typer
 
 from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_INTERNAL, EXIT_SOLVER, guarded  # noqa: F401 - re-exported
 from trimtab._cli_guard import fail as _fail
 from trimtab._version import __version__
 from trimtab.errors import InfeasibleError, InputError, SolverError
-from trimtab.scenario._jsonable import jsonable
+
+if TYPE_CHECKING:  # imported where used: `trimtab --help` loads neither pandas nor the optimizer
+    from rich.console import Console
+    from rich.table import Table
 
 
 app = typer.Typer(
@@ -63,10 +60,14 @@ class Ui:
 
     @functools.cached_property
     def out(self) -> Console:
+        from rich.console import Console
+
         return Console(file=sys.stdout, width=_width(), highlight=False, soft_wrap=False)
 
     @functools.cached_property
     def err(self) -> Console:
+        from rich.console import Console
+
         return Console(file=sys.stderr, width=_width(), highlight=False)
 
     @property
@@ -89,11 +90,15 @@ class Ui:
 
     def emit(self, document: Any) -> None:
         if self.json:
+            from trimtab.scenario._jsonable import jsonable
+
             sys.stdout.write(json.dumps(jsonable(document), indent=2) + "\n")
 
     @contextmanager
     def progress(self, total: int | None = None) -> Iterator[Callable[[str], None]]:
         """A rich spinner (or bar, with ``total``) on stderr; yields ``step(label)``."""
+        from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+
         bar = Progress(
             SpinnerColumn(),
             TextColumn("{task.description}"),
@@ -160,6 +165,7 @@ def _print_relaxation(ui: Ui, name: str | None, err: InfeasibleError) -> None:
 
 
 def _relaxation_rows(err: InfeasibleError) -> list[dict[str, Any]]:
+    from trimtab.scenario._jsonable import jsonable
     from trimtab.scenario._run import relaxation_frame
 
     return jsonable(relaxation_frame(err))  # type: ignore[no-any-return]
@@ -196,6 +202,8 @@ def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
     from trimtab.scenario import load_inputs, load_scenario
     from trimtab.scenario._run import build, describe
 
+    from trimtab._format import frame_table as _frame_table
+
     ui = _ui(ctx)
     with ui.progress() as step:
         step("reading the scenario")
@@ -216,7 +224,10 @@ def check(ctx: typer.Context, scenario: ScenarioArg) -> None:
     ui.table(_frame_table(sizes.astype(int), "Inputs aligned to the model's assets"))
     if not inputs.alignment.table.empty:
         ui.say(inputs.alignment.summary(changes_only=True))
-    ui.say(f"Objective: {dict(loaded.spec.objective)}")
+    ui.say("Objective: " + "; ".join(
+        f"{k}: " + (", ".join(f"{a}={b}" for a, b in v.items()) if isinstance(v, dict) else str(v))
+        for k, v in loaded.spec.objective.items()
+    ))
     ui.say(f"Constraints: {', '.join(loaded.spec.constraints) or 'none'}")
     ui.say(f"Outputs would go to {loaded.output_dir}")
     ui.say("[green]OK[/green]: the scenario and its files are valid.")
@@ -323,6 +334,9 @@ def risk(
             report.print_attribution(attribution, console=ui.out, top=top)
         else:
             ui.out.print(attribution.summary(top=top).as_text())
+        from trimtab.report._desk import holdings_line
+
+        ui.say(holdings_line(kind, book.nav, book.cash, nav is not None))
         if out is not None:
             ui.say(f"Wrote the tables, result.json and report.html to {out}")
 
@@ -369,10 +383,18 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
     with ui.progress() as step:
         step("writing the outputs")
         written = write_rebalance(run, out)
+    _print_warnings(ui, run.result)
     ui.emit({"scenario": loaded.name, "status": "solved", "output": str(written.folder), "files": written.files, **_result_document(run.result)})
     if ui.chatty:
         _print_result(ui, run.result)
         ui.say(f"Wrote {len(written.files)} files to {written.folder}")
+
+
+def _print_warnings(ui: Ui, subject: Any) -> None:
+    """Warnings on stderr, one line each (also with --json; not with --quiet): one result's, or a
+    comparison's (scenario name → result) with a shared warning printed once."""
+    if not ui.quiet and subject is not None:
+        _report_module().print_warnings(subject, console=ui.err)
 
 
 def _result_document(result: Any) -> dict[str, Any]:
@@ -419,6 +441,7 @@ def compare(
         step("writing the comparison")
         target = out if out is not None else loaded[0].path.resolve().parent / "results" / "compare"
         written = write_comparison(runs, target)
+    _print_warnings(ui, {r.name: r.result for r in runs if r.result is not None})
     table = comparison_table(runs)
     ui.emit({"scenarios": names, "status": {r.name: r.status for r in runs}, "comparison": table, "output": str(written.folder)})
     if ui.chatty:
@@ -461,6 +484,9 @@ def demo(
     Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them and
     writes the HTML reports; prints the headline table and where the files went.
     """
+    from rich.table import Table
+
+    from trimtab._format import format_percent as _pct
     from trimtab.scenario._demo_run import headline_rows, run_demo
 
     ui = _ui(ctx)
@@ -469,6 +495,7 @@ def demo(
         done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
     fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
+    _print_warnings(ui, {r.name: r.result for r in runs if r.result is not None})
     rows = headline_rows(done)
     ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
     if not ui.chatty:

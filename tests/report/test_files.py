@@ -27,8 +27,14 @@ def test_tables_round_trip_through_csv_and_parquet(result: StandInResult, tmp_pa
     # Read back with pyarrow (parquet) and pandas' CSV reader.
     by_asset = pd.read_parquet(tmp_path / "out" / "post_trade_by_asset.parquet")
     pd.testing.assert_frame_equal(by_asset, result.post_trade.by_asset)
+    book = pd.read_csv(tmp_path / "out" / "target_book.csv", index_col="asset")
+    np.testing.assert_allclose(book["trade"], result.trades["trade"], rtol=1e-12)
+    # trades.csv: only the names that trade, largest first (issue #13)
     trades = pd.read_csv(tmp_path / "out" / "trades.csv", index_col="asset")
-    np.testing.assert_allclose(trades["trade"], result.trades["trade"], rtol=1e-12)
+    moved = result.trades[result.trades["trade"].abs() > 1e-8]
+    assert set(trades.index) == set(moved.index)
+    assert (trades["weight_change"].abs().diff().dropna() <= 0).all()
+    assert (trades["side"] == np.where(trades["weight_change"] > 0, "buy", "sell")).all()
     assert not [p for p in (tmp_path / "out").iterdir() if p.name.endswith(".tmp")]
     assert oct((tmp_path / "out" / "trades.csv").stat().st_mode & 0o777) != oct(0o600)
 
@@ -80,7 +86,8 @@ def test_json_document_matches_its_schema(result: StandInResult, report_model: F
     post = document["attribution"]["post_trade"]
     assert sum(row["contribution"] for row in post["by_asset"]) == pytest.approx(result.post_trade.risk, abs=1e-12)
     assert post["figures"]["risk"] == result.post_trade.risk
-    assert len(document["trades"]) == len(result.trades)
+    assert len(document["target_book"]) == len(result.trades)
+    assert len(document["trades"]) == int((result.trades["trade"].abs() > 1e-8).sum())
     by_sector = post["by_attribute"]["sector"]
     assert sum(row["contribution"] for row in by_sector) == pytest.approx(result.post_trade.risk, abs=1e-12)
 

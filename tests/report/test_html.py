@@ -37,9 +37,9 @@ def test_report_parses_and_has_its_parts(result: StandInResult, tmp_path: Path) 
     assert len(charts) == 7
     assert text.count(CAUTION.replace("'", "&#x27;")) == 2
     headings = [h.text for h in tree.iter("h2")]
-    for expected in ("Headline figures", "Risk budget", "Factor and specific risk", "Active factor exposures",
+    for expected in ("Warnings", "Risk figures", "Trade list", "Risk budget", "Factor and specific risk", "Active factor exposures",
                      "Risk contribution by factor group", "Risk contribution by country",
-                     "Risk contribution by sector", "Largest risk contributions by position", "Trades",
+                     "Risk contribution by sector", "Largest risk contributions by position", "Trade summary",
                      "Constraints", "Objective", "Provenance"):
         assert expected in headings
     assert format_figure(result.post_trade.risk, "fraction") in text

@@ -113,9 +113,9 @@ def test_html_comparison_shows_the_infeasible_part(result: StandInResult, report
     assert [h.text for h in tree.iter("h2")][:4] == ["Scenarios side by side", "Scenario: base", "Scenario: tight", "Scenario: other"]
     comparison = tree.find(".//section[@id='comparison']")
     head = [th.text for th in comparison.iter("th")]
-    assert head == ["Figure", "base", "tight", "other"]
+    assert head == ["Figure", "base", "tight", "other", "other − base"]  # no change column for an unsolved one
     status = ["".join(td.itertext()) for td in comparison.find(".//tbody/tr").iter("td")]
-    assert status == ["Status", "solved", "infeasible", "solved"]
+    assert status == ["Status", "solved", "infeasible", "solved", ""]
     part = tree.find(".//article[@id='scenario-1']")
     words = " ".join("".join(part.itertext()).split())
     assert "These limits cannot all hold: constraints.tracking_error.max, constraints.turnover.max." in words
@@ -145,7 +145,7 @@ def test_json_and_tables_of_an_unsolved_scenario(tmp_path: Path) -> None:
 def test_solved_document_has_no_relaxation(result: StandInResult) -> None:
     document = report_document(result)
     jsonschema.validate(document, JSON_SCHEMA)
-    assert document["relaxation"] is None and document["schema_version"] == "1.1"
+    assert document["relaxation"] is None and document["schema_version"] == "1.2"
 
 
 def test_empty_comparison_is_refused() -> None:
@@ -166,12 +166,13 @@ def test_comparison_json_and_table_keep_every_scenario(result: StandInResult, tm
     assert risk["base"] == pytest.approx(result.post_trade.risk) and risk["tight"] is None and risk["broken"] is None
     assert document["scenarios"]["tight"]["relaxation"][0]["constraint"] == "constraints.turnover.max"
     table = comparison_table(subjects)
-    assert list(table.columns) == ["base", "tight", "broken"] and table.index[0] == "status"
+    assert list(table.columns) == ["label", "unit", "base", "tight", "broken"]  # no change columns for unsolved ones
+    assert table.index[0] == "status"
     assert list(report_tables(subjects)) == ["comparison"]
     written = write_tables(subjects, tmp_path / "tables")
     assert sorted(p.name for p in written) == ["comparison.csv", "comparison.parquet"]
     back = pd.read_csv(tmp_path / "tables" / "comparison.csv", index_col=0)
-    assert back.loc["status"].tolist() == ["solved", "infeasible", "solver failure"]
+    assert back.loc["status", ["base", "tight", "broken"]].tolist() == ["solved", "infeasible", "solver failure"]
     with pytest.raises(InputError, match=r"report: expected a non-empty mapping scenario name"):
         comparison_table({})
     with pytest.raises(InputError, match=r"report: scenario 'odd': expected a RiskAttribution or a result"):

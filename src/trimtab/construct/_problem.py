@@ -39,6 +39,8 @@ class Outcome:
     rows: list[Rows]
     solver_objective: float
     notes: list[str] = field(default_factory=list)
+    #: Solvers passed over because the problem is outside their class, with the reason.
+    skipped: list[str] = field(default_factory=list)
 
 
 class RebalanceProblem:
@@ -233,7 +235,7 @@ class RebalanceProblem:
                     continue
                 weights, table = accepted
                 return Outcome(weights, "optimal", solver, sol.iterations, sol.seconds, answer.build_seconds,
-                               attempts, table, answer.duals, rows, answer.solver_objective, notes(name))
+                               attempts, table, answer.duals, rows, answer.solver_objective, notes(name), skipped)
             if built is None:
                 start = time.perf_counter()
                 built = self.build(extra)
@@ -264,7 +266,7 @@ class RebalanceProblem:
                 continue
             weights, table = accepted
             return Outcome(weights, attempt.status, solver, attempt.iterations, attempt.seconds, build_time,
-                           attempts, table, assembly.duals(), rows, solver_objective, notes(name))
+                           attempts, table, assembly.duals(), rows, solver_objective, notes(name), skipped)
         # a solver that fails near infeasibility gets the same diagnosis as an infeasible status
         _elastic.diagnose(self, extra, attempts)
         raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(skipped + rejected))

@@ -11,9 +11,20 @@ import numpy as np
 import pandas as pd
 
 from trimtab._version import __version__
+from trimtab.construct._figures import desk_figures
 from trimtab.construct._solve import SOLVER_SETTINGS
+from trimtab.construct._trade_list import TradeList, build_trade_list, weight_orders
+from trimtab.construct._warnings import (
+    AlertSettings,
+    RunWarning,
+    concentration_warnings,
+    heuristic_warnings,
+    pinned_positions,
+    solver_warnings,
+)
 from trimtab.construct._verify import OBJECTIVE_TOL
 from trimtab.construct.constraints._base import ABS_TOL, REL_TOL
+from trimtab.errors import SolverError
 
 if TYPE_CHECKING:
     from trimtab.attribution import RiskAttribution
@@ -59,6 +70,17 @@ class RebalanceResult:
         scenario_hash, version, solver, tolerances, attempts, notes.
     scenario : Mapping
         The validated, normalised scenario.
+    trade_list : TradeList or None
+        The order-ready list (whole shares or lots, re-verified), when the fund's NAV and prices
+        are known; :attr:`final_weights` are then the rounded book.
+    alpha : pandas.Series or None
+        The alpha the run used (annualised, model assets; assets without a score hold 0).
+    notices : tuple of RunWarning
+        Warnings of the run and its inputs (see :attr:`warnings`, which adds the concentration alerts).
+    alerts : AlertSettings
+        Thresholds of the concentration alerts.
+    pinned : pandas.Series or None
+        Assets at an upper weight limit (asset → limit name) in the final book.
     """
 
     weights: pd.Series
@@ -77,6 +99,14 @@ class RebalanceResult:
     scenario: Mapping[str, Any] = field(default_factory=dict)
     periods_per_year: float = 252.0
     ex_ante: Mapping[str, float] = field(default_factory=dict)
+    trade_list: TradeList | None = None
+    alpha: pd.Series | None = None
+    notices: tuple[RunWarning, ...] = ()
+    alerts: AlertSettings = field(default_factory=AlertSettings)
+    pinned: pd.Series | None = None
+    nav: float | None = None
+    cost_per_asset: pd.Series | None = None
+    context: Mapping[str, Any] = field(default_factory=dict)
     # the inputs of the lazy pre/post attribution (the model's own factor groups apply)
     _model: FactorModel | None = field(default=None, repr=False, compare=False)
     _holdings: pd.Series | None = field(default=None, repr=False, compare=False)
@@ -89,8 +119,76 @@ class RebalanceResult:
 
     @cached_property
     def post_trade(self) -> RiskAttribution | None:
-        """Risk attribution of the target weights, active when there is a benchmark."""
-        return self._attribution(self.weights)
+        """Risk attribution of the final book (the rounded one when there is a trade list), active
+        when there is a benchmark."""
+        return self._attribution(self.final_weights)
+
+    @property
+    def final_weights(self) -> pd.Series:
+        """The book after the trades as they would be sent: rounded when there is a trade list."""
+        return self.trade_list.weights if self.trade_list is not None else self.weights
+
+    @property
+    def orders(self) -> pd.DataFrame:
+        """Only the assets that trade, largest first: the trade list in shares when prices and NAV
+        are known (:class:`TradeList`), else in weights (fractions of NAV)."""
+        if self.trade_list is not None:
+            return self.trade_list.orders
+        return weight_orders(self.trades)
+
+    @cached_property
+    def figures(self) -> dict[str, float]:
+        """Expected active return, information ratio, tracking error, total risk, beta, turnover,
+        estimated cost and names bought and sold of the final book (:data:`DESK_FIGURES`)."""
+        return self._figures(self.final_weights)
+
+    @cached_property
+    def figures_before(self) -> dict[str, float]:
+        """The same figures for the holdings (no trades: turnover and cost 0)."""
+        return {} if self._holdings is None else self._figures(self._holdings, before=True)
+
+    def _figures(self, weights: pd.Series, before: bool = False) -> dict[str, float]:
+        if self._model is None or self._holdings is None:
+            return {}
+        model = self._model.subset(self.weights.index) if len(self._model.assets) != len(self.weights) else self._model
+        sold = self.trades.loc[~self.trades.index.isin(self.weights.index), "trade"]
+        cost = None if self.cost_per_asset is None else self.cost_per_asset.to_numpy(dtype=np.float64)
+        return desk_figures(
+            model,
+            weights.to_numpy(dtype=np.float64),
+            self._holdings.to_numpy(dtype=np.float64),
+            benchmark=None if self.benchmark is None else self.benchmark.to_numpy(dtype=np.float64),
+            alpha=None if self.alpha is None else self.alpha.to_numpy(dtype=np.float64),
+            cost=None if cost is None else (0.0 * cost if before else cost),
+            nav=self.nav,
+            sold_outside=0.0 if before else float(sold.abs().sum()),
+            n_sold_outside=0 if before else int((sold.abs() > 0).sum()),
+        )
+
+    @cached_property
+    def warnings(self) -> list[RunWarning]:
+        """Everything the desk should see before trading: the run's notices (dropped positions,
+        zeroed alpha, solver fall-backs, heuristics, rounding), then the concentration alerts of
+        the final book under :attr:`alerts`."""
+        return [*self.notices, *concentration_warnings(self.post_trade, self.pinned, self.alerts)]
+
+    def with_context(
+        self,
+        *,
+        notices: tuple[RunWarning, ...] = (),
+        alerts: AlertSettings | None = None,
+        context: Mapping[str, Any] | None = None,
+    ) -> RebalanceResult:
+        """A copy with ``notices`` put first (e.g. the input alignment's), other alert thresholds and
+        ``context`` (description, NAV and cash, model date: what the reports state) merged in."""
+        from dataclasses import replace
+
+        return replace(
+            self,
+            notices=(*notices, *self.notices),
+            alerts=alerts if alerts is not None else self.alerts,
+            context={**self.context, **(context or {})},
+        )
 
     @cached_property
     def stress(self) -> pd.DataFrame | None:
@@ -130,7 +228,8 @@ class RebalanceResult:
         return self.constraints[self.constraints["binding"].astype(bool)]
 
     def summary(self) -> str:
-        """A short text: status, solver, the objective, risk, turnover and the binding limits."""
+        """A short text: status, solver, risk, expected alpha and information ratio, turnover, the
+        orders, the warnings, the objective and the binding limits."""
         lines = [
             f"Rebalance: {self.status} ({self.solver}, {self.iterations} iterations, "
             f"build {self.build_time:.3f} s, solve {self.solve_time:.3f} s)",
@@ -139,6 +238,17 @@ class RebalanceResult:
         for key, label in (("tracking_error", "Ex-ante tracking error"), ("total_risk", "Ex-ante total risk")):
             if key in self.ex_ante:
                 lines.append(f"{label} (annualised): {self.ex_ante[key]:.2%}")
+        figures = self.figures
+        if figures and np.isfinite(figures.get("expected_alpha", np.nan)):
+            lines.append(
+                f"Expected active return {figures['expected_alpha']:.2%}, information ratio {figures['information_ratio']:.2f}; "
+                f"{int(figures['names_bought'])} names bought, {int(figures['names_sold'])} sold"
+                + (f"; estimated cost {1e4 * figures['cost']:.2f} bp of NAV" if np.isfinite(figures.get("cost", np.nan)) else "")
+            )
+        if self.trade_list is not None:
+            lines.append(f"Orders: {len(self.trade_list.orders)} in whole shares (cash after {self.trade_list.cash_after:,.0f})")
+        for warning in self.warnings:
+            lines.append(f"Warning: {warning.message}")
         lines.append("Objective: " + ", ".join(f"{k} {v:.6g}" for k, v in self.objective.items()))
         binding = self.binding
         if len(binding):
@@ -168,6 +278,12 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
     bench = None if data.benchmark is None else pd.Series(data.benchmark, index=assets, name="weight")
     table = _constraint_table(problem, outcome)
     objective = problem.objective.breakdown(outcome.weights, _penalty(outcome))
+    trade_list = _trade_list(problem, outcome)
+    final = outcome.weights if trade_list is None else trade_list.weights.to_numpy()
+    rates = problem.objective.rates
+    notices = [*solver_warnings(outcome.notes, outcome.skipped, outcome.solver), *heuristic_warnings(outcome.notes)]
+    if trade_list is not None:
+        notices.extend(_rounding_warnings(trade_list))
     return RebalanceResult(
         weights=weights,
         initial_weights=initial,
@@ -185,6 +301,12 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
         scenario=problem.spec.mapping,
         periods_per_year=data.periods_per_year,
         ex_ante=_ex_ante(problem, outcome.weights),
+        trade_list=trade_list,
+        alpha=pd.Series(data.alpha, index=assets, name="alpha") if problem.objective.kind in ("utility", "alpha") else None,
+        notices=tuple(notices),
+        pinned=pinned_positions(outcome.rows, outcome.weights),  # the optimizer's: rounding moves them by < 1 lot
+        nav=data.nav,
+        cost_per_asset=pd.Series(rates.cost(final - data.holdings), index=assets, name="cost") if rates.any else None,
         _model=problem.model,
         _holdings=pd.Series(data.holdings, index=assets),
         _attributes=data.attributes,
@@ -227,13 +349,33 @@ def _constraint_table(problem: RebalanceProblem, outcome: Outcome) -> pd.DataFra
     for c in problem.constraints:
         records.extend(c.describe(outcome.weights, outcome.duals))
     known = {id(r) for c in problem.constraints for r in c.rows}
-    from trimtab.construct.constraints._base import describe_rows
+    from trimtab.construct.constraints._base import BINDING_TOL, describe_rows
 
     for rows in outcome.rows:
         if id(rows) not in known:
             mu_up, mu_lo = outcome.duals.get(id(rows), (np.full(rows.size, np.nan),) * 2)
             records.extend(describe_rows(rows, rows.evaluate(outcome.weights), mu_up, mu_lo))
-    return pd.DataFrame.from_records(records, columns=CONSTRAINT_COLUMNS)
+    table = pd.DataFrame.from_records(records, columns=CONSTRAINT_COLUMNS)
+    table["binding_assets"] = table["name"].map(_binding_assets(list(outcome.rows), outcome.weights, BINDING_TOL))
+    return table
+
+
+def _binding_assets(rows: list[Any], weights: np.ndarray, tol: float) -> dict[str, str]:
+    """Per-asset limit name → its binding assets (largest weight first, at most five named)."""
+    from trimtab.construct._warnings import names
+
+    out: dict[str, str] = {}
+    for r in rows:
+        if not r.per_asset or r.name in out or not r.size:
+            continue
+        value = np.asarray(r.evaluate(weights), dtype=np.float64)
+        slack = r.slack(value)
+        limit = np.fmax(np.where(np.isfinite(r.upper), np.abs(r.upper), 0.0), np.where(np.isfinite(r.lower), np.abs(r.lower), 0.0))
+        binding = slack <= tol * np.maximum(1.0, limit)
+        if binding.any():
+            order = np.argsort(-np.abs(weights[: len(value)] if len(value) == len(weights) else value)[binding], kind="stable")
+            out[r.name] = names(np.asarray(r.labels, dtype=object)[binding][order])
+    return out
 
 
 def _ex_ante(problem: RebalanceProblem, weights: np.ndarray) -> dict[str, float]:
@@ -259,3 +401,60 @@ def _provenance(problem: RebalanceProblem, outcome: Outcome) -> dict[str, Any]:
         "model": repr(problem.model),
         "periods_per_year": problem.data.periods_per_year,
     }
+
+
+def _trade_list(problem: RebalanceProblem, outcome: Outcome) -> TradeList | None:
+    """The order-ready list when the NAV and prices are known (None otherwise: the list is in weights)."""
+    from trimtab.construct._heuristics import _fixes, _hard_box
+
+    data = problem.data
+    attrs = data.attributes
+    options = problem.spec.constraints.get("round_lots") or {}
+    price_column = options.get("price_column", "price")
+    lot_column = options.get("lot_column", "lot")
+    if data.nav is None or attrs is None or price_column not in attrs.columns:
+        return None
+    price = pd.to_numeric(attrs[price_column], errors="coerce").to_numpy(dtype=np.float64)
+    if not np.all(np.isfinite(price) & (price > 0)):
+        return None
+    lot = None
+    if lot_column in attrs.columns:
+        lot = pd.to_numeric(attrs[lot_column], errors="coerce").to_numpy(dtype=np.float64)
+        lot = np.where(np.isfinite(lot) & (lot > 0), lot, 1.0)
+    adv = None
+    if "adv" in attrs.columns and pd.api.types.is_numeric_dtype(attrs["adv"]):
+        adv = attrs["adv"].to_numpy(dtype=np.float64)
+    lower, upper = _hard_box(problem, _fixes(outcome.rows))
+    rates = problem.objective.rates
+    rounded = build_trade_list(
+        assets=data.assets, holdings=data.holdings, target=outcome.weights, nav=data.nav, price=price, lot=lot,
+        lower=lower, upper=upper, rows=outcome.rows, adv=adv, cost=rates.cost if rates.any else None,
+        sold_outside=data.sold_outside if len(data.sold_outside) else None,
+    )
+    if not rounded.ok:
+        from trimtab.construct._verify import describe_failures
+
+        raise SolverError(f"{problem.spec.source}: rounding the trades to whole shares: {describe_failures(rounded.verification)}")
+    return rounded
+
+
+#: A limit exceeded after rounding by more than this (in its unit: 0.01 bp of NAV for a weight) is a
+#: ``rounding`` warning; smaller excesses show in the limits table only.
+ROUNDING_NOTE = 1e-6
+
+
+def _rounding_warnings(trade_list: TradeList) -> list[RunWarning]:
+    """Limits that hold on the rounded book only thanks to the rounding allowance (by more than ROUNDING_NOTE)."""
+    table = trade_list.verification
+    # the budget's residual is the cash left, stated with the trade list itself
+    over = table[(table["breach"] > np.maximum(table["tolerance"], ROUNDING_NOTE)) & ~table["soft"].astype(bool)
+                 & (table["kind"] != "budget")]
+    return [
+        RunWarning(
+            "rounding",
+            f"rounding to whole shares takes {r.name} past its limit by {r.breach:.3g} (within what rounding moved it, "
+            f"{r.moved:.3g})",
+            {"limit": str(r.name), "breach": float(r.breach), "moved": float(r.moved)},
+        )
+        for r in over.itertuples()
+    ]

@@ -13,7 +13,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from trimtab._validation import check_finite_frame, check_finite_series, check_unique, list_labels
 from trimtab.errors import InputError
@@ -321,6 +320,8 @@ def check_residuals(
     data = centred[:, usable] / scale[usable]
     mask = observed[:, usable].astype(np.float64)
     dense = observed[:, usable].all(axis=0)
+
+    from scipy import stats  # imported here: scipy.stats costs most of a second and only this check needs it
 
     critical_z = float(stats.norm.isf(alpha / 2.0))
     tally = _Tally(critical_z, n_worst)

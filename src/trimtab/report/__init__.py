@@ -18,7 +18,13 @@ from trimtab.report._files import (
 from trimtab.report._schema import COMPARISON_SCHEMA, JSON_SCHEMA
 from trimtab.report._html import render_html, write_html
 from trimtab.report._relaxation import Unsolved, conflict_sentence, display_relaxation, format_in_unit, relaxation_sentence
-from trimtab.report._terminal import print_attribution, print_comparison, print_rebalance, print_relaxation
+from trimtab.report._terminal import (
+    print_attribution,
+    print_comparison,
+    print_rebalance,
+    print_relaxation,
+    print_warnings,
+)
 
 __all__ = [
     "CAUTION",
@@ -38,6 +44,7 @@ __all__ = [
     "print_comparison",
     "print_rebalance",
     "print_relaxation",
+    "print_warnings",
     "relaxation_sentence",
     "render_html",
     "report_document",

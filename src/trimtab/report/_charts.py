@@ -142,3 +142,27 @@ def paired_bars(
             _percent_axis(ax)
         ax.set_xlabel(xlabel)
         return _svg(fig, salt)
+
+
+def tradeoff_chart(points: pd.DataFrame, salt: str = "tradeoff") -> str:
+    """Expected active return against tracking error, one labelled point per scenario.
+
+    ``points``: index scenario name; columns ``tracking_error`` and ``expected_alpha`` (fractions).
+    """
+    with matplotlib.rc_context(_STYLE):
+        fig, ax = _figure(3.2)
+        x = points["tracking_error"].to_numpy(dtype=float)
+        y = points["expected_alpha"].to_numpy(dtype=float)
+        ax.scatter(x, y, s=46, color=AFTER, zorder=3)
+        for name, xi, yi in zip(points.index, x, y):
+            ax.annotate(str(name), (xi, yi), xytext=(6, 5), textcoords="offset points", color=INK)
+        span_x = max(float(np.ptp(x)), 0.002)
+        span_y = max(float(np.ptp(y)), 0.001)
+        ax.set_xlim(max(0.0, x.min() - 0.25 * span_x), x.max() + 0.45 * span_x)
+        ax.set_ylim(y.min() - 0.3 * span_y, y.max() + 0.35 * span_y)
+        _percent_axis(ax)
+        ax.yaxis.set_major_formatter(PercentFormatter(xmax=1.0))
+        ax.set_xlabel("tracking error (forecast, annualised)")
+        ax.set_ylabel("expected active return (annualised)")
+        ax.grid(alpha=0.3)
+        return _svg(fig, salt)

@@ -24,6 +24,26 @@ from trimtab.attribution import (
     figure_label,
 )
 from trimtab.errors import InputError
+from trimtab.report._desk import (  # noqa: F401 - re-exported: the writers import them from here
+    DESK_FIGURES,
+    DISPLAY_UNITS,
+    TRADE_TOLERANCE,
+    amount_text,
+    binding_assets_text,
+    change_text,
+    context_lines,
+    desk_table,
+    display_unit,
+    final_limits,
+    frame_or_none,
+    order_list,
+    plain_mapping,
+    rounding_info,
+    rounding_lines,
+    run_context,
+    settings_rows,
+    warning_records,
+)
 
 #: The caution printed by every writer: terminal, JSON and HTML.
 CAUTION = (
@@ -39,8 +59,6 @@ MAX_GROUPINGS = 2
 #: An attribute is a grouping when it is text with between 2 and this many distinct labels.
 MAX_GROUP_LABELS = 40
 
-#: Trades no larger than this (a fraction of NAV) are solver noise and not counted as trades.
-TRADE_TOLERANCE = 1e-8
 
 #: Columns of a constraint table, in display order.
 CONSTRAINT_COLUMNS = ("name", "kind", "value", "lower", "upper", "unit", "slack", "binding", "shadow_price", "soft")
@@ -84,6 +102,13 @@ class ReportContent:
     #: every shock of the scenario before and after the trade (see trimtab.report._stress)
     stress: pd.DataFrame | None = None
     caution: str = CAUTION
+    figures: pd.DataFrame | None = None
+    orders: pd.DataFrame | None = None
+    orders_in_shares: bool = False
+    rounding: dict[str, Any] | None = None
+    warnings: list[dict[str, Any]] = field(default_factory=list)
+    context: dict[str, Any] = field(default_factory=dict)
+    checks: pd.DataFrame | None = None
 
     @property
     def is_rebalance(self) -> bool:
@@ -117,9 +142,9 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
     pre = getattr(subject, "pre_trade", None)
     pre = pre if isinstance(pre, RiskAttribution) else None
     headline = _headline(pre, post)
-    trades = _frame_or_none(getattr(subject, "trades", None))
+    trades = frame_or_none(getattr(subject, "trades", None))
     constraints = _constraints(getattr(subject, "constraints", None))
-    scenario = _plain_mapping(getattr(subject, "scenario", None))
+    scenario = plain_mapping(getattr(subject, "scenario", None))
     return ReportContent(
         kind="rebalance",
         pre=pre,
@@ -138,9 +163,16 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         top_trades=_top_trades(trades, top),
         constraints=constraints,
         objective=_objective(getattr(subject, "objective", None)),
-        verification=_frame_or_none(getattr(subject, "verification", None)),
-        provenance=_plain_mapping(getattr(subject, "provenance", None)),
+        verification=frame_or_none(getattr(subject, "verification", None)),
+        provenance=plain_mapping(getattr(subject, "provenance", None)),
         scenario=scenario,
+        figures=desk_table(subject),
+        orders=order_list(subject, trades),
+        orders_in_shares=getattr(subject, "trade_list", None) is not None,
+        rounding=rounding_info(getattr(subject, "trade_list", None)),
+        warnings=warning_records(subject),
+        context=run_context(subject, post),
+        checks=final_limits(subject),
         stress=stress_frame(subject),
     )
 
@@ -180,7 +212,7 @@ def _attribution_content(attr: RiskAttribution, top: int) -> ReportContent:
         asset_groups=_asset_groups(None, attr, {}),
         split=_split(None, attr),
         top_assets=attr.top_assets(top),
-        provenance=_plain_mapping(getattr(attr.model, "provenance", None)),
+        provenance=plain_mapping(getattr(attr.model, "provenance", None)),
     )
 
 
@@ -336,7 +368,7 @@ def _trade_summary(trades: pd.DataFrame | None) -> pd.DataFrame | None:
     if "notional" in trades.columns:
         rows.append(("Notional traded (Σ|notional|)", "amount", float(trades["notional"].abs().sum())))
     if "cost" in trades.columns:
-        rows.append(("Estimated cost (of NAV)", "bp", float(trades["cost"].sum())))
+        rows.append(("Estimated cost (of NAV)", "fraction", float(trades["cost"].sum())))
     if "adv_fraction" in trades.columns:
         rows.append(("Largest fraction of daily volume", "fraction", float(trades["adv_fraction"].abs().max())))
     return pd.DataFrame(rows, columns=["label", "unit", "value"])
@@ -352,7 +384,7 @@ def _top_trades(trades: pd.DataFrame | None, top: int) -> pd.DataFrame | None:
 
 def _constraints(table: Any) -> pd.DataFrame | None:
     """The constraint table with binding rows first (stable otherwise) and known columns in order."""
-    table = _frame_or_none(table)
+    table = frame_or_none(table)
     if table is None:
         return None
     columns = [c for c in CONSTRAINT_COLUMNS if c in table.columns] + [
@@ -383,11 +415,5 @@ def _objective(value: Any) -> pd.Series | None:
     return None
 
 
-def _frame_or_none(value: Any) -> pd.DataFrame | None:
-    return value if isinstance(value, pd.DataFrame) else None
-
-
-def _plain_mapping(value: Any) -> dict[str, Any]:
-    return {str(k): v for k, v in value.items()} if isinstance(value, Mapping) else {}
 
 

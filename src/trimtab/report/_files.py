@@ -19,14 +19,14 @@ import pandas as pd
 
 from trimtab._validation import list_labels
 from trimtab._version import __version__
-from trimtab.attribution import RiskAttribution, compare_many
+from trimtab.attribution import HEADLINE_FIGURES, RiskAttribution, compare_many, figure_label
 from trimtab.errors import InputError
+from trimtab.report._content import CAUTION, DESK_FIGURES, gather, group_columns, warning_records
 from trimtab.report._stress import stress_frame, stress_records
-from trimtab.report._content import CAUTION, gather, group_columns
 from trimtab.report._relaxation import Unsolved, is_unsolved, split_subjects, unsolved
 
 #: Version of the JSON document layout described in docs/outputs.md.
-SCHEMA_VERSION = "1.1"
+SCHEMA_VERSION = "1.2"
 #: Table formats :func:`write_tables` can write.
 TABLE_FORMATS = ("csv", "parquet")
 
@@ -84,8 +84,12 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         tables[f"{stem}_by_asset"] = attr.by_asset
         for column in group_columns(attr, content.scenario):
             tables[f"{stem}_by_{_stem(column)}"] = attr.by_group(column)
+    if content.orders is not None:
+        tables["trades"] = content.orders
     if content.trades is not None:
-        tables["trades"] = content.trades
+        tables["target_book"] = content.trades
+    if content.figures is not None:
+        tables["figures"] = content.figures
     if content.trade_summary is not None:
         tables["trade_summary"] = content.trade_summary
     if content.constraints is not None:
@@ -94,6 +98,12 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         tables["objective"] = content.objective.to_frame("value").rename_axis("term")
     if content.verification is not None:
         tables["verification"] = content.verification
+    if content.checks is not None:
+        tables["limits"] = content.checks
+    if content.warnings:
+        tables["warnings"] = pd.DataFrame(
+            [{"kind": w["kind"], "message": w["message"]} for w in content.warnings]
+        )
     if (stress := stress_frame(subject)) is not None:
         tables["stress"] = stress
     return tables
@@ -147,12 +157,23 @@ def write_tables(
         for fmt in formats:
             target = out / f"{stem}.{fmt}"
             # atomic_write calls the writer before returning, so the closures see this loop's table.
+            shaped, keep_index = named_index(table)
             if fmt == "csv":
-                atomic_write(target, lambda tmp: table.to_csv(tmp))
+                atomic_write(target, lambda tmp: shaped.to_csv(tmp, index=keep_index))
             else:
-                atomic_write(target, lambda tmp: _parquet_ready(table).to_parquet(tmp))
+                atomic_write(target, lambda tmp: _parquet_ready(shaped).to_parquet(tmp, index=keep_index))
             written.append(target)
     return written
+
+
+def named_index(table: pd.DataFrame) -> tuple[pd.DataFrame, bool]:
+    """A table ready for a file whose first column always has a header: a plain row number is left
+    out, an unnamed index is called ``label``."""
+    if isinstance(table.index, pd.RangeIndex) and table.index.name is None:
+        return table, False
+    if table.index.name is None and table.index.nlevels == 1:
+        return table.rename_axis("label"), True
+    return table, True
 
 
 def _stem(label: str) -> str:
@@ -197,11 +218,21 @@ def report_document(subject: Any) -> dict[str, Any]:
             "pre_trade": _attribution_document(content.pre, content.scenario),
             "post_trade": _attribution_document(content.post, content.scenario),
         },
-        "trades": _records(content.trades, "asset"),
+        "figures": _records(content.figures, "figure"),
+        "warnings": content.warnings,
+        "context": content.context,
+        "trades": _records(content.orders, "asset"),
+        "trades_unit": "shares" if content.orders_in_shares else "weights",
+        "rounding": None if content.rounding is None else {
+            **{k: v for k, v in content.rounding.items() if k != "largest_changes"},
+            "largest_changes": _records(content.rounding["largest_changes"], "asset"),
+        },
+        "target_book": _records(content.trades, "asset"),
         "trade_summary": _records(content.trade_summary, None),
         "constraints": _records(content.constraints, None),
         "objective": None if content.objective is None else dict(content.objective.items()),
         "verification": _records(content.verification, None),
+        "limits": _records(content.checks, "limit"),
         "stress": stress_records(subject),
         "provenance": content.provenance,
         "scenario": content.scenario,
@@ -210,10 +241,16 @@ def report_document(subject: Any) -> dict[str, Any]:
 
 
 def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
-    """After-trade headline figures, one column per scenario, below a ``status`` row.
+    """The scenarios side by side: what each gains and gives up, below a ``status`` row.
 
-    A scenario given as an ``InfeasibleError`` or ``SolverError`` keeps its column: status
-    ``infeasible`` or ``solver failure``, figures NaN. Solved ones have status ``solved``.
+    Index ``figure``; columns ``label`` and ``unit``, one column per scenario (in the mapping's order),
+    then ``change: <name>`` for each later solved scenario: its figure minus the first scenario's
+    (none when the first did not solve). Rows: the
+    desk figures (expected active return, information ratio, tracking error, total risk, beta,
+    turnover, estimated cost, names bought, sold and held), the share of risk from factors, the
+    risk budget used, the binding limits (text), then the other after-trade risk figures. A scenario
+    given as an ``InfeasibleError`` or ``SolverError`` keeps its column: status ``infeasible`` or
+    ``solver failure``, figures NaN.
 
     Raises
     ------
@@ -228,11 +265,65 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
         figures = compare_many(solved) if solved else pd.DataFrame(index=pd.Index([], name="figure"))
     except InputError as err:
         raise InputError(f"report: {str(err).removeprefix('compare_many: ')}") from None
-    figures = figures.reindex(columns=names)
-    status = pd.DataFrame([[failed[n].status if n in failed else "solved" for n in names]], index=["status"], columns=names)
-    table = pd.concat([status, figures.astype(object)])
-    table.index.name = "figure"
+    contents = {name: gather(value) for name, value in solved.items()}
+    kind = next(iter(contents.values())).post.kind if contents else "total"
+    rows: list[tuple[str, str, str, dict[str, Any]]] = [
+        ("status", "Status", "text", {n: failed[n].status if n in failed else "solved" for n in names})
+    ]
+    desk = {n: (c.figures if c.figures is not None else None) for n, c in contents.items()}
+    have_desk = any(d is not None for d in desk.values())
+    if have_desk:
+        for key, (label, unit) in DESK_FIGURES.items():
+            values = {n: (float(d.loc[key, "post"]) if d is not None and key in d.index else np.nan) for n, d in desk.items()}
+            if any(np.isfinite(v) for v in values.values()):
+                rows.append((key, label, unit, values))
+    duplicated = {"risk", "variance", "portfolio_risk", "beta", "n_positions"} if have_desk else set()
+    for key in ("factor_percent",):
+        if key in figures.index:
+            rows.append((key, figure_label(key, kind), HEADLINE_FIGURES[key][1], dict(figures.loc[key].items())))
+    rows.append(("risk_budget_used", "Risk budget used", "fraction",
+                 {n: c.risk_budget.used if c.risk_budget is not None else np.nan for n, c in contents.items()}))
+    for key in figures.index:
+        if key in duplicated or key == "factor_percent":
+            continue
+        values = dict(figures.loc[key].items())
+        if any(pd.notna(v) for v in values.values()):
+            rows.append((key, figure_label(key, kind), HEADLINE_FIGURES[key][1], values))
+    rows.append(("binding_limits", "Binding limits (assets at a per-asset limit)", "text",
+                 {n: binding_text(c.constraints) for n, c in contents.items()}))
+    table = pd.DataFrame(
+        [{"label": label, "unit": unit, **{n: values.get(n, np.nan) for n in names}} for _, label, unit, values in rows],
+        index=pd.Index([key for key, *_ in rows], name="figure"),
+    ).astype(object)
+    first = names[0]
+    for name in [n for n in names[1:] if n not in failed] if first not in failed else []:
+        column = []
+        for key, _, unit, values in rows:
+            a, b = values.get(first), values.get(name)
+            numeric = unit != "text" and isinstance(a, (int, float, np.floating)) and isinstance(b, (int, float, np.floating))
+            column.append(float(b) - float(a) if numeric and name not in failed and first not in failed else np.nan)  # type: ignore[arg-type]
+        table[f"change: {name}"] = column
     return table
+
+
+def binding_text(constraints: pd.DataFrame | None) -> str:
+    """The binding limits in a few words: ``tracking_error, turnover, active_weight (3)``: a per-asset
+    limit with the number of assets at it, a family of limits (``group.industry[…]``) with the number
+    binding."""
+    if constraints is None or "binding" not in constraints.columns:
+        return ""
+    from trimtab.report._content import flags
+
+    rows = constraints[flags(constraints["binding"])]
+    counts: dict[str, int] = {}
+    for _, row in rows.iterrows():
+        name = str(row["name"]).split("[", 1)[0]
+        n = row.get("n_binding")
+        per_asset = pd.notna(row.get("asset")) and pd.notna(n) and int(n) >= 1
+        counts[name] = counts.get(name, 0) + (int(n) if per_asset else 1)
+    singles = {str(row["name"]).split("[", 1)[0] for _, row in rows.iterrows() if pd.isna(row.get("asset"))}
+    parts = [name if n == 1 and name in singles else f"{name} ({n:,})" for name, n in counts.items()]
+    return ", ".join(parts) if parts else "none"
 
 
 def _comparison_document(subjects: Mapping[str, Any]) -> dict[str, Any]:
@@ -244,8 +335,9 @@ def _comparison_document(subjects: Mapping[str, Any]) -> dict[str, Any]:
         "generated_by": {"package": "trimtab", "version": __version__},
         "created_utc": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
         "cautions": [CAUTION],
-        "status": dict(table.loc["status"].items()),
+        "status": {n: table.loc["status", n] for n in subjects},
         "comparison": _records(table.drop(index="status"), "figure"),
+        "warnings": {str(name): warning_records(value) for name, value in subjects.items()},
         "scenarios": {str(name): report_document(value) for name, value in subjects.items()},
     }
     return _plain(document)
@@ -266,11 +358,18 @@ def _unsolved_document(failure: Unsolved) -> dict[str, Any]:
         "relaxation": _records(failure.relaxation, None),
         "headline": [],
         "attribution": {"pre_trade": None, "post_trade": None},
+        "figures": None,
+        "warnings": [],
+        "context": {},
         "trades": None,
+        "trades_unit": None,
+        "rounding": None,
+        "target_book": None,
         "trade_summary": None,
         "constraints": None,
         "objective": None,
         "verification": None,
+        "limits": None,
         "provenance": {},
         "scenario": {},
     }

@@ -15,9 +15,23 @@ import pandas as pd
 from trimtab._version import __version__
 from trimtab.attribution import compare_many, format_figure
 from trimtab.report import _charts
+from trimtab.report import _html_desk as desk
+from trimtab.report._content import (
+    CAUTION,
+    ReportContent,
+    binding_assets_text,
+    change_text,
+    context_lines,
+    flags,
+    gather,
+    gather_many,
+    labelled,
+    no_bound,
+    rounding_lines,
+)
 from trimtab.report._stress import stress_html
-from trimtab.report._content import CAUTION, ReportContent, flags, gather, gather_many, labelled, no_bound
 from trimtab.report._files import atomic_write_text
+from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
 from trimtab.report._relaxation import (
     Unsolved,
     display_relaxation,
@@ -42,7 +56,6 @@ _TRADE_UNITS = {
 }
 _CONSTRAINT_UNITS = {
     "kind": "text",
-    "asset": "text",
     "value": "limit",
     "lower": "limit",
     "upper": "limit",
@@ -50,7 +63,6 @@ _CONSTRAINT_UNITS = {
     "slack": "limit",
     "shadow_price": "limit",
     "soft": "flag",
-    "n_binding": "count",
 }
 _ASSET_UNITS = {
     "weight": "fraction",
@@ -105,7 +117,7 @@ def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int 
         solved, failed = split_subjects(subject)
         contents = gather_many(solved, top=max(top, max_trades)) if solved else {}
         names = [str(name) for name in subject]
-        parts = [_comparison_section(solved, contents, failed, names)]
+        parts = [_comparison_section(subject, failed, names)]
         for i, name in enumerate(names):
             inner = (
                 _unsolved_body(failed[name]) if name in failed
@@ -145,8 +157,15 @@ def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int 
 def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *, level: int) -> str:
     h = f"h{level}"
     post, pre = content.post, content.pre
-    parts = [_run_line(content), _key_figures(content)]
-    parts.append(f"<{h}>Headline figures</{h}>" + _headline_table(content))
+    parts = [_run_line(content) + desk.context_section(context_lines(content)), desk.desk_cards(content.figures) + _key_figures(content)]
+    if content.is_rebalance:
+        parts.append(desk.warnings_section(content.warnings, h, f"{key}-warnings"))
+    if content.figures is not None:
+        parts.append(f"<{h}>What the trades do</{h}>" + desk.figures_table(content.figures))
+    if content.orders is not None and len(content.orders):
+        parts.append(f'<{h} id="{key}-orders">Trade list</{h}>'
+                     + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades))
+    parts.append(f"<{h}>Risk figures</{h}>" + _headline_table(content))
     if content.risk_budget is not None:
         budget = content.risk_budget
         parts.append(
@@ -219,14 +238,14 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
     )
     if content.trade_summary is not None:
         trades_table = ""
-        if content.top_trades is not None and len(content.top_trades):
+        if content.orders is None and content.top_trades is not None and len(content.top_trades):
             units = {k: v for k, v in _TRADE_UNITS.items() if k in content.top_trades.columns}
             trades_table = _table(
                 content.top_trades.head(max_trades), units, "Asset",
                 caption=f"Largest {min(max_trades, len(content.top_trades))} trades by size; the full list is in the table files.",
             )
         parts.append(
-            f"<{h}>Trades</{h}>"
+            f"<{h}>Trade summary</{h}>"
             + _table(content.trade_summary.set_index("label")[["value"]], {"value": "row"}, "",
                      units=list(content.trade_summary["unit"]))
             + trades_table
@@ -235,6 +254,8 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
         parts.append(stress_html(content, h, key))
     if content.constraints is not None:
         parts.append(f"<{h}>Constraints</{h}>" + _constraint_table(content.constraints))
+    if content.checks is not None:
+        parts.append(f'<{h} id="{key}-verification">Verification</{h}>' + desk.limits_section(content.checks))
     if content.objective is not None:
         parts.append(
             f"<{h}>Objective</{h}>" + _table(content.objective.to_frame("value"), {"value": "ratio"}, "Term")
@@ -243,33 +264,12 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
     return "".join(f"<section>{p}</section>" for p in parts)
 
 
-def _comparison_section(
-    solved: Mapping[str, Any], contents: Mapping[str, ReportContent], failed: Mapping[str, Unsolved], names: Sequence[str]
-) -> str:
-    """After-trade headline figures side by side; a scenario that did not solve shows its status only."""
-    status = "".join(
-        f'<td class="num"><span class="status {"bad" if name in failed else "ok"}">'
-        f'{_e(failed[name].status if name in failed else "solved")}</span></td>'
-        for name in names
-    )
-    rows = [f"<tr><td>Status</td>{status}</tr>"]
-    if solved:
-        table = compare_many(solved)
-        first = next(iter(contents.values())).post
-        table = labelled(table[table.notna().any(axis=1)], first.kind)
-        for _, row in table.iterrows():
-            cells = "".join(
-                '<td class="num">n/a</td>' if name in failed else f'<td class="num">{format_figure(row[name], row["unit"])}</td>'
-                for name in names
-            )
-            rows.append(f"<tr><td>{_e(row['label'])}</td>{cells}</tr>")
-    budget_cells = "".join(
-        '<td class="num">n/a</td>' if name in failed
-        else f'<td class="num">{format_figure(contents[name].risk_budget.used, "fraction") if contents[name].risk_budget else "n/a"}</td>'  # type: ignore[union-attr]
-        for name in names
-    )
-    rows.append(f"<tr><td>Risk budget used</td>{budget_cells}</tr>")
-    head = "".join(f'<th class="num">{_e(name)}</th>' for name in names)
+def _comparison_section(subjects: Mapping[str, Any], failed: Mapping[str, Unsolved], names: Sequence[str]) -> str:
+    """What each scenario gains and gives up, side by side with the change from the first, and expected
+    alpha against tracking error as a chart; a scenario that did not solve shows its status only."""
+    from trimtab.report._files import comparison_table
+
+    table = comparison_table(subjects)
     note = ""
     if failed:
         note = (
@@ -277,10 +277,19 @@ def _comparison_section(
             + ("its part below shows" if len(failed) == 1 else "their parts below show")
             + " which limits conflict and how far each must move."
         )
+    chart = ""
+    if {"expected_alpha", "tracking_error"} <= set(table.index):
+        points = pd.DataFrame({
+            "tracking_error": pd.to_numeric(table.loc["tracking_error", [n for n in names if n not in failed]], errors="coerce"),
+            "expected_alpha": pd.to_numeric(table.loc["expected_alpha", [n for n in names if n not in failed]], errors="coerce"),
+        }).dropna()
+        if len(points):
+            chart = _figure(_charts.tradeoff_chart(points, salt="comparison-tradeoff"),
+                            "Expected active return against tracking error, one point per scenario (after the trades, annualised).")
     return (
         '<section id="comparison"><h2>Scenarios side by side</h2>'
-        f"<p>After-trade figures of each scenario.{note}</p>"
-        f"<table><thead><tr><th>Figure</th>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table></section>"
+        f"<p>What each scenario gains and gives up after its trades, and the change from {_e(names[0])}.{note}</p>"
+        f"{desk.comparison_rows(table, names, list(failed))}{chart}</section>"
     )
 
 
@@ -373,11 +382,14 @@ def _headline_table(content: ReportContent) -> str:
     head = "".join(f'<th class="num">{names[c]}</th>' for c in columns)
     rows = []
     for _, row in table.iterrows():
-        cells = "".join(f'<td class="num">{format_figure(row[c], row["unit"])}</td>' for c in columns)
+        cells = "".join(
+            f'<td class="num">{change_text(row[c], row["unit"]) if c == "change" else format_figure(row[c], row["unit"])}</td>'
+            for c in columns
+        )
         rows.append(f"<tr><td>{_e(row['label'])}</td>{cells}</tr>")
     note = ""
     if "change" in columns:
-        note = '<caption>Changes of percentages are in percentage points.</caption>'
+        note = '<caption>Changes of percentages are in percentage points (pp).</caption>'
     return f"<table>{note}<thead><tr><th>Figure</th>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
 
 
@@ -395,6 +407,9 @@ def _constraint_table(table: pd.DataFrame) -> str:
             for c in columns
         )
         flag = "<td>yes</td>" if binding else "<td></td>"
+        at_limit = binding_assets_text(row) if binding else ""
+        if at_limit:
+            name = f"{name} ({at_limit})"
         rows.append(f'<tr class="{"binding" if binding else ""}"><td>{_e(name).replace("[", "<wbr>[")}</td>{cells}{flag}</tr>')
     return (
         '<div class="wide"><table class="constraints"><caption>Binding constraints first (shaded). '
@@ -409,70 +424,7 @@ def _provenance(content: ReportContent) -> str:
     entries = "".join(f"<dt>{_e(k)}</dt><dd>{_e(_plain(v))}</dd>" for k, v in items)
     scenario = ""
     if content.scenario:
-        scenario = "<h3>Scenario settings</h3><pre>" + _e(json.dumps(content.scenario, indent=2, default=str)) + "</pre>"
+        scenario = "<h3>Scenario settings</h3>" + desk.settings_section(content.scenario)
     return f'<dl class="provenance">{entries}</dl>{scenario}'
 
 
-# ---------------------------------------------------------------------- helpers
-def _figure(svg: str, caption: str) -> str:
-    return f"<figure>{svg}<figcaption>{_e(caption)}</figcaption></figure>"
-
-
-def _table(
-    frame: pd.DataFrame,
-    columns: Mapping[str, str],
-    index_label: str,
-    *,
-    caption: str | None = None,
-    units: Sequence[str] | None = None,
-    headers: Mapping[str, str] | None = None,
-) -> str:
-    """A table of ``frame``'s index and ``columns`` (name → unit; unit "row" takes it from ``units``)."""
-    shown = [c for c in columns if c in frame.columns]
-    head = f"<th>{_e(index_label)}</th>" + "".join(
-        f'<th class="{"" if columns[c] == "text" else "num"}">{_e(_header(c, headers)) if columns[c] != "row" else ""}</th>'
-        for c in shown
-    )
-    rows = []
-    for position, (label, row) in enumerate(frame.iterrows()):
-        cells = "".join(
-            _cell(row[c], units[position] if columns[c] == "row" and units is not None else columns[c]) for c in shown
-        )
-        rows.append(f"<tr><td>{_e(label)}</td>{cells}</tr>")
-    cap = f"<caption>{_e(caption)}</caption>" if caption else ""
-    return f"<table>{cap}<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
-
-
-def _header(column: str, headers: Mapping[str, str] | None = None) -> str:
-    text = (headers or {}).get(column) or _HEADERS.get(column, column.replace("_", " "))
-    return text[:1].upper() + text[1:]
-
-
-_HEADERS = {
-    "pre": "before",
-    "post": "after",
-    "adv_fraction": "of daily volume",
-    "marginal_contribution": "marginal",
-    "contribution": "contribution (bp)",
-}
-
-
-def _cell(value: Any, unit: str) -> str:
-    if unit == "text":
-        return f"<td>{_e('' if value is None or (isinstance(value, float) and value != value) else value)}</td>"
-    if unit == "flag":
-        return f"<td>{'soft' if bool(value) and pd.notna(value) else 'hard'}</td>"
-    try:
-        return f'<td class="num">{format_figure(value, unit)}</td>'
-    except (TypeError, ValueError):
-        return f"<td>{_e(value)}</td>"
-
-
-def _plain(value: Any) -> str:
-    if isinstance(value, (Mapping, list, tuple)):
-        return json.dumps(value, default=str, sort_keys=True)
-    return str(value)
-
-
-def _e(value: Any) -> str:
-    return html.escape(str(value), quote=True)

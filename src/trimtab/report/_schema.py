@@ -7,7 +7,9 @@ from __future__ import annotations
 
 from typing import Any
 
+from trimtab._desk_figures import WARNING_KINDS
 from trimtab.attribution import HEADLINE_FIGURES
+
 
 _NUMBER = {"type": ["number", "null"]}
 
@@ -49,18 +51,19 @@ _ATTRIBUTION = {
     },
 }
 
-#: JSON Schema of the report document, ``schema_version`` "1.1".
+#: JSON Schema of the report document, ``schema_version`` "1.2".
 JSON_SCHEMA: dict[str, Any] = {
     "$schema": "https://json-schema.org/draft/2020-12/schema",
     "title": "trimtab report document",
     "type": "object",
     "required": [
         "schema_version", "document", "kind", "generated_by", "created_utc", "cautions", "run",
-        "risk_budget", "relaxation", "headline", "attribution", "trades", "trade_summary", "constraints", "objective",
-        "verification", "provenance", "scenario",
+        "risk_budget", "relaxation", "headline", "figures", "warnings", "context", "attribution", "trades",
+        "trades_unit", "rounding", "target_book", "trade_summary", "constraints", "objective", "verification", "limits",
+        "provenance", "scenario",
     ],
     "properties": {
-        "schema_version": {"const": "1.1"},
+        "schema_version": {"const": "1.2"},
         "document": {"const": "trimtab.report"},
         "kind": {"enum": ["rebalance", "attribution", "infeasible", "solver_failure"]},
         "generated_by": {
@@ -92,7 +95,28 @@ JSON_SCHEMA: dict[str, Any] = {
             "required": ["pre_trade", "post_trade"],
             "properties": {"pre_trade": _ATTRIBUTION, "post_trade": _ATTRIBUTION},
         },
-        "trades": _rows("asset", "trade", nullable=True),
+        "figures": _rows("figure", "label", "unit", "pre", "post", "change", nullable=True),
+        "warnings": {
+            "type": "array",
+            "items": {
+                "type": "object",
+                "required": ["kind", "message", "details"],
+                "properties": {
+                    "kind": {"enum": list(WARNING_KINDS)},  # trimtab._desk_figures.WARNING_KINDS
+                    "message": {"type": "string"},
+                    "details": {"type": "object"},
+                },
+            },
+        },
+        "context": {"type": "object"},
+        "trades": _rows("asset", "side", "weight_change", nullable=True),
+        "trades_unit": {"enum": ["shares", "weights", None]},
+        "rounding": {
+            "type": ["object", "null"],
+            "required": ["nav", "cash_before", "cash_optimal", "cash_after", "largest_changes"],
+        },
+        "target_book": _rows("asset", "trade", nullable=True),
+        "limits": _rows("limit", "kind", "value", "lower", "upper", "slack", "ok", nullable=True),
         "trade_summary": _rows("label", "unit", "value", nullable=True),
         "constraints": _rows("name", nullable=True),
         "objective": {"type": ["object", "null"], "additionalProperties": _NUMBER},
@@ -103,14 +127,15 @@ JSON_SCHEMA: dict[str, Any] = {
     },
 }
 
-#: JSON Schema of the comparison document (a mapping given to ``write_json``), ``schema_version`` "1.1".
+#: JSON Schema of the comparison document (a mapping given to ``write_json``), ``schema_version`` "1.2".
 COMPARISON_SCHEMA: dict[str, Any] = {
     "$schema": "https://json-schema.org/draft/2020-12/schema",
     "title": "trimtab comparison document",
     "type": "object",
-    "required": ["schema_version", "document", "generated_by", "created_utc", "cautions", "status", "comparison", "scenarios"],
+    "required": ["schema_version", "document", "generated_by", "created_utc", "cautions", "status", "comparison", "warnings",
+                 "scenarios"],
     "properties": {
-        "schema_version": {"const": "1.1"},
+        "schema_version": {"const": "1.2"},
         "document": {"const": "trimtab.comparison"},
         "generated_by": JSON_SCHEMA["properties"]["generated_by"],
         "created_utc": JSON_SCHEMA["properties"]["created_utc"],

@@ -11,7 +11,19 @@ from rich.table import Table
 
 from trimtab.attribution import compare_many, format_figure
 from trimtab.report._stress import print_stress
-from trimtab.report._content import CAUTION, ReportContent, gather, gather_many, labelled, no_bound
+from trimtab.report._content import (
+    CAUTION,
+    ReportContent,
+    binding_assets_text,
+    change_text,
+    context_lines,
+    display_unit,
+    gather,
+    gather_many,
+    labelled,
+    no_bound,
+    rounding_lines,
+)
 from trimtab.report._relaxation import Unsolved, conflict_sentence, display_relaxation, relaxation_sentence, split_subjects, unsolved
 
 
@@ -64,12 +76,16 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
         if isinstance(run.get("solve_time"), (int, float)):
             bits.append(f"solve {run['solve_time']:.3f} s")
         out.print("Rebalance: " + ", ".join(bits))
+    for line in context_lines(content):
+        out.print(line, markup=False, highlight=False)
     if content.risk_budget is not None:
         budget = content.risk_budget
         out.print(
             f"Risk budget ({budget.name.replace('_', ' ')}): {format_figure(budget.post, 'fraction')} of "
             f"{format_figure(budget.cap, 'fraction')} cap, {format_figure(budget.used, 'fraction')} used"
         )
+    if content.figures is not None:
+        out.print(_figures_table(content.figures, "What the trades do"))
     out.print(_headline_table(content, "Risk before and after"))
     _print_body(out, content, top)
     print_stress(content, out)
@@ -79,10 +95,12 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
         for column in ("name", "value", "lower", "upper", "shadow_price"):
             if column in binding.columns:
                 table.add_column(column.replace("_", " "), justify="left" if column == "name" else "right")
+        table.add_column("assets at the limit")
         for _, row in binding.iterrows():
             table.add_row(
                 *[str(row[c]) if c == "name" else "" if no_bound(row[c]) else format_figure(row[c], "limit")
-                  for c in ("name", "value", "lower", "upper", "shadow_price") if c in binding.columns]
+                  for c in ("name", "value", "lower", "upper", "shadow_price") if c in binding.columns],
+                binding_assets_text(row),
             )
         if len(binding) == 0:
             out.print("No binding constraints.")
@@ -95,7 +113,86 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
         for _, row in content.trade_summary.iterrows():
             table.add_row(str(row["label"]), format_figure(row["value"], row["unit"]))
         out.print(table)
+    if content.orders is not None and len(content.orders):
+        out.print(_orders_table(content, top))
+        for line in rounding_lines(content):
+            out.print(line, markup=False, highlight=False)
     out.print(f"[italic]{CAUTION}[/italic]")
+
+
+def print_warnings(warnings: Any, console: Console | None = None, *, name: str | None = None) -> None:
+    """One line per warning, ``trimtab: warning: <message>`` (``warning [name]: …`` with a scenario name).
+
+    Parameters
+    ----------
+    warnings : a result carrying ``warnings``, a list of RunWarning or ``{"kind", "message"}``
+        mappings, or a mapping scenario name → such a result (a comparison: a warning several
+        scenarios share is printed once, naming them all; an unsolved scenario has none)
+    console : rich.console.Console, optional
+        Typically the standard-error console.
+    """
+    from trimtab.report._content import warning_records
+
+    if isinstance(warnings, Mapping):
+        seen: dict[str, list[str]] = {}
+        for scenario, subject in warnings.items():
+            for record in warning_records(subject):
+                seen.setdefault(record["message"], []).append(str(scenario))
+        lines = [(", ".join(names), message) for message, names in seen.items()]
+    else:
+        lines = [(name or "", record["message"]) for record in warning_records(warnings)]
+    out = console or Console(stderr=True)
+    for where, message in lines:
+        label = f" [{where}]" if where else ""
+        out.print(f"trimtab: warning{label}: {message}", markup=False, highlight=False, soft_wrap=True)
+
+
+def _figures_table(figures: pd.DataFrame, title: str) -> Table:
+    """Desk figures: before, after and the change (percentage points for percentages)."""
+    table = Table(title=title, title_justify="left")
+    table.add_column("figure")
+    for column in ("before", "after", "change"):
+        table.add_column(column, justify="right")
+    for key, row in figures.iterrows():
+        unit = display_unit(key, str(row["unit"]))
+        table.add_row(str(row["label"]), format_figure(row["pre"], unit), format_figure(row["post"], unit),
+                      change_text(row["change"], unit))
+    return table
+
+
+def _orders_table(content: ReportContent, top: int) -> Table:
+    orders = content.orders
+    assert orders is not None
+    shown = orders.head(top)
+    in_shares = content.orders_in_shares
+    what = "in shares" if in_shares else "in weights (no NAV or prices given)"
+    table = Table(title=f"Largest {len(shown)} of {len(orders):,} orders, {what}", title_justify="left")
+    columns: list[tuple[str, str, str]] = [("side", "side", "text")]
+    if in_shares:
+        columns += [("shares", "shares", "count"), ("price", "price", "price"), ("notional", "notional", "amount"),
+                    ("cost_bp", "cost (bp)", "bp1"), ("adv_percent", "% of ADV", "pct1")]
+    columns += [("weight_change", "weight change", "fraction")]
+    table.add_column("asset")
+    for column, header, _ in columns:
+        if column in shown.columns:
+            table.add_column(header, justify="left" if column == "side" else "right")
+    for asset, row in shown.iterrows():
+        table.add_row(str(asset), *[_order_cell(row[c], unit) for c, _, unit in columns if c in shown.columns])
+    return table
+
+
+def _order_cell(value: Any, unit: str) -> str:
+    if unit == "text":
+        return str(value)
+    if value is None or (isinstance(value, float) and value != value):
+        return "n/a"
+    if unit == "price":
+        return f"{float(value):,.2f}"
+    if unit == "bp1":
+        return f"{float(value):.1f}"
+    if unit == "pct1":
+        return f"{float(value):.1f}%"
+    return format_figure(value, unit)
 
 
 def print_comparison(results: Mapping[str, Any], console: Console | None = None) -> None:
@@ -111,26 +208,32 @@ def print_comparison(results: Mapping[str, Any], console: Console | None = None)
     """
     if not isinstance(results, Mapping) or not results:
         gather_many(results)  # raises the one-line error of an empty mapping
+    from trimtab.report._files import comparison_table
+
     solved, failed = split_subjects(results)
-    contents = gather_many(solved) if solved else {}
+    frame = comparison_table(results)
     names = [str(name) for name in results]
     out = console or Console()
-    table = Table(title="Scenarios side by side (after trades)", title_justify="left")
+    table = Table(title="Scenarios side by side (after trades; changes against the first scenario)", title_justify="left")
     table.add_column("figure")
     for name in names:
         table.add_column(name, justify="right")
-    table.add_row("status", *[failed[n].status if n in failed else "solved" for n in names])
-    if solved:
-        frame = compare_many(solved)
-        first = next(iter(contents.values())).post
-        frame = labelled(frame[frame.notna().any(axis=1)], first.kind)
-        for _, row in frame.iterrows():
-            table.add_row(str(row["label"]), *["n/a" if n in failed else format_figure(row[n], row["unit"]) for n in names])
-    table.add_row(
-        "Risk budget used",
-        *["n/a" if n in failed or contents[n].risk_budget is None
-          else format_figure(contents[n].risk_budget.used, "fraction") for n in names],  # type: ignore[union-attr]
-    )
+    changes = [c for c in frame.columns if str(c).startswith("change: ")]
+    for column in changes:
+        table.add_column(f"{column.removeprefix('change: ')} − {names[0]}", justify="right")
+    for key, row in frame.iterrows():
+        unit = display_unit(key, str(row["unit"]))
+        if key == "status":
+            table.add_row("status", *[str(row[n]) for n in names], *["" for _ in changes])
+            continue
+        if unit == "text":
+            table.add_row(str(row["label"]), *["n/a" if n in failed else str(row[n]) for n in names], *["" for _ in changes])
+            continue
+        table.add_row(
+            str(row["label"]),
+            *["n/a" if n in failed else format_figure(row[n], unit) for n in names],
+            *[change_text(row[c], unit) for c in changes],
+        )
     out.print(table)
     for name, failure in failed.items():
         if failure.status == "infeasible":
@@ -185,7 +288,8 @@ def _headline_table(content: ReportContent, title: str) -> Table:
     for column in columns:
         table.add_column(names[column], justify="right")
     for _, row in headline.iterrows():
-        table.add_row(str(row["label"]), *[format_figure(row[c], row["unit"]) for c in columns])
+        table.add_row(str(row["label"]), *[change_text(row[c], row["unit"]) if c == "change" else format_figure(row[c], row["unit"])
+                                           for c in columns])
     return table
 
 

@@ -14,16 +14,16 @@ import sys
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated, Any, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
-import numpy as np
-import pandas as pd
 import typer
 
 from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
 from trimtab._cli_guard import fail as _fail
-from trimtab._strict_yaml import load_yaml_text, read_yaml
 from trimtab.errors import InputError
+
+if TYPE_CHECKING:  # numpy, pandas and yaml are imported where used: registering the commands stays light
+    import pandas as pd
 from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
 F = TypeVar("F", bound=Callable[..., Any])
@@ -59,6 +59,9 @@ def _executor(executor: str | None, workers: int | None, scheduler: str | None) 
 
 
 def _jsonable(value: Any) -> Any:
+    import numpy as np
+    import pandas as pd
+
     if isinstance(value, Mapping):
         return {str(k): _jsonable(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
@@ -115,6 +118,10 @@ def _default_out(scenario: Any, command: str) -> Path:
 # ---------------------------------------------------------------------------------------------
 def parse_values(text: str, owner: str) -> list[Any]:
     """``a:b:n`` (n evenly spaced values), ``[v1, v2]`` (a YAML list) or ``v1,v2,…`` (YAML scalars)."""
+    import numpy as np
+
+    from trimtab._strict_yaml import load_yaml_text
+
     body = text.strip()
     if not body:
         raise InputError(f"{owner}: no values given; expected v1,v2,… or start:stop:count or [v1, v2]")
@@ -139,6 +146,8 @@ def parse_values(text: str, owner: str) -> list[Any]:
 
 def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[Any]] | list[dict[str, Any]]:
     """``--grid KEY=VALUES`` options (every combination), or a grid file (a mapping or a list of points)."""
+    from trimtab._strict_yaml import read_yaml
+
     if grid_file is not None:
         if items:
             raise InputError("--grid and --grid-file: give one, not both")
@@ -193,9 +202,9 @@ def _exit_for_points(table: pd.DataFrame) -> None:
     _fail(f"no point solved; first: {table.index[0]}: {first['status']}: {first['error']}", code)
 
 
-def _report_failures(table: pd.DataFrame) -> None:
-    for label, row in table[table["status"] != "solved"].head(5).iterrows():
-        sys.stderr.write(f"trimtab: warning: {label}: {row['status']}: {row['error']}\n")
+def _report_failures(table: pd.DataFrame, label: Callable[[Any], str] = str) -> None:
+    for key, row in table[table["status"] != "solved"].head(5).iterrows():
+        sys.stderr.write(f"trimtab: warning: {label(key)}: {row['status']}: {row['error']}\n")
     extra = int((table["status"] != "solved").sum()) - 5
     if extra > 0:
         sys.stderr.write(f"trimtab: warning: and {extra} more points did not solve (see the table)\n")
@@ -290,7 +299,7 @@ def frontier_command(
         _say(result.summary(), True)
         _say_table(result.tracking_error.drop(columns=["error"]), "Frontier against tracking error (limit = TE cap)", True)
         _say(f"Wrote the tables and report to {target}", True)
-    _report_failures(result.tracking_error.set_index("limit"))
+    _report_failures(result.tracking_error.set_index("limit"), label=lambda cap: f"tracking-error cap {100 * float(cap):.2f}%")
     _exit_for_points(result.tracking_error.set_index("limit"))
 
 
@@ -336,6 +345,8 @@ def backtest_command(
     tracking error (the bias statistic), turnover, costs, exposures and risk contributions through
     time.
     """
+    import pandas as pd
+
     from trimtab.runs._backtest import backtest
     from trimtab.runs._report import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario

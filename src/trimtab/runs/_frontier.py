@@ -75,12 +75,34 @@ def _levels(values: Sequence[float] | None, name: str) -> list[float]:
     return sorted(set(levels))
 
 
-def default_tracking_errors(scenario: Mapping[str, Any], n_points: int = 10) -> list[float]:
-    """Caps from a quarter to twice the scenario's TE cap, or 0.5 % to 6 % without one."""
+def default_tracking_errors(scenario: Mapping[str, Any], n_points: int = 10, *, unbound: float | None = None) -> list[float]:
+    """Caps from a quarter to twice the scenario's TE cap, or 0.5 % to 6 % without one; never beyond
+    ``unbound``, the tracking error of the best book with no TE cap (above it the cap binds no more and
+    every point would be the same book), rounded to 0.01 %."""
     cap = (scenario.get("constraints") or {}).get("tracking_error", {})
     cap = cap.get("max") if isinstance(cap, Mapping) else None
     low, high = (0.25 * float(cap), 2.0 * float(cap)) if cap else (0.005, 0.06)
-    return [round(float(x), 12) for x in np.linspace(low, high, n_points)]
+    if unbound is not None and np.isfinite(unbound) and unbound > 0:
+        high = min(high, float(unbound))
+        low = min(low, 0.5 * high)
+    return sorted({round(float(x), 4) for x in np.linspace(low, high, n_points)})
+
+
+def _unbound_tracking_error(model: FactorModel, scenario: Mapping[str, Any], build: Callable[..., Any] | None,
+                            **inputs: Any) -> float | None:
+    """The tracking error of the scenario's best book without its TE cap (None when that does not solve)."""
+    from trimtab.errors import TrimtabError
+
+    free = apply_point(scenario, {})
+    free["constraints"] = {k: v for k, v in dict(free.get("constraints") or {}).items() if k != "tracking_error"}
+    from trimtab.construct import build_problem
+
+    builder = build if build is not None else build_problem
+    try:
+        result = builder(model, free, **inputs).solve()
+    except TrimtabError:
+        return None
+    return result.ex_ante.get("tracking_error")
 
 
 def _table(result: Any, key: str) -> pd.DataFrame:
@@ -149,11 +171,15 @@ def frontier(
         raise InputError("frontier: alpha is required (expected active return is αᵀ(w − b))")
     if isinstance(n_points, bool) or not isinstance(n_points, int) or n_points < 2:
         raise InputError(f"frontier: n_points must be a whole number ≥ 2, got {n_points!r}")
-    levels = _levels(tracking_errors, "tracking_errors") or default_tracking_errors(scenario, n_points)
     inputs = dict(holdings=holdings, benchmark=benchmark, alpha=alpha, attributes=attributes, nav=nav, executor=executor, build=build, progress=progress)
     alpha_only = apply_point(scenario, {})
     costs = {k: v for k, v in dict(scenario.get("objective") or {}).items() if k in ("cost_aversion", "costs")}
     alpha_only["objective"] = {"maximize": "alpha", **costs}  # trading costs stay in the objective
+    levels = _levels(tracking_errors, "tracking_errors")
+    if not levels:
+        unbound = _unbound_tracking_error(model, alpha_only, build, holdings=holdings, benchmark=benchmark, alpha=alpha,
+                                          attributes=attributes, nav=nav)
+        levels = default_tracking_errors(scenario, n_points, unbound=unbound)
     te = sweep(model, alpha_only, {"tracking_error.max": levels}, **inputs)
     turnover = None
     caps = _levels(turnovers, "turnovers")

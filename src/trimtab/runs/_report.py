@@ -183,7 +183,10 @@ def html_table(frame: pd.DataFrame, *, percent_columns: Sequence[str] = (), max_
     rows = []
     for label, row in frame.head(max_rows).iterrows():
         parts = label if isinstance(label, tuple) else (label,)
-        label_text = " / ".join(_label(x) for x in parts)
+        names = list(frame.index.names)
+        label_text = " / ".join(
+            f"{100 * float(x):.2f}%" if names[i] in percent_columns and _numeric(x) else _label(x) for i, x in enumerate(parts)
+        )
         cells = "".join(
             f'<td class="{"num" if _numeric(row[c]) else "text"}">{_cell(row[c], str(c), percent_columns)}</td>' for c in frame.columns
         )
@@ -288,9 +291,11 @@ def write_frontier(result: Any, target: str | Path, *, inputs: Sequence[str | Pa
     with output_folder(Path(target), inputs) as tmp:
         _write_tables(tmp, {"frontier_te": result.tracking_error, "frontier_turnover": result.turnover})
         sections = [("Summary", f"<p>{html.escape(result.summary())}</p>"), ("Charts", figure_block(result.charts()))]
-        sections.append(("Against tracking error", html_table(result.tracking_error.set_index("limit"), percent_columns=_PERCENT)))
+        sections.append(("Against tracking error", html_table(result.tracking_error.set_index("limit").rename_axis("tracking-error cap"),
+                                                              percent_columns=(*_PERCENT, "tracking-error cap"))))
         if result.turnover is not None:
-            sections.append(("Against turnover", html_table(result.turnover.set_index("limit"), percent_columns=_PERCENT)))
+            sections.append(("Against turnover", html_table(result.turnover.set_index("limit").rename_axis("turnover cap"),
+                                                            percent_columns=(*_PERCENT, "turnover cap"))))
         write_page(tmp / "report.html", title, sections, notes=["Each point maximises expected active return with the other limits in force."])
     return Path(target)
 

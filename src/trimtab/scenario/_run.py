@@ -105,12 +105,41 @@ def variant_limits(scenario: Scenario) -> tuple[str, ...]:
 
 def solve(inputs: ScenarioInputs) -> ScenarioRun:
     """Rebalance one scenario; an infeasible problem or a solver failure is kept, not raised."""
+    from trimtab.scenario._notices import alert_settings, alignment_warnings
+
     problem = build(inputs)
     try:
         result = problem.solve()
     except (InfeasibleError, SolverError) as err:
         return ScenarioRun(inputs, error=err)
+    data = inputs.scenario.spec.data
+    files = {"holdings": Path(data.holdings.path).name, **({"benchmark": Path(data.benchmark.path).name} if data.benchmark is not None else {})}
+    result = result.with_context(
+        notices=alignment_warnings(inputs.alignment, files),
+        alerts=alert_settings(inputs.scenario.spec.alerts),
+        context=run_context(inputs),
+    )
     return ScenarioRun(inputs, result=result)
+
+
+def run_context(inputs: ScenarioInputs) -> dict[str, Any]:
+    """What the reports state about a run's inputs: scenario name and description, NAV and cash (and
+    how the NAV was found), and how much of the held weight the model covers."""
+    spec = inputs.scenario.spec
+    holdings = spec.data.holdings
+    table = inputs.alignment.table
+    dropped = table[(table["input"] == "holdings") & table["action"].isin(["dropped", "sold"])] if not table.empty else table
+    lost = float(dropped["weight"].fillna(0.0).sum()) if len(dropped) else 0.0
+    total = float(inputs.book.weights.sum())
+    return {
+        "scenario": spec.name,
+        "description": spec.description,
+        "nav": inputs.nav,
+        "cash": float(getattr(inputs.book, "cash", 0.0) or 0.0) if holdings.kind == "shares" else None,
+        "holdings_kind": holdings.kind,
+        "nav_given": holdings.nav is not None,
+        "holdings_coverage": (total - lost) / total if total else None,
+    }
 
 
 def load_all(

@@ -147,6 +147,14 @@ class OutputSection(_Strict):
     _dir_text = field_validator("dir")(_no_control)
 
 
+class AlertsSection(_Strict):
+    """Thresholds of the concentration alerts shown with every rebalance (docs/scenarios.md)."""
+
+    factor_share: float = Field(0.5, gt=0, le=1, description="alert when one factor takes more than this share of the variance")
+    asset_share: float = Field(0.2, gt=0, le=1, description="alert when one position takes more than this share of the variance")
+    pinned_positions: int = Field(1, ge=0, description="alert when at least this many positions sit at an upper weight limit (0: off)")
+
+
 class BacktestSection(_Strict):
     """How a walk-forward backtest treats a date on which the scenario does not solve as written."""
 
@@ -171,6 +179,7 @@ class ScenarioSpec(_Strict):
         None, description="{length: periods, count: k}: the k worst windows of the model's history, before and after the trade"
     )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
+    alerts: AlertsSection = Field(default_factory=AlertsSection)  # type: ignore[arg-type]
     backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]
 
     @field_validator("name", "description", mode="before")
