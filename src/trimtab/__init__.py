@@ -20,8 +20,10 @@ from trimtab.errors import (
     SolverError,
     TrimtabError,
 )
+
 # name -> module that defines it; resolved lazily by __getattr__ (``trimtab --help`` imports this
-# package: it must not pull in pandas, scipy or cvxpy)
+# package: it must not pull in pandas, scipy or cvxpy, and the command line installs its signal
+# handlers before they are imported)
 _LAZY = {
     "FactorModel": "trimtab.model",
     "FitReport": "trimtab.model",

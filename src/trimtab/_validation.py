@@ -22,6 +22,26 @@ def list_labels(labels: Iterable[Any], limit: int = MAX_LISTED) -> str:
     return shown
 
 
+def number_as_text(value: str) -> str:
+    """The message for a number written as text: quotes removed, percentages as fractions."""
+    body = value.strip()
+    if body.endswith("%"):
+        try:
+            return f"expected a number, got text {_describe(value)}; write percentages as fractions: {float(body[:-1]) / 100:g}"
+        except ValueError:
+            pass
+    try:
+        float(body)
+    except ValueError:
+        return f"expected a number, got {_describe(value)}"
+    return f"expected a number, got text {_describe(value)}; write it without quotes"
+
+
+def _describe(value: Any, limit: int = 60) -> str:
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
 def check_unique(index: pd.Index, what: str, owner: str) -> None:
     """Raise if ``index`` holds duplicates, naming up to five of them."""
     if not index.is_unique:

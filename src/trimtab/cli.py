@@ -13,7 +13,6 @@ import functools
 import json
 import sys
 import time
-import warnings
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -24,14 +23,15 @@ from typing import TYPE_CHECKING
 
 import typer
 
+from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_INTERNAL, EXIT_SOLVER, guarded  # noqa: F401 - re-exported
+from trimtab._cli_guard import fail as _fail
 from trimtab._version import __version__
-from trimtab.errors import InfeasibleError, InputError, SolverError, TrimtabError
+from trimtab.errors import InfeasibleError, InputError, SolverError
 
 if TYPE_CHECKING:  # imported where used: `trimtab --help` loads neither pandas nor the optimizer
     from rich.console import Console
     from rich.table import Table
 
-EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
 
 app = typer.Typer(
     name="trimtab",
@@ -131,54 +131,9 @@ def _ui(ctx: typer.Context) -> Ui:
     return root.obj
 
 
-def _fail(message: str, code: int) -> None:
-    """One line on stderr (files under the working folder shown relative to it), then exit."""
-    first = message.strip().splitlines()[0] if message.strip() else "unknown error"
-    first = first.replace(f"{Path.cwd()}/", "") if Path.cwd() != Path("/") else first
-    sys.stderr.write(f"trimtab: error: {first}\n")
-    raise typer.Exit(code)
-
-
 def _guarded(fn: F) -> F:
     """Turn trimtab's errors into one stderr line and their exit code; never a traceback."""
-
-    @functools.wraps(fn)
-    def wrapper(*args: Any, **kwargs: Any) -> Any:
-        ctx = next((a for a in [*args, *kwargs.values()] if hasattr(a, "find_root")), None)
-        ui = _ui(ctx) if ctx is not None else Ui()
-        try:
-            with warnings.catch_warnings(record=True) as caught:
-                warnings.simplefilter("always")
-                try:
-                    return fn(*args, **kwargs)
-                finally:
-                    _show_warnings(caught)
-        except typer.Exit:
-            raise
-        except InfeasibleError as err:
-            _print_relaxation(ui, None, err)
-            _fail(str(err), EXIT_INFEASIBLE)
-        except TrimtabError as err:
-            _fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
-        except KeyboardInterrupt:
-            _fail("interrupted; nothing was written", 130)
-        except Exception as err:  # noqa: BLE001 - a bug: one line unless --verbose asks for the traceback
-            if ui.verbose:
-                raise
-            _fail(
-                f"internal error ({type(err).__name__}: {err}); this is a bug in trimtab, "
-                "rerun with --verbose for the traceback",
-                EXIT_INTERNAL,
-            )
-        return None
-
-    return wrapper  # type: ignore[return-value]
-
-
-def _show_warnings(caught: Sequence[warnings.WarningMessage]) -> None:
-    """Each distinct warning once, as one line on stderr."""
-    for text in dict.fromkeys(str(w.message).strip().splitlines()[0] for w in caught if str(w.message).strip()):
-        sys.stderr.write(f"trimtab: warning: {text}\n")
+    return guarded(fn, on_infeasible=lambda ctx, err: _print_relaxation(_ui(ctx) if ctx is not None else Ui(), None, err))
 
 
 def _version(value: bool) -> None:
@@ -621,8 +576,10 @@ _reflow_help()
 
 # ---------------------------------------------------------------------- entry point
 def main() -> None:
-    """Console-script entry point (``trimtab``)."""
-    app(prog_name="trimtab")
+    """Console-script entry point (``trimtab``): signal handlers, then the app (see :mod:`trimtab._entry`)."""
+    from trimtab._entry import main as entry
+
+    entry()
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -6,7 +6,8 @@ one line on stderr and a documented exit code without catching programming error
 
 from __future__ import annotations
 
-from typing import Any
+from collections.abc import Iterable, Sequence
+from typing import Any, NamedTuple
 
 
 class TrimtabError(Exception):
@@ -22,9 +23,54 @@ class InputError(TrimtabError, ValueError):
 
 
 class ScenarioError(InputError):
-    """A scenario file or mapping that does not validate (names the file and the key path)."""
+    """A scenario file or mapping that does not validate (names the file and the key path).
+
+    Attributes
+    ----------
+    problems : tuple of Problem
+        Every problem found in one pass, when the raiser collected several (see
+        :func:`problems_message`); empty when the message is the only record.
+    """
 
     exit_code = 2
+
+    def __init__(self, message: str, problems: Iterable[Problem] = ()) -> None:
+        super().__init__(message)
+        self.problems = tuple(problems)
+
+    @classmethod
+    def of(cls, problems: Sequence[Problem]) -> ScenarioError:
+        """One error carrying ``problems``, its message from :func:`problems_message`."""
+        return cls(problems_message(problems), problems)
+
+
+class Problem(NamedTuple):
+    """One problem in a scenario: the file (or source), the key path, what is wrong."""
+
+    source: str
+    key_path: str
+    text: str
+    unknown_key: bool = False
+
+
+#: Most problems one message lists.
+MAX_PROBLEMS = 5
+
+
+def problems_message(problems: Sequence[Problem]) -> str:
+    """One line for every problem: unknown keys first, at most :data:`MAX_PROBLEMS`, then a count."""
+    ordered = sorted(dict.fromkeys(problems), key=lambda p: not p.unknown_key)
+    first = ordered[0].source
+
+    def one(p: Problem) -> str:
+        where = "" if p.source == first else f"{p.source}: "
+        return f"{where}{p.key_path}: {p.text}" if p.key_path else f"{where}{p.text}"
+
+    if len(ordered) == 1:
+        return f"{first}: {one(ordered[0])}"
+    shown = " ".join(f"({i}) {one(p)}" for i, p in enumerate(ordered[:MAX_PROBLEMS], 1))
+    more = f" (and {len(ordered) - MAX_PROBLEMS} more)" if len(ordered) > MAX_PROBLEMS else ""
+    return f"{first}: {len(ordered)} problems: {shown}{more}"
 
 
 class ModelError(InputError):

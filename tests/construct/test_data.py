@@ -59,7 +59,7 @@ def test_zero_policy_sells_unknown_holdings_and_counts_their_turnover(small):
         ({"holdings": "frame"}, r"^holdings: expected a pandas Series by asset, got DataFrame$"),
         ({"holdings": "dup"}, r"^holdings: duplicate asset ids: A0001$"),
         ({"holdings": "text"}, r"^holdings: expected numbers, got dtype"),
-        ({"nav": -5.0}, r"^rebalance: nav must be a positive number \(currency\), got -5\.0$"),
+        ({"nav": -5.0}, r"^rebalance: nav must be a positive, finite number \(currency\), got -5\.0$"),
         ({"unknown_assets": "ignore"}, r"^rebalance: unknown_assets must be one of error, drop, zero, got 'ignore'$"),
         ({"attributes": "list"}, r"^attributes: expected a DataFrame by asset, got list$"),
         ({"solvers": ["NOPE"]}, r"^rebalance: solvers not installed: NOPE; installed: "),
@@ -165,3 +165,16 @@ def test_update_keeps_the_unknown_asset_policy(small):
     with pytest.warns(DataWarning, match=r"holdings: 1 assets not in the risk model dropped: NEWCO"):
         changed = problem.update(holdings=drifted)
     assert changed.unknown_assets == "drop"
+
+
+def test_negative_benchmark_weight_is_named_not_reported_as_a_sum(small_model) -> None:  # type: ignore[no-untyped-def]
+    # issue #11: a negative weight was reported as "weights must sum to 1"
+    import pandas as pd
+
+    import trimtab
+
+    benchmark = pd.Series(1 / small_model.n_assets, index=small_model.assets)
+    benchmark.iloc[0], benchmark.iloc[1] = -0.01, benchmark.iloc[1] + 0.01 + 1 / small_model.n_assets
+    holdings = pd.Series(1 / small_model.n_assets, index=small_model.assets)
+    with pytest.raises(trimtab.InputError, match=r"^benchmark: weights must be ≥ 0; negative for assets: A0000$"):
+        trimtab.rebalance(small_model, {"objective": {"minimize": "active_risk"}}, holdings=holdings, benchmark=benchmark)

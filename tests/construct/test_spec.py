@@ -58,8 +58,8 @@ def test_scenario_hash_is_sha256_of_canonical_json():
          r"^fund\.yaml: constraints\.weight\.max: must be ≥ constraints\.weight\.min \(got 0\.01 < 0\.02\)$"),
         ({"tracking_error": {"max": -0.01}}, None, r"constraints\.tracking_error\.max: must be ≥ 0 \(got -0\.01\)"),
         ({"turnover": {}}, None, r"constraints\.turnover: missing required key\(s\) max"),
-        ({"turnover": {"max": 0.1, "min": 0.0}}, None, r"constraints\.turnover: unknown key\(s\) min; allowed: max, soft"),
-        ({"colour": True}, None, r"constraints: unknown constraint\(s\) colour; allowed: fully_invested"),
+        ({"turnover": {"max": 0.1, "min": 0.0}}, None, r"constraints\.turnover\.min: unknown key; allowed here: max, soft"),
+        ({"colour": True}, None, r"constraints\.colour: unknown key; allowed here: fully_invested"),
         ({"weight": {"max": "big"}}, None, r"constraints\.weight\.max: expected a number, got 'big'"),
         ({"weight": {"max": float("nan")}}, None, r"constraints\.weight\.max: expected a finite number"),
         ({"weight": {}}, None, r"constraints\.weight: give min, max or both"),
@@ -80,7 +80,7 @@ def test_scenario_hash_is_sha256_of_canonical_json():
         ({"leverage": {}}, None, r"constraints\.leverage: give gross, net, short or several"),
         ({"leverage": {"net": [1.1, 0.9]}}, None, r"constraints\.leverage\.net: upper must be ≥ lower"),
         ({"turnover": {"max": 0.1, "soft": {"penalty": 0}}}, None, r"constraints\.turnover\.soft\.penalty: must be > 0 \(got 0\)"),
-        ({"turnover": {"max": 0.1, "soft": {"weight": 1}}}, None, r"constraints\.turnover\.soft: unknown key\(s\) weight"),
+        ({"turnover": {"max": 0.1, "soft": {"weight": 1}}}, None, r"constraints\.turnover\.soft\.weight: unknown key; allowed here: penalty"),
         ({"long_only": "yes"}, None, r"constraints\.long_only: expected a mapping, got 'yes'"),
         ({"no_buy": []}, None, r"constraints\.no_buy: expected a non-empty list of asset ids"),
         ({"no_buy": ["A", "B", "A"]}, None, r"constraints\.no_buy: duplicate asset ids: A"),
@@ -92,7 +92,7 @@ def test_scenario_hash_is_sha256_of_canonical_json():
         ({"min_trade": {"weight": -0.001}}, None, r"constraints\.min_trade\.weight: must be > 0"),
         ({"liquidity": {"days": 1}}, None, r"constraints\.liquidity: missing required key\(s\) max_adv_fraction"),
         ({"liquidity": {"max_adv_fraction": 0.1, "days": 0}}, None, r"constraints\.liquidity\.days: must be > 0"),
-        ({"round_lots": {"lots": "lot"}}, None, r"constraints\.round_lots: unknown key\(s\) lots"),
+        ({"round_lots": {"lots": "lot"}}, None, r"constraints\.round_lots\.lots: unknown key; allowed here: lot_column, price_column"),
         ({"factor_risk": {"max": 0.02, "active": 1}}, None, r"constraints\.factor_risk\.active: expected true or false"),
         ({"beta": {"min": 1.1, "max": 0.9}}, None, r"constraints\.beta\.max: must be ≥ constraints\.beta\.min"),
         ([1, 2], None, r"constraints: expected a mapping, got \[1, 2\]"),
@@ -103,7 +103,7 @@ def test_scenario_hash_is_sha256_of_canonical_json():
         (None, {"minimize": "active_risk", "maximize": "alpha"}, r"objective: give exactly one of .* \(got maximize, minimize\)"),
         (None, {"risk_aversion": 3}, r"objective: give exactly one of .* \(got none\)"),
         (None, {"maximize": "alpha", "costs": {}}, r"objective\.costs: name at least one of spread, commission, impact"),
-        (None, {"maximize": "alpha", "costs": {"fees": "x"}}, r"objective\.costs: unknown key\(s\) fees"),
+        (None, {"maximize": "alpha", "costs": {"fees": "x"}}, r"objective\.costs\.fees: unknown key; allowed here: spread, commission, impact"),
         (None, {"maximize": "alpha", "cost_aversion": -2}, r"objective\.cost_aversion: must be ≥ 0"),
         (None, {"risk_budget": {"budgets": {"A": 0}}}, r"objective\.risk_budget\.budgets\.A: must be > 0"),
         (None, {"risk_budget": {"budgets": {}}}, r"objective\.risk_budget\.budgets: expected a mapping label"),
@@ -120,7 +120,7 @@ def test_bad_scenarios_name_the_key_path(constraints, objective, message):
 def test_top_level_shape_errors():
     with pytest.raises(ScenarioError, match=r"^scenario: \(top level\): missing required key\(s\) objective$"):
         validate_scenario({"constraints": {}})
-    with pytest.raises(ScenarioError, match=r"scenario: \(top level\): unknown key\(s\) data"):
+    with pytest.raises(ScenarioError, match=r"scenario: data: unknown key; allowed here: objective, constraints"):
         validate_scenario({"objective": UTILITY, "data": {}})
     with pytest.raises(ScenarioError, match=r"scenario: \(top level\): expected a mapping, got 3"):
         validate_scenario(3)

@@ -104,5 +104,5 @@ def test_replay_settings_are_checked():
 
     with pytest.raises(ScenarioError, match=r"replay\.length: must be ≥ 1"):
         validate_scenario({"objective": {"minimize": "active_risk"}, "replay": {"length": 0}})
-    with pytest.raises(ScenarioError, match=r"replay: unknown key\(s\) months"):
+    with pytest.raises(ScenarioError, match=r"replay\.months: unknown key; allowed here: length, count"):
         validate_scenario({"objective": {"minimize": "active_risk"}, "replay": {"length": 21, "months": 3}})

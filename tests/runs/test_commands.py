@@ -59,7 +59,7 @@ def test_parse_grid(tmp_path) -> None:
         (["risk_aversion"], None, r"--grid risk_aversion: expected KEY=VALUES"),
         (["x=1"], grid, r"--grid and --grid-file: give one, not both"),
         ([], bad, r"bad.yaml: expected a mapping parameter → list of values, or a list of points"),
-        ([], tmp_path / "missing.yaml", r"missing.yaml: cannot read the grid file"),
+        ([], tmp_path / "missing.yaml", r"missing.yaml: no such grid file"),
     ]:
         with pytest.raises(InputError, match=message):
             parse_grid(items, path)

@@ -110,7 +110,14 @@ def test_failed_points_are_kept_with_their_parameters(book) -> None:
     # a limit the built problem cannot re-solve is a failed row naming the error, not a crash
     bad = run(book, scenario, [{"tracking_error.max": 0.01}, {"turnover.max": 0.1}])
     assert bad.table["status"].tolist() == ["solved", "failed"]
-    assert bad.table["error"].iloc[1] == "InputError: solve: limits not re-solvable: ['turnover.max']"
+    assert bad.table["error"].iloc[1] == "solve: limits not re-solvable: ['turnover.max']"
+
+
+def test_a_grid_value_the_scenario_refuses_fails_the_sweep_before_solving(book) -> None:
+    # issue #11: a 3 meant as 3% was a failed row with a class name; it is a bad grid, named
+    scenario = {"objective": {"maximize": "alpha"}, "constraints": {"tracking_error": {"max": 0.02}}}
+    with pytest.raises(InputError, match=r"^grid point tracking_error.max=3: constraints.tracking_error.max: 3 would mean 300%.*did you mean 0.03\?$"):
+        run(book, scenario, {"tracking_error.max": [0.01, 3]})
 
 
 def test_without_reuse_every_point_is_built(book) -> None:

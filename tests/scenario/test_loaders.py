@@ -166,5 +166,5 @@ def test_series_and_attributes(tmp_path: Path) -> None:
 
 def test_book_without_value(tmp_path: Path) -> None:
     (tmp_path / "z.csv").write_text("asset,shares,price\nAAA,0,10\n", encoding="utf-8")
-    with pytest.raises(InputError, match=r"z\.csv: the book's value Σ shares·price \+ cash is 0; expected a positive NAV"):
+    with pytest.raises(InputError, match=r"z\.csv: the book's value Σ shares·price \+ cash is 0; expected a positive, finite NAV"):
         load_holdings(HoldingsFile(path=str(tmp_path / "z.csv"), kind="shares"))

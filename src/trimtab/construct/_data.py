@@ -22,6 +22,7 @@ import pandas as pd
 
 from trimtab._validation import check_unique, list_labels
 from trimtab.errors import DataWarning, InputError, ModelError
+from trimtab.model._arguments import is_positive_number
 from trimtab.model import FactorModel
 
 POLICIES = ("error", "drop", "zero")
@@ -154,8 +155,9 @@ def prepare(
         bad = model.assets[~(model._d >= 0)]
         raise ModelError(f"rebalance: the model has negative or undefined specific variance for assets: {list_labels(bad)}")
     if nav is not None:
-        if isinstance(nav, bool) or not isinstance(nav, (int, float)) or not np.isfinite(nav) or nav <= 0:
-            raise InputError(f"rebalance: nav must be a positive number (currency), got {nav!r}")
+        if not is_positive_number(nav):
+            shown = repr(nav) if len(repr(nav)) <= 40 else repr(nav)[:39] + "…"
+            raise InputError(f"rebalance: nav must be a positive, finite number (currency), got {shown}")
         nav = float(nav)
     w0, sold = _weights(model, holdings, "holdings", unknown_assets, sell_unknown=True)
     if long_book and w0.sum() + sold.sum() > 1.0 + HOLDINGS_SUM_TOL:
@@ -166,6 +168,10 @@ def prepare(
     b = None
     if benchmark is not None:
         b, _ = _weights(model, benchmark, "benchmark", unknown_assets, sell_unknown=False)
+        if (b < 0).any():
+            raise InputError(
+                f"benchmark: weights must be ≥ 0; negative for assets: {list_labels(model.assets[b < 0])}"
+            )
         if abs(b.sum() - 1.0) > BENCHMARK_SUM_TOL:
             raise InputError(f"benchmark: weights must sum to 1 (got {b.sum():.8g})")
     a = np.zeros(model.n_assets)

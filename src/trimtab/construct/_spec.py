@@ -16,6 +16,7 @@ from typing import Any
 
 from trimtab.construct import _spec_fields as f
 from trimtab.construct._spec_fields import Path
+from trimtab.errors import Problem, ScenarioError
 
 #: Objective kinds: the key and the values it takes.
 MAXIMIZE = ("utility", "alpha")
@@ -24,6 +25,13 @@ MINIMIZE = ("active_risk", "total_risk")
 COST_COLUMNS = {"spread": "spread", "commission": "commission", "impact": "impact"}
 #: Constraints that risk budgeting can be combined with (the log formulation is exact only there).
 RISK_BUDGET_COMPATIBLE = ("fully_invested", "long_only")
+#: Largest plausible size of a limit that is a fraction of NAV: above it, the value was most likely
+#: written as a percentage (3 for 3%) and is refused with a hint. A position, group or cash weight
+#: beyond 100% of NAV, a one-way turnover or a single trade beyond 200%, an annualised risk beyond
+#: 100% are not mandates an equity fund writes.
+PLAUSIBLE_WEIGHT = 1.0
+PLAUSIBLE_TRADE = 2.0
+PLAUSIBLE_TURNOVER = 2.0
 
 
 @dataclass(frozen=True, eq=False)
@@ -157,21 +165,23 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     """
     top = Path(source)
     body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay"], ["objective"])
-    objective = _objective(top / "objective", body["objective"])
+    problems: list[Problem] = []
+    objective = _collect(problems, _objective, top / "objective", body["objective"])
     raw = body.get("constraints") or {}
     cpath = top / "constraints"
     if not isinstance(raw, Mapping):
         raise cpath.fail(f"expected a mapping, got {f.describe(raw)}")
     unknown = [k for k in raw if k not in VALIDATORS]
     if unknown:
-        raise cpath.fail(
-            f"unknown constraint(s) {f.list_labels(unknown)}; allowed: {', '.join(VALIDATORS)}"
-        )
+        problems.extend(f.unknown_keys(cpath, unknown, VALIDATORS).problems)
     constraints: dict[str, Any] = {}
     for key, value in raw.items():
-        checked = VALIDATORS[key](cpath / key, value)
-        if checked is not None:
-            constraints[key] = checked
+        if key in VALIDATORS:
+            checked = _collect(problems, VALIDATORS[key], cpath / key, value)
+            if checked is not None:
+                constraints[key] = checked
+    if problems:
+        raise ScenarioError.of(problems)
     _cross_checks(cpath, objective, constraints)
     normalised: dict[str, Any] = {"objective": {k: v for k, v in objective.items() if k != "kind"}, "constraints": constraints}
     if body.get("stress") is not None:
@@ -179,6 +189,15 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     if body.get("replay") is not None:
         normalised["replay"] = _replay(top / "replay", body["replay"])
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
+
+
+def _collect(problems: list[Problem], check: Callable[[Path, Any], Any], path: Path, value: Any) -> Any:
+    """``check(path, value)``, its problems added to ``problems`` instead of raised."""
+    try:
+        return check(path, value)
+    except ScenarioError as err:
+        problems.extend(err.problems or [Problem(path.source, str(path), str(err))])
+        return None
 
 
 # ---------------------------------------------------------------------- objective
@@ -260,10 +279,11 @@ def _soft_of(path: Path, body: Mapping[str, Any]) -> dict[str, float] | None:
     return f.soft(path / "soft", body["soft"]) if body.get("soft") is not None else None
 
 
-def _range(path: Path, value: Any, *, minimum: float | None = None, need_one: bool = True) -> dict[str, Any]:
+def _range(path: Path, value: Any, *, minimum: float | None = None, need_one: bool = True,
+           plausible: float | None = None) -> dict[str, Any]:
     body = f.mapping(path, value, ["min", "max", "soft"])
-    lower = f.number(path / "min", body.get("min"), minimum=minimum, allow_none=True)
-    upper = f.number(path / "max", body.get("max"), minimum=minimum, allow_none=True)
+    lower = f.number(path / "min", body.get("min"), minimum=minimum, allow_none=True, plausible=plausible)
+    upper = f.number(path / "max", body.get("max"), minimum=minimum, allow_none=True, plausible=plausible)
     if need_one and lower is None and upper is None:
         raise path.fail("give min, max or both")
     f.ordered(path, lower, upper, "min", "max")
@@ -271,25 +291,30 @@ def _range(path: Path, value: Any, *, minimum: float | None = None, need_one: bo
 
 
 def _cap(path: Path, value: Any, extra: Mapping[str, Callable[[Path, Any], Any]] | None = None,
-         defaults: Mapping[str, Any] | None = None) -> dict[str, Any]:
+         defaults: Mapping[str, Any] | None = None, plausible: float = 1.0) -> dict[str, Any]:
     extra = dict(extra or {})
     body = f.mapping(path, value, ["max", "soft", *extra], ["max"])
-    out: dict[str, Any] = {"max": f.number(path / "max", body["max"], minimum=0.0)}
+    out: dict[str, Any] = {"max": f.number(path / "max", body["max"], minimum=0.0, plausible=plausible)}
     for key, check in extra.items():
         out[key] = check(path / key, body[key]) if key in body else (defaults or {}).get(key)
     out["soft"] = _soft_of(path, body)
     return out
 
 
-def _bounds_with_overrides(path: Path, value: Any) -> dict[str, Any]:
+def _bounds_with_overrides(path: Path, value: Any, plausible: float = PLAUSIBLE_WEIGHT) -> dict[str, Any]:
     body = f.mapping(path, value, ["min", "max", "overrides", "soft"])
-    out = _range(path, {k: v for k, v in body.items() if k != "overrides"}, need_one="overrides" not in body)
-    out["overrides"] = f.overrides(path / "overrides", body["overrides"]) if "overrides" in body else {}
+    out = _range(path, {k: v for k, v in body.items() if k != "overrides"}, need_one="overrides" not in body,
+                 plausible=plausible)
+    out["overrides"] = f.overrides(path / "overrides", body["overrides"], plausible) if "overrides" in body else {}
     return out
 
 
+def _trade(path: Path, value: Any) -> dict[str, Any]:
+    return _bounds_with_overrides(path, value, PLAUSIBLE_TRADE)
+
+
 def _cash(path: Path, value: Any) -> dict[str, Any]:
-    return _range(path, value, minimum=None)
+    return _range(path, value, minimum=None, plausible=PLAUSIBLE_WEIGHT)
 
 
 def _leverage(path: Path, value: Any) -> dict[str, Any]:
@@ -304,10 +329,10 @@ def _leverage(path: Path, value: Any) -> dict[str, Any]:
     }
 
 
-def _bounds_table(path: Path, value: Any) -> dict[Any, list[float | None]]:
+def _bounds_table(path: Path, value: Any, plausible: float | None = None) -> dict[Any, list[float | None]]:
     if not isinstance(value, Mapping) or not value:
         raise path.fail(f"expected a mapping name → [lower, upper] (default allowed), got {f.describe(value)}")
-    return {k: f.interval(path / k, v) for k, v in value.items()}
+    return {k: f.interval(path / k, v, plausible) for k, v in value.items()}
 
 
 def _group_one(path: Path, value: Any) -> dict[str, Any]:
@@ -315,7 +340,7 @@ def _group_one(path: Path, value: Any) -> dict[str, Any]:
     return {
         "by": f.text(path / "by", body["by"]),
         "active": f.flag(path / "active", body.get("active", False)),
-        "bounds": _bounds_table(path / "bounds", body["bounds"]),
+        "bounds": _bounds_table(path / "bounds", body["bounds"], PLAUSIBLE_WEIGHT),
         "soft": _soft_of(path, body),
     }
 
@@ -346,6 +371,10 @@ def _beta(path: Path, value: Any) -> dict[str, Any]:
 
 def _risk_cap(path: Path, value: Any) -> dict[str, Any]:
     return _cap(path, value)
+
+
+def _turnover(path: Path, value: Any) -> dict[str, Any]:
+    return _cap(path, value, plausible=PLAUSIBLE_TURNOVER)
 
 
 def _part_risk_cap(path: Path, value: Any) -> dict[str, Any]:
@@ -410,7 +439,7 @@ def _replay(path: Path, value: Any) -> dict[str, int]:
 def _liquidity(path: Path, value: Any) -> dict[str, Any]:
     body = f.mapping(path, value, ["max_adv_fraction", "days", "adv_column", "price_column", "soft"], ["max_adv_fraction"])
     return {
-        "max_adv_fraction": f.number(path / "max_adv_fraction", body["max_adv_fraction"], minimum=0.0),
+        "max_adv_fraction": f.number(path / "max_adv_fraction", body["max_adv_fraction"], minimum=0.0, plausible=1.0),
         "days": f.number(path / "days", body.get("days", 1), minimum=0.0, strict=True),
         "adv_column": f.text(path / "adv_column", body.get("adv_column", "adv")),
         "price_column": f.text(path / "price_column", body.get("price_column", "price")),
@@ -426,13 +455,13 @@ def _must_hold(path: Path, value: Any) -> dict[str, Any]:
     body = f.mapping(path, value, ["assets", "min_weight"], ["assets", "min_weight"])
     return {
         "assets": f.labels(path / "assets", body["assets"]),
-        "min_weight": f.number(path / "min_weight", body["min_weight"], minimum=0.0, strict=True),
+        "min_weight": f.number(path / "min_weight", body["min_weight"], minimum=0.0, strict=True, plausible=PLAUSIBLE_WEIGHT),
     }
 
 
 def _min_trade(path: Path, value: Any) -> dict[str, Any]:
     body = f.mapping(path, value, ["weight"], ["weight"])
-    return {"weight": f.number(path / "weight", body["weight"], minimum=0.0, strict=True)}
+    return {"weight": f.number(path / "weight", body["weight"], minimum=0.0, strict=True, plausible=PLAUSIBLE_WEIGHT)}
 
 
 def _round_lots(path: Path, value: Any) -> dict[str, Any]:
@@ -467,8 +496,8 @@ VALIDATORS: dict[str, Callable[[Path, Any], Any]] = {
     "total_risk": _risk_cap,
     "factor_risk": _part_risk_cap,
     "specific_risk": _part_risk_cap,
-    "turnover": _risk_cap,
-    "trade": _bounds_with_overrides,
+    "turnover": _turnover,
+    "trade": _trade,
     "liquidity": _liquidity,
     "stress_loss": _stress_loss,
     "no_buy": _asset_list,

@@ -6,12 +6,14 @@ naming it, what is allowed and what was received.
 
 from __future__ import annotations
 
+import datetime
+import difflib
 import math
 from collections.abc import Iterable, Mapping
 from typing import Any
 
-from trimtab._validation import list_labels
-from trimtab.errors import ScenarioError
+from trimtab._validation import list_labels, number_as_text
+from trimtab.errors import Problem, ScenarioError
 
 
 class Path:
@@ -28,12 +30,23 @@ class Path:
         return ".".join(self.parts) if self.parts else "(top level)"
 
     def fail(self, message: str) -> ScenarioError:
-        return ScenarioError(f"{self.source}: {self}: {message}")
+        return ScenarioError(f"{self.source}: {self}: {message}", [Problem(self.source, str(self), message)])
+
+
+def unknown_keys(path: Path, keys: Iterable[Any], allowed: Iterable[str]) -> ScenarioError:
+    """One problem per unknown key at ``path``, each with the closest allowed key or the allowed list."""
+    options = list(allowed)
+    problems = []
+    for key in keys:
+        close = difflib.get_close_matches(str(key), options, n=1, cutoff=0.6)
+        hint = f"did you mean {close[0]}?" if close else f"allowed here: {', '.join(options)}"
+        problems.append(Problem(path.source, str(path / key), f"unknown key; {hint}", True))
+    return ScenarioError.of(problems)
 
 
 def describe(value: Any) -> str:
-    """A short rendering of a received value for a message."""
-    text = repr(value)
+    """A short rendering of a received value for a message (a date as YAML writes it)."""
+    text = value.isoformat() if isinstance(value, (datetime.date, datetime.datetime)) else repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
 
 
@@ -44,7 +57,7 @@ def mapping(path: Path, value: Any, allowed: Iterable[str], required: Iterable[s
     allowed = list(allowed)
     unknown = [k for k in value if k not in allowed]
     if unknown:
-        raise path.fail(f"unknown key(s) {list_labels(unknown)}; allowed: {', '.join(allowed)}")
+        raise unknown_keys(path, unknown, allowed)
     missing = [k for k in required if k not in value]
     if missing:
         raise path.fail(f"missing required key(s) {', '.join(missing)}")
@@ -59,13 +72,24 @@ def number(
     maximum: float | None = None,
     strict: bool = False,
     allow_none: bool = False,
+    plausible: float | None = None,
 ) -> float | None:
-    """A finite real number, optionally ≥ (or >, with ``strict``) ``minimum`` and ≤ ``maximum``."""
+    """A finite real number, optionally ≥ (or >, with ``strict``) ``minimum`` and ≤ ``maximum``.
+
+    Numbers written as text (``"0.25"``, ``"3%"``) are refused with a hint, the same rule as for
+    every other number in a scenario. ``plausible`` is the largest size a fraction of NAV can
+    sensibly take here: a larger value is taken for a percentage and refused ("did you mean 0.03?").
+    """
     if value is None and allow_none:
         return None
+    if isinstance(value, str):
+        raise path.fail(number_as_text(value))
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise path.fail(f"expected a number, got {describe(value)}")
-    out = float(value)
+    try:
+        out = float(value)
+    except OverflowError:
+        raise path.fail(f"expected a number of sensible size, got one with {len(str(abs(value))):,} digits") from None
     if not math.isfinite(out):
         raise path.fail(f"expected a finite number, got {describe(value)}")
     if minimum is not None and (out < minimum or (strict and out == minimum)):
@@ -73,6 +97,10 @@ def number(
         raise path.fail(f"must be {sign} {minimum:g} (got {out:g})")
     if maximum is not None and out > maximum:
         raise path.fail(f"must be ≤ {maximum:g} (got {out:g})")
+    if plausible is not None and abs(out) > plausible:
+        raise path.fail(
+            f"{out:g} would mean {out:.0%}; limits are fractions (0.03 is 3%): did you mean {out / 100:g}?"
+        )
     return out
 
 
@@ -82,6 +110,8 @@ def integer(path: Path, value: Any, *, minimum: int = 0) -> int:
         raise path.fail(f"expected a whole number, got {describe(value)}")
     if value < minimum:
         raise path.fail(f"must be ≥ {minimum} (got {value})")
+    if value > 2**53:
+        raise path.fail(f"expected a whole number of sensible size, got one with {len(str(value)):,} digits")
     return int(value)
 
 
@@ -112,15 +142,15 @@ def ordered(path: Path, lower: float | None, upper: float | None, lower_key: str
         )
 
 
-def interval(path: Path, value: Any) -> list[float | None]:
+def interval(path: Path, value: Any, plausible: float | None = None) -> list[float | None]:
     """``[lower, upper]`` (either may be null for unbounded) or one number for ``[x, x]``."""
     if isinstance(value, (int, float)) and not isinstance(value, bool):
-        x = number(path, value)
+        x = number(path, value, plausible=plausible)
         return [x, x]
     if not isinstance(value, (list, tuple)) or len(value) != 2:
         raise path.fail(f"expected [lower, upper] (null for unbounded), got {describe(value)}")
-    lower = number(path / "0", value[0], allow_none=True)
-    upper = number(path / "1", value[1], allow_none=True)
+    lower = number(path / "0", value[0], allow_none=True, plausible=plausible)
+    upper = number(path / "1", value[1], allow_none=True, plausible=plausible)
     if lower is not None and upper is not None and upper < lower:
         raise path.fail(f"upper must be ≥ lower (got [{lower:g}, {upper:g}])")
     return [lower, upper]
@@ -131,7 +161,7 @@ def labels(path: Path, value: Any) -> list[Any]:
     if not isinstance(value, (list, tuple)) or not value:
         raise path.fail(f"expected a non-empty list of asset ids, got {describe(value)}")
     for item in value:
-        if isinstance(item, (bool, Mapping, list, tuple)) or item is None:
+        if isinstance(item, bool) or not isinstance(item, (str, int, float)):
             raise path.fail(f"expected asset ids (text or numbers), got {describe(item)}")
     seen: set[Any] = set()
     dups = [x for x in value if x in seen or seen.add(x)]  # type: ignore[func-returns-value]
@@ -146,8 +176,8 @@ def soft(path: Path, value: Any) -> dict[str, float]:
     return {"penalty": number(path / "penalty", body["penalty"], minimum=0.0, strict=True)}  # type: ignore[dict-item]
 
 
-def overrides(path: Path, value: Any) -> dict[Any, list[float | None]]:
+def overrides(path: Path, value: Any, plausible: float | None = None) -> dict[Any, list[float | None]]:
     """Per-asset ``{asset: [lower, upper]}``."""
     if not isinstance(value, Mapping):
         raise path.fail(f"expected a mapping asset → [lower, upper], got {describe(value)}")
-    return {asset: interval(path / asset, bounds) for asset, bounds in value.items()}
+    return {asset: interval(path / asset, bounds, plausible) for asset, bounds in value.items()}

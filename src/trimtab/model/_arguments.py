@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -17,6 +18,16 @@ def is_whole_number(value: Any) -> bool:
     return isinstance(value, (int, np.integer)) and not isinstance(value, bool)
 
 
+def is_finite_number(value: Any) -> bool:
+    """True for a real number that is finite as a float (a 400-digit integer is not)."""
+    if not is_number(value):
+        return False
+    try:
+        return math.isfinite(float(value))
+    except OverflowError:
+        return False
+
+
 def is_positive_number(value: Any) -> bool:
     """True for a finite real number > 0."""
-    return is_number(value) and bool(np.isfinite(value)) and value > 0
+    return is_finite_number(value) and value > 0

@@ -23,6 +23,7 @@ from trimtab._validation import (
     list_labels,
 )
 from trimtab.errors import InputError, ModelError
+from trimtab.model._arguments import is_positive_number
 from trimtab.model._fit_report import FitReport
 
 if TYPE_CHECKING:
@@ -95,7 +96,7 @@ class FactorModel:
         object.__setattr__(self, "factor_covariance", F)
         object.__setattr__(self, "specific_variance", d)
         ppy = self.periods_per_year
-        if not isinstance(ppy, (int, float, np.integer, np.floating)) or not np.isfinite(ppy) or ppy <= 0:
+        if not is_positive_number(ppy):
             raise ModelError(f"FactorModel: periods_per_year must be a positive number, got {ppy!r}")
         object.__setattr__(self, "periods_per_year", float(ppy))
         if self.factor_groups is not None:

@@ -21,13 +21,14 @@ import hashlib
 import json
 import os
 import shutil
-import tempfile
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from trimtab._paths import COMPLETED, ensure_parent_folder, make_partial, remove_stale_partials
+from trimtab._strict_yaml import check_regular, read_regular_file
 from trimtab._version import __version__
 from trimtab.errors import InputError, ModelError
 
@@ -86,8 +87,9 @@ def save_model(model: Any, path: str | Path, *, file_format: str = "parquet", ov
             raise InputError(f"FactorModel.save: {target} is a non-empty folder that holds no model; refusing to replace it")
         if is_model and not overwrite:
             raise InputError(f"FactorModel.save: {target} already holds a model; pass overwrite=True to replace it")
-    target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", dir=target.parent))
+    ensure_parent_folder(target)
+    remove_stale_partials(target.parent)
+    tmp = make_partial(target)
     try:
         files: dict[str, str] = {}
 
@@ -125,18 +127,35 @@ def save_model(model: Any, path: str | Path, *, file_format: str = "parquet", ov
         with open(tmp / "manifest.json", "w", encoding="utf-8") as fh:
             json.dump(manifest, fh, indent=2, sort_keys=True)
         if target.exists():
-            old = target.with_name(f".{target.name}.old")
-            if old.exists():
-                shutil.rmtree(old)
-            os.replace(target, old)
+            old = make_partial(target, "old")
+            os.replace(target, old / target.name)
             os.replace(tmp, target)
             shutil.rmtree(old, ignore_errors=True)
         else:
             os.replace(tmp, target)
+        COMPLETED.append(target)
+    except OSError as err:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if err.errno is None:
+            raise
+        raise OSError(err.errno, err.strerror, str(target)) from None
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     return target
+
+
+def _table_path(folder: Path, manifest_path: Path, name: str, entry: Any) -> Path:
+    """The file of table ``name``: a plain file name inside the model folder, nothing else."""
+    file = entry.get("file") if isinstance(entry, dict) else None
+    if not isinstance(file, str) or not file or file in (".", "..") or "/" in file or "\\" in file or "\0" in file:
+        raise InputError(
+            f"{manifest_path}: tables.{name}.file must be the name of a file inside the model folder, got {file!r}"
+        )
+    fpath = folder / file
+    if fpath.resolve().parent != folder.resolve():
+        raise InputError(f"{manifest_path}: tables.{name}.file {file!r} points outside the model folder")
+    return fpath
 
 
 def load_model(path: str | Path) -> Any:
@@ -150,28 +169,37 @@ def load_model(path: str | Path) -> Any:
     if not manifest_path.exists():
         raise InputError(f"{folder}: not a trimtab model folder (manifest.json missing)")
     try:
-        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+        manifest = json.loads(read_regular_file(manifest_path, "model manifest").decode("utf-8"))
+    except UnicodeDecodeError:
+        raise InputError(f"{manifest_path}: not UTF-8 text") from None
     except json.JSONDecodeError as err:
         raise InputError(f"{manifest_path}: not valid JSON: {err.msg} at line {err.lineno}") from None
+    if not isinstance(manifest, dict):
+        raise InputError(f"{manifest_path}: expected a JSON object, got {type(manifest).__name__}")
     if manifest.get("format") != FORMAT_NAME:
         raise InputError(f"{manifest_path}: format must be {FORMAT_NAME!r}, got {manifest.get('format')!r}")
-    if int(manifest.get("format_version", -1)) > FORMAT_VERSION:
+    version = manifest.get("format_version", -1)
+    if not isinstance(version, int) or isinstance(version, bool):
+        raise InputError(f"{manifest_path}: format_version must be a whole number, got {version!r}")
+    if version > FORMAT_VERSION:
         raise InputError(
             f"{manifest_path}: format_version {manifest.get('format_version')} is newer than this "
             f"trimtab reads ({FORMAT_VERSION}); upgrade trimtab"
         )
     tables = manifest.get("tables", {})
+    if not isinstance(tables, dict):
+        raise InputError(f"{manifest_path}: tables must be an object of table name → file")
     frames: dict[str, pd.DataFrame] = {}
     for name in ("exposures", "factor_covariance", "specific_variance", "fit_assets", "factor_returns"):
         if name not in tables:
             if name in ("exposures", "factor_covariance", "specific_variance"):
                 raise InputError(f"{manifest_path}: table {name!r} missing from the manifest")
             continue
-        entry = tables[name]
-        fpath = folder / entry["file"]
+        fpath = _table_path(folder, manifest_path, name, tables[name])
         if not fpath.exists():
             raise InputError(f"{fpath}: file listed in the manifest is missing")
-        if entry.get("sha256") and _sha256(fpath) != entry["sha256"]:
+        check_regular(fpath, fpath.stat().st_mode, "model table", InputError)
+        if tables[name].get("sha256") and _sha256(fpath) != tables[name]["sha256"]:
             raise InputError(f"{fpath}: contents do not match the manifest checksum (file changed after saving)")
         file_format = fpath.suffix.lstrip(".")
         try:

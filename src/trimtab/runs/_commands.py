@@ -8,11 +8,9 @@ what was expected, never a traceback; outputs written to a temporary folder, the
 
 from __future__ import annotations
 
-import functools
 import json
 import math
 import sys
-import warnings
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
@@ -20,13 +18,14 @@ from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
 import typer
 
-from trimtab.errors import InputError, TrimtabError
+from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
+from trimtab._cli_guard import fail as _fail
+from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # numpy, pandas and yaml are imported where used: registering the commands stays light
     import pandas as pd
 from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
-EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL = 0, 1, 2, 3, 4
 F = TypeVar("F", bound=Callable[..., Any])
 
 
@@ -37,38 +36,6 @@ def _flags(ctx: typer.Context, json_output: bool, quiet: bool) -> tuple[bool, bo
     """--json / --quiet given to the command or to the main app before it."""
     root = ctx.find_root().obj
     return json_output or bool(getattr(root, "json", False)), quiet or bool(getattr(root, "quiet", False))
-
-
-def _fail(message: str, code: int) -> None:
-    lines = message.strip().splitlines()
-    sys.stderr.write(f"trimtab: error: {lines[0] if lines else 'unknown error'}\n")
-    raise typer.Exit(code)
-
-
-def guarded(fn: F) -> F:
-    """Turn trimtab's errors into one line on stderr and their exit code; warnings once each."""
-
-    @functools.wraps(fn)
-    def wrapper(*args: Any, **kwargs: Any) -> Any:
-        try:
-            with warnings.catch_warnings(record=True) as caught:
-                warnings.simplefilter("always")
-                try:
-                    return fn(*args, **kwargs)
-                finally:
-                    for text in dict.fromkeys(str(w.message).strip().splitlines()[0] for w in caught if str(w.message).strip()):
-                        sys.stderr.write(f"trimtab: warning: {text}\n")
-        except typer.Exit:
-            raise
-        except TrimtabError as err:
-            _fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
-        except KeyboardInterrupt:
-            _fail("interrupted; nothing was written", 130)
-        except Exception as err:  # noqa: BLE001 - a bug: one line, as the main app does
-            _fail(f"internal error ({type(err).__name__}: {err}); this is a bug in trimtab", EXIT_INTERNAL)
-        return None
-
-    return wrapper  # type: ignore[return-value]
 
 
 @contextmanager
@@ -152,14 +119,15 @@ def _default_out(scenario: Any, command: str) -> Path:
 def parse_values(text: str, owner: str) -> list[Any]:
     """``a:b:n`` (n evenly spaced values), ``[v1, v2]`` (a YAML list) or ``v1,v2,…`` (YAML scalars)."""
     import numpy as np
-    import yaml
+
+    from trimtab._strict_yaml import load_yaml_text
 
     body = text.strip()
     if not body:
         raise InputError(f"{owner}: no values given; expected v1,v2,… or start:stop:count or [v1, v2]")
     try:
         if body.startswith("["):
-            values = yaml.safe_load(body)
+            values = load_yaml_text(body, owner)
             if not isinstance(values, list) or not values:
                 raise InputError(f"{owner}: expected a non-empty YAML list, got {body!r}")
             return values
@@ -171,24 +139,19 @@ def parse_values(text: str, owner: str) -> list[Any]:
             if count < 2:
                 raise InputError(f"{owner}: a range needs a count ≥ 2, got {count}")
             return [round(float(x), 12) for x in np.linspace(start, stop, count)]  # 0.045, not 0.045000000000000005
-        return [yaml.safe_load(part.strip()) for part in body.split(",")]
-    except (ValueError, yaml.YAMLError) as err:
+        return [load_yaml_text(part.strip(), owner) for part in body.split(",")]
+    except ValueError as err:
         raise InputError(f"{owner}: could not read {body!r} as values ({str(err).splitlines()[0]})") from None
 
 
 def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[Any]] | list[dict[str, Any]]:
     """``--grid KEY=VALUES`` options (every combination), or a grid file (a mapping or a list of points)."""
-    import yaml
+    from trimtab._strict_yaml import read_yaml
 
     if grid_file is not None:
         if items:
             raise InputError("--grid and --grid-file: give one, not both")
-        try:
-            loaded = yaml.safe_load(Path(grid_file).read_text(encoding="utf-8"))
-        except OSError as err:
-            raise InputError(f"{grid_file}: cannot read the grid file ({err.strerror})") from None
-        except yaml.YAMLError as err:
-            raise InputError(f"{grid_file}: not valid YAML ({str(err).splitlines()[0]})") from None
+        loaded = read_yaml(grid_file, "grid")
         if not isinstance(loaded, (dict, list)) or not loaded:
             raise InputError(f"{grid_file}: expected a mapping parameter → list of values, or a list of points")
         return loaded

@@ -254,10 +254,26 @@ def run_chunk(task: SweepTask, shared: SweepInputs) -> list[dict[str, Any]]:
         except SolverError as err:
             row.update(status="solver failure", error=_first_line(err))
         except TrimtabError as err:
-            row.update(status=STATUS_FAILED, error=f"{type(err).__name__}: {_first_line(err)}")
+            row.update(status=STATUS_FAILED, error=_first_line(err))
         row["seconds"] = time.perf_counter() - started
         rows.append(row)
     return rows
+
+
+def _check_point(scenario: Mapping[str, Any], point: Mapping[str, Any]) -> None:
+    """Refuse a grid point whose values the scenario's own checks refuse (a 3 for a 3% cap, say).
+
+    A bad value is the user's mistake in the grid, so it fails the whole sweep before anything is
+    solved (exit 2 on the command line) instead of becoming one failed row among the others.
+    """
+    from trimtab.construct._spec import validate_scenario
+
+    applied = apply_point(scenario, point)
+    sections = {key: applied[key] for key in ("objective", "constraints") if key in applied}
+    try:
+        validate_scenario(sections, source="scenario")
+    except ScenarioError as err:
+        raise InputError(f"grid point {point_label(point)}: {_first_line(err).removeprefix('scenario: ')}") from None
 
 
 def _first_line(err: BaseException) -> str:
@@ -384,7 +400,7 @@ def sweep(
         raise InputError("sweep: scenario must be a mapping with an objective section")
     points = grid_points(grid)
     for point in points:
-        apply_point(scenario, point)  # every path must be settable before anything is solved
+        _check_point(scenario, point)  # every point must be a valid scenario before anything is solved
     inputs = {"holdings": holdings, "benchmark": benchmark, "alpha": alpha, "attributes": attributes}
     if nav is not None:
         inputs["nav"] = nav

@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from trimtab._strict_yaml import check_regular
 from trimtab._validation import list_labels
 from trimtab.errors import InputError
 from trimtab.scenario._schema import AttributesFile, HoldingsFile, ReturnsFile, SeriesFile, _FileSpec
@@ -42,6 +43,7 @@ def read_table(path: str | Path, file_format: str = "auto", *, what: str = "data
         raise InputError(f"{p}: {what} file not found")
     if p.is_dir():
         raise InputError(f"{p}: is a folder; expected a {what} file (CSV or Parquet)")
+    check_regular(p, p.stat().st_mode, what)
     fmt = file_format
     if fmt == "auto":
         suffix = p.suffix.lower()
@@ -61,7 +63,11 @@ def read_table(path: str | Path, file_format: str = "auto", *, what: str = "data
             frame = pd.read_parquet(p)
     except pd.errors.EmptyDataError:
         raise InputError(f"{p}: the {what} file is empty; expected a header row and data") from None
-    except (pd.errors.ParserError, UnicodeDecodeError, ValueError, OSError) as err:
+    except OSError as err:
+        if err.errno is not None:  # permission denied, I/O error: the environment, reported as such
+            raise OSError(err.errno, err.strerror, str(p)) from None
+        raise InputError(f"{p}: could not read the {what} file as {fmt.upper()}: {err}") from None
+    except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as err:
         first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
         raise InputError(f"{p}: could not read the {what} file as {fmt.upper()}: {first}") from None
     except Exception as err:  # noqa: BLE001 - pyarrow raises its own classes for corrupt files
@@ -201,8 +207,8 @@ def load_holdings(spec: HoldingsFile, attributes: pd.DataFrame | None = None) ->
         raise InputError(f"{path}: prices must be positive; not so for {list_labels(bad)}")
     value = shares * prices
     nav = float(spec.nav) if spec.nav is not None else float(value.sum() + spec.cash)
-    if not nav > 0:
-        raise InputError(f"{path}: the book's value Σ shares·price + cash is {nav:g}; expected a positive NAV")
+    if not (np.isfinite(nav) and nav > 0):
+        raise InputError(f"{path}: the book's value Σ shares·price + cash is {nav:g}; expected a positive, finite NAV")
     return Holdings((value / nav).rename("weight"), nav, shares=shares, prices=prices, cash=spec.cash)
 
 

@@ -10,11 +10,15 @@ from __future__ import annotations
 import os
 import shutil
 import tempfile
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
+from typing import Any, TypeVar
 
+from trimtab._paths import COMPLETED, ensure_parent_folder, file_mode, make_partial, remove_stale_partials
 from trimtab.errors import InputError
+
+T = TypeVar("T")
 
 #: Marker file in every folder trimtab writes; its presence allows the folder to be replaced.
 MARKER = ".trimtab-output"
@@ -45,31 +49,50 @@ def check_target(target: Path, inputs: Iterable[str | Path] = ()) -> None:
 def output_folder(target: str | Path, inputs: Iterable[str | Path] = ()) -> Iterator[Path]:
     """Yield a fresh temporary folder next to ``target``; on success it replaces ``target``.
 
-    On any error the temporary folder is removed and ``target`` is left as it was.
+    On any error the temporary folder is removed and ``target`` is left as it was. Partial folders
+    left beside ``target`` by killed runs are removed first (see :mod:`trimtab._paths`). Folders and
+    files get the modes the user's umask gives (0755/0644 under 022). An operating-system fault
+    (read-only or full disk, permission denied) is raised as ``OSError`` naming ``target``.
     """
     final = Path(target)
     check_target(final, inputs)
-    final.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{final.name}.partial-", dir=final.parent))
+    ensure_parent_folder(final)
+    remove_stale_partials(final.parent)
+    tmp = _at(final, make_partial, final)
     try:
-        yield tmp
-        (tmp / MARKER).write_text("written by trimtab; this folder may be replaced by the next run\n", encoding="utf-8")
+        try:
+            yield tmp
+        except OSError as err:
+            if err.errno is None:
+                raise
+            raise OSError(err.errno, err.strerror, str(final)) from None
+        _at(final, (tmp / MARKER).write_text, "written by trimtab; this folder may be replaced by the next run\n", encoding="utf-8")
         if final.exists():
-            old = Path(tempfile.mkdtemp(prefix=f".{final.name}.old-", dir=final.parent))
-            os.replace(final, old / final.name)
-            os.replace(tmp, final)
+            old = _at(final, make_partial, final, "old")
+            _at(final, os.replace, final, old / final.name)
+            _at(final, os.replace, tmp, final)
             shutil.rmtree(old, ignore_errors=True)
         else:
-            os.replace(tmp, final)
+            _at(final, os.replace, tmp, final)
+        COMPLETED.append(final)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
 
 
+def _at(target: Path, action: Callable[..., T], *args: Any, **kwargs: Any) -> T:
+    """``action(*args)``, an OSError re-raised naming ``target`` rather than a hidden temporary name."""
+    try:
+        return action(*args, **kwargs)
+    except OSError as err:
+        raise OSError(err.errno, err.strerror, str(target)) from None
+
+
 def write_text_atomic(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file in the same folder."""
+    """Write ``text`` to ``path`` through a temporary file in the same folder (mode under the umask)."""
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
     try:
+        os.fchmod(fd, file_mode())
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
         os.replace(tmp, path)

@@ -12,9 +12,9 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
-import yaml
 
-from trimtab.errors import InfeasibleError, SolverError
+from trimtab._strict_yaml import dump_yaml
+from trimtab.errors import InfeasibleError, InputError, SolverError
 from trimtab.model import FactorModel
 from trimtab.scenario._fit import require
 from trimtab.scenario._output import output_folder
@@ -69,11 +69,24 @@ def build(inputs: ScenarioInputs) -> Any:
     Messages about the scenario's keys name the scenario file.
     """
     build_problem = require("trimtab.construct", "build_problem")
-    problem = build_problem(
-        inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path), **inputs.rebalance_kwargs()
-    )
+    try:
+        problem = build_problem(
+            inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path), **inputs.rebalance_kwargs()
+        )
+    except InputError as err:
+        raise type(err)(_file_named(str(err), inputs)) from None
     problem.changed = variant_limits(inputs.scenario)
     return problem
+
+
+def _file_named(message: str, inputs: ScenarioInputs) -> str:
+    """A message about a rebalance argument (``holdings: …``) under the file the scenario read it from."""
+    data = inputs.scenario.spec.data
+    files = {"holdings": data.holdings, "benchmark": data.benchmark, "alpha": data.alpha, "attributes": data.attributes}
+    for name, spec in files.items():
+        if spec is not None and message.startswith(f"{name}: "):
+            return f"{spec.path}: {message}"
+    return message
 
 
 def variant_limits(scenario: Scenario) -> tuple[str, ...]:
@@ -160,7 +173,7 @@ def scenario_yaml(scenario: Scenario, folder: Path) -> str:
     chain = " ← ".join(p.name for p in scenario.chain)
     mapping = relative_paths(scenario.mapping, folder.resolve(), SCENARIO_PATHS)
     mapping.get("output", {}).pop("dir", None)
-    body = yaml.safe_dump(mapping, sort_keys=False, allow_unicode=True)
+    body = dump_yaml(mapping)
     return f"# scenario {scenario.name}, merged from {chain}; paths relative to this folder\n{body}"
 
 

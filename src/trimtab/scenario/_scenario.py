@@ -11,7 +11,7 @@ from typing import Any
 
 import pandas as pd
 
-from trimtab.errors import InputError, ScenarioError
+from trimtab.errors import InputError, Problem, ScenarioError
 from trimtab.model import FactorModel
 from trimtab.scenario._align import AlignmentReport, align_inputs
 from trimtab.scenario._fit import fit_model
@@ -108,7 +108,19 @@ def load_scenario(path: str | Path, *, deep: bool = True) -> Scenario:
     """
     source = Path(path)
     merged, chain, origins = load_merged(source)
-    spec = validate_model(ScenarioSpec, merged, source, origins)
+    origins = {key: source if file == chain[0] else file for key, file in origins.items()}
+    try:
+        spec = validate_model(ScenarioSpec, merged, source, origins)
+    except ScenarioError as err:
+        problems = list(err.problems)
+        if deep and isinstance(merged.get("objective"), Mapping):
+            # the limits are checked too, so one pass lists every problem; shock files are read
+            # only once the file validates, so stress_loss waits until then
+            constraints = merged.get("constraints")
+            if isinstance(constraints, Mapping):
+                constraints = {k: v for k, v in constraints.items() if k != "stress_loss"}
+            problems += deep_problems({"objective": merged["objective"], "constraints": constraints or {}}, source, origins)
+        raise ScenarioError.of(problems) from None
     assert isinstance(spec, ScenarioSpec)
     scenario = Scenario(source, spec, merged, chain)
     if deep:
@@ -116,19 +128,37 @@ def load_scenario(path: str | Path, *, deep: bool = True) -> Scenario:
     return scenario
 
 
-def deep_validate(scenario: Scenario, origins: Mapping[tuple[str, ...], Path] | None = None) -> None:
-    """Hand the objective and constraints to the optimizer's own validator, if it is installed."""
+def deep_problems(
+    mapping: Mapping[str, Any], source: Path, origins: Mapping[tuple[str, ...], Path] | None = None
+) -> list[Problem]:
+    """The problems of a rebalance mapping (objective, constraints, stress, replay) from the
+    optimizer's own validator (if installed), each under the file that set its key."""
     try:
         from trimtab.construct import validate_scenario
     except ImportError:
-        return
+        return []
     try:
-        validate_scenario(scenario.rebalance_mapping(), source=str(scenario.path))
+        validate_scenario(mapping, source=str(source))
     except ScenarioError as err:
-        message = str(err)
-        if str(scenario.path) not in message:
-            message = f"{scenario.path}: {message}"
-        raise ScenarioError(message) from None
+        found = err.problems or (Problem(str(source), "", str(err).removeprefix(f"{source}: ")),)
+        return [p._replace(source=str(_origin(p.key_path, origins) or p.source)) for p in found]
+    return []
+
+
+def _origin(key_path: str, origins: Mapping[tuple[str, ...], Path] | None) -> Path | None:
+    parts = tuple(key_path.split("."))
+    for n in range(len(parts), 0, -1):
+        if origins and parts[:n] in origins:
+            return origins[parts[:n]]
+    return None
+
+
+def deep_validate(scenario: Scenario, origins: Mapping[tuple[str, ...], Path] | None = None) -> None:
+    """Hand the objective, constraints, stress and replay (shock files read) to the optimizer's own
+    validator, if it is installed; every problem in one ScenarioError."""
+    problems = deep_problems(scenario.rebalance_mapping(), scenario.path, origins)
+    if problems:
+        raise ScenarioError.of(problems)
 
 
 @dataclass(frozen=True, eq=False)

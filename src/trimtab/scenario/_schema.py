@@ -7,6 +7,7 @@ for their deep validation, so the optimizer owns its own vocabulary.
 
 from __future__ import annotations
 
+import datetime
 from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
@@ -17,7 +18,16 @@ FileFormat = Literal["auto", "csv", "parquet"]
 class _Strict(BaseModel):
     """Base of every section: unknown keys are errors and parsed sections are immutable."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True, allow_inf_nan=False)
+
+
+def _no_control(value: str | None) -> str | None:
+    """Refuse text with a control character (a newline, a NUL): it cannot name a file or folder."""
+    if value is not None:
+        bad = next((c for c in value if ord(c) < 32 or ord(c) == 127), None)
+        if bad is not None:
+            raise ValueError(f"expected a name without control characters (found code {ord(bad)}), got {value!r}")
+    return value
 
 
 class _FileSpec(_Strict):
@@ -31,6 +41,8 @@ class _FileSpec(_Strict):
     @classmethod
     def _shorthand(cls, value: Any) -> Any:
         return {"path": value} if isinstance(value, str) else value
+
+    _path_text = field_validator("path")(_no_control)
 
 
 class ReturnsFile(_FileSpec):
@@ -53,8 +65,8 @@ class HoldingsFile(_FileSpec):
     kind: Literal["weights", "shares"] = "weights"
     column: str | None = Field(None, min_length=1, description="the weight or share-count column")
     price_column: str = Field("price", min_length=1, description="price per share (holdings or attributes file)")
-    nav: float | None = Field(None, gt=0, description="net asset value; default: Σ shares·price + cash")
-    cash: float = Field(0.0, ge=0, description="cash held besides the positions, in currency")
+    nav: float | None = Field(None, gt=0, strict=True, description="net asset value; default: Σ shares·price + cash")
+    cash: float = Field(0.0, ge=0, strict=True, description="cash held besides the positions, in currency")
 
 
 class AttributesFile(_FileSpec):
@@ -82,10 +94,10 @@ class FitSettings(_Strict):
     exposures: _FileSpec | None = Field(None, description="cross_section: asset × characteristic table")
     exposure_columns: list[str] | None = Field(None, description="cross_section: which characteristic columns")
     industry_column: str | None = Field(None, description="cross_section: the industry column of exposures")
-    n_factors: int | None = Field(None, ge=1, description="statistical: the number of factors")
-    half_life: float | None = Field(None, gt=0, description="EWMA half-life in periods")
-    min_periods: int | None = Field(None, ge=2, description="fewest observations an asset needs")
-    periods_per_year: float = Field(252, gt=0)
+    n_factors: int | None = Field(None, ge=1, strict=True, description="statistical: the number of factors")
+    half_life: float | None = Field(None, gt=0, strict=True, description="EWMA half-life in periods")
+    min_periods: int | None = Field(None, ge=2, strict=True, description="fewest observations an asset needs")
+    periods_per_year: float = Field(252, gt=0, strict=True)
     factor_groups: dict[str, str] | None = Field(None, description="factor → group label for reports")
     options: dict[str, Any] = Field(default_factory=dict, description="further estimator keywords")
 
@@ -115,6 +127,8 @@ class ModelSection(_Strict):
     def _shorthand(cls, value: Any) -> Any:
         return {"path": value} if isinstance(value, str) else value
 
+    _path_text = field_validator("path")(_no_control)
+
     @model_validator(mode="after")
     def _exactly_one(self) -> ModelSection:
         if (self.path is None) == (self.fit is None):
@@ -129,6 +143,8 @@ class OutputSection(_Strict):
     tables: Literal["csv", "parquet", "none"] = "csv"
     write_json: bool = Field(True, alias="json")
     html: bool = True
+
+    _dir_text = field_validator("dir")(_no_control)
 
 
 class AlertsSection(_Strict):
@@ -166,9 +182,16 @@ class ScenarioSpec(_Strict):
     alerts: AlertsSection = Field(default_factory=AlertsSection)  # type: ignore[arg-type]
     backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]
 
+    @field_validator("name", "description", mode="before")
+    @classmethod
+    def _date_as_text(cls, value: Any) -> Any:
+        """A name or description YAML reads as a date (``2024-06-28``) is kept as the text written."""
+        return value.isoformat() if isinstance(value, (datetime.date, datetime.datetime)) else value
+
     @field_validator("name")
     @classmethod
     def _folder_name(cls, value: str) -> str:
+        _no_control(value)
         if "/" in value or "\\" in value or value in (".", ".."):
             raise ValueError(f"expected a name usable as a folder name (no / or \\, not . or ..), got {value!r}")
         return value

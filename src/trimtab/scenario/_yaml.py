@@ -6,6 +6,8 @@ files are merged, so a base scenario in another folder keeps pointing at its own
 
 from __future__ import annotations
 
+import datetime
+import difflib
 import os
 import types
 import typing
@@ -13,10 +15,11 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-import yaml
 from pydantic import BaseModel, ValidationError
 
-from trimtab.errors import ScenarioError
+from trimtab._strict_yaml import read_yaml
+from trimtab._validation import number_as_text
+from trimtab.errors import Problem, ScenarioError
 
 #: Key paths (within a scenario) whose value is a file path or a table spec with a ``path``.
 SCENARIO_PATHS: tuple[tuple[str, ...], ...] = (
@@ -40,30 +43,26 @@ NOT_INHERITED: tuple[tuple[str, ...], ...] = (("name",), ("output", "dir"))
 
 
 def read_yaml_mapping(path: Path, what: str = "scenario") -> dict[str, Any]:
-    """Parse ``path`` with ``yaml.safe_load``; the top level must be a mapping."""
-    if not path.exists():
-        raise ScenarioError(f"{path}: no such {what} file")
-    if path.is_dir():
-        raise ScenarioError(f"{path}: is a folder; expected a {what} YAML file")
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as err:
-        raise ScenarioError(f"{path}: could not read the {what} file: {err}") from None
-    try:
-        raw = yaml.safe_load(text)
-    except yaml.YAMLError as err:
-        mark = getattr(err, "problem_mark", None)
-        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
-        problem = getattr(err, "problem", None) or str(err).splitlines()[0]
-        raise ScenarioError(f"{path}: {where}not valid YAML: {problem}") from None
+    """Read ``path`` with the strict loader (:func:`trimtab._strict_yaml.read_yaml`); the top level
+    must be a mapping with text keys."""
+    raw = read_yaml(path, what)
     if raw is None:
         raise ScenarioError(f"{path}: the {what} file is empty; expected a mapping of keys")
     if not isinstance(raw, dict):
-        raise ScenarioError(f"{path}: expected a mapping of keys at the top level, got {type(raw).__name__}")
+        raise ScenarioError(f"{path}: expected a mapping of keys at the top level, got {_kind(raw)}")
     bad = [k for k in raw if not isinstance(k, str)]
     if bad:
         raise ScenarioError(f"{path}: keys must be text, got {bad[0]!r}")
     return raw
+
+
+def _kind(value: Any) -> str:
+    """The YAML word for the type of ``value``."""
+    if isinstance(value, list):
+        return "a list"
+    if isinstance(value, str):
+        return f"text {_short(value)}"
+    return f"{_short(value)}"
 
 
 def anchor_paths(raw: dict[str, Any], folder: Path, key_paths: tuple[tuple[str, ...], ...]) -> dict[str, Any]:
@@ -182,51 +181,90 @@ def validate_model(
     source: Path,
     origins: Mapping[tuple[str, ...], Path] | None = None,
 ) -> BaseModel:
-    """Validate ``raw`` against ``cls``; turn the first problem into one ScenarioError line."""
+    """Validate ``raw`` against ``cls``; every problem found goes into one ScenarioError line."""
     try:
         return cls.model_validate(raw)
     except ValidationError as err:
-        raise ScenarioError(describe_validation_error(err, cls, source, origins)) from None
+        raise ScenarioError.of(validation_problems(err, cls, source, origins)) from None
 
 
-def describe_validation_error(
+def validation_problems(
     err: ValidationError,
     cls: type[BaseModel],
     source: Path,
     origins: Mapping[tuple[str, ...], Path] | None = None,
-) -> str:
-    """``<file>: <key.path>: <what was expected>, got <value>`` for the first error, with a count."""
-    problems = err.errors(include_url=False)
-    first = problems[0]
-    loc = tuple(str(part) for part in first["loc"])
-    key_path = ".".join(loc) if loc else "(top level)"
-    kind = first["type"]
-    value = first.get("input")
+) -> list[Problem]:
+    """One :class:`Problem` per pydantic error: the file that set the key, the key path, the text."""
+    out: list[Problem] = []
+    seen: set[tuple[str, ...]] = set()
+    for problem in err.errors(include_url=False):
+        loc = tuple(str(part) for part in problem["loc"])
+        if loc in seen:
+            continue
+        seen.add(loc)
+        kind = problem["type"]
+        file = source
+        if origins:
+            for n in range(len(loc), 0, -1):
+                if loc[:n] in origins:
+                    file = origins[loc[:n]]
+                    break
+        text = _problem_text(problem, kind, cls, loc)
+        out.append(Problem(str(file), ".".join(loc) if loc else "(top level)", text, kind == "extra_forbidden"))
+    return out
+
+
+#: pydantic error type → what a YAML user was expected to write.
+_EXPECTED = {
+    "dict_type": "a mapping",
+    "model_type": "a mapping",
+    "model_attributes_type": "a mapping",
+    "list_type": "a list",
+    "string_type": "text",
+    "float_type": "a number",
+    "float_parsing": "a number",
+    "int_type": "a whole number",
+    "int_parsing": "a whole number",
+    "int_from_float": "a whole number",
+    "bool_type": "true or false",
+    "bool_parsing": "true or false",
+    "finite_number": "a finite number",
+}
+
+
+def _problem_text(problem: Any, kind: str, cls: type[BaseModel], loc: tuple[str, ...]) -> str:
+    value = problem.get("input")
     if kind == "missing":
-        text = "required key missing"
-    elif kind == "extra_forbidden":
+        return "required key missing"
+    if kind == "extra_forbidden":
         allowed = _allowed_keys(cls, loc[:-1])
-        text = "unknown key" + (f"; allowed here: {', '.join(allowed)}" if allowed else "")
-    else:
-        message = str(first["msg"])
-        for prefix in ("Value error, ", "Input should be "):
-            if message.startswith(prefix):
-                message = message[len(prefix):]
-        if kind.endswith("_type") or kind.startswith(("literal", "greater", "less", "string_too", "too_")):
-            message = f"expected {message}"
-        text = f"{message}, got {_short(value)}" if kind != "value_error" else message
-    file = source
-    if origins:
-        for n in range(len(loc), 0, -1):
-            if loc[:n] in origins:
-                file = origins[loc[:n]]
-                break
-    more = f" (and {len(problems) - 1} more problem{'s' if len(problems) > 2 else ''})" if len(problems) > 1 else ""
-    return f"{file}: {key_path}: {text}{more}"
+        close = difflib.get_close_matches(loc[-1], allowed, n=1, cutoff=0.6) if loc else []
+        if close:
+            return f"unknown key; did you mean {close[0]}?"
+        return "unknown key" + (f"; allowed here: {', '.join(allowed)}" if allowed else "")
+    if kind in _EXPECTED:
+        if isinstance(value, str) and kind.startswith(("float", "int")):
+            return number_as_text(value)
+        if isinstance(value, int) and not isinstance(value, bool) and abs(value) > 10**300:
+            return f"expected a number of sensible size, got one with {len(str(abs(value))):,} digits"
+        return f"expected {_EXPECTED[kind]}, got {_short(value)}"
+    context = problem.get("ctx") or {}
+    bounds = {"greater_than": ">", "greater_than_equal": "≥", "less_than": "<", "less_than_equal": "≤"}
+    if kind in bounds:
+        limit = next(iter(context.values()), "")
+        shown = f"{limit:g}" if isinstance(limit, (int, float)) else limit
+        return f"must be {bounds[kind]} {shown} (got {_short(value)})"
+    message = str(problem["msg"])
+    for prefix in ("Value error, ", "Input should be "):
+        if message.startswith(prefix):
+            message = message[len(prefix):]
+    if kind.startswith(("literal", "string_too", "too_", "enum")):
+        message = f"expected {message}"
+    return f"{message}, got {_short(value)}" if kind != "value_error" else message
 
 
 def _short(value: Any, limit: int = 60) -> str:
-    text = repr(value)
+    text = value.isoformat() if isinstance(value, (datetime.date, datetime.datetime)) else repr(value)
     return text if len(text) <= limit else text[: limit - 1] + "…"
 
 

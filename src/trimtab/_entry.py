@@ -1,0 +1,51 @@
+"""The ``trimtab`` console script: signal handlers first, then the command line.
+
+Ctrl-C (SIGINT) and SIGTERM are turned into exceptions before anything heavy is imported, so an
+interrupt at any moment, start-up included, unwinds through the cleanup of partial outputs and ends
+with one line and exit 130 (SIGINT) or 143 (SIGTERM), never a traceback.
+"""
+
+from __future__ import annotations
+
+import signal
+import sys
+from types import FrameType
+
+from trimtab._cli_guard import REPORTED, Terminated, interrupt_line, write_error
+
+#: The signals received, in order.
+_RECEIVED: list[int] = []
+
+
+def _on_signal(signum: int, _frame: FrameType | None) -> None:
+    _RECEIVED.append(signum)
+    raise Terminated() if signum == signal.SIGTERM else KeyboardInterrupt()
+
+
+def _exit_code(value: object) -> int:
+    if value is None:
+        return 0
+    if isinstance(value, int):
+        return value
+    sys.stderr.write(f"{value}\n")
+    return 1
+
+
+def main() -> None:
+    """Console-script entry point (``trimtab``)."""
+    signal.signal(signal.SIGINT, _on_signal)
+    signal.signal(signal.SIGTERM, _on_signal)
+    try:
+        from trimtab.cli import app
+
+        app(prog_name="trimtab")
+        code = 0
+    except SystemExit as done:
+        code = _exit_code(done.code)
+    except (KeyboardInterrupt, Terminated) as err:
+        line, code = interrupt_line(err)
+        write_error(line)
+    if _RECEIVED and not REPORTED:
+        line, code = interrupt_line(Terminated() if _RECEIVED[0] == signal.SIGTERM else KeyboardInterrupt())
+        write_error(line)
+    sys.exit(code)

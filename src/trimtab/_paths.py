@@ -1,0 +1,93 @@
+"""File-system helpers for writing outputs: modes under the user's umask, partial folders, parents.
+
+A folder being written is a hidden sibling of its target named ``.<target>.partial-<pid>-<random>``
+(and a folder being replaced ``.<target>.old-<pid>-<random>``), so a run that was killed before it
+could clean up leaves a folder whose name says which process made it. The next run that writes
+beside it removes it once that process is gone (:func:`remove_stale_partials`); being hidden and
+lacking the output marker, it is never taken for a result.
+"""
+
+from __future__ import annotations
+
+import errno
+import os
+import re
+import shutil
+import tempfile
+import threading
+from pathlib import Path
+
+_STALE = re.compile(r"^\..+\.(?:partial|old)-(?P<pid>\d+)-[A-Za-z0-9_]{8}$")
+_UMASK_LOCK = threading.Lock()
+#: Output folders this process has finished (renamed into place), for an honest interrupt message.
+COMPLETED: list[Path] = []
+
+
+def current_umask() -> int:
+    """The process's umask (read by setting and restoring it, under a lock)."""
+    with _UMASK_LOCK:
+        mask = os.umask(0o022)
+        os.umask(mask)
+    return mask
+
+
+def folder_mode() -> int:
+    """The mode a new folder gets under the umask (0755 under 022)."""
+    return 0o777 & ~current_umask()
+
+
+def file_mode() -> int:
+    """The mode a new file gets under the umask (0644 under 022)."""
+    return 0o666 & ~current_umask()
+
+
+def make_partial(target: Path, kind: str = "partial") -> Path:
+    """A new hidden folder beside ``target`` named for this process, with the umask's mode.
+
+    ``tempfile.mkdtemp`` creates folders 0700; the mode is widened to what ``mkdir`` would give, so a
+    colleague or a scheduled job under another account can read the finished output.
+    """
+    folder = Path(tempfile.mkdtemp(prefix=f".{target.name}.{kind}-{os.getpid()}-", dir=target.parent))
+    os.chmod(folder, folder_mode())
+    return folder
+
+
+def _process_gone(pid: int) -> bool:
+    if pid == os.getpid():
+        return False
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return True
+    except (PermissionError, OverflowError, ValueError):
+        return False
+    return False
+
+
+def remove_stale_partials(folder: Path) -> list[Path]:
+    """Remove the partial folders in ``folder`` left by runs whose process is gone; return them."""
+    removed: list[Path] = []
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return removed
+    for entry in entries:
+        match = _STALE.match(entry.name)
+        if match is None or not entry.is_dir(follow_symlinks=False):
+            continue
+        if _process_gone(int(match["pid"])):
+            shutil.rmtree(entry.path, ignore_errors=True)
+            if not os.path.lexists(entry.path):
+                removed.append(Path(entry.path))
+    return removed
+
+
+def ensure_parent_folder(target: Path) -> None:
+    """Create the folders above ``target``; a path below an existing file is an OSError naming it."""
+    for ancestor in reversed(target.parents):
+        if os.path.lexists(ancestor) and not ancestor.is_dir():
+            raise OSError(errno.ENOTDIR, os.strerror(errno.ENOTDIR), str(ancestor))
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise OSError(err.errno, err.strerror, str(err.filename or target.parent)) from None
