@@ -26,6 +26,7 @@ def explore(
     a new YAML file that extends this one with only the changed limits. The same engine answers the
     HTTP API in docs/api.md. Ctrl-C stops it.
     """
+    import signal
     import threading
     import webbrowser
 
@@ -53,12 +54,18 @@ def explore(
     ui.say(f"Exploring {explorer.scenario.name} at {url}  (Ctrl-C stops)")
     if not no_browser:
         threading.Timer(1.0, lambda: webbrowser.open(url)).start()
+    # Ctrl-C is how this command ends: uvicorn shuts down on it and raises it again afterwards, which
+    # plain KeyboardInterrupt handling absorbs here (the entry point's handler would report it as an
+    # interruption, exit 130); the entry point's handler is back in place once the server stops
+    previous = signal.signal(signal.SIGINT, signal.default_int_handler)
     try:
-        server.run()  # uvicorn turns Ctrl-C into a clean shutdown
-    except KeyboardInterrupt:  # uvicorn raises the captured Ctrl-C again once it has shut down
+        server.run()
+    except KeyboardInterrupt:
         pass
     except SystemExit:  # uvicorn exits when it cannot listen
         server.started = False
+    finally:
+        signal.signal(signal.SIGINT, previous)
     if not server.started:
         raise _port_error(host, port)
     ui.say("Stopped; nothing was written except the scenarios you saved.")
