@@ -52,7 +52,7 @@ def test_turnover_frontier_keeps_the_scenario(book) -> None:
                       turnovers=[0.1, 0.2], build=ClosedFormProblem)
     # the closed-form problem cannot take a turnover cap: each point is a failed row naming why
     assert result.turnover["status"].tolist() == ["failed", "failed"]
-    assert result.turnover["error"].iloc[0] == "InputError: ClosedFormProblem: no closed form with constraints ['turnover']"
+    assert result.turnover["error"].iloc[0] == "ClosedFormProblem: no closed form with constraints ['turnover']"
     assert result.turnover["limit"].tolist() == [0.1, 0.2]
 
 

@@ -117,7 +117,8 @@ def test_a_grid_value_the_scenario_refuses_fails_the_sweep_before_solving(book) 
     # issue #11: a 3 meant as 3% was a failed row with a class name; it is a bad grid, named
     scenario = {"objective": {"maximize": "alpha"}, "constraints": {"tracking_error": {"max": 0.02}}}
     with pytest.raises(InputError, match=r"^grid point tracking_error.max=3: constraints.tracking_error.max: 3 would mean 300%.*did you mean 0.03\?$"):
-        run(book, scenario, {"tracking_error.max": [0.01, 3]})
+        model, bench, alpha = book  # trimtab's own builder: the scenario's checks apply
+        sweep(model, scenario, {"tracking_error.max": [0.01, 3]}, holdings=bench, benchmark=bench, alpha=alpha)
 
 
 def test_without_reuse_every_point_is_built(book) -> None:

@@ -400,7 +400,9 @@ def sweep(
         raise InputError("sweep: scenario must be a mapping with an objective section")
     points = grid_points(grid)
     for point in points:
-        _check_point(scenario, point)  # every point must be a valid scenario before anything is solved
+        # every path must be settable, and (for trimtab's own builder) every point a valid scenario,
+        # before anything is solved
+        _check_point(scenario, point) if build is None else apply_point(scenario, point)
     inputs = {"holdings": holdings, "benchmark": benchmark, "alpha": alpha, "attributes": attributes}
     if nav is not None:
         inputs["nav"] = nav
