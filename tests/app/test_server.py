@@ -61,6 +61,19 @@ def test_solve_returns_the_result_json_document(client: TestClient, demo_folder:
     jsonschema.validate(document, JSON_SCHEMA)
 
 
+def test_solve_carries_the_scenario_runs_warnings_and_context(client: TestClient, demo_folder: Path) -> None:
+    # issue #13: zeroed alpha, dropped assets and the NAV/cash context reach the page as they reach
+    # result.json; both go through the scenario run's one context step
+    from trimtab.report import report_document
+    from trimtab.scenario import load_inputs, load_scenario
+    from trimtab.scenario._run import solve
+
+    written = report_document(solve(load_inputs(load_scenario(demo_folder / "base.yaml"))).result)
+    document = client.post("/api/solve", json={"limits": {}}).json()
+    assert [w["kind"] for w in document["warnings"]] == [w["kind"] for w in written["warnings"]]
+    assert document["context"] == written["context"]
+
+
 def test_infeasible_limits_give_the_infeasibility_document(client: TestClient) -> None:
     response = client.post("/api/solve", json={"limits": {"tracking_error.max": 0.002, "turnover.max": 0.01}})
     assert response.status_code == 200

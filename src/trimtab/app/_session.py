@@ -120,11 +120,13 @@ class Explorer:
         ScenarioError
             A value the scenario's rules reject (a negative cap, lower above upper, …).
         """
+        from trimtab.scenario._run import with_run_context
+
         with self.lock:
             started = time.perf_counter()
             problem = self._problem_for(changes)
             try:
-                result = problem.solve()
+                result = with_run_context(self.inputs, problem.solve())
                 variant = Variant(dict(changes), result=result)
             except (InfeasibleError, SolverError) as err:
                 variant = Variant(dict(changes), error=err)

@@ -105,21 +105,26 @@ def variant_limits(scenario: Scenario) -> tuple[str, ...]:
 
 def solve(inputs: ScenarioInputs) -> ScenarioRun:
     """Rebalance one scenario; an infeasible problem or a solver failure is kept, not raised."""
-    from trimtab.scenario._notices import alert_settings, alignment_warnings
-
     problem = build(inputs)
     try:
         result = problem.solve()
     except (InfeasibleError, SolverError) as err:
         return ScenarioRun(inputs, error=err)
+    return ScenarioRun(inputs, result=with_run_context(inputs, result))
+
+
+def with_run_context(inputs: ScenarioInputs, result: Any) -> Any:
+    """``result`` with what the scenario's files add: alignment warnings, alert thresholds and the
+    run context (every writer of a scenario's result, the explore page included, goes through this)."""
+    from trimtab.scenario._notices import alert_settings, alignment_warnings
+
     data = inputs.scenario.spec.data
     files = {"holdings": Path(data.holdings.path).name, **({"benchmark": Path(data.benchmark.path).name} if data.benchmark is not None else {})}
-    result = result.with_context(
+    return result.with_context(
         notices=alignment_warnings(inputs.alignment, files),
         alerts=alert_settings(inputs.scenario.spec.alerts),
         context=run_context(inputs),
     )
-    return ScenarioRun(inputs, result=result)
 
 
 def run_context(inputs: ScenarioInputs) -> dict[str, Any]:
