@@ -73,6 +73,14 @@ def test_a_bound_side_may_be_opened_and_unchanged_values_drop_out(known) -> None
     assert changed(known, clean) == {"group.bounds.default.0": None, "tracking_error.max": 0.02}
 
 
+def test_interval_ends_may_be_written_min_and_max_as_trimtab_sweep_reads_them(known) -> None:
+    # the same dotted key paths as `trimtab sweep --grid` (its _list_index reads min/max as 0/1)
+    clean = check_changes(known, {"factor_exposure.bounds.momentum.max": -0.05, "group.bounds.default.min": -0.02})
+    assert clean == {"factor_exposure.bounds.momentum.1": -0.05, "group.bounds.default.0": -0.02}
+    with pytest.raises(InputError, match=r"limits.weight.maximum: not a limit"):
+        check_changes(known, {"weight.maximum": 0.1})
+
+
 def test_list_items_are_re_solved_through_their_list_and_new_bounds_rebuild() -> None:
     built = {"group": [{"by": "industry", "active": True, "bounds": {"default": [-0.03, 0.03]}}],
              "tracking_error": {"max": 0.03}, "factor_exposure": {"active": True, "bounds": {"size": [0.0, 0.0]}}}

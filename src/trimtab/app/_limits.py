@@ -172,7 +172,8 @@ def check_changes(known: Mapping[str, Limit], changes: Mapping[str, Any]) -> dic
         One line naming the first unknown key or bad value.
     """
     clean: dict[str, float | None] = {}
-    for key, value in changes.items():
+    for written, value in changes.items():
+        key = _interval_end(known, str(written))
         limit = known.get(key)
         if limit is None:
             close = difflib.get_close_matches(str(key), list(known), n=1)
@@ -190,6 +191,15 @@ def check_changes(known: Mapping[str, Limit], changes: Mapping[str, Any]) -> dic
             raise InputError(f"limits.{key}: expected a finite number within ±{MAX_MAGNITUDE:g}, got {value!r}")
         clean[key] = number
     return clean
+
+
+def _interval_end(known: Mapping[str, Limit], key: str) -> str:
+    """``….min``/``….max`` of an interval [lower, upper] as its position ``….0``/``….1``, as
+    ``trimtab sweep`` reads them (``factor_exposure.bounds.momentum.max`` is ``….momentum.1``)."""
+    head, _, last = key.rpartition(".")
+    if key not in known and last in ("min", "max") and f"{head}.0" in known and f"{head}.1" in known:
+        return f"{head}.{0 if last == 'min' else 1}"
+    return key
 
 
 def changed(known: Mapping[str, Limit], settings: Mapping[str, float | None]) -> dict[str, float | None]:
