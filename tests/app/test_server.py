@@ -90,7 +90,7 @@ def test_the_page_solve_shows_the_relaxation_not_an_error(client: TestClient) ->
     assert '<table class="relaxation">' in view["html"]["relaxation"] and "Infeasible" in view["html"]["relaxation"]
     solved = client.post("/page/solve", json={"limits": {"tracking_error.max": 0.02}}).json()
     assert solved["figures"]["tracking_error"] == pytest.approx(0.02, abs=1e-6)
-    assert set(solved["html"]) == {"headline", "exposures", "trades", "binding", "warnings"}
+    assert set(solved["html"]) == {"headline", "exposures", "trades", "binding", "warnings", "stress"}
     assert solved["seconds"]["solve"] > 0 and solved["seconds"]["render"] > 0
 
 
@@ -197,3 +197,21 @@ def test_text_from_the_scenario_cannot_break_out_of_the_page(demo_folder: Path, 
     assert "<script>alert(1)" not in page and "<b>x</b>" not in page
     assert "&lt;b&gt;x&lt;/b&gt;" in page  # shown as text in the header
     html5lib.HTMLParser(strict=True).parse(page)
+
+
+def test_the_page_shows_the_stress_table_the_report_computes(client: TestClient, explorer: Explorer) -> None:
+    # the demo's base.yaml runs every shock of shocks.yaml before and after the trade: the page shows
+    # the same figures as result.json's stress records, formatted as the report formats them
+    from trimtab._format import format_percent
+
+    page = client.get("/").text
+    assert "Stress (before → after)" in page and '<div id="stress-box" hidden>' not in page
+    document = client.post("/api/solve", json={"limits": {"tracking_error.max": 0.02}}).json()
+    view = client.post("/page/solve", json={"limits": {"tracking_error.max": 0.02}}).json()
+    table = html5lib.parseFragment(view["html"]["stress"], namespaceHTMLElements=False).find("table")
+    rows = table.findall("tbody/tr")
+    assert document["stress"] and len(rows) == len(document["stress"])
+    for record, row in zip(document["stress"], rows):
+        cells = [row.find("th").text] + [td.text for td in row.findall("td")]
+        assert cells[0] == record["shock"]
+        assert cells[1:3] == [format_percent(record["pre_active"]), format_percent(record["post_active"])]

@@ -52,6 +52,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
             "trades": _trades(content),
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
             "warnings": render("partials/warnings.html.j2", rows=warning_rows(variant.result)),
+            "stress": _stress(content),
         }
     seconds = dict(variant.seconds)
     seconds["render"] = time.perf_counter() - started
@@ -155,6 +156,14 @@ def _trades(content: Any) -> str:
         return render_trades(order_rows(shown, columns), caption=f"The {len(shown)} largest of {len(orders):,} orders",
                              css="orders", columns=table_columns(columns))
     return render_trades(trade_rows(content.top_trades), caption=_trades_caption(content))
+
+
+def _stress(content: Any) -> str:
+    """The report's stress table (same partial, rows and figures), brief; '' when the scenario has no shocks."""
+    from trimtab.report._stress import stress_table
+    from trimtab.report._templates import render
+
+    return "" if content.stress is None else render("partials/stress.html.j2", **stress_table(content.stress, brief=True))
 
 
 def _trades_caption(content: Any) -> str:

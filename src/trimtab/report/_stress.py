@@ -47,27 +47,33 @@ def stress_html(subject: Any, heading: str, salt: str) -> str:
     if frame is None:
         return ""
     from trimtab.report import _charts
+    from trimtab.report._templates import render
 
     column = "active" if frame["post_active"].notna().any() else "book"
     bars = pd.DataFrame({"pre": frame[f"pre_{column}"], "post": frame[f"post_{column}"]})
     chart = _charts.paired_bars(bars, xlabel=f"{column} return under the shock", salt=f"{salt}-stress", percent=True,
                                 max_rows=len(bars))
-    head = ["shock", "source", f"{column} before", f"{column} after", "limit (loss)", "±1σ specific", "tail probability", "description"]
-    rows = []
-    for name, row in frame.iterrows():
-        cells = [
-            html.escape(str(row["source"])),
-            format_percent(row[f"pre_{column}"]), format_percent(row[f"post_{column}"]),
-            format_percent(row["limit"]) + (f" ({row['limit_on']})" if isinstance(row["limit_on"], str) else ""),
-            format_percent(row["specific_band_active"]), _probability(row["tail_probability"]),
-            html.escape(str(row["description"] or "")),
-        ]
-        tds = "".join(f'<td class="{"text" if i in (0, 6) else "num"}">{c}</td>' for i, c in enumerate(cells))
-        rows.append(f'<tr><th scope="row">{html.escape(str(name))}</th>{tds}</tr>')
-    table = ("<table><thead><tr>" + "".join(f"<th>{h}</th>" for h in head) + "</tr></thead><tbody>"
-             + "".join(rows) + "</tbody></table>")
+    table = render("partials/stress.html.j2", **stress_table(frame))
     return (f"<{heading}>Stress tests before and after the trade</{heading}>"
             f"<figure>{chart}<figcaption>{html.escape(NOTE)}</figcaption></figure>{table}")
+
+
+def stress_table(frame: pd.DataFrame, brief: bool = False) -> dict[str, Any]:
+    """Context of ``partials/stress.html.j2``: which return is shown (active, or book without a
+    benchmark), column headings and formatted rows. ``brief`` (the explore page) keeps the shock,
+    before, after, limit and tail probability."""
+    column = "active" if frame["post_active"].notna().any() else "book"
+    rows = []
+    for name, row in frame.iterrows():
+        named = isinstance(row["limit_on"], str)
+        rows.append({
+            "shock": str(name), "source": str(row["source"]),
+            "pre": format_percent(row[f"pre_{column}"]), "post": format_percent(row[f"post_{column}"]),
+            "limit": format_percent(row["limit"]) + (f" ({row['limit_on']})" if named and not brief else ""),
+            "band": format_percent(row["specific_band_active"]), "tail": _probability(row["tail_probability"]),
+            "description": str(row["description"] or ""),
+        })
+    return {"column": column, "rows": rows, "brief": brief}
 
 
 def print_stress(subject: Any, console: Console) -> None:

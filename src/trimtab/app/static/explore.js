@@ -147,6 +147,8 @@
     $("headline").innerHTML = solved ? variant.html.headline : "";
     $("unsolved").innerHTML = solved ? "" : variant.html.relaxation;
     $("warnings").innerHTML = solved ? variant.html.warnings || "" : "";
+    $("stress").innerHTML = solved ? variant.html.stress || "" : "";
+    $("stress-box").hidden = !(solved && variant.html.stress);
     for (const part of ["trades", "binding", "exposures"]) {
       $(part).innerHTML = solved ? variant.html[part] : '<p class="note">No portfolio for these limits: see above.</p>';
     }
