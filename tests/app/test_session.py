@@ -87,3 +87,19 @@ def test_opening_both_sides_of_a_new_bound_is_the_scenario_as_written(explorer: 
     opened = explorer.solve(explorer.changes_of({"factor_exposure.bounds.momentum.0": None,
                                                   "factor_exposure.bounds.momentum.1": None}))
     np.testing.assert_allclose(_weights(opened.result), _weights(base), atol=1e-6)
+
+
+def test_the_trail_key_changes_with_the_scenario_file_and_its_text(explorer: Explorer, demo_folder: Path) -> None:
+    # the page keeps its trail in sessionStorage under this key: another file, or this one edited,
+    # must give another key (a fresh trail); the same file unchanged gives the same key
+    copy = demo_folder / "trail_key_copy.yaml"
+    copy.write_bytes((demo_folder / "base.yaml").read_bytes())
+    try:
+        other = Explorer.open(copy)
+        assert explorer.trail_key() == explorer.trail_key() == explorer.settings()["trail_key"]
+        assert other.trail_key() != explorer.trail_key()
+        before = other.trail_key()
+        copy.write_text(copy.read_text() + "\n# edited\n")
+        assert other.trail_key() != before
+    finally:
+        copy.unlink()

@@ -75,6 +75,8 @@ class ScenarioInfo(BaseModel):
     objective: dict[str, Any]
     model: ModelSize
     limits: list[LimitInfo]
+    trail_key: str = Field(description="digest of the scenario file's location and text; the page keeps its trail "
+                           "of variants in the browser's sessionStorage under it")
 
 
 class Saved(BaseModel):

@@ -8,6 +8,7 @@ interior-point warm start across variants. One solve runs at a time (a lock); ot
 
 from __future__ import annotations
 
+import hashlib
 import os
 import re
 import tempfile
@@ -100,7 +101,18 @@ class Explorer:
             "objective": dict(self.mapping["objective"]),
             "model": {"n_assets": model.n_assets, "n_factors": model.n_factors},
             "limits": [limit.as_dict() for limit in self.limits.values()],
+            "trail_key": self.trail_key(),
         }
+
+    def trail_key(self) -> str:
+        """Names the page's trail in the browser's sessionStorage: a digest of the scenario file's
+        location and text, so another scenario, or this one edited, starts a fresh trail."""
+        path = self.scenario.path.resolve()
+        try:
+            text = path.read_bytes()
+        except OSError:  # the file went away while exploring: its location alone still names the trail
+            text = b""
+        return hashlib.sha256(str(path).encode() + b"\0" + text).hexdigest()[:24]
 
     def changes_of(self, limits: Mapping[str, Any], risk_aversion: Any = None) -> dict[str, float | None]:
         """A request's values, checked, as the changes from the scenario."""

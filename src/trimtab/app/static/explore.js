@@ -153,6 +153,7 @@
       $(part).innerHTML = solved ? variant.html[part] : '<p class="note">No portfolio for these limits: see above.</p>';
     }
     suggestName(variant);
+    keepTrail();
     drawTrail();
     drawChart();
     drawPinned();
@@ -181,7 +182,7 @@
       cells.forEach((text, i) => row.appendChild(el("td", { class: i >= 3 ? "num" : "" }, text)));
       const actions = el("td");
       const pin = el("button", { type: "button", class: "pin" }, v.pinned ? "unpin" : "pin");
-      pin.addEventListener("click", () => { v.pinned = !v.pinned; drawTrail(); drawChart(); drawPinned(); });
+      pin.addEventListener("click", () => { v.pinned = !v.pinned; keepTrail(); drawTrail(); drawChart(); drawPinned(); });
       const back = el("button", { type: "button", class: "show" }, "show");
       back.addEventListener("click", () => returnTo(v));
       actions.append(pin, back);
@@ -223,6 +224,43 @@
     addRow("Names held", fig("names", (x) => num(x, 0)));
     table.appendChild(body);
     $("pinned").replaceChildren(table);
+  }
+
+  // ------------------------------------------------------------------ the trail across a refresh
+  // Kept in this tab's sessionStorage under the scenario's trail key (its file's location and text):
+  // nothing is sent to the server, and another or an edited scenario starts a fresh trail.
+  const TRAIL_KEY = "trimtab-explore-trail:" + settings.trail_key;
+
+  function keepTrail() {
+    try {
+      sessionStorage.setItem(TRAIL_KEY, JSON.stringify({ trail, shown: shown ? shown.id : null }));
+      $("trail-note").textContent = "";
+    } catch (err) {  // storage full or switched off: the trail still works until the page is left
+      $("trail-note").textContent = "This browser would not keep the trail (storage full or off): a refresh will lose it.";
+    }
+  }
+
+  function restoredTrail() {
+    try {
+      const kept = JSON.parse(sessionStorage.getItem(TRAIL_KEY) || "null");
+      if (!kept || !Array.isArray(kept.trail) || !kept.trail.length) return null;
+      const ok = kept.trail.every((v, i) => v && v.id === i + 1 && v.changes && typeof v.changes === "object" && v.html && typeof v.status === "string");
+      return ok ? kept : null;
+    } catch (err) {
+      return null;  // unreadable: start a fresh trail
+    }
+  }
+
+  function startTrail() {
+    const kept = restoredTrail();
+    if (kept === null) { addVariant({}, JSON.parse(document.getElementById("first").textContent)); return; }
+    trail.push(...kept.trail.map((v) => ({ ...v, pinned: Boolean(v.pinned) })));
+    returnTo(trail.find((v) => v.id === kept.shown) || trail[trail.length - 1]);
+  }
+
+  function clearTrail() {
+    try { sessionStorage.removeItem(TRAIL_KEY); } catch (err) { /* nothing kept */ }
+    window.location.reload();
   }
 
   // ------------------------------------------------------------------ the alpha-against-TE chart (inline SVG)
@@ -284,5 +322,6 @@
 
   buildControls();
   $("save-button").addEventListener("click", save);
-  addVariant({}, JSON.parse(document.getElementById("first").textContent));
+  $("clear-trail").addEventListener("click", clearTrail);
+  startTrail();
 })();
