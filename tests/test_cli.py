@@ -163,6 +163,9 @@ def test_risk_active_and_total(work: Path) -> None:
     assert document["kind"] == "total"
     assert document["headline"]["n_positions"] == 120
     assert {"report.html", "result.json", MARKER} <= {p.name for p in (work / "risk").iterdir()}
+    # issue #13: the report states the NAV and cash the weights were derived with, as the terminal does
+    page = (work / "risk" / "report.html").read_text(encoding="utf-8")
+    assert "Holdings read as shares: weights = shares·price / NAV, NAV " in page and "+ cash 0 (--cash)" in page
     # with the fund's cash the weights are those the scenario uses: Σw = 1 − cash/NAV
     import pandas as pd
 

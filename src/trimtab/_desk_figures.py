@@ -26,6 +26,7 @@ WARNING_KINDS: dict[str, str] = {
     "zeroed_alpha": "model assets without an alpha score were given alpha 0",
     "solver_fallback": "the first solver was not used or its answer was rejected; another solver's was accepted",
     "heuristic": "a post-solve heuristic (max_names, min_trade, round_lots) changed the book",
+    "passive_breach": "a position the market carried past its per-asset limit cannot be traded back inside in one rebalance; it is traded back as far as the trading limits allow",
     "rounding": "rounding the trades to whole shares or lots moved a limited quantity past its limit",
     "factor_concentration": "one factor takes more than the set share of the (active) variance",
     "asset_concentration": "one position takes more than the set share of the (active) variance",

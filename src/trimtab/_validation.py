@@ -22,6 +22,15 @@ def list_labels(labels: Iterable[Any], limit: int = MAX_LISTED) -> str:
     return shown
 
 
+def closest_key_hint(key: Any, allowed: Iterable[str]) -> str:
+    """"did you mean X?" for the closest allowed key, else the allowed keys (for unknown-key messages)."""
+    import difflib
+
+    options = list(allowed)
+    close = difflib.get_close_matches(str(key), options, n=1, cutoff=0.6)
+    return f"did you mean {close[0]}?" if close else f"allowed here: {', '.join(options)}"
+
+
 def number_as_text(value: str) -> str:
     """The message for a number written as text: quotes removed, percentages as fractions."""
     body = value.strip()

@@ -316,7 +316,10 @@ def risk(
         attribution = fm.attribute(aligned.holdings, aligned.benchmark, attributes=aligned.attributes)
         if out is not None:
             step("writing the report")
-            write_attribution(attribution, out, [model, holdings, *(p for p in (benchmark, attributes) if p)])
+            from trimtab.report._desk import holdings_line
+
+            write_attribution(attribution, out, [model, holdings, *(p for p in (benchmark, attributes) if p)],
+                              notes=[holdings_line(kind, book.nav, book.cash, nav is not None)])
     if ui.json:
         ui.emit(
             {

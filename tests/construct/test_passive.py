@@ -37,6 +37,9 @@ def test_an_unreachable_cap_is_approached_as_far_as_trading_allows() -> None:
                      "of 5.0000%; this rebalance trades it to 8.0000%, as far as the trading limits allow"]
     # every other asset keeps the 5% cap as written
     assert (result.weights.drop(asset) <= 0.05 + 1e-7).all()
+    # the desk sees it: a warning of its own kind (stderr, result.json, the report)
+    (warning,) = [w for w in result.warnings if w.kind == "passive_breach"]
+    assert warning.message.startswith(f"constraints.weight.max[{asset}] is 10.0000% after market moves")
 
 
 def test_a_reachable_cap_holds_as_written() -> None:

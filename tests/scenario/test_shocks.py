@@ -24,9 +24,9 @@ def test_the_demo_shock_file_loads():
     ("text", "match"),
     [
         ("", "the shock file is empty"),
-        ("shock: {}\n", r"unknown key\(s\) shock; allowed: shocks, description"),
+        ("shock: {}\n", r"shock: unknown key; did you mean shocks\?"),  # issue #11: the closest key suggested
         ("description: x\n", "shocks: required key missing"),
-        ("shocks:\n  a: {market: -0.1}\n", r"shocks\.a: unknown key\(s\) market; allowed: factors, description, specific"),
+        ("shocks:\n  a: {market: -0.1}\n", r"shocks\.a\.market: unknown key; allowed here: factors, description, specific"),
         ("shocks:\n  a: {factors: {market: -5}}\n", r"shocks\.a\.factors\.market: a move of -5 is -500%"),
         ("shocks:\n  a: {factors: {market: '-10%'}}\n", r"shocks\.a\.factors\.market: expected a finite number"),
         ("shocks:\n  a: {factors: {}}\n", r"shocks\.a\.factors: expected a mapping factor → move"),

@@ -7,12 +7,11 @@ naming it, what is allowed and what was received.
 from __future__ import annotations
 
 import datetime
-import difflib
 import math
 from collections.abc import Iterable, Mapping
 from typing import Any
 
-from trimtab._validation import list_labels, number_as_text
+from trimtab._validation import closest_key_hint, list_labels, number_as_text
 from trimtab.errors import Problem, ScenarioError
 
 
@@ -36,11 +35,7 @@ class Path:
 def unknown_keys(path: Path, keys: Iterable[Any], allowed: Iterable[str]) -> ScenarioError:
     """One problem per unknown key at ``path``, each with the closest allowed key or the allowed list."""
     options = list(allowed)
-    problems = []
-    for key in keys:
-        close = difflib.get_close_matches(str(key), options, n=1, cutoff=0.6)
-        hint = f"did you mean {close[0]}?" if close else f"allowed here: {', '.join(options)}"
-        problems.append(Problem(path.source, str(path / key), f"unknown key; {hint}", True))
+    problems = [Problem(path.source, str(path / key), f"unknown key; {closest_key_hint(key, options)}", True) for key in keys]
     return ScenarioError.of(problems)
 
 

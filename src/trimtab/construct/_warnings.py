@@ -77,12 +77,15 @@ def solver_warnings(notes: Sequence[str], skipped: Sequence[str], solver: str) -
 
 
 def heuristic_warnings(notes: Sequence[str]) -> list[RunWarning]:
-    """One warning per heuristic step the run applied (from the outcome's notes)."""
+    """One warning per heuristic step the run applied, and one per passive breach the rebalance could
+    not cure in full (both from the outcome's notes): the target book is then outside a mandate limit."""
     out = []
     for note in notes:
         key = note.split(":", 1)[0]
         if key in ("max_names", "min_trade", "round_lots"):
             out.append(RunWarning("heuristic", note, {"heuristic": key}))
+        elif key == "passive breach":
+            out.append(RunWarning("passive_breach", note.removeprefix("passive breach:").strip(), {}))
     return out
 
 

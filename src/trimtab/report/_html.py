@@ -76,7 +76,8 @@ _ASSET_UNITS = {
 
 
 def write_html(
-    subject: Any, path: str | Path, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25
+    subject: Any, path: str | Path, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25,
+    notes: Sequence[str] = (),
 ) -> Path:
     """Write one self-contained HTML report (inline CSS and SVG charts; opens offline, prints cleanly).
 
@@ -95,6 +96,8 @@ def write_html(
         Rows in the top-contributor and exposure charts and tables.
     max_trades : int, default 25
         Largest trades listed (the full list goes to :func:`write_tables` / :func:`write_json`).
+    notes : sequence of str, optional
+        Lines stated under the title (for instance the NAV and cash a book's weights come from).
 
     Returns
     -------
@@ -106,12 +109,14 @@ def write_html(
     InputError
         If ``subject`` is not a result, an attribution or a non-empty mapping of them.
     """
-    document = render_html(subject, title=title, top=top, max_trades=max_trades)
+    document = render_html(subject, title=title, top=top, max_trades=max_trades, notes=notes)
     return atomic_write_text(Path(path), document)
 
 
-def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25) -> str:
-    """The HTML document of :func:`write_html` as a string."""
+def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25,
+                notes: Sequence[str] = ()) -> str:
+    """The HTML document of :func:`write_html` as a string (``notes``: lines stated under the title,
+    such as the NAV and cash a book's weights were derived with)."""
     if isinstance(subject, Mapping):
         if not subject:
             gather_many(subject)  # raises the one-line error of an empty mapping
@@ -147,8 +152,9 @@ def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int 
         f"<title>{_e(title)}</title><style>{css}</style></head><body><main>"
         f"<header><h1>{_e(title)}</h1>"
         f'<p class="meta">Written by trimtab {_e(__version__)} on {created}.</p>'
-        f'<p class="caution" id="caution"><strong>Caution.</strong> {_e(CAUTION)}</p></header>'
-        f"{nav}{body}"
+        f'<p class="caution" id="caution"><strong>Caution.</strong> {_e(CAUTION)}</p>'
+        + "".join(f'<p class="note">{_e(line)}</p>' for line in notes)
+        + f"</header>{nav}{body}"
         f'<footer><p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p></footer>'
         "</main></body></html>\n"
     )

@@ -256,13 +256,14 @@ def comparison_table(runs: Sequence[ScenarioRun]) -> pd.DataFrame:
     return report_writers().comparison_table(comparison_subjects(runs))  # type: ignore[no-any-return]
 
 
-def write_attribution(attribution: Any, out: Path, inputs: Sequence[Path]) -> Written:
-    """Write one attribution's tables, result.json and report.html into ``out``."""
+def write_attribution(attribution: Any, out: Path, inputs: Sequence[Path], notes: Sequence[str] = ()) -> Written:
+    """Write one attribution's tables, result.json and report.html into ``out`` (``notes`` are stated
+    under the report's title: how the book's weights were found, say)."""
     report = report_writers()
     with output_folder(out, inputs) as tmp:
         report.write_tables(attribution, tmp, file_format="csv")
         report.write_json(attribution, tmp / "result.json")
-        report.write_html(attribution, tmp / "report.html", title="Risk report")
+        report.write_html(attribution, tmp / "report.html", title="Risk report", notes=notes)
         names = sorted(p.name for p in tmp.iterdir())
     return Written(Path(out), names)
 

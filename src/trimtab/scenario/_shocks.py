@@ -12,6 +12,8 @@ from pathlib import Path
 from typing import Any
 
 from trimtab.errors import ScenarioError
+from trimtab.construct._spec_fields import Path as KeyPath
+from trimtab.construct._spec_fields import unknown_keys
 from trimtab.scenario._yaml import read_yaml_mapping
 
 FILE_KEYS = ("shocks", "description")
@@ -32,7 +34,7 @@ def load_shocks(path: str | Path) -> dict[str, dict[str, Any]]:
     raw = read_yaml_mapping(source, "shock")
     unknown = [k for k in raw if k not in FILE_KEYS]
     if unknown:
-        raise ScenarioError(f"{source}: unknown key(s) {', '.join(map(str, unknown))}; allowed: {', '.join(FILE_KEYS)}")
+        raise unknown_keys(KeyPath(str(source)), unknown, FILE_KEYS)
     if "shocks" not in raw:
         raise ScenarioError(f"{source}: shocks: required key missing (name → {{factors: {{factor: move}}}})")
 

@@ -10,7 +10,7 @@ import math
 from collections.abc import Callable, Mapping
 from typing import Any
 
-from trimtab._validation import list_labels
+from trimtab._validation import closest_key_hint, list_labels
 
 ENTRY_KEYS = ("factors", "description", "specific")
 Fail = Callable[[tuple[str, ...], str], Exception]
@@ -28,7 +28,8 @@ def shock_entries(value: Any, fail: Fail) -> dict[str, dict[str, Any]]:
             raise fail((name,), f"expected a mapping with factors: {{factor: move}}, got {_short(entry)}")
         unknown = [k for k in entry if k not in ENTRY_KEYS]
         if unknown:
-            raise fail((name,), f"unknown key(s) {list_labels(unknown)}; allowed: {', '.join(ENTRY_KEYS)}")
+            raise fail((name, str(unknown[0])), f"unknown key; {closest_key_hint(unknown[0], ENTRY_KEYS)}"
+                       + (f" (and {len(unknown) - 1} more unknown: {list_labels(unknown[1:])})" if len(unknown) > 1 else ""))
         if "factors" not in entry:
             raise fail((name,), "missing required key factors (factor → move, a return over the shock)")
         description = entry.get("description")
