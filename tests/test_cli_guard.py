@@ -56,3 +56,22 @@ def test_interrupt_line_says_what_was_already_written(monkeypatch: pytest.Monkey
 def test_python_hints_become_scenario_words(python: str, scenario: str) -> None:
     line = in_file_words(python)
     assert line.endswith(scenario) and "pass " not in line and ".relaxation" not in line
+
+
+def test_a_swallowed_interrupt_is_reported_as_the_signal_it_was(monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]) -> None:
+    # issue #11: the raise of a signal handler can land in a callback Python runs for itself, which
+    # prints "Exception ignored in …" with a traceback; the entry point's hook keeps that quiet, and
+    # the output folder's own check (InterruptedBeforeCommit) ends the run as that signal
+    import signal
+    import types
+
+    import trimtab._entry as entry
+    import trimtab._paths as paths
+    from trimtab._cli_guard import interrupt_line
+
+    monkeypatch.setattr(paths, "COMPLETED", [])
+    assert interrupt_line(paths.InterruptedBeforeCommit(signal.SIGTERM)) == ("terminated; nothing was written", 143)
+    assert interrupt_line(paths.InterruptedBeforeCommit(signal.SIGINT)) == ("interrupted; nothing was written", 130)
+    monkeypatch.setattr(entry, "_RECEIVED", [signal.SIGINT])
+    entry._quiet_unraisable(types.SimpleNamespace(exc_value=KeyboardInterrupt()))  # type: ignore[arg-type]
+    assert capsys.readouterr().err == ""

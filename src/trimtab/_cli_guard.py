@@ -56,7 +56,12 @@ def interrupt_line(err: BaseException) -> tuple[str, int]:
     """The line and exit code for an interrupt (Ctrl-C) or a termination (SIGTERM)."""
     from trimtab._paths import COMPLETED
 
-    what, code = ("terminated", EXIT_TERMINATED) if isinstance(err, Terminated) else ("interrupted", EXIT_INTERRUPTED)
+    import signal
+
+    from trimtab._paths import InterruptedBeforeCommit
+
+    terminated = isinstance(err, Terminated) or (isinstance(err, InterruptedBeforeCommit) and err.signum == signal.SIGTERM)
+    what, code = ("terminated", EXIT_TERMINATED) if terminated else ("interrupted", EXIT_INTERRUPTED)
     if COMPLETED:
         done = ", ".join(str(p) for p in COMPLETED)
         return f"{what}; {done} had been written completely before, nothing else was written", code
@@ -127,8 +132,10 @@ def guarded(fn: F, *, on_infeasible: Callable[[Any, BaseException], None] | None
     """
     import typer
 
-    from trimtab._paths import COMPLETED
+    from trimtab._paths import COMPLETED, InterruptedBeforeCommit
     from trimtab.errors import InfeasibleError, TrimtabError
+
+    interrupts = (KeyboardInterrupt, Terminated, InterruptedBeforeCommit)
 
     @functools.wraps(fn)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
@@ -140,6 +147,9 @@ def guarded(fn: F, *, on_infeasible: Callable[[Any, BaseException], None] | None
                 warnings.simplefilter("always")
                 try:
                     return fn(*args, **kwargs)
+                except interrupts:
+                    caught.clear()  # an interrupted run's warnings are about a result that was not written
+                    raise
                 finally:
                     show_warnings(caught)
         except typer.Exit:
@@ -150,7 +160,7 @@ def guarded(fn: F, *, on_infeasible: Callable[[Any, BaseException], None] | None
             fail(str(err), EXIT_INFEASIBLE)
         except TrimtabError as err:
             fail(str(err), getattr(err, "exit_code", EXIT_BAD_INPUT))
-        except (KeyboardInterrupt, Terminated) as err:
+        except interrupts as err:
             fail(*interrupt_line(err))
         except OSError as err:
             if err.errno is None and not getattr(root, "verbose", False):

@@ -12,14 +12,21 @@ import sys
 from types import FrameType
 
 from trimtab._cli_guard import REPORTED, Terminated, interrupt_line, write_error
-
-#: The signals received, in order.
-_RECEIVED: list[int] = []
+from trimtab._paths import RECEIVED_SIGNALS as _RECEIVED
 
 
 def _on_signal(signum: int, _frame: FrameType | None) -> None:
     _RECEIVED.append(signum)
     raise Terminated() if signum == signal.SIGTERM else KeyboardInterrupt()
+
+
+def _quiet_unraisable(unraisable: sys.UnraisableHookArgs) -> None:
+    """An interrupt raised inside a callback Python runs for itself (a weakref or import-lock
+    callback) is swallowed there; say nothing of it (it is recorded, and acted on later),
+    and leave every other unraisable exception to Python's own report."""
+    if isinstance(unraisable.exc_value, (KeyboardInterrupt, Terminated)) and _RECEIVED:
+        return
+    sys.__unraisablehook__(unraisable)
 
 
 def _exit_code(value: object) -> int:
@@ -35,6 +42,7 @@ def main() -> None:
     """Console-script entry point (``trimtab``)."""
     signal.signal(signal.SIGINT, _on_signal)
     signal.signal(signal.SIGTERM, _on_signal)
+    sys.unraisablehook = _quiet_unraisable
     try:
         from trimtab.cli import app
 

@@ -21,6 +21,24 @@ _STALE = re.compile(r"^\..+\.(?:partial|old)-(?P<pid>\d+)-[A-Za-z0-9_]{8}$")
 _UMASK_LOCK = threading.Lock()
 #: Output folders this process has finished (renamed into place), for an honest interrupt message.
 COMPLETED: list[Path] = []
+#: Signals (SIGINT, SIGTERM) the console script received. Its handler raises, but a raise that lands
+#: in a callback Python runs for itself (a weakref or import-lock callback) is swallowed, so an
+#: output folder checks this record again before it is put in place.
+RECEIVED_SIGNALS: list[int] = []
+
+
+class InterruptedBeforeCommit(BaseException):
+    """A signal arrived while an output folder was written and its raise was swallowed."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+def raise_if_signalled() -> None:
+    """Raise :class:`InterruptedBeforeCommit` when a signal was received (nothing is put in place)."""
+    if RECEIVED_SIGNALS:
+        raise InterruptedBeforeCommit(RECEIVED_SIGNALS[0])
 
 
 def current_umask() -> int:

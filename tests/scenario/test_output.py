@@ -60,3 +60,17 @@ def test_write_text_atomic(tmp_path: Path) -> None:
     assert path.read_text(encoding="utf-8") == "two"
     assert [p.name for p in tmp_path.iterdir()] == ["a.txt"]
 
+
+
+def test_a_swallowed_interrupt_keeps_the_folder_out_of_place(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # issue #11: a signal whose raise Python swallowed (it landed in an import-lock callback) must
+    # still stop the folder from being put in place; seen once in the catalogue's SIGTERM test
+    import signal
+
+    import trimtab._paths as paths
+
+    monkeypatch.setattr(paths, "RECEIVED_SIGNALS", [signal.SIGTERM])
+    with pytest.raises(paths.InterruptedBeforeCommit):
+        with output_folder(tmp_path / "out") as tmp:
+            (tmp / "trades.csv").write_text("asset,trade\n", encoding="utf-8")
+    assert list(tmp_path.iterdir()) == []

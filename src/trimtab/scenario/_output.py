@@ -15,7 +15,7 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, TypeVar
 
-from trimtab._paths import COMPLETED, ensure_parent_folder, file_mode, make_partial, remove_stale_partials
+from trimtab._paths import COMPLETED, ensure_parent_folder, file_mode, make_partial, raise_if_signalled, remove_stale_partials
 from trimtab.errors import InputError
 
 T = TypeVar("T")
@@ -67,6 +67,7 @@ def output_folder(target: str | Path, inputs: Iterable[str | Path] = ()) -> Iter
                 raise
             raise OSError(err.errno, err.strerror, str(final)) from None
         _at(final, (tmp / MARKER).write_text, "written by trimtab; this folder may be replaced by the next run\n", encoding="utf-8")
+        raise_if_signalled()  # a swallowed interrupt still keeps the folder out of place
         if final.exists():
             old = _at(final, make_partial, final, "old")
             _at(final, os.replace, final, old / final.name)
