@@ -110,6 +110,23 @@ def test_attribute_a_backtest_folder(demo: Path, tmp_path: Path) -> None:
     assert document["compounded_active_returns"] == pytest.approx(totals.loc["base", "active_return"], rel=1e-10)
 
 
+
+def test_a_backtest_of_several_scenarios_asks_which(demo: Path, tmp_path: Path) -> None:
+    bt = tmp_path / "bt2"
+    done = in_folder(demo, "backtest", "base.yaml", "low_turnover.yaml", "--fit", "fit.yaml", "--window", "250",
+                     "--every", "42", "--max-dates", "2", "--out", bt)
+    assert done.exit_code == 0, done.output
+    result = in_folder(demo, "attribute-returns", "--backtest", bt, "--model", "model")
+    assert result.exit_code == EXIT_BAD_INPUT
+    assert "add --scenario base or --scenario low_turnover" in result.output
+    result = in_folder(demo, "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "nope")
+    assert result.exit_code == EXIT_BAD_INPUT and "--scenario nope: not in" in result.output
+    result = in_folder(demo, "--json", "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "low_turnover")
+    assert result.exit_code == 0, result.output
+    history = pd.read_csv(bt / "history.csv").query("scenario == 'low_turnover'").dropna(subset=["realised_active"])
+    compounded = (1 + history["book_return"]).prod() - (1 + history["benchmark_return"]).prod()
+    assert json.loads(result.stdout)["total"] == pytest.approx(compounded, rel=1e-10)
+
 @pytest.mark.parametrize(
     ("args", "pattern"),
     [

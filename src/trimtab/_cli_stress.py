@@ -245,7 +245,13 @@ def attribute_returns_command(
             factors = fm.factor_history
         if start is not None or end is not None:
             raise InputError("--start/--end: with --backtest the whole backtest is attributed; run the backtest over the span you want")
-        result = attribute_backtest_returns(_backtest_tables(backtest), factors, scenario=scenario, linking=linking)
+        tables = _backtest_tables(backtest)
+        ran = list(dict.fromkeys(tables.history.index.get_level_values(0)))  # (scenario, date) rows
+        if scenario is None and len(ran) > 1:
+            raise InputError(f"{backtest}: the backtest ran {len(ran)} scenarios; add --scenario " + " or --scenario ".join(map(str, ran)))
+        if scenario is not None and scenario not in ran:
+            raise InputError(f"--scenario {scenario}: not in {backtest}; it ran " + ", ".join(map(str, ran)))
+        result = attribute_backtest_returns(tables, factors, scenario=scenario, linking=linking)
     else:
         if fm is None or returns is None:
             raise InputError("attribute-returns: give --model and --returns (or --backtest FOLDER)")
