@@ -253,6 +253,12 @@ def test_rebalance_writes_a_complete_folder(work: Path) -> None:
     assert len(trades) == int((book["trade"].abs() > 1e-10).sum())
     assert (trades["shares"] == trades["shares"].round()).all() and (trades["shares"] > 0).all()
     assert 0.5 * trades["weight_change"].abs().sum() <= 0.25 + 1e-6
+    # target_book.csv carries the orders as sent beside the optimizer's book: the same whole shares, signed,
+    # and the rounded book's weights, within a share of the optimizer's
+    sent = book.set_index("asset")["order_shares"]
+    signed = trades.set_index("asset").eval("shares * (2 * (side == 'buy') - 1)")
+    assert (sent[sent != 0].sort_index() == signed.sort_index()).all() and len(sent[sent != 0]) == len(signed)
+    assert (book["weight_after_orders"] - book["target_weight"]).abs().max() < 1e-6
     # --json: one document with the documented report inside
     result = invoke("--json", "rebalance", work / "low_turnover.yaml", "--out", work / "out2")
     document = json.loads(result.stdout)

@@ -42,6 +42,7 @@ from trimtab.report._desk import (  # noqa: F401 - re-exported: the writers impo
     rounding_lines,
     run_context,
     settings_rows,
+    target_book,
     warning_records,
 )
 
@@ -109,6 +110,8 @@ class ReportContent:
     warnings: list[dict[str, Any]] = field(default_factory=list)
     context: dict[str, Any] = field(default_factory=dict)
     checks: pd.DataFrame | None = None
+    #: every asset before and after (the optimizer's columns, and the orders as sent when rounded)
+    target_book: pd.DataFrame | None = None
 
     @property
     def is_rebalance(self) -> bool:
@@ -173,6 +176,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         warnings=warning_records(subject),
         context=run_context(subject, post),
         checks=final_limits(subject),
+        target_book=target_book(subject, trades),
         stress=stress_frame(subject),
     )
 

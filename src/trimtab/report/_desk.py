@@ -98,6 +98,21 @@ def order_list(subject: Any, trades: pd.DataFrame | None) -> pd.DataFrame | None
     return frame.iloc[np.argsort(-frame["weight_change"].abs().to_numpy(), kind="stable")]
 
 
+def target_book(subject: Any, trades: pd.DataFrame | None) -> pd.DataFrame | None:
+    """Every asset's weight before and after: the optimizer's columns, and with a trade list the orders
+    as sent (``order_shares``, whole shares signed, 0 for no order) and ``weight_after_orders``, the
+    rounded book the report's post-trade figures describe."""
+    trade_list = getattr(subject, "trade_list", None)
+    if trades is None or trade_list is None:
+        return trades
+    book = trades.copy()
+    orders = trade_list.orders
+    signed = orders["shares"].where(orders["side"] == "buy", -orders["shares"])
+    book["order_shares"] = signed.reindex(book.index).fillna(0.0).to_numpy()
+    book["weight_after_orders"] = trade_list.weights.reindex(book.index).to_numpy()
+    return book
+
+
 def rounding_info(trade_list: Any) -> dict[str, Any] | None:
     if trade_list is None:
         return None
@@ -184,7 +199,7 @@ def rounding_lines(content: ReportContent) -> list[str]:
     ]
     moves = r["largest_changes"]
     if isinstance(moves, pd.DataFrame) and len(moves):
-        shown = ", ".join(f"{asset} {1e4 * change:+.3f} bp" for asset, change in moves["change"].head(3).items())
+        shown = ", ".join(f"{asset} {1e4 * change:+.3g} bp" for asset, change in moves["change"].head(3).items())
         lines.append(f"Largest weight changes from rounding: {shown} of NAV.")
     return lines
 

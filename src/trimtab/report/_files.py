@@ -86,8 +86,8 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
             tables[f"{stem}_by_{_stem(column)}"] = attr.by_group(column)
     if content.orders is not None:
         tables["trades"] = content.orders
-    if content.trades is not None:
-        tables["target_book"] = content.trades
+    if content.target_book is not None:
+        tables["target_book"] = content.target_book
     if content.figures is not None:
         tables["figures"] = content.figures
     if content.trade_summary is not None:
@@ -227,7 +227,7 @@ def report_document(subject: Any) -> dict[str, Any]:
             **{k: v for k, v in content.rounding.items() if k != "largest_changes"},
             "largest_changes": _records(content.rounding["largest_changes"], "asset"),
         },
-        "target_book": _records(content.trades, "asset"),
+        "target_book": _records(content.target_book, "asset"),
         "trade_summary": _records(content.trade_summary, None),
         "constraints": _records(content.constraints, None),
         "objective": None if content.objective is None else dict(content.objective.items()),
