@@ -283,10 +283,13 @@
     const X = (x) => L + ((x - x0) / (x1 - x0)) * (W - L - R), Y = (y) => H - B - ((y - y0) / (y1 - y0)) * (H - T - B);
     svg.appendChild(svgEl("line", { x1: L, y1: H - B, x2: W - R, y2: H - B, class: "axis" }));
     svg.appendChild(svgEl("line", { x1: L, y1: T, x2: L, y2: H - B, class: "axis" }));
+    // enough decimals that five ticks over a narrow span read as five different values
+    const places = (lo, hi) => Math.min(4, Math.max(2, Math.ceil(-Math.log10((25 * (hi - lo)) || 1))));
+    const dx = places(x0, x1), dy = places(y0, y1);
     for (let i = 0; i <= 4; i++) {
       const xv = x0 + (i / 4) * (x1 - x0), yv = y0 + (i / 4) * (y1 - y0);
-      svg.appendChild(svgEl("text", { x: X(xv), y: H - B + 16, class: "tick", "text-anchor": "middle" }, pct(xv)));
-      svg.appendChild(svgEl("text", { x: L - 6, y: Y(yv) + 4, class: "tick", "text-anchor": "end" }, pct(yv)));
+      svg.appendChild(svgEl("text", { x: X(xv), y: H - B + 16, class: "tick", "text-anchor": "middle" }, pct(xv, dx)));
+      svg.appendChild(svgEl("text", { x: L - 6, y: Y(yv) + 4, class: "tick", "text-anchor": "end" }, pct(yv, dy)));
     }
     svg.appendChild(svgEl("text", { x: (L + W - R) / 2, y: H - 4, class: "axis-label", "text-anchor": "middle" }, "tracking error (a year)"));
     svg.appendChild(svgEl("text", { x: 12, y: (T + H - B) / 2, class: "axis-label", "text-anchor": "middle", transform: `rotate(-90 12 ${(T + H - B) / 2})` }, "expected alpha"));
