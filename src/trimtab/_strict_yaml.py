@@ -286,6 +286,8 @@ class _Checker:
             detail = ""
             if tag == "timestamp" and isinstance(err, ValueError) and ("must be" in str(err) or "out of range" in str(err)):
                 detail = f" ({_first_line(err)})"
+                if node.value[:1].isdigit():  # YAML reads an unquoted 2024-13-01 as a date
+                    detail += "; put it in quotes if it is text"
             elif tag == "int" and len(node.value) > 1000:
                 detail = f" (it has {len(node.value):,} digits)"
             self._note(node, key_path, f"{text!r} is not a valid {_TAG_WORDS.get(tag, tag)}{detail}")

@@ -153,7 +153,7 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     ("yaml-alias-bomb", write(BOMB), ["check", "s.yaml"], BAD_INPUT, r"s\.yaml: line \d+: anchors and aliases expand to more than 1,000,000 values"),
     ("yaml-every-problem-of-the-file", both(append("constraints:\n  long_only: true\n"), edit(BASE_NAME, "description: 2024-13-01"),
                                             edit("days: 1", "days: !!int ")), ["check", "base.yaml"], BAD_INPUT,
-     r"base\.yaml: 3 problems: \(1\) line 5: description: '2024-13-01' is not a valid date \(month must be in 1\.\.12\) "
+     r"base\.yaml: 3 problems: \(1\) line 5: description: '2024-13-01' is not a valid date \(month must be in 1\.\.12\); put it in quotes if it is text "
      r"\(2\) line 23: constraints\.liquidity\.days: '' is not a valid whole number \(3\) line \d+: constraints: key written twice"),
     ("yaml-recursive-alias", write("model: &m [*m]\n"), ["check", "s.yaml"], BAD_INPUT, r"s\.yaml: line 1: model\.0: an alias refers to the value that contains it"),
     ("yaml-nested-20000-deep", write("x: " + "[" * 20000 + "]" * 20000 + "\n"), ["check", "s.yaml"], BAD_INPUT, r"s\.yaml: line 1: nested more than 64 levels deep"),
@@ -179,7 +179,7 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     ("yaml-bad-merge", write("a: {<<: 3}\n"), ["check", "s.yaml"], BAD_INPUT, r"s\.yaml: line 1, column \d+: not valid YAML: expected a mapping or list of mappings for merging"),
     # ---------------------------------------------------------------- values
     ("value-impossible-date", edit(BASE_NAME, "description: 2024-13-01"), ["check", "base.yaml"], BAD_INPUT,
-     r"base\.yaml: line 5: description: '2024-13-01' is not a valid date \(month must be in 1\.\.12\)"),
+     r"base\.yaml: line 5: description: '2024-13-01' is not a valid date \(month must be in 1\.\.12\); put it in quotes if it is text$"),
     ("value-date-for-nav", edit("cash: 6000000", "cash: 6000000, nav: 2024-01-31"), ["check", "base.yaml"], BAD_INPUT,
      r"base\.yaml: data\.holdings\.nav: expected a number, got 2024-01-31"),
     ("value-empty-float-tag", edit("tracking_error: {max: 0.03}", "tracking_error: {max: !!float }"), ["check", "base.yaml"], BAD_INPUT,
