@@ -17,6 +17,11 @@ from trimtab._paths import RECEIVED_SIGNALS as _RECEIVED
 
 def _on_signal(signum: int, _frame: FrameType | None) -> None:
     _RECEIVED.append(signum)
+    # a library that swallows the interrupt (cvxpy logs a solver import it cut short) prints nothing
+    # more: the one line is trimtab's
+    import logging
+
+    logging.disable(logging.CRITICAL)
     raise Terminated() if signum == signal.SIGTERM else KeyboardInterrupt()
 
 

@@ -100,12 +100,34 @@ def remove_stale_partials(folder: Path) -> list[Path]:
     return removed
 
 
-def ensure_parent_folder(target: Path) -> None:
-    """Create the folders above ``target``; a path below an existing file is an OSError naming it."""
+def ensure_parent_folder(target: Path, created: list[Path] | None = None) -> None:
+    """Create the folders above ``target``; a path below an existing file is an OSError naming it.
+
+    Each folder this call creates is appended to ``created`` just before it is made, so that a run
+    stopped at any moment can take them away again (:func:`remove_created`).
+    """
     for ancestor in reversed(target.parents):
-        if os.path.lexists(ancestor) and not ancestor.is_dir():
-            raise OSError(errno.ENOTDIR, os.strerror(errno.ENOTDIR), str(ancestor))
-    try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-    except OSError as err:
-        raise OSError(err.errno, err.strerror, str(err.filename or target.parent)) from None
+        if os.path.lexists(ancestor):
+            if not ancestor.is_dir():
+                raise OSError(errno.ENOTDIR, os.strerror(errno.ENOTDIR), str(ancestor))
+            continue
+        if created is not None:
+            created.append(ancestor)
+        try:
+            os.mkdir(ancestor)  # mode 0777 less the umask, as mkdir(1) gives
+        except FileExistsError:
+            if created is not None:
+                created.pop()  # made meanwhile by someone else: not ours to remove
+            if not ancestor.is_dir():
+                raise OSError(errno.ENOTDIR, os.strerror(errno.ENOTDIR), str(ancestor)) from None
+        except OSError as err:
+            raise OSError(err.errno, err.strerror, str(err.filename or ancestor)) from None
+
+
+def remove_created(created: list[Path]) -> None:
+    """Remove the folders :func:`ensure_parent_folder` made, deepest first, each only while empty."""
+    for folder in reversed(created):
+        try:
+            os.rmdir(folder)
+        except OSError:
+            pass  # gone, or holds something that is not ours to remove

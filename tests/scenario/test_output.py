@@ -36,6 +36,23 @@ def test_failure_leaves_the_old_folder_and_no_partial_output(tmp_path: Path) -> 
     assert [p.name for p in tmp_path.iterdir()] == ["out"]
 
 
+
+@pytest.mark.parametrize("stop", [KeyboardInterrupt, RuntimeError])
+def test_a_stopped_run_also_takes_away_the_folders_it_made_above_the_target(tmp_path: Path, stop: type) -> None:
+    (tmp_path / "kept").mkdir()
+    with pytest.raises(stop):
+        with output_folder(tmp_path / "kept" / "results" / "deeper" / "base") as tmp:
+            (tmp / "a.csv").write_text("x\n", encoding="utf-8")
+            raise stop()
+    assert [p.name for p in tmp_path.iterdir()] == ["kept"] and not any((tmp_path / "kept").iterdir())
+    # a folder above the target that holds something else stays
+    (tmp_path / "kept" / "results").mkdir()
+    (tmp_path / "kept" / "results" / "mine.txt").write_text("x", encoding="utf-8")
+    with pytest.raises(stop):
+        with output_folder(tmp_path / "kept" / "results" / "deeper" / "base"):
+            raise stop()
+    assert [p.name for p in (tmp_path / "kept" / "results").iterdir()] == ["mine.txt"]
+
 def test_refuses_folders_it_did_not_write_and_folders_holding_inputs(tmp_path: Path) -> None:
     data = tmp_path / "data"
     data.mkdir()

@@ -27,7 +27,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._paths import COMPLETED, ensure_parent_folder, make_partial, remove_stale_partials
+from trimtab._paths import COMPLETED, ensure_parent_folder, make_partial, remove_created, remove_stale_partials
 from trimtab._strict_yaml import check_regular, read_regular_file
 from trimtab._version import __version__
 from trimtab.errors import InputError, ModelError
@@ -87,10 +87,12 @@ def save_model(model: Any, path: str | Path, *, file_format: str = "parquet", ov
             raise InputError(f"FactorModel.save: {target} is a non-empty folder that holds no model; refusing to replace it")
         if is_model and not overwrite:
             raise InputError(f"FactorModel.save: {target} already holds a model; pass overwrite=True to replace it")
-    ensure_parent_folder(target)
-    remove_stale_partials(target.parent)
-    tmp = make_partial(target)
+    created: list[Path] = []  # folders above the target this call made: removed again if it stops
+    tmp: Path | None = None
     try:
+        ensure_parent_folder(target, created)
+        remove_stale_partials(target.parent)
+        tmp = make_partial(target)
         files: dict[str, str] = {}
 
         def put(name: str, frame: pd.DataFrame) -> None:
@@ -135,14 +137,20 @@ def save_model(model: Any, path: str | Path, *, file_format: str = "parquet", ov
             os.replace(tmp, target)
         COMPLETED.append(target)
     except OSError as err:
-        shutil.rmtree(tmp, ignore_errors=True)
+        _undo(tmp, created)
         if err.errno is None:
             raise
         raise OSError(err.errno, err.strerror, str(target)) from None
     except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
+        _undo(tmp, created)
         raise
     return target
+
+
+def _undo(tmp: Path | None, created: list[Path]) -> None:
+    if tmp is not None:
+        shutil.rmtree(tmp, ignore_errors=True)
+    remove_created(created)
 
 
 def _table_path(folder: Path, manifest_path: Path, name: str, entry: Any) -> Path:

@@ -15,7 +15,15 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, TypeVar
 
-from trimtab._paths import COMPLETED, ensure_parent_folder, file_mode, make_partial, raise_if_signalled, remove_stale_partials
+from trimtab._paths import (
+    COMPLETED,
+    ensure_parent_folder,
+    file_mode,
+    make_partial,
+    raise_if_signalled,
+    remove_created,
+    remove_stale_partials,
+)
 from trimtab.errors import InputError
 
 T = TypeVar("T")
@@ -56,10 +64,12 @@ def output_folder(target: str | Path, inputs: Iterable[str | Path] = ()) -> Iter
     """
     final = Path(target)
     check_target(final, inputs)
-    ensure_parent_folder(final)
-    remove_stale_partials(final.parent)
-    tmp = _at(final, make_partial, final)
+    created: list[Path] = []  # folders above the target this run made: removed again if it stops
+    tmp: Path | None = None
     try:
+        ensure_parent_folder(final, created)
+        remove_stale_partials(final.parent)
+        tmp = _at(final, make_partial, final)
         try:
             yield tmp
         except OSError as err:
@@ -77,7 +87,9 @@ def output_folder(target: str | Path, inputs: Iterable[str | Path] = ()) -> Iter
             _at(final, os.replace, tmp, final)
         COMPLETED.append(final)
     except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
+        if tmp is not None:
+            shutil.rmtree(tmp, ignore_errors=True)
+        remove_created(created)
         raise
 
 
