@@ -69,6 +69,18 @@ def test_changes_below_rounding_show_as_zero(result: StandInResult) -> None:
     assert content.headline.loc["net_weight", "change"] == 0.0
 
 
+
+@pytest.mark.parametrize(
+    ("value", "unit", "text"),
+    [(0.004, "fraction", "+0.40 pp"), (-3.6e-5, "fraction", "-0.004 pp"), (1e-7, "fraction", "0"),
+     (1.23e-5, "bp", "+0.12 bp"), (-8e-7, "bp", "-0.01 bp"), (-6e-8 * 10, "fraction", "-0.0001 pp"), (-0.004, "percent", "-0.004 pp"), (3, "count", "+3")],
+)
+def test_a_small_change_keeps_its_sign_and_first_digit(value: float, unit: str, text: str) -> None:
+    # compare's "what do I give up": a stress limit that costs 0.004 pp of alpha must not read as 0
+    from trimtab.report._desk import change_text
+
+    assert change_text(value, unit) == text
+
 def test_risk_budget_from_scenario_when_the_table_has_no_row(result: StandInResult) -> None:
     table = result.constraints[result.constraints["name"] != "tracking_error"]
     content = gather(dataclasses.replace(result, constraints=table))

@@ -231,12 +231,13 @@ def change_text(value: Any, unit: str) -> str:
         return "n/a"
     if abs(number) < 5e-7 and unit not in ("count", "amount"):
         return "0"  # below what the figures are shown to: rounding noise
-    if unit == "bp":
-        text = f"{1e4 * number:+.2f} bp"
-    elif unit == "fraction":
-        text = f"{100 * number:+.2f} pp"
-    elif unit == "percent":
-        text = f"{number:+.1f} pp"
+    scaled = {"bp": (1e4, 2, "bp"), "fraction": (100.0, 2, "pp"), "percent": (1.0, 1, "pp")}.get(unit)
+    if scaled is not None:
+        factor, places, label = scaled
+        # a small change keeps its sign and first digit (-0.004 pp), instead of rounding to a bare 0
+        while places < 4 and round(abs(factor * number), places) == 0:
+            places += 1
+        text = f"{factor * number:+.{places}f} {label}"
     elif unit in ("count", "amount"):
         text = f"{number:+,.0f}"
     else:
