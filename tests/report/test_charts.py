@@ -7,7 +7,7 @@ import xml.etree.ElementTree as ET
 
 import pandas as pd
 
-from trimtab.report._charts import paired_bars, risk_budget_chart, split_chart
+from trimtab.report._charts import paired_bars, risk_budget_chart, split_chart, tradeoff_chart
 from trimtab.report._content import RiskBudget
 
 SVG_NS = "{http://www.w3.org/2000/svg}"
@@ -33,6 +33,15 @@ def test_split_and_paired_bars() -> None:
     joined = " ".join(texts(paired_bars(table, xlabel="exposure", salt="x")))
     assert "momentum" in joined and "before" in joined and "after" in joined
 
+
+
+def test_scenarios_on_the_same_point_share_one_label() -> None:
+    # base and a stress limit that barely binds land on one point of the alpha/TE chart: one label, not two overprinted
+    points = pd.DataFrame({"tracking_error": [0.03, 0.03, 0.0278], "expected_alpha": [0.0085, 0.00849, 0.0041]},
+                          index=["base", "stress_limit", "low_turnover"])
+    labels = texts(tradeoff_chart(points))
+    assert "base, stress_limit" in labels and "low_turnover" in labels
+    assert not any(t in ("base", "stress_limit") for t in labels)
 
 def test_ids_differ_between_charts() -> None:
     table = pd.DataFrame({"post": [0.1, 0.2]}, index=["a", "b"])

@@ -154,10 +154,18 @@ def tradeoff_chart(points: pd.DataFrame, salt: str = "tradeoff") -> str:
         x = points["tracking_error"].to_numpy(dtype=float)
         y = points["expected_alpha"].to_numpy(dtype=float)
         ax.scatter(x, y, s=46, color=AFTER, zorder=3)
-        for name, xi, yi in zip(points.index, x, y):
-            ax.annotate(str(name), (xi, yi), xytext=(6, 5), textcoords="offset points", color=INK)
         span_x = max(float(np.ptp(x)), 0.002)
         span_y = max(float(np.ptp(y)), 0.001)
+        # scenarios that land on (nearly) the same point share one label instead of overprinting
+        labels: list[tuple[float, float, list[str]]] = []
+        for name, xi, yi in zip(points.index, x, y):
+            near = next((lab for lab in labels if abs(lab[0] - xi) < 0.04 * span_x and abs(lab[1] - yi) < 0.06 * span_y), None)
+            if near is None:
+                labels.append((float(xi), float(yi), [str(name)]))
+            else:
+                near[2].append(str(name))
+        for xi, yi, names in labels:
+            ax.annotate(", ".join(names), (xi, yi), xytext=(6, 5), textcoords="offset points", color=INK)
         ax.set_xlim(max(0.0, x.min() - 0.25 * span_x), x.max() + 0.45 * span_x)
         ax.set_ylim(y.min() - 0.3 * span_y, y.max() + 0.35 * span_y)
         _percent_axis(ax)
