@@ -450,3 +450,22 @@ def test_warnings_on_stderr_and_alert_thresholds_from_the_scenario(work: Path) -
     assert not {"factor_concentration", "asset_concentration", "pinned_at_cap"} & set(kinds)
     quiet.write_text("extends: base.yaml\nname: quiet\nalerts: {factor_shares: 0.3}\n", encoding="utf-8")
     one_error_line(invoke("check", quiet), r"quiet\.yaml: alerts\.factor_shares: unknown key")
+
+
+def test_help_and_check_load_only_what_they_need(demo_folder: Path) -> None:
+    # #13: `trimtab --help` imports none of the heavy libraries; `trimtab check` reads the data (pandas,
+    # the model) but solves nothing, so it needs neither cvxpy nor scipy.stats nor matplotlib
+    import subprocess
+    import sys
+
+    probe = ("import sys, atexit; from trimtab._entry import main; "
+             "atexit.register(lambda: sys.stderr.write('LOADED ' + ' '.join(sorted(sys.modules)) + chr(10))); "
+             "sys.argv = ['trimtab', *sys.argv[1:]]; main()")
+
+    def loaded(*args: str) -> set[str]:
+        run = subprocess.run([sys.executable, "-c", probe, *args], cwd=demo_folder, capture_output=True, text=True, timeout=120)
+        assert run.returncode == 0, run.stderr
+        return set(run.stderr.rsplit("LOADED ", 1)[1].split())
+
+    assert not loaded("--help") & {"scipy", "cvxpy", "matplotlib", "pandas"}
+    assert not loaded("check", "base.yaml") & {"cvxpy", "scipy.stats", "matplotlib"}

@@ -29,6 +29,18 @@ def test_default_order_is_factor_ipm_then_clarabel_then_scs():
         solver_order([])
 
 
+
+def test_the_status_words_are_cvxpys_and_the_default_solvers_are_installed():
+    # _solve writes cvxpy's status strings out (so that importing it does not import cvxpy); they must
+    # be cvxpy's own (cvxpy.settings), and the default order, taken without asking cvxpy, must be installed
+    import cvxpy as cp
+
+    assert _solve.OPTIMAL == (cp.OPTIMAL,)
+    assert _solve.INACCURATE == (cp.OPTIMAL_INACCURATE, cp.INFEASIBLE_INACCURATE, cp.UNBOUNDED_INACCURATE)
+    assert _solve.INFEASIBLE == (cp.INFEASIBLE, cp.INFEASIBLE_INACCURATE)
+    assert _solve.UNBOUNDED == (cp.UNBOUNDED, cp.UNBOUNDED_INACCURATE)
+    assert set(solver_order(None)) <= set(cp.installed_solvers()) | {"FACTOR_IPM"}
+
 def test_clarabel_settings_exist_in_the_installed_clarabel():
     import clarabel
 

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from typing import Any
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 
 from trimtab.construct._variables import Variables

@@ -22,7 +22,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 
 from trimtab._format import compact_limits

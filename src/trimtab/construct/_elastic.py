@@ -21,7 +21,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 import pandas as pd
 

@@ -18,7 +18,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 
 from trimtab.construct._data import ProblemData

@@ -7,7 +7,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 import pandas as pd
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from functools import cached_property
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 import scipy.sparse as sp
 

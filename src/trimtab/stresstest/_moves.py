@@ -20,7 +20,6 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import scipy.linalg as la
-from scipy import stats
 
 from trimtab._validation import list_labels
 from trimtab.errors import InputError, ModelError
@@ -101,6 +100,8 @@ def plausibility(F: np.ndarray, named: np.ndarray, horizon: float, names: Sequen
                  factors: Sequence[Any] = ()) -> pd.DataFrame:
     """Per shock: n_shocked, D² = sᵀ(h·F_SS)⁻¹s, its χ² tail probability and the equivalent
     two-sided normal move z with P(|N(0,1)| ≥ z) = that probability."""
+    from scipy import stats  # here, not at the top: validating a stress limit needs no distributions
+
     rows = []
     for j in range(named.shape[0]):
         S = np.flatnonzero(~np.isnan(named[j]))

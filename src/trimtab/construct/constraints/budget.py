@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 
 from trimtab.construct.constraints._base import Constraint, Linear, Rows, scalar

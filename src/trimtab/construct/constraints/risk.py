@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-import cvxpy as cp
+from trimtab.construct._cvxpy import cp
 import numpy as np
 
 from trimtab.construct._variables import Variables, variance_numpy
