@@ -188,11 +188,19 @@ def html_table(frame: pd.DataFrame, *, percent_columns: Sequence[str] = (), max_
             f"{100 * float(x):.2f}%" if names[i] in percent_columns and _numeric(x) else _label(x) for i, x in enumerate(parts)
         )
         cells = "".join(
-            f'<td class="{"num" if _numeric(row[c]) else "text"}">{_cell(row[c], str(c), percent_columns)}</td>' for c in frame.columns
+            f'<td class="{_cell_class(row[c])}">{_cell(row[c], str(c), percent_columns)}</td>' for c in frame.columns
         )
         rows.append(f"<tr><th scope=\"row\">{html.escape(label_text)}</th>{cells}</tr>")
     more = f'<p class="note">{len(frame) - max_rows} more rows in the CSV file.</p>' if len(frame) > max_rows else ""
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>{more}"
+
+
+def _cell_class(value: Any) -> str:
+    """``num`` for numbers; ``text``, and ``text long`` for a sentence (a reason, a list of limits),
+    which gets a readable minimum width instead of a column a word wide."""
+    if _numeric(value):
+        return "num"
+    return "text long" if len(str(value)) > 40 else "text"
 
 
 def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = ()) -> str:
@@ -202,7 +210,7 @@ def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Seque
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
         f"<title>{html.escape(title)}</title>",
-        f"<style>{_css()}\ntd.text {{ min-width: 14rem; overflow-wrap: anywhere; }}</style></head><body><main>",
+        f"<style>{_css()}\ntd.long {{ min-width: 14rem; overflow-wrap: anywhere; }}</style></head><body><main>",
         f"<h1>{html.escape(title)}</h1>",
         f'<p class="meta">trimtab {html.escape(__version__)} · written {when}</p>',
         f'<p class="caution">{html.escape(CAUTION, quote=False)}</p>',
