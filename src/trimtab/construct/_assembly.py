@@ -16,9 +16,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 
+from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows, merge_boxes, split_box_duals
 

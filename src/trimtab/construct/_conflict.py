@@ -22,12 +22,12 @@ from collections.abc import Sequence
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 
 from trimtab._format import compact_limits
 from trimtab.construct import _solve
 from trimtab.construct._assembly import Assembly
+from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 

@@ -21,13 +21,13 @@ from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 import pandas as pd
 
 from trimtab.construct import _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._conflict import Conflict, LimitGroup, conflict_set, cvxpy_solvers, limit_groups
+from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 from trimtab.errors import InfeasibleError

@@ -18,9 +18,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 
+from trimtab.construct._cvxpy import cp
 from trimtab.construct._data import ProblemData
 from trimtab.construct._spec import RebalanceSpec
 from trimtab.construct._variables import Variables, variance_numpy

@@ -7,12 +7,12 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 import pandas as pd
 
 from trimtab.construct import _elastic, _fast, _heuristics, _passive, _solve
 from trimtab.construct._assembly import Assembly
+from trimtab.construct._cvxpy import cp
 from trimtab.construct._data import ProblemData, prepare
 from trimtab.construct._objective import Objective
 from trimtab.construct._spec import RebalanceSpec, validate_scenario

@@ -35,7 +35,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from trimtab.construct._cvxpy import cp
-
 from trimtab.errors import InputError
 
 #: The factor-form interior-point method of trimtab.construct._ipm (not a cvxpy solver).

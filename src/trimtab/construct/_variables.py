@@ -9,10 +9,10 @@ from __future__ import annotations
 
 from functools import cached_property
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 import scipy.sparse as sp
 
+from trimtab.construct._cvxpy import cp
 from trimtab.construct._data import ProblemData
 
 

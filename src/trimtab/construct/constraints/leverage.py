@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 
+from trimtab.construct._cvxpy import cp
 from trimtab.construct.constraints._base import Constraint, Linear, Rows, box_rows, scalar
 
 

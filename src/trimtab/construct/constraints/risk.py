@@ -9,9 +9,9 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-from trimtab.construct._cvxpy import cp
 import numpy as np
 
+from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables, variance_numpy
 from trimtab.construct.constraints._base import Constraint, Risk, Rows, scalar
 
