@@ -101,5 +101,11 @@ def test_the_trail_key_changes_with_the_scenario_file_and_its_text(explorer: Exp
         before = other.trail_key()
         copy.write_text(copy.read_text() + "\n# edited\n")
         assert other.trail_key() != before
+        # the same file over other data (a refitted model, a new book) is another trail too
+        import dataclasses
+
+        refit = other.inputs.model.specific_variance * 1.01
+        moved = Explorer(dataclasses.replace(other.inputs, model=dataclasses.replace(other.inputs.model, specific_variance=refit)))
+        assert moved.trail_key() != other.trail_key()
     finally:
         copy.unlink()

@@ -16,6 +16,7 @@ import threading
 import time
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from typing import Any
 
@@ -106,13 +107,27 @@ class Explorer:
 
     def trail_key(self) -> str:
         """Names the page's trail in the browser's sessionStorage: a digest of the scenario file's
-        location and text, so another scenario, or this one edited, starts a fresh trail."""
+        location and text and of what was loaded (the merged scenario, the model, the book, the
+        benchmark, alpha and attributes), so another scenario, this one edited, a base it extends
+        edited, a refitted model or new data start a fresh trail."""
         path = self.scenario.path.resolve()
         try:
             text = path.read_bytes()
         except OSError:  # the file went away while exploring: its location alone still names the trail
             text = b""
-        return hashlib.sha256(str(path).encode() + b"\0" + text).hexdigest()[:24]
+        return hashlib.sha256(str(path).encode() + b"\0" + text + b"\0" + self._loaded_digest).hexdigest()[:24]
+
+    @cached_property
+    def _loaded_digest(self) -> bytes:
+        """A digest of the inputs as loaded (computed once: they do not change while exploring)."""
+        import pandas as pd
+
+        model = self.inputs.model
+        digest = hashlib.sha256(repr(sorted(self.mapping.items(), key=str)).encode())
+        for part in (model.exposures, model.factor_covariance, model.specific_variance, self.inputs.holdings,
+                     self.inputs.benchmark, self.inputs.alpha, self.inputs.attributes):
+            digest.update(b"\0" if part is None else pd.util.hash_pandas_object(part, index=True).to_numpy().tobytes())
+        return digest.digest()
 
     def changes_of(self, limits: Mapping[str, Any], risk_aversion: Any = None) -> dict[str, float | None]:
         """A request's values, checked, as the changes from the scenario."""
