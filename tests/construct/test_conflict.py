@@ -14,7 +14,7 @@ import pytest
 
 from trimtab import FactorModel
 from trimtab.construct import rebalance
-from trimtab.errors import InfeasibleError
+from trimtab.errors import InfeasibleError, InputError
 
 from ._dense import dense_feasible
 from .conftest import Fund, make_fund
@@ -168,6 +168,16 @@ def test_a_variant_s_own_limits_come_first() -> None:
     with pytest.raises(InfeasibleError) as caught:
         problem.solve()
     assert caught.value.conflict == ["constraints.weight.max", "constraints.fully_invested"]
+    # the same from the Python API's keyword, with a key path or a bare key
+    for changed in (["constraints.weight.max"], ["weight"]):
+        with pytest.raises(InfeasibleError) as caught:
+            rebalance(fund.model, scenario, changed_limits=changed, **fund.kwargs())
+        assert caught.value.conflict == ["constraints.weight.max", "constraints.fully_invested"]
+    with pytest.raises(InfeasibleError) as caught:
+        rebalance(fund.model, scenario, **fund.kwargs())
+    assert caught.value.conflict == ["constraints.fully_invested", "constraints.weight.max"]
+    with pytest.raises(InputError, match="changed_limits must be a list of constraint keys"):
+        rebalance(fund.model, scenario, changed_limits="weight", **fund.kwargs())
 
 
 def test_a_clarabel_only_run_gets_the_same_diagnosis() -> None:

@@ -416,3 +416,17 @@ def test_bad_policy_is_refused(market: Market) -> None:
     with pytest.raises(InputError, match=r"backtest.when_infeasible must be one of relax, hold, stop, got 'skip'"):
         backtest(market.returns, market.alpha, {"base": {**SCENARIO, "backtest": {"when_infeasible": "skip"}}},
                  window=250, frequency=100)
+
+
+def test_a_variant_s_changed_limits_lead_each_date_s_reason(market: Market) -> None:
+    # 80 names capped at 1% cannot be fully invested: the conflict is {fully_invested, weight}. A variant
+    # that changed the cap has it named first on every date, as `trimtab rebalance` names it (#12)
+    capped = {"objective": {"minimize": "active_risk"}, "constraints": {"fully_invested": True, "weight": {"max": 0.01}},
+              "backtest": {"when_infeasible": "hold"}}
+    common = dict(window=250, frequency=200, factor_returns=market.factors, benchmark=market.benchmark)
+    plain = backtest(market.returns, market.alpha, {"v": capped}, **common).history.loc["v"]
+    varied = backtest(market.returns, market.alpha, {"v": capped}, changed_limits={"v": ["constraints.weight.max"]},
+                      **common).history.loc["v"]
+    assert (plain["status"] == "held").all() and (varied["status"] == "held").all()
+    assert plain["reason"].str.startswith("these limits cannot all hold: constraints.fully_invested").all()
+    assert varied["reason"].str.startswith("these limits cannot all hold: constraints.weight.max").all()

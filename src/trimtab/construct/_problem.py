@@ -299,6 +299,7 @@ def build_problem(
     solvers: Sequence[str] | None = None,
     unknown_assets: str = "error",
     source: str = "scenario",
+    changed_limits: Sequence[str] = (),
 ) -> RebalanceProblem:
     """Validate the scenario and the inputs and return the problem, ready to :meth:`~RebalanceProblem.solve`.
 
@@ -313,7 +314,17 @@ def build_problem(
                    unknown_assets=unknown_assets, long_book=_long_book(spec))
     if spec.objective["kind"] in ("utility", "alpha") and alpha is None:
         raise InputError(f"rebalance: objective {spec.objective['kind']} needs alpha (pass alpha=...)")
-    return RebalanceProblem(spec, data, solvers, unknown_assets)
+    problem = RebalanceProblem(spec, data, solvers, unknown_assets)
+    problem.changed = _changed_keys(changed_limits)
+    return problem
+
+
+def _changed_keys(changed_limits: Sequence[str]) -> tuple[str, ...]:
+    """Constraint keys (``turnover``, ``constraints.turnover.max`` → ``turnover``), checked."""
+    if isinstance(changed_limits, str) or not all(isinstance(k, str) for k in changed_limits):
+        raise InputError(f"rebalance: changed_limits must be a list of constraint keys, got {changed_limits!r}")
+    keys = (k.removeprefix("constraints.").split(".", 1)[0] for k in changed_limits)
+    return tuple(dict.fromkeys(keys))
 
 
 def rebalance(
@@ -327,6 +338,7 @@ def rebalance(
     nav: float | None = None,
     solvers: Sequence[str] | None = None,
     unknown_assets: str = "error",
+    changed_limits: Sequence[str] = (),
 ) -> Any:
     """Target weights and trades inside the risk budget and mandate, verified from the weights.
 
@@ -351,6 +363,10 @@ def rebalance(
         problems in its class, see docs/construction.md).
     unknown_assets : {"error", "drop", "zero"}, default "error"
         What to do with ids the model does not know (see :mod:`trimtab.construct._data`).
+    changed_limits : sequence of str, optional
+        Constraint keys this scenario changed from the one it varies (``"turnover"`` or
+        ``"constraints.turnover.max"``): when the limits conflict, these are named first, and of
+        several conflicting sets the one holding them is preferred.
 
     Returns
     -------
@@ -376,4 +392,4 @@ def rebalance(
     ...                    benchmark=benchmark)  # doctest: +SKIP
     """
     return build_problem(model, scenario, holdings=holdings, benchmark=benchmark, alpha=alpha, attributes=attributes,
-                         nav=nav, solvers=solvers, unknown_assets=unknown_assets).solve()
+                         nav=nav, solvers=solvers, unknown_assets=unknown_assets, changed_limits=changed_limits).solve()

@@ -93,6 +93,7 @@ def backtest(
     impact: float | pd.Series = 0.0,
     executor: Executor | None = None,
     rebalance: Callable[..., Any] | None = None,
+    changed_limits: Mapping[str, Sequence[str]] | None = None,
     progress: Callable[[Outcome], None] | None = None,
 ) -> BacktestResult:
     """Walk-forward backtest of one or more scenarios on a return history.
@@ -140,6 +141,10 @@ def backtest(
         Where the scenario paths run (default: in this process).
     rebalance : callable, optional
         The optimizer, with :func:`trimtab.rebalance`'s signature (default: it).
+    changed_limits : mapping, optional
+        Scenario name → the constraint keys that scenario changed from the one it varies: a date
+        that does not solve as written names them first (``trimtab backtest`` takes them from each
+        file's ``extends:``). Used with the default optimizer.
     progress : callable, optional
         Called with each scenario path's :class:`Outcome` as it completes.
 
@@ -193,7 +198,8 @@ def backtest(
             bench_frame = pd.DataFrame([benchmark.astype(np.float64)], index=[dates[0]])
         else:
             bench_frame = _dated(benchmark, "benchmark")
-    tasks = [_task(str(name), spec) for name, spec in scenarios.items()]
+    changed = dict(changed_limits or {})
+    tasks = [_task(str(name), spec, tuple(changed.get(name, ()))) for name, spec in scenarios.items()]
     inputs = PathInputs(
         asset_returns=returns, factor_returns=factors, alpha_history=alpha, benchmark=bench_frame,
         initial_holdings=initial_holdings, attributes=attributes, nav=nav, dates=dates, window=int(window), fit=fit,
@@ -251,7 +257,7 @@ def _rates(value: float | pd.Series, name: str, assets: pd.Index) -> pd.Series:
     return pd.Series(number, index=assets)
 
 
-def _task(name: str, spec: Mapping[str, Any]) -> PathTask:
+def _task(name: str, spec: Mapping[str, Any], changed: tuple[str, ...] = ()) -> PathTask:
     """A path task; the scenario's optional ``backtest`` section gives its policy (checked here)."""
     settings = spec.get("backtest") or {}
     if not isinstance(settings, Mapping):
@@ -263,4 +269,4 @@ def _task(name: str, spec: Mapping[str, Any]) -> PathTask:
     if policy not in POLICIES:
         raise InputError(f"backtest: scenario {name}: backtest.when_infeasible must be one of {', '.join(POLICIES)}, got {policy!r}")
     scenario = {k: v for k, v in spec.items() if k != "backtest"}
-    return PathTask(name=name, scenario=scenario, when_infeasible=policy)
+    return PathTask(name=name, scenario=scenario, when_infeasible=policy, changed=changed)

@@ -19,6 +19,7 @@ returns between the dates of the benchmark table, as the benchmark's own return 
 
 from __future__ import annotations
 
+import functools
 import warnings
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
@@ -47,6 +48,8 @@ class PathTask:
     name: str
     scenario: Mapping[str, Any]
     when_infeasible: str = "relax"
+    #: constraint keys this scenario changed from the one it varies (named first in a conflict)
+    changed: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -222,7 +225,7 @@ def run_path(task: PathTask, inputs: PathInputs) -> PathResult:
     if rebalance is None:
         from trimtab.construct import rebalance as default_rebalance
 
-        rebalance = default_rebalance
+        rebalance = functools.partial(default_rebalance, changed_limits=task.changed)
     returns, dates = inputs.asset_returns, inputs.dates
     holdings: pd.Series | None = inputs.initial_holdings
     records, exposures, contributions, weights = [], [], [], {}

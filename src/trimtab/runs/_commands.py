@@ -350,6 +350,7 @@ def backtest_command(
     from trimtab.runs._backtest import backtest
     from trimtab.runs._report import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
+    from trimtab.scenario._run import variant_limits
     from trimtab.scenario._schema import FitSettings, ReturnsFile
 
     as_json, quiet = _flags(ctx, json_output, quiet)
@@ -394,6 +395,7 @@ def backtest_command(
             returns, alpha, mappings, window=window, rebalance_dates=schedule, factor_returns=factors,
             fit=fit_settings_mapping(settings), benchmark=first.benchmark, initial_holdings=first.holdings,
             attributes=first.attributes, nav=first.nav, costs=cost_bps / 1e4, executor=runner, progress=tick,
+            changed_limits={i.scenario.name: variant_limits(i.scenario) for i in inputs},
         )
     target = out if out is not None else loaded[0].path.resolve().parent / "results" / "backtest"
     write_backtest(result, target, inputs=[*scenarios, *([fit] if fit else [])], title="Walk-forward backtest")

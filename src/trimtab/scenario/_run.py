@@ -70,13 +70,12 @@ def build(inputs: ScenarioInputs) -> Any:
     """
     build_problem = require("trimtab.construct", "build_problem")
     try:
-        problem = build_problem(
-            inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path), **inputs.rebalance_kwargs()
+        return build_problem(
+            inputs.model, inputs.scenario.rebalance_mapping(), source=str(inputs.scenario.path),
+            changed_limits=variant_limits(inputs.scenario), **inputs.rebalance_kwargs()
         )
     except InputError as err:
         raise type(err)(_file_named(str(err), inputs)) from None
-    problem.changed = variant_limits(inputs.scenario)
-    return problem
 
 
 def _file_named(message: str, inputs: ScenarioInputs) -> str:
