@@ -26,7 +26,14 @@ import pandas as pd
 
 from trimtab.construct import _solve
 from trimtab.construct._assembly import Assembly
-from trimtab.construct._conflict import Conflict, LimitGroup, conflict_set, cvxpy_solvers, limit_groups
+from trimtab.construct._conflict import (
+    FEASIBILITY_SETTINGS,
+    Conflict,
+    LimitGroup,
+    conflict_set,
+    cvxpy_solvers,
+    limit_groups,
+)
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
@@ -103,7 +110,10 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
         assembly.add(replace(rows, lower=np.where(mask, -np.inf, rows.lower), upper=np.where(mask, np.inf, rows.upper)))
         assembly.add(replace(soft, lower=np.where(mask, rows.lower, -np.inf), upper=np.where(mask, rows.upper, np.inf)))
     cvx = cp.Problem(cp.Minimize(assembly.penalty), assembly.finish())
-    for solver, settings in _solve.plan(cvxpy_solvers(problem)):
+    solvers = cvxpy_solvers(problem)
+    # each solver's own tolerances (1e-8) first, as for the feasibility tests: which groups moved, and
+    # by how much to the displayed digits, needs no 1e-10; the tight settings remain as the fall-back
+    for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         attempt = _solve.run(cvx, solver, settings)
         if attempt.status == cp.OPTIMAL and variables.w.value is not None:
             return np.asarray(variables.w.value, dtype=np.float64)
