@@ -176,8 +176,9 @@ def test_a_variant_s_own_limits_come_first() -> None:
     with pytest.raises(InfeasibleError) as caught:
         rebalance(fund.model, scenario, **fund.kwargs())
     assert caught.value.conflict == ["constraints.fully_invested", "constraints.weight.max"]
-    with pytest.raises(InputError, match="changed_limits must be a list of constraint keys"):
-        rebalance(fund.model, scenario, changed_limits="weight", **fund.kwargs())
+    for bad in ("weight", 5, [1]):
+        with pytest.raises(InputError, match="changed_limits must be a list of constraint keys"):
+            rebalance(fund.model, scenario, changed_limits=bad, **fund.kwargs())
 
 
 def test_a_clarabel_only_run_gets_the_same_diagnosis() -> None:

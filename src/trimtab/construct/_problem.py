@@ -321,7 +321,8 @@ def build_problem(
 
 def _changed_keys(changed_limits: Sequence[str]) -> tuple[str, ...]:
     """Constraint keys (``turnover``, ``constraints.turnover.max`` → ``turnover``), checked."""
-    if isinstance(changed_limits, str) or not all(isinstance(k, str) for k in changed_limits):
+    if (isinstance(changed_limits, str) or not isinstance(changed_limits, Sequence)
+            or not all(isinstance(k, str) for k in changed_limits)):
         raise InputError(f"rebalance: changed_limits must be a list of constraint keys, got {changed_limits!r}")
     keys = (k.removeprefix("constraints.").split(".", 1)[0] for k in changed_limits)
     return tuple(dict.fromkeys(keys))
