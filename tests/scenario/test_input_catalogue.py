@@ -202,6 +202,11 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     ("value-newline-in-name", append('name: "fund\\nx"\n'), ["check", "base.yaml"], BAD_INPUT, r"name: expected a name without control characters \(found code 10\)"),
     ("value-newline-in-data-path", edit("benchmark: data/benchmark.csv", 'benchmark: "data/bench\\nmark.csv"'), ["check", "base.yaml"], BAD_INPUT,
      r"data\.benchmark\.path: expected a name without control characters"),
+    # a bad shock in the scenario's stress list is named by `check`, not left for the report to drop its stress table
+    ("value-stress-unknown-factor", append("  bogus:\n    factors: {marketx: -0.1}\n", "shocks.yaml"), ["check", "base.yaml"], BAD_INPUT,
+     r"base\.yaml: stress: shocks: bogus: unknown factor\(s\) marketx; the model has: market"),
+    ("value-stress-specific-not-an-asset", append("  bogus:\n    factors: {market: -0.1}\n    specific: {NOSUCH: -0.2}\n", "shocks.yaml"),
+     ["check", "base.yaml"], BAD_INPUT, r"base\.yaml: stress: specific: bogus\.NOSUCH: not an asset of the model"),
     ("value-cash-infinite", edit("cash: 6000000", "cash: .inf"), ["check", "base.yaml"], BAD_INPUT, r"base\.yaml: data\.holdings\.cash: expected a finite number, got inf"),
     ("value-nav-nan", edit("cash: 6000000", "cash: 6000000, nav: .nan"), ["check", "base.yaml"], BAD_INPUT, r"data\.holdings\.nav: expected a finite number, got nan"),
     ("value-cash-quoted", edit("cash: 6000000", 'cash: "6000000"'), ["check", "base.yaml"], BAD_INPUT,

@@ -16,6 +16,7 @@ from trimtab.construct._cvxpy import cp
 from trimtab.construct._data import ProblemData, prepare
 from trimtab.construct._objective import Objective
 from trimtab.construct._spec import RebalanceSpec, validate_scenario
+from trimtab.construct._stress_table import check_listed_shocks
 from trimtab.construct._variables import Variables
 from trimtab.construct._verify import describe_failures, failures, soft_penalty, verify
 from trimtab.construct.constraints import REGISTRY, Constraint, Rows
@@ -314,6 +315,7 @@ def build_problem(
                    unknown_assets=unknown_assets, long_book=_long_book(spec))
     if spec.objective["kind"] in ("utility", "alpha") and alpha is None:
         raise InputError(f"rebalance: objective {spec.objective['kind']} needs alpha (pass alpha=...)")
+    check_listed_shocks(model, spec.mapping, source)
     problem = RebalanceProblem(spec, data, solvers, unknown_assets)
     problem.changed = _changed_keys(changed_limits)
     return problem

@@ -69,6 +69,24 @@ def stress_table(model: FactorModel | None, holdings: pd.Series | None, weights:
     return pd.concat(frames)[list(STRESS_COLUMNS)]
 
 
+def check_listed_shocks(model: FactorModel, scenario: Mapping[str, Any], source: str) -> None:
+    """Check the scenario's ``stress`` list against the model before any solve, as the report will
+    move it (factor names, finite moves, the conditioning, specific moves on model assets), so that
+    ``trimtab check`` names a bad shock and no report silently goes without its stress table. The
+    ``stress_loss`` shocks are checked by their limit."""
+    from trimtab.errors import InputError
+    from trimtab.stresstest._entries import factor_moves, specific_moves
+    from trimtab.stresstest._stress import shock_moves
+
+    listed = scenario.get("stress") or {}
+    if not listed:
+        return
+    try:
+        shock_moves(model, factor_moves(listed), conditional=True, specific=specific_moves(listed))
+    except InputError as err:
+        raise type(err)(f"{source}: {err}") from None
+
+
 def _replayed(model: FactorModel, holdings: pd.Series, weights: pd.Series, benchmark: pd.Series | None,
               length: int, count: int) -> pd.DataFrame:
     """The ``count`` worst windows of ``length`` periods for the book before the trade, replayed before and after."""

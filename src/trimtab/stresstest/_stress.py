@@ -204,13 +204,11 @@ def stress(
     h = checked_horizon(horizon, model.periods_per_year)
     w = model.weights_array(holdings, name="holdings")
     b = model.weights_array(benchmark, name="benchmark") if benchmark is not None else None
-    shock = shock_set(shocks, model.factors)
+    shock, moves, extra = shock_moves(model, shocks, conditional=bool(conditional), specific=specific, groups=groups)
     names = shock.names
     named = shock.named.to_numpy(dtype=np.float64)
     F, B = model._F, model._B
     factors = list(model.factors)
-    moves = full_moves(F, named, conditional=bool(conditional), names=names, factors=factors)
-    extra = _specific_matrix(model, specific, groups, names)
     x = B.T @ w
     book_contrib = moves * x[None, :]
     book_specific = extra @ w if extra is not None else np.zeros(len(names))
@@ -243,6 +241,17 @@ def stress(
         conditional=bool(conditional),
         periods_per_year=model.periods_per_year,
     )
+
+
+def shock_moves(model: FactorModel, shocks: Any, *, conditional: bool,
+                specific: Mapping[str, Mapping[Any, float]] | None = None,
+                groups: pd.Series | None = None) -> tuple[Any, np.ndarray, np.ndarray | None]:
+    """The checked shocks, their full factor moves (shock × factor) and the specific moves
+    (shock × asset, or None): what :func:`stress` applies, and all it can refuse in its inputs."""
+    shock = shock_set(shocks, model.factors)
+    named = shock.named.to_numpy(dtype=np.float64)
+    moves = full_moves(model._F, named, conditional=conditional, names=shock.names, factors=list(model.factors))
+    return shock, moves, _specific_matrix(model, specific, groups, shock.names)
 
 
 def _specific_matrix(model: FactorModel, specific: Mapping[str, Mapping[Any, float]] | None, groups: pd.Series | None,
