@@ -11,9 +11,15 @@ test is one feasibility problem (no objective) solved with the cvxpy solvers of 
 order; groups are tested in scenario order, those a variant scenario changed last, so that when
 several conflict sets exist the one naming the limits just changed is preferred.
 
-A feasibility answer the solvers cannot give (neither feasible nor infeasible) keeps the group:
-the set is then still infeasible but may not be irreducible, and :attr:`Conflict.irreducible`
-says so.
+A solver's "feasible" counts only when its weights hold every limit of the test within the
+verification tolerance (SCS at its own tolerance calls a point 0.1% beyond a TE cap optimal). When
+no solver can tell (at the very edge of feasibility Clarabel fails with a numerical error, #21),
+the *elastic measure* decides: every limit of the test gets slacks (weighted as in the elastic
+problem of :mod:`trimtab.construct._elastic`) and their weighted sum is minimised. That problem
+is always feasible and well posed. A breach left at its optimum beyond ELASTIC_TOL relative to its
+limit is a positive violation: the limits cannot all hold. None of them breached beyond their
+verification tolerance: they can. Only an answer in between (or no answer) keeps the group: the
+set is then still infeasible but may not be irreducible, and :attr:`Conflict.irreducible` says so.
 """
 
 from __future__ import annotations
@@ -36,6 +42,8 @@ if TYPE_CHECKING:
 
 #: Settings of a feasibility test's first try (the solver's own defaults otherwise).
 FEASIBILITY_SETTINGS: dict[str, dict[str, Any]] = {"CLARABEL": {"max_iter": 200}, "SCS": {"max_iters": 20_000}}
+#: A slack counts when above max(ELASTIC_TOL, ELASTIC_TOL·|limit|).
+ELASTIC_TOL = 1e-6
 #: Keys whose limits are on/off rules rather than numbers: they can conflict but a relaxation never moves them.
 RULE_KEYS = ("long_only", "no_buy", "no_sell", "no_trade")
 
@@ -154,12 +162,13 @@ def cvxpy_solvers(problem: RebalanceProblem) -> list[str]:
 
 
 def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[str]) -> bool | None:
-    """Whether the rows hold together (True/False), or None when no solver could tell."""
+    """Whether the rows hold together (True/False), or None when neither the solvers nor the elastic
+    measure could tell (see the module notes)."""
+    hard = [r for r in rows if np.isfinite(r.lower).any() or np.isfinite(r.upper).any()]
     variables = Variables(problem.data)
     assembly = Assembly(variables)
-    for r in rows:
-        if np.isfinite(r.lower).any() or np.isfinite(r.upper).any():
-            assembly.add(r)
+    for r in hard:
+        assembly.add(r)
     cvx = cp.Problem(cp.Minimize(0), assembly.finish())
     # a solver's own default tolerances first: a yes/no answer needs no 1e-10 accuracy, and near the
     # edge of feasibility Clarabel certifies infeasibility in a fraction of the iterations it takes
@@ -167,9 +176,48 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         status = _solve.run(cvx, solver, settings).status
         if status in (cp.OPTIMAL, cp.OPTIMAL_INACCURATE):
-            return True
+            if variables.w.value is not None and _hold(hard, np.asarray(variables.w.value, dtype=np.float64)):
+                return True
+            continue  # a point beyond the limits proves nothing
         if status in _solve.INFEASIBLE:
             return False
+    return elastic_feasible(problem, hard, solvers)
+
+
+def _hold(rows: Sequence[Rows], weights: np.ndarray) -> bool:
+    """Every row within its verification tolerance at ``weights``."""
+    return all(bool(np.all(r.breach(np.asarray(r.evaluate(weights), dtype=np.float64)) <= r.tolerance()))
+               for r in rows)
+
+
+def penalty(rows: Rows, index: np.ndarray | None = None) -> float:
+    """1/|limit| (at least 1%): a move is measured relative to the limit's own size."""
+    lo = rows.lower if index is None else rows.lower[index]
+    hi = rows.upper if index is None else rows.upper[index]
+    finite = np.concatenate([np.abs(lo[np.isfinite(lo)]), np.abs(hi[np.isfinite(hi)])])
+    return 1.0 / max(0.01, float(finite.max()) if len(finite) else 0.0)
+
+
+def elastic_feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[str]) -> bool | None:
+    """The elastic measure's answer: False on a positive violation, True when every row holds, else None."""
+    variables = Variables(problem.data)
+    assembly = Assembly(variables)
+    for r in rows:
+        assembly.add(replace(r, soft=penalty(r)))
+    cvx = cp.Problem(cp.Minimize(assembly.penalty), assembly.finish())
+    for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
+        attempt = _solve.run(cvx, solver, settings)
+        if attempt.status != cp.OPTIMAL or variables.w.value is None:
+            continue
+        weights = np.asarray(variables.w.value, dtype=np.float64)
+        if _hold(rows, weights):
+            return True
+        for r in rows:
+            limit = np.fmax(np.where(np.isfinite(r.lower), np.abs(r.lower), 0.0),
+                            np.where(np.isfinite(r.upper), np.abs(r.upper), 0.0))
+            if np.any(r.breach(np.asarray(r.evaluate(weights), dtype=np.float64)) > ELASTIC_TOL * np.maximum(1.0, limit)):
+                return False
+        return None
     return None
 
 

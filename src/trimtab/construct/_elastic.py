@@ -27,12 +27,14 @@ import pandas as pd
 from trimtab.construct import _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._conflict import (
+    ELASTIC_TOL,
     FEASIBILITY_SETTINGS,
     Conflict,
     LimitGroup,
     conflict_set,
     cvxpy_solvers,
     limit_groups,
+    penalty,
 )
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
@@ -43,8 +45,6 @@ if TYPE_CHECKING:
     from trimtab.construct._problem import RebalanceProblem
 
 COLUMNS = ["option", "constraint", "kind", "side", "limit", "needed", "relax_by", "unit"]
-#: A slack counts when above max(ELASTIC_TOL, ELASTIC_TOL·|limit|).
-ELASTIC_TOL = 1e-6
 #: Kinds whose limits are fractions of NAV: never proposed beyond ±100%.
 WEIGHT_RANGE = ("weight", "active_weight", "trade", "group", "active_group", "must_hold")
 #: A relaxed limit is loosened by this much beyond the elastic optimum, so a re-solve at the
@@ -77,14 +77,6 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
 # ---------------------------------------------------------------------------------------------
 # Elastic problems
 # ---------------------------------------------------------------------------------------------
-def _penalty(rows: Rows, index: np.ndarray | None) -> float:
-    """1/|limit| (at least 1%): a move is measured relative to the limit's own size."""
-    lo = rows.lower if index is None else rows.lower[index]
-    hi = rows.upper if index is None else rows.upper[index]
-    finite = np.concatenate([np.abs(lo[np.isfinite(lo)]), np.abs(hi[np.isfinite(hi)])])
-    return 1.0 / max(0.01, float(finite.max()) if len(finite) else 0.0)
-
-
 def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: Sequence[LimitGroup]) -> np.ndarray | None:
     """The weights minimising the weighted moves of ``movable`` with every other hard limit as written."""
     free: dict[int, list[LimitGroup]] = {}
@@ -101,7 +93,7 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
             continue
         whole = any(g.index is None for g in groups)
         index = None if whole else np.concatenate([g.index for g in groups])  # type: ignore[misc]
-        soft = replace(rows, soft=_penalty(rows, index))
+        soft = replace(rows, soft=penalty(rows, index))
         if whole:
             assembly.add(soft)
             continue
