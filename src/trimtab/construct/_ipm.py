@@ -78,6 +78,12 @@ SHORT_STEP = 1e-3
 #: Iterations without a better iterate that end a run once an acceptable one exists.
 STALL_ITER = 2
 DIVERGED = 1e8
+#: A Farkas bound (see :meth:`_Run.farkas`) above this, in units of the rows with the multipliers
+#: scaled to a largest of 1, certifies that no point of the boxes satisfies the rows and caps.
+FARKAS_TOL = 1e-9
+#: A diverging iterate's direction d certifies an unbounded objective when it stays within the
+#: limits' recession cone and lowers the objective, to this relative accuracy (see _Run.unbounded).
+RECESSION_TOL = 1e-7
 #: Warm starts: gaps at least WARM_GAP × the cold start's, multipliers at least WARM_MU·mu0 / gap.
 WARM_GAP = 1e-1
 WARM_MU = 1e-1
@@ -122,6 +128,14 @@ def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False, warm: Warm
     when it is within every tolerance (``optimal``), when its steps stall or a Newton solve fails or
     goes non-finite, or after ``max_iter`` iterations. ``converged`` is True for ``optimal`` and for
     ``optimal_stalled`` (a stopped run whose best iterate is within the ACCEPT_* residuals).
+
+    Infeasibility is detected, not waited out: while the primal residual is above its tolerance
+    (and no acceptable iterate exists), every iteration tests the multipliers as a Farkas
+    certificate (:meth:`_Run.farkas`); a positive bound stops the run as ``infeasible``, with the
+    certifying multipliers in the solution (``row_upper``, ``row_lower``, ``cap_duals``). An iterate
+    beyond DIVERGED stops it as ``unbounded`` when its direction is a ray along which the objective
+    falls without bound (:meth:`_Run.unbounded`; the direction is the solution's x), else as
+    ``diverged``.
     """
     # overflow or 0/0 near a failing end is caught by the finiteness checks, not by warnings
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
@@ -271,6 +285,57 @@ class _Run:
             w_part = w_part + self.z[self.m_lin + k] * gk
         return g + _expand(w_part, float(self.at @ rm))
 
+    # ------------------------------------------------------------------ certificates
+    def farkas(self) -> float:
+        """A lower bound on min over the boxes of yᵀg(x), y = (z, ν) scaled to a largest entry of 1.
+
+        g collects the inequality rows and caps (h ≤ 0) and the equality rows (Ax − b = 0). For y with
+        z ≥ 0, yᵀg is convex, so it lies above its linearisation at the iterate x̄:
+        yᵀg(x) ≥ yᵀg(x̄) + cᵀ(x − x̄), c = J_hᵀz + Aᵀν, whose minimum over the boxes lb ≤ x ≤ ub is
+        separable: Σⱼ min(cⱼ(lbⱼ − x̄ⱼ), cⱼ(ubⱼ − x̄ⱼ)). Any feasible x gives yᵀg(x) ≤ 0, so a positive
+        bound proves that none exists (Farkas' lemma in its convex form; e.g. Boyd & Vandenberghe,
+        Convex Optimization, §5.8). As an infeasible problem is iterated the multipliers of the
+        conflicting rows grow without bound and the scaled y approaches such a certificate; on a
+        feasible problem the bound cannot be positive, whatever the iterate.
+        """
+        size = max(float(np.max(self.z, initial=0.0)), float(np.max(np.abs(self.nu), initial=0.0)))
+        if not size > 0 or not np.isfinite(size):
+            return -np.inf
+        z, nu = self.z / size, self.nu / size
+        c = self.jac_t(z, nu)
+        qp, x = self.qp, self.x
+        r_eq = self.values[self.rows.eq] - self.b_eq
+        with np.errstate(invalid="ignore"):
+            down = np.where(c > 0, c * (qp.lb - x), 0.0)
+            up = np.where(c < 0, c * (qp.ub - x), 0.0)
+        bound = float(z @ self.h + nu @ r_eq) + float(down[self.free].sum() + up[self.free].sum())
+        return bound if np.isfinite(bound) else -np.inf
+
+    def unbounded(self) -> bool:
+        """Whether the direction d = x/‖x‖ of a diverging iterate certifies an unbounded objective:
+        d keeps every box (dⱼ ≥ 0 where lbⱼ is finite, ≤ 0 where ubⱼ is), moves no equality row,
+        moves no inequality row towards its finite limit, leaves every cap's and the objective's
+        quadratic part at 0 (dᵀΣd = 0 along it) and lowers the linear part of the objective."""
+        qp = self.qp
+        d = np.where(self.free, self.x, 0.0)
+        d = d / max(float(np.max(np.abs(d))), 1e-300)
+        n = self.n
+        dw = d[:n] - d[n:]
+        tol = RECESSION_TOL
+        if np.any(d[np.isfinite(qp.lb) & self.free] < -tol) or np.any(d[np.isfinite(qp.ub) & self.free] > tol):
+            return False
+        change = self.Gw.T @ dw + self.at * d.sum()
+        finite_hi, finite_lo = np.isfinite(qp.hi), np.isfinite(qp.lo)
+        if np.any(change[finite_hi] > tol) or np.any(change[finite_lo] < -tol):
+            return False
+        for cap in qp.caps:
+            if dw @ qp.sigma(dw, cap.factor, cap.specific) > tol:
+                return False
+        if qp.risk_weight and dw @ qp.sigma(dw) > tol:
+            return False
+        slope = float(-qp.alpha @ dw + qp.cost @ (d[:n] + d[n:]))
+        return slope < -tol
+
     # ------------------------------------------------------------------ state
     def state(self) -> tuple[np.ndarray, ...]:
         return tuple(v.copy() for v in (self.x, self.s, self.z, self.zl, self.zu, self.nu, self.gap_l, self.gap_u))
@@ -415,8 +480,11 @@ class _Run:
             if merit <= 1.0:
                 status = "optimal"
                 break
+            if acceptable is None and res["primal"] > TOL_PRIMAL and self.farkas() > FARKAS_TOL:
+                status = "infeasible"
+                break
             if np.max(np.abs(self.x[self.free]), initial=0.0) > DIVERGED:
-                status = "diverged"
+                status = "unbounded" if self.unbounded() else "diverged"
                 break
             try:
                 step = self.iterate()
@@ -435,7 +503,10 @@ class _Run:
                 status = "stalled"
                 break
         assert best is not None
-        if status != "optimal" and acceptable is not None:
+        if status in ("infeasible", "unbounded"):
+            # the last iterate is the certificate: its multipliers (infeasible), its direction (unbounded)
+            state = self.state()
+        elif status != "optimal" and acceptable is not None:
             _, state, res = acceptable
             status = "optimal_stalled"
         else:
