@@ -7,8 +7,9 @@ subset can: drop any one of its limits and the others are satisfiable together. 
 the deletion filter (Chinneck & Dravnieks, "Locating minimal infeasible constraint sets in linear
 programs", ORSA J. Computing 3(2), 1991): start from every group (infeasible); for each group in
 turn, drop it if the rest are still infeasible, else keep it. What is left is irreducible. Each
-test is one feasibility problem (no objective) solved with the cvxpy solvers of the problem's
-order; groups are tested in scenario order, those a variant scenario changed last, so that when
+test is one feasibility problem, solved by FACTOR_IPM when it is in the problem's solver order and
+can take the rows (:mod:`trimtab.construct._diagnosis_ipm`), else with the cvxpy solvers of the
+problem's order; groups are tested in scenario order, those a variant scenario changed last, so that when
 several conflict sets exist the one naming the limits just changed is preferred.
 
 A solver's "feasible" counts only when its weights hold every limit of the test within the
@@ -31,7 +32,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from trimtab._format import compact_limits
-from trimtab.construct import _solve
+from trimtab.construct import _diagnosis_ipm, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
@@ -161,10 +162,33 @@ def cvxpy_solvers(problem: RebalanceProblem) -> list[str]:
     return list(dict.fromkeys(first + named)) or ["SCS"]
 
 
+class LazySolvers(Sequence[str]):
+    """:func:`cvxpy_solvers`, asked for only when a cvxpy solve is reached: asking imports cvxpy
+    and every solver interface (1–2.6 s in a fresh process), which a diagnosis in factor form skips."""
+
+    def __init__(self, problem: RebalanceProblem) -> None:
+        self._problem = problem
+        self._names: list[str] | None = None
+
+    def _get(self) -> list[str]:
+        if self._names is None:
+            self._names = cvxpy_solvers(self._problem)
+        return self._names
+
+    def __getitem__(self, i: Any) -> Any:
+        return self._get()[i]
+
+    def __len__(self) -> int:
+        return len(self._get())
+
+
 def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[str]) -> bool | None:
     """Whether the rows hold together (True/False), or None when neither the solvers nor the elastic
     measure could tell (see the module notes)."""
     hard = [r for r in rows if np.isfinite(r.lower).any() or np.isfinite(r.upper).any()]
+    answer = _diagnosis_ipm.feasible(problem, hard)  # FACTOR_IPM first, when in the solver order
+    if answer is not None:
+        return answer
     variables = Variables(problem.data)
     assembly = Assembly(variables)
     for r in hard:
@@ -176,18 +200,12 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         status = _solve.run(cvx, solver, settings).status
         if status in (cp.OPTIMAL, cp.OPTIMAL_INACCURATE):
-            if variables.w.value is not None and _hold(hard, np.asarray(variables.w.value, dtype=np.float64)):
+            if variables.w.value is not None and _diagnosis_ipm.holds(hard, np.asarray(variables.w.value, dtype=np.float64)):
                 return True
             continue  # a point beyond the limits proves nothing
         if status in _solve.INFEASIBLE:
             return False
     return elastic_feasible(problem, hard, solvers)
-
-
-def _hold(rows: Sequence[Rows], weights: np.ndarray) -> bool:
-    """Every row within its verification tolerance at ``weights``."""
-    return all(bool(np.all(r.breach(np.asarray(r.evaluate(weights), dtype=np.float64)) <= r.tolerance()))
-               for r in rows)
 
 
 def penalty(rows: Rows, index: np.ndarray | None = None) -> float:
@@ -210,7 +228,7 @@ def elastic_feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: S
         if attempt.status != cp.OPTIMAL or variables.w.value is None:
             continue
         weights = np.asarray(variables.w.value, dtype=np.float64)
-        if _hold(rows, weights):
+        if _diagnosis_ipm.holds(rows, weights):
             return True
         positive, measured = False, 0.0
         for r in rows:
@@ -227,7 +245,7 @@ def elastic_feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: S
 
 
 def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed: Sequence[str] = (),
-                 hint: Sequence[str] | None = None) -> Conflict | None:
+                 hint: Sequence[str] | None = None, *, hint_certified: bool = False) -> Conflict | None:
     """The deletion filter over limit groups; None when the limits turn out to be satisfiable together.
 
     Parameters
@@ -248,11 +266,13 @@ def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed:
         Groups in report order: those in ``changed`` first, then scenario order.
     """
     groups = limit_groups(problem, extra)
-    solvers = cvxpy_solvers(problem)
+    solvers = LazySolvers(problem)
     solves = 0
     keep: set[int] = set()
     hinted = {i for i, g in enumerate(groups) if g.path in set(hint or ())}
-    if hinted:
+    if hinted and hint_certified:
+        keep = hinted
+    elif hinted:
         solves += 1
         if feasible(problem, [groups[i].restricted() for i in sorted(hinted)], solvers) is False:
             keep = hinted  # a subset is infeasible, so the whole set is too

@@ -81,6 +81,8 @@ DIVERGED = 1e8
 #: A Farkas bound (see :meth:`_Run.farkas`) above this, in units of the rows with the multipliers
 #: scaled to a largest of 1, certifies that no point of the boxes satisfies the rows and caps.
 FARKAS_TOL = 1e-9
+#: ... with entries of J_hᵀy (y so scaled) this small counted as 0 where a coordinate is unbounded.
+FARKAS_DUAL_TOL = 1e-9
 #: A diverging iterate's direction d certifies an unbounded objective when it stays within the
 #: limits' recession cone and lowers the objective, to this relative accuracy (see _Run.unbounded).
 RECESSION_TOL = 1e-7
@@ -154,6 +156,7 @@ class _Run:
         self.has_lb = self.free & np.isfinite(qp.lb)
         self.has_ub = self.free & np.isfinite(qp.ub)
         self.Gw = _row_columns(qp)
+        self.implied_ub = implied_upper(qp)
         self.b_norm2 = np.einsum("ij,ij->i", qp.B, qp.B)
         self.at = qp.at
         self.Ay_fac = qp.Ay[rows.factor_only]
@@ -292,24 +295,25 @@ class _Run:
         g collects the inequality rows and caps (h ≤ 0) and the equality rows (Ax − b = 0). For y with
         z ≥ 0, yᵀg is convex, so it lies above its linearisation at the iterate x̄:
         yᵀg(x) ≥ yᵀg(x̄) + cᵀ(x − x̄), c = J_hᵀz + Aᵀν, whose minimum over the boxes lb ≤ x ≤ ub is
-        separable: Σⱼ min(cⱼ(lbⱼ − x̄ⱼ), cⱼ(ubⱼ − x̄ⱼ)). Any feasible x gives yᵀg(x) ≤ 0, so a positive
+        separable: Σⱼ min(cⱼ(lbⱼ − x̄ⱼ), cⱼ(ubⱼ − x̄ⱼ)). ub may be tightened by any bound every feasible
+        point keeps (:func:`implied_upper`: a turnover cap bounds every trade), which keeps the
+        minimum finite where the boxes alone have no upper bound. Any feasible x gives yᵀg(x) ≤ 0, so a positive
         bound proves that none exists (Farkas' lemma in its convex form; e.g. Boyd & Vandenberghe,
         Convex Optimization, §5.8). As an infeasible problem is iterated the multipliers of the
         conflicting rows grow without bound and the scaled y approaches such a certificate; on a
-        feasible problem the bound cannot be positive, whatever the iterate.
+        feasible problem the bound cannot be positive, whatever the iterate. Where a coordinate has
+        no bound on the side cⱼ points to, the exact minimum is −∞ unless cⱼ = 0; an iterate's y
+        never makes it exactly 0, so |cⱼ| ≤ FARKAS_DUAL_TOL counts as 0: an approximate certificate
+        to that tolerance, the rule general conic solvers apply to theirs (Clarabel's
+        ``tol_infeas_rel``, OSQP's ``eps_prim_inf``).
         """
         size = max(float(np.max(self.z, initial=0.0)), float(np.max(np.abs(self.nu), initial=0.0)))
         if not size > 0 or not np.isfinite(size):
             return -np.inf
         z, nu = self.z / size, self.nu / size
         c = self.jac_t(z, nu)
-        qp, x = self.qp, self.x
         r_eq = self.values[self.rows.eq] - self.b_eq
-        with np.errstate(invalid="ignore"):
-            down = np.where(c > 0, c * (qp.lb - x), 0.0)
-            up = np.where(c < 0, c * (qp.ub - x), 0.0)
-        bound = float(z @ self.h + nu @ r_eq) + float(down[self.free].sum() + up[self.free].sum())
-        return bound if np.isfinite(bound) else -np.inf
+        return box_minimum(float(z @ self.h + nu @ r_eq), c, self.qp, self.x, self.free, self.implied_ub)
 
     def unbounded(self) -> bool:
         """Whether the direction d = x/‖x‖ of a diverging iterate certifies an unbounded objective:
@@ -532,6 +536,30 @@ class _Run:
             warm=Warm(self.x.copy(), self.s.copy(), self.z.copy(), self.zl.copy(), self.zu.copy(), self.nu.copy(),
                       self.scale, qp.w0.copy()),
         )
+
+
+def implied_upper(qp: QP) -> np.ndarray:
+    """Upper bounds on x that every feasible point keeps: ub, and from a row on trades alone
+    (at·1ᵀ(u + v) + c ≤ hi with at > 0, as a turnover cap) each uⱼ, vⱼ ≤ (hi − c)/at."""
+    ub = qp.ub.copy()
+    only_trades = ~np.any(qp.Aw != 0, axis=1) & ~np.any(qp.Ay != 0, axis=1) & (qp.at > 0) & np.isfinite(qp.hi)
+    for i in np.flatnonzero(only_trades):
+        ub = np.minimum(ub, max((qp.hi[i] - qp.const[i]) / qp.at[i], 0.0))
+    return np.maximum(ub, qp.lb)
+
+
+def box_minimum(base: float, c: np.ndarray, qp: QP, x: np.ndarray, free: np.ndarray,
+                upper: np.ndarray | None = None) -> float:
+    """base + min over lb ≤ x′ ≤ upper of cᵀ(x′ − x) on the free coordinates (see _Run.farkas);
+    ``upper`` defaults to :func:`implied_upper`."""
+    ub = implied_upper(qp) if upper is None else upper
+    # a side without a bound contributes −∞ unless |cⱼ| ≤ FARKAS_DUAL_TOL (then 0)
+    c = np.where(np.abs(c) <= FARKAS_DUAL_TOL, 0.0, c)
+    with np.errstate(invalid="ignore"):
+        down = np.where(c > 0, c * (qp.lb - x), 0.0)
+        up = np.where(c < 0, c * (ub - x), 0.0)
+    bound = base + float(down[free].sum() + up[free].sum())
+    return bound if np.isfinite(bound) else -np.inf
 
 
 def _objective_gradient(qp: QP, x: np.ndarray, sa: np.ndarray | None = None) -> np.ndarray:
