@@ -245,7 +245,7 @@ def elastic_feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: S
 
 
 def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed: Sequence[str] = (),
-                 hint: Sequence[str] | None = None, *, hint_certified: bool = False) -> Conflict | None:
+                 hint: Sequence[str] | None = None) -> Conflict | None:
     """The deletion filter over limit groups; None when the limits turn out to be satisfiable together.
 
     Parameters
@@ -270,9 +270,7 @@ def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed:
     solves = 0
     keep: set[int] = set()
     hinted = {i for i, g in enumerate(groups) if g.path in set(hint or ())}
-    if hinted and hint_certified:
-        keep = hinted
-    elif hinted:
+    if hinted:
         solves += 1
         if feasible(problem, [groups[i].restricted() for i in sorted(hinted)], solvers) is False:
             keep = hinted  # a subset is infeasible, so the whole set is too

@@ -8,10 +8,11 @@ path otherwise (``None`` or :data:`UNANSWERED` below means: ask cvxpy).
   little as possible" (a linear cost of 1 on every buy and sell: bounded below, so the answer is
   about the limits alone). A Farkas certificate (``infeasible``) says no; weights that hold every
   row within its verification tolerance say yes.
-- **Which limits take part?** (:func:`certificate_support`) The rows and caps with a positive
-  multiplier in that certificate: the certificate uses only them and the weight boxes, so they and
-  the box limits are infeasible together (the support of a Farkas certificate is an infeasible
-  subsystem). This replaces the elastic filter's solves as the deletion filter's hint.
+- **Which limits take part?** Not asked here: the deletion filter's hint stays the elastic
+  filter's (:func:`trimtab.construct._elastic.elastic_filter`, through cvxpy), because the hint
+  steers which conflict set is found when several exist, and a Farkas certificate's support
+  (tried) named a different, equally valid set on the demo's infeasible scenario than the one
+  trimtab named before.
 - **How far must one limit move, all others as written?** (:func:`extreme`) The elastic problem
   with one group movable has the optimum of min Σs = the group's value at its extreme over the
   other limits: the least tracking error (or other risk of a cap on the full Σ) under them, or the
@@ -34,9 +35,6 @@ from trimtab.construct.constraints._base import Rows
 
 if TYPE_CHECKING:
     from trimtab.construct._problem import RebalanceProblem
-
-#: A row or cap is in a certificate's support when its multiplier is above this fraction of the largest.
-SUPPORT_TOL = 1e-4
 
 #: :func:`extreme` could not answer (the cvxpy path must).
 UNANSWERED = object()
@@ -83,63 +81,6 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows]) -> bool | None:
         return False
     # a point that holds every row answers the question, converged or not
     return True if holds(rows, tr.qp.weights(sol.x)) else None
-
-
-def certificate_support(problem: RebalanceProblem, rows: Sequence[Rows]) -> tuple[dict[int, np.ndarray], bool] | None:
-    """id(rows) → which elements have a positive multiplier in a certificate that ``rows`` cannot all
-    hold (box rows: all True, the boxes are the certificate's domain), and whether the certificate
-    cut to that support still proves it (:func:`farkas_bound` > 0); None without a certificate."""
-    tr = _translation(problem, rows)
-    if not isinstance(tr, _fast.Translation):
-        return None
-    sol = _run(_least_trading(tr.qp))
-    return support_of(tr, sol) if sol.status == "infeasible" else None
-
-
-def support_of(tr: _fast.Translation, sol: _ipm.Solution) -> tuple[dict[int, np.ndarray], bool]:
-    """:func:`certificate_support` of a run that stopped as ``infeasible`` (its multipliers)."""
-    size = max(float(np.max(sol.row_upper, initial=0.0)), float(np.max(sol.row_lower, initial=0.0)),
-               float(np.max(sol.cap_duals, initial=0.0)))
-    row_in = (sol.row_upper + sol.row_lower) > SUPPORT_TOL * size
-    cap_in = sol.cap_duals > SUPPORT_TOL * size
-    out: dict[int, np.ndarray] = {id(r): np.ones(r.size, dtype=bool) for r in tr.box_rows}
-    for r, idx in tr.linear_rows:
-        out[id(r)] = row_in[idx]
-    for r, k in tr.cap_rows:
-        out[id(r)] = np.array([cap_in[k]])
-    certified = farkas_bound(tr.qp, sol, row_in, cap_in) > _ipm.FARKAS_TOL
-    return out, certified
-
-
-def farkas_bound(qp: _ipm.QP, sol: _ipm.Solution, rows: np.ndarray, caps: np.ndarray) -> float:
-    """The Farkas bound of :meth:`trimtab.construct._ipm._Run.farkas` for the solution's multipliers
-    kept on ``rows`` and ``caps`` only (masks), scaled to a largest of 1, from the QP's data."""
-    n = qp.n
-    upper = np.where(rows, sol.row_upper, 0.0)
-    lower = np.where(rows, sol.row_lower, 0.0)
-    z_caps = np.where(caps, sol.cap_duals, 0.0)
-    size = max(float(np.max(upper, initial=0.0)), float(np.max(lower, initial=0.0)), float(np.max(z_caps, initial=0.0)))
-    if not size > 0:
-        return -np.inf
-    upper, lower, z_caps = upper / size, lower / size, z_caps / size
-    x = sol.x
-    w = qp.weights(x)
-    values = qp.row_values(w, float(x.sum()))
-    with np.errstate(invalid="ignore"):
-        base = float(np.sum(np.where(upper > 0, upper * (values - qp.hi), 0.0))
-                     + np.sum(np.where(lower > 0, lower * (qp.lo - values), 0.0)))
-    y = upper - lower
-    grad_w = qp.Aw.T @ y + qp.B @ (qp.Ay.T @ y)
-    grad_t = float(qp.at @ y)
-    for cap, z in zip(qp.caps, z_caps, strict=True):
-        if z == 0:
-            continue
-        a = w - cap.center
-        qa = qp.sigma(a, cap.factor, cap.specific)
-        base += z * (float(a @ qa) / cap.tau2 - 1.0)
-        grad_w = grad_w + z * 2.0 * qa / cap.tau2
-    c = np.concatenate([grad_w + grad_t, -grad_w + grad_t])
-    return _ipm.box_minimum(base, c, qp, x, ~_ipm.fixed_coordinates(qp))
 
 
 def extreme(problem: RebalanceProblem, others: Sequence[Rows], moved: Rows) -> object:

@@ -52,17 +52,13 @@ WEIGHT_RANGE = ("weight", "active_weight", "trade", "group", "active_group", "mu
 RELAX_MARGIN = 1e-6
 
 
-def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[Any], changed: Sequence[str] = (),
-             certificate: tuple[Any, Any] | None = None) -> None:
+def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[Any], changed: Sequence[str] = ()) -> None:
     """Find the conflict set and the relaxation options; raise InfeasibleError with both when infeasible.
 
     Returns without raising when the limits turn out to be satisfiable together (the solver's
-    infeasibility was numerical). ``certificate``: (translation, solution) of a FACTOR_IPM run on
-    the problem's rows that stopped as infeasible (see :func:`certificate_hint`).
+    infeasibility was numerical).
     """
-    found = certificate_hint(problem, extra, certificate) if _diagnosis_ipm.available(problem) else None
-    hint, certified = found if found is not None else (elastic_filter(problem, extra), False)
-    conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), hint, hint_certified=certified)
+    conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
     if conflict is None:
         return
     table, moves = relaxation(problem, extra, conflict)
@@ -136,30 +132,6 @@ def _extreme(problem: RebalanceProblem, extra: Sequence[Rows], group: LimitGroup
             mask[group.index] = True
             others.append(replace(rows, lower=np.where(mask, -np.inf, rows.lower), upper=np.where(mask, np.inf, rows.upper)))
     return _diagnosis_ipm.extreme(problem, others, group.restricted())
-
-
-def certificate_hint(problem: RebalanceProblem, extra: Sequence[Rows],
-                     certificate: tuple[Any, Any] | None = None) -> tuple[list[str], bool] | None:
-    """Groups infeasible together, read from a FACTOR_IPM Farkas certificate (the rows with a positive
-    multiplier, and the weight boxes), and whether the certificate cut to them still proves it.
-
-    ``certificate`` is (translation, solution) of the rebalance's own run on every row when it stopped
-    as infeasible; without one, a run on every group's rows gives it. None when there is no
-    certificate (then the elastic filter gives the hint).
-    """
-    groups = limit_groups(problem, extra)
-    if certificate is not None:
-        keyed = [g.rows for g in groups]
-        found = _diagnosis_ipm.support_of(*certificate)
-    else:
-        keyed = [g.restricted() for g in groups]
-        found = _diagnosis_ipm.certificate_support(problem, keyed)
-    if found is None:
-        return None
-    support, certified = found
-    hint = [g.path for g, r in zip(groups, keyed, strict=True)
-            if bool(support.get(id(r), np.zeros(1, dtype=bool))[g.index if g.index is not None else slice(None)].any())]
-    return (hint, certified) if hint else None
 
 
 def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str] | None:

@@ -70,8 +70,6 @@ class Answer:
     solver_objective: float
     solution: _ipm.Solution
     build_seconds: float
-    #: the QP the method ran on (a Farkas certificate of an ``infeasible`` run is read against it)
-    translation: Translation | None = None
 
 
 def settings() -> dict[str, object]:
@@ -207,7 +205,7 @@ def solve(problem: RebalanceProblem, rows: Sequence[Rows], warm: WarmBox | None 
         warm.state = sol.warm
     return Answer(
         weights=tr.qp.weights(sol.x), duals=_duals(tr, sol),
-        solver_objective=-sol.objective - tr.alpha_constant, solution=sol, build_seconds=build, translation=tr,
+        solver_objective=-sol.objective - tr.alpha_constant, solution=sol, build_seconds=build,
     )
 
 

@@ -230,7 +230,7 @@ class RebalanceProblem:
                                                _fast.settings()))
                 if sol.status == "infeasible":
                     # a Farkas certificate (_ipm._Run.farkas): no general solver need say it again
-                    _elastic.diagnose(self, extra, attempts, certificate=(answer.translation, sol))
+                    _elastic.diagnose(self, extra, attempts)  # raises InfeasibleError when confirmed
                     rejected.append(f"{name}: infeasible but the limits can all hold (no conflict set)")
                     continue
                 if not sol.converged:
