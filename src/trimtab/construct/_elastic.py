@@ -24,7 +24,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _diagnosis_ipm, _solve
+from trimtab.construct import _diagnosis_ipm, _elastic_ipm, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._conflict import (
     ELASTIC_TOL,
@@ -86,6 +86,11 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
     free: dict[int, list[LimitGroup]] = {}
     for g in movable:
         free.setdefault(id(g.rows), []).append(g)
+    if _diagnosis_ipm.available(problem):
+        weights = _elastic_ipm.elastic(problem, [r for r in problem.all_rows(extra) if r.soft is None],
+                                       _movable_elements(problem, extra, free))
+        if weights is not _diagnosis_ipm.UNANSWERED:
+            return weights  # type: ignore[return-value]
     variables = Variables(problem.data)
     assembly = Assembly(variables)
     for rows in problem.all_rows(extra):
@@ -116,6 +121,21 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
         if attempt.status in _solve.INFEASIBLE:
             return None
     return None
+
+
+def _movable_elements(problem: RebalanceProblem, extra: Sequence[Rows],
+                      free: dict[int, list[LimitGroup]]) -> dict[int, tuple[np.ndarray, float]]:
+    """id(rows) → (its movable elements, their price), as elastic_weights prices them."""
+    out: dict[int, tuple[np.ndarray, float]] = {}
+    for rows in problem.all_rows(extra):
+        groups = free.get(id(rows))
+        if not groups or rows.soft is not None:
+            continue
+        whole = any(g.index is None for g in groups)
+        index = None if whole else np.concatenate([g.index for g in groups])  # type: ignore[misc]
+        mask = np.ones(rows.size, dtype=bool) if index is None else np.isin(np.arange(rows.size), index)
+        out[id(rows)] = (mask, penalty(rows, index))
+    return out
 
 
 def _extreme(problem: RebalanceProblem, extra: Sequence[Rows], group: LimitGroup) -> object:

@@ -1,0 +1,133 @@
+"""The elastic problem of the infeasibility diagnosis in factor form, by FACTOR_IPM (#21).
+
+:func:`trimtab.construct._elastic.elastic_weights` minimises Σ pₐ·sₐ over the slacks s ≥ 0 of the
+movable limits (``value ≤ upper + s``, ``value ≥ lower − s``, one slack per element, pₐ = 1/|limit|
+of its group), every other hard limit as written. Here each slack is one more coordinate of w: a
+*slack column* with no exposure and no specific variance, held at w₀ = 0, that may only be bought
+(its u ≥ 0, its v fixed at 0), whose alpha is −pₐ (so the objective −αᵀw is the penalty). A movable
+linear row gets a column with coefficient −1 (upper side) or +1 (lower side); a row on trades (a
+turnover cap) gets −at on every slack column, so that buying a slack is not a trade.
+
+A movable risk cap goes to cvxpy: its slack is in volatility (√(ppy·q) ≤ cap + s), which is not
+linear in the method's form q/τ² − 1 ≤ 0; a slack σ on that form priced at pₐ·cap/2 (the first
+order of vol = cap·√(1 + σ)) was tried and moved the limits differently from the cvxpy path once
+the cap had to move far (the demo's 0.5% TE cap to 2.2%).
+
+Per-asset (box) limits cannot get a slack column each without N more dense rows, so a movable box
+limit is held as written, and the answer is kept only if holding it was optimal anyway: the
+multiplier of each of its bounds is at most its price pₐ (then the soft problem's optimality
+conditions hold with that slack at 0). Otherwise, and whenever FACTOR_IPM cannot take the rows,
+the cvxpy path answers (:data:`UNANSWERED`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import replace
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from trimtab.construct import _fast, _ipm
+from trimtab.construct._diagnosis_ipm import UNANSWERED, available
+from trimtab.construct.constraints._base import Rows, split_box_duals
+
+if TYPE_CHECKING:
+    from trimtab.construct._problem import RebalanceProblem
+
+#: A held box bound is optimal for the soft problem when its multiplier is at most its price × (1 + this).
+PRICE_TOL = 1e-6
+
+
+def elastic(problem: RebalanceProblem, rows: Sequence[Rows], movable: Mapping[int, tuple[np.ndarray, float]]) -> object:
+    """Weights minimising the priced slacks of the movable elements, every other row as written.
+
+    Parameters
+    ----------
+    problem : RebalanceProblem
+    rows : sequence of Rows
+        Every hard row of the problem.
+    movable : mapping id(rows) → (mask of movable elements, price per unit of slack)
+
+    Returns
+    -------
+    numpy.ndarray, None or UNANSWERED
+        The weights; None when the rows held as written cannot hold together; UNANSWERED for cvxpy.
+    """
+    if not available(problem) or _fast.unsupported(problem, rows) is not None:
+        return UNANSWERED
+    if any(r.risk is not None and id(r) in movable for r in rows):
+        return UNANSWERED  # a cap's slack is in volatility: not linear in the method's q/τ² − 1
+    tr = _fast.translate(problem, rows)
+    if tr is None:
+        return UNANSWERED
+    qp, columns = _with_slacks(tr, movable)
+    with _fast._blas_limit():
+        sol = _ipm.solve(qp)
+    if sol.status == "infeasible":
+        # with a movable box held as written, its move might have been the way out
+        return UNANSWERED if any(id(r) in movable for r in tr.box_rows) else None
+    if not sol.converged or not _boxes_optimal(tr, sol, movable, columns):
+        return UNANSWERED
+    return qp.weights(sol.x)[: tr.qp.n]
+
+
+def _with_slacks(tr: _fast.Translation, movable: Mapping[int, tuple[np.ndarray, float]]) -> tuple[_ipm.QP, int]:
+    """The QP with one slack column per movable side of a linear row and per movable cap."""
+    qp = tr.qp
+    n, n_rows = qp.n, len(qp.lo)
+    coefficients: list[np.ndarray] = []  # per column: its coefficients on the rows
+    prices: list[float] = []
+    for r, idx in tr.linear_rows:
+        mask, price = movable.get(id(r), (None, 0.0))
+        if mask is None:
+            continue
+        for element in np.flatnonzero(mask):
+            row = idx[element]
+            for sign, limit in ((-1.0, qp.hi[row]), (1.0, qp.lo[row])):
+                if np.isfinite(limit):
+                    column = np.zeros(n_rows)
+                    column[row] = sign
+                    coefficients.append(column)
+                    prices.append(price)
+    m = len(prices)
+    slack_aw = np.column_stack(coefficients) if m else np.zeros((n_rows, 0))
+    slack_aw = slack_aw - qp.at[:, None]  # a slack bought is not a trade
+    zeros, inf = np.zeros(m), np.full(m, np.inf)
+    widened = replace(
+        qp,
+        B=np.vstack([qp.B, np.zeros((m, qp.B.shape[1]))]), d=np.concatenate([qp.d, zeros]),
+        w0=np.concatenate([qp.w0, zeros]), risk_weight=0.0,
+        risk_center=np.concatenate([qp.risk_center, zeros]),
+        alpha=np.concatenate([np.zeros(n), -np.asarray(prices)]), cost=np.zeros(n + m),
+        lb=np.concatenate([qp.lb[:n], zeros, qp.lb[n:], zeros]),
+        ub=np.concatenate([qp.ub[:n], inf, qp.ub[n:], zeros]),
+        Aw=np.hstack([qp.Aw, slack_aw]),
+        caps=[replace(c, center=np.concatenate([c.center, zeros])) for c in qp.caps],
+        impact=None, trade_regularizer=_fast.TRADE_REGULARIZER,
+    )
+    return widened, m
+
+
+def _boxes_optimal(tr: _fast.Translation, sol: _ipm.Solution, movable: Mapping[int, tuple[np.ndarray, float]],
+                   m: int) -> bool:
+    """Every movable box bound held as written has a multiplier within its price (see the module notes)."""
+    boxes = [r for r in tr.box_rows if id(r) in movable]
+    if not boxes:
+        return True
+    n = tr.qp.n
+
+    def real(v: np.ndarray) -> np.ndarray:  # the (u, v) of the assets, without the slack columns
+        return np.concatenate([v[:n], v[n + m: 2 * n + m]])
+
+    trimmed = replace(sol, reduced_gradient=real(sol.reduced_gradient), bound_upper=real(sol.bound_upper),
+                      bound_lower=real(sol.bound_lower))
+    up_all, lo_all = _fast._box_duals(tr, trimmed)
+    duals = split_box_duals(tr.box_rows, tr.box_limits, up_all, lo_all)
+    for r in boxes:
+        mask, price = movable[id(r)]
+        up, lo = duals[id(r)]
+        limit = price * (1.0 + PRICE_TOL)
+        if np.any(up[mask] > limit) or np.any(lo[mask] > limit):
+            return False
+    return True
