@@ -16,7 +16,8 @@ the cap had to move far (the demo's 0.5% TE cap to 2.2%).
 Per-asset (box) limits cannot get a slack column each without N more dense rows, so a movable box
 limit is held as written, and the answer is kept only if holding it was optimal anyway: the
 multiplier of each of its bounds is at most its price pₐ (then the soft problem's optimality
-conditions hold with that slack at 0). Otherwise, and whenever FACTOR_IPM cannot take the rows,
+conditions hold with that slack at 0). When holding it leaves no feasible point, the rows that may
+not move are tested alone: infeasible, the elastic problem has no solution (None). Otherwise, and whenever FACTOR_IPM cannot take the rows,
 the cvxpy path answers (:data:`UNANSWERED`).
 """
 
@@ -29,7 +30,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from trimtab.construct import _fast, _ipm
-from trimtab.construct._diagnosis_ipm import UNANSWERED, available
+from trimtab.construct._diagnosis_ipm import UNANSWERED, available, feasible
 from trimtab.construct.constraints._base import Rows, split_box_duals
 
 if TYPE_CHECKING:
@@ -65,8 +66,13 @@ def elastic(problem: RebalanceProblem, rows: Sequence[Rows], movable: Mapping[in
     with _fast._blas_limit():
         sol = _ipm.solve(qp)
     if sol.status == "infeasible":
-        # with a movable box held as written, its move might have been the way out
-        return UNANSWERED if any(id(r) in movable for r in tr.box_rows) else None
+        held = [r for r in tr.box_rows if id(r) in movable]
+        if not held:
+            return None
+        # a movable box held as written might have been the way out: the rows that may not move
+        # decide alone (their feasibility test, in factor form when it can answer)
+        fixed = [r for r in rows if id(r) not in movable]
+        return None if feasible(problem, fixed) is False else UNANSWERED
     if not sol.converged or not _boxes_optimal(tr, sol, movable, columns):
         return UNANSWERED
     return qp.weights(sol.x)[: tr.qp.n]
