@@ -8,10 +8,12 @@ of its group), every other hard limit as written. Here each slack is one more co
 linear row gets a column with coefficient −1 (upper side) or +1 (lower side); a row on trades (a
 turnover cap) gets −at on every slack column, so that buying a slack is not a trade.
 
-A movable risk cap goes to cvxpy: its slack is in volatility (√(ppy·q) ≤ cap + s), which is not
-linear in the method's form q/τ² − 1 ≤ 0; a slack σ on that form priced at pₐ·cap/2 (the first
-order of vol = cap·√(1 + σ)) was tried and moved the limits differently from the cvxpy path once
-the cap had to move far (the demo's 0.5% TE cap to 2.2%).
+A movable risk cap's slack is in volatility (√(ppy·q) ≤ cap + s), not linear in the method's form
+q/τ² − 1 ≤ 0. It gets a slack σ on that form (:attr:`trimtab.construct._ipm_problem.Cap.slack`):
+σ ≥ q/τ² − 1 means s = cap·(√(1 + σ) − 1), and σ is priced by majorise–minimise (:func:`_majorised`):
+pₐ·cap/(2√(1 + σₖ)), re-solved warm until the price settles. Pricing σ once at pₐ·cap/2 (the first
+order) was tried and moved the limits differently from the cvxpy path once the cap had to move far
+(the demo's 0.5% TE cap to 2.2%).
 
 Per-asset (box) limits cannot get a slack column each without N more dense rows, so a movable box
 limit is held as written, and the answer is kept only if holding it was optimal anyway: the
@@ -36,6 +38,9 @@ from trimtab.construct.constraints._base import Rows, split_box_duals
 if TYPE_CHECKING:
     from trimtab.construct._problem import RebalanceProblem
 
+#: Majorise–minimise steps for a movable cap's slack, and the relative change of its price that ends them.
+MM_ITER = 12
+MM_TOL = 1e-7
 #: A held box bound is optimal for the soft problem when its multiplier is at most its price × (1 + this).
 PRICE_TOL = 1e-6
 
@@ -57,14 +62,13 @@ def elastic(problem: RebalanceProblem, rows: Sequence[Rows], movable: Mapping[in
     """
     if not available(problem) or _fast.unsupported(problem, rows) is not None:
         return UNANSWERED
-    if any(r.risk is not None and id(r) in movable for r in rows):
-        return UNANSWERED  # a cap's slack is in volatility: not linear in the method's q/τ² − 1
     tr = _fast.translate(problem, rows)
     if tr is None:
         return UNANSWERED
-    qp, columns = _with_slacks(tr, movable)
-    with _fast._blas_limit():
-        sol = _ipm.solve(qp)
+    qp, columns, caps = _with_slacks(tr, movable)
+    sol = _majorised(qp, caps)
+    if sol is None:
+        return UNANSWERED
     if sol.status == "infeasible":
         held = [r for r in tr.box_rows if id(r) in movable]
         if not held:
@@ -78,12 +82,45 @@ def elastic(problem: RebalanceProblem, rows: Sequence[Rows], movable: Mapping[in
     return qp.weights(sol.x)[: tr.qp.n]
 
 
-def _with_slacks(tr: _fast.Translation, movable: Mapping[int, tuple[np.ndarray, float]]) -> tuple[_ipm.QP, int]:
-    """The QP with one slack column per movable side of a linear row and per movable cap."""
+def _majorised(qp: _ipm.QP, caps: list[tuple[int, float, float]]) -> _ipm.Solution | None:
+    """Solve, re-pricing each cap's slack σ until the prices settle (None: they did not).
+
+    A cap's slack is in volatility: the penalty is pₐ·s with s = cap·(√(1 + σ) − 1), concave in σ.
+    Its tangent at σₖ lies above it, so minimising with σ priced at pₐ·cap/(2√(1 + σₖ)) and
+    updating σₖ is a majorise–minimise iteration: the true penalty falls at every step and its
+    fixed point satisfies the optimality conditions of the elastic problem in s, which is convex.
+    Each step starts warm from the last.
+    """
+    sol = None
+    alpha = qp.alpha.copy()
+    for _ in range(MM_ITER):
+        with _fast._blas_limit():
+            sol = _ipm.solve(qp, warm=None if sol is None else sol.warm)
+        if sol.status == "infeasible" or not sol.converged or not caps:
+            return sol
+        w = qp.weights(sol.x)
+        settled = True
+        for column, price, cap in caps:
+            sigma = max(float(w[column]), 0.0)
+            new = price * cap / (2.0 * np.sqrt(1.0 + sigma))
+            settled &= abs(new + alpha[column]) <= MM_TOL * new
+            alpha[column] = -new
+        if settled:
+            return sol
+        qp = replace(qp, alpha=alpha.copy())
+    return None
+
+
+def _with_slacks(tr: _fast.Translation, movable: Mapping[int, tuple[np.ndarray, float]]
+                 ) -> tuple[_ipm.QP, int, list[tuple[int, float, float]]]:
+    """The QP with one slack column per movable side of a linear row and per movable cap, and per cap
+    slack (its column, its price per unit of volatility, the cap)."""
     qp = tr.qp
     n, n_rows = qp.n, len(qp.lo)
     coefficients: list[np.ndarray] = []  # per column: its coefficients on the rows
     prices: list[float] = []
+    cap_list = list(qp.caps)
+    cap_slacks: list[tuple[int, float, float]] = []
     for r, idx in tr.linear_rows:
         mask, price = movable.get(id(r), (None, 0.0))
         if mask is None:
@@ -96,6 +133,15 @@ def _with_slacks(tr: _fast.Translation, movable: Mapping[int, tuple[np.ndarray, 
                     column[row] = sign
                     coefficients.append(column)
                     prices.append(price)
+    for r, k in tr.cap_rows:
+        mask, price = movable.get(id(r), (None, 0.0))
+        if mask is None or not mask.any():
+            continue
+        column = n + len(prices)
+        cap_list[k] = replace(cap_list[k], slack=column)
+        cap_slacks.append((column, price, float(r.upper[0])))
+        coefficients.append(np.zeros(n_rows))
+        prices.append(price * float(r.upper[0]) / 2.0)  # the first tangent, at σ = 0
     m = len(prices)
     slack_aw = np.column_stack(coefficients) if m else np.zeros((n_rows, 0))
     slack_aw = slack_aw - qp.at[:, None]  # a slack bought is not a trade
@@ -109,10 +155,10 @@ def _with_slacks(tr: _fast.Translation, movable: Mapping[int, tuple[np.ndarray, 
         lb=np.concatenate([qp.lb[:n], zeros, qp.lb[n:], zeros]),
         ub=np.concatenate([qp.ub[:n], inf, qp.ub[n:], zeros]),
         Aw=np.hstack([qp.Aw, slack_aw]),
-        caps=[replace(c, center=np.concatenate([c.center, zeros])) for c in qp.caps],
+        caps=[replace(c, center=np.concatenate([c.center, zeros])) for c in cap_list],
         impact=None, trade_regularizer=_fast.TRADE_REGULARIZER,
     )
-    return widened, m
+    return widened, m, cap_slacks
 
 
 def _boxes_optimal(tr: _fast.Translation, sol: _ipm.Solution, movable: Mapping[int, tuple[np.ndarray, float]],

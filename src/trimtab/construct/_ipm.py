@@ -242,6 +242,9 @@ class _Run:
             qa = shared if shared is not None else qp.sigma(a, cap.factor, cap.specific)
             caps[k] = a @ qa / cap.tau2 - 1.0
             grad = 2.0 * qa / cap.tau2
+            if cap.slack is not None:  # an elastic slack column (_elastic_ipm): no exposure, no d
+                caps[k] -= w[cap.slack]
+                grad[cap.slack] -= 1.0
             self.cap_grads.append(grad)
         self.h = np.concatenate([self.values[self.up_side] - qp.hi[self.up_side],
                                  qp.lo[self.lo_side] - self.values[self.lo_side], caps])
