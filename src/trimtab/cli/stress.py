@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
+from trimtab.cli._app import _ui, add_commands
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # pandas is imported inside the commands: registering them keeps `trimtab --help` light
@@ -54,8 +55,6 @@ def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | 
 
 
 def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None) -> None:
-    from trimtab.cli import _ui
-
     ui = _ui(ctx)
     ui.emit({**document, "output": str(out) if out is not None else None, "files": files})
     if ui.chatty:
@@ -299,8 +298,4 @@ def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Pa
 
 def register(app: typer.Typer) -> None:
     """Add ``stress``, ``replay`` and ``attribute-returns`` to the main command-line app."""
-    from trimtab.cli import _guarded
-
-    app.command("stress")(_guarded(stress_command))
-    app.command("replay")(_guarded(replay_command))
-    app.command("attribute-returns")(_guarded(attribute_returns_command))
+    add_commands(app, {"stress": stress_command, "replay": replay_command, "attribute-returns": attribute_returns_command})

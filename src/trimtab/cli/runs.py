@@ -18,8 +18,9 @@ from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
 import typer
 
-from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
-from trimtab._cli_guard import fail as _fail
+from trimtab.cli._guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
+from trimtab.cli._app import add_commands
+from trimtab.cli._guard import fail as _fail
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # numpy, pandas and yaml are imported where used: registering the commands stays light
@@ -213,7 +214,6 @@ def _report_failures(table: pd.DataFrame, label: Callable[[Any], str] = str) -> 
 # ---------------------------------------------------------------------------------------------
 # sweep
 # ---------------------------------------------------------------------------------------------
-@guarded
 def sweep_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
@@ -256,7 +256,6 @@ def sweep_command(
 # ---------------------------------------------------------------------------------------------
 # frontier
 # ---------------------------------------------------------------------------------------------
-@guarded
 def frontier_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
@@ -320,7 +319,6 @@ def fit_settings_mapping(settings: Any) -> dict[str, Any]:
     return out
 
 
-@guarded
 def backtest_command(
     ctx: typer.Context,
     scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files, run side by side.", metavar="SCENARIO.yaml", show_default=False)],
@@ -410,9 +408,7 @@ def backtest_command(
 
 def register(app: typer.Typer) -> None:
     """Add ``sweep``, ``frontier`` and ``backtest`` to the main command-line app."""
-    app.command("sweep")(sweep_command)
-    app.command("frontier")(frontier_command)
-    app.command("backtest")(backtest_command)
+    add_commands(app, {"sweep": sweep_command, "frontier": frontier_command, "backtest": backtest_command}, guard=guarded)
 
 
 __all__ = ["backtest_command", "frontier_command", "parse_grid", "parse_values", "register", "sweep_command"]
