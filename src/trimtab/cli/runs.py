@@ -121,7 +121,7 @@ def parse_values(text: str, owner: str) -> list[Any]:
     """``a:b:n`` (n evenly spaced values), ``[v1, v2]`` (a YAML list) or ``v1,v2,…`` (YAML scalars)."""
     import numpy as np
 
-    from trimtab._strict_yaml import load_yaml_text
+    from trimtab.scenario._strict_yaml import load_yaml_text
 
     body = text.strip()
     if not body:
@@ -147,7 +147,7 @@ def parse_values(text: str, owner: str) -> list[Any]:
 
 def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[Any]] | list[dict[str, Any]]:
     """``--grid KEY=VALUES`` options (every combination), or a grid file (a mapping or a list of points)."""
-    from trimtab._strict_yaml import read_yaml
+    from trimtab.scenario._strict_yaml import read_yaml
 
     if grid_file is not None:
         if items:

@@ -27,8 +27,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._paths import COMPLETED, ensure_parent_folder, make_partial, remove_created, remove_stale_partials
-from trimtab._strict_yaml import check_regular, read_regular_file
+from trimtab._paths import (
+    COMPLETED, check_regular, ensure_parent_folder, make_partial, read_regular_file, remove_created, remove_stale_partials,
+)
 from trimtab._version import __version__
 from trimtab.errors import InputError, ModelError
 

@@ -13,7 +13,7 @@ from typing import Any
 
 import pandas as pd
 
-from trimtab._strict_yaml import dump_yaml
+from trimtab.scenario._strict_yaml import dump_yaml
 from trimtab.errors import InfeasibleError, InputError, SolverError
 from trimtab.model import FactorModel
 from trimtab.scenario._fit import require
