@@ -231,7 +231,7 @@ def sweep_command(
     The grid can vary the risk aversion, the tracking-error cap, the turnover cap or any limit by its
     dotted key; every combination of the values is solved.
     """
-    from trimtab.runs._report import write_sweep
+    from trimtab.report._pages import write_sweep
     from trimtab.runs._sweep import grid_points, sweep
 
     as_json, quiet = _flags(ctx, json_output, quiet)
@@ -274,7 +274,7 @@ def frontier_command(
     Every point is solved under the scenario's other limits; writes the tables and a report with
     the charts.
     """
-    from trimtab.runs._report import write_frontier
+    from trimtab.report._pages import write_frontier
     from trimtab.runs._frontier import frontier
 
     as_json, quiet = _flags(ctx, json_output, quiet)
@@ -346,7 +346,7 @@ def backtest_command(
     import pandas as pd
 
     from trimtab.runs._backtest import backtest
-    from trimtab.runs._report import write_backtest
+    from trimtab.report._pages import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
     from trimtab.scenario._run import variant_limits
     from trimtab.scenario._schema import FitSettings, ReturnsFile

@@ -88,7 +88,7 @@ def stress_command(
     horizon, with its χ² tail probability.
     """
     from trimtab import FactorModel
-    from trimtab._stress_pages import write_stress
+    from trimtab.report._stress_pages import write_stress
     from trimtab.scenario._shocks import load_shocks
     from trimtab.stresstest import stress
     from trimtab.stresstest._entries import factor_moves, specific_moves
@@ -142,7 +142,7 @@ def replay_command(
     import pandas as pd
 
     from trimtab import FactorModel
-    from trimtab._stress_pages import write_replay
+    from trimtab.report._stress_pages import write_replay
     from trimtab.stresstest import factor_history, replay
 
     fm = FactorModel.load(model)
@@ -230,7 +230,7 @@ def attribute_returns_command(
     the model's history).
     """
     from trimtab import FactorModel
-    from trimtab._stress_pages import write_return_attribution
+    from trimtab.report._stress_pages import write_return_attribution
     from trimtab.attribution import attribute_backtest_returns, attribute_returns
 
     fm = FactorModel.load(model) if model is not None else None
