@@ -26,7 +26,7 @@ import yaml
 from yaml.nodes import MappingNode, Node, ScalarNode, SequenceNode
 
 from trimtab._paths import MAX_FILE_BYTES, check_regular, read_regular_file  # noqa: F401 - re-exported: the YAML readers' file checks
-from trimtab.errors import InputError, Problem, ScenarioError
+from trimtab.errors import Problem, ScenarioError
 
 #: Largest YAML file read, in bytes.
 MAX_BYTES = MAX_FILE_BYTES
