@@ -193,6 +193,17 @@ HELP_ORDER = ("demo", "check", "fit", "risk", "rebalance", "compare", "sweep", "
               "stress", "replay", "attribute-returns")
 
 
+#: The ``register(app)`` of each command family imported so far; cli/__init__.py imports every family
+#: and calls them on :data:`app`.
+FAMILIES: list[Callable[[typer.Typer], None]] = []
+
+
+def family(register: Callable[[typer.Typer], None]) -> Callable[[typer.Typer], None]:
+    """Mark a module's ``register(app)`` as a command family's, for the package to call on its app."""
+    FAMILIES.append(register)
+    return register
+
+
 def add_commands(app: typer.Typer, commands: dict[str, Callable[..., Any]], *, guard: Callable[[F], F] = _guarded) -> None:
     """Register each command (its name on the command line → its function) on ``app``, wrapped in the guard."""
     for name, command in commands.items():

@@ -8,7 +8,7 @@ from typing import Annotated
 
 import typer
 
-from trimtab.cli._app import _print_relaxation, _print_warnings, _ui, add_commands
+from trimtab.cli._app import _print_relaxation, _print_warnings, _ui, add_commands, family
 from trimtab.errors import InfeasibleError
 
 # ---------------------------------------------------------------------- demo
@@ -78,6 +78,7 @@ def demo(
 
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``demo`` to the command line."""
     add_commands(app, {"demo": demo})

@@ -11,7 +11,7 @@ from typing import Annotated
 
 import typer
 
-from trimtab.cli._app import _ui, add_commands
+from trimtab.cli._app import _ui, add_commands, family
 
 def explore(
     ctx: typer.Context,
@@ -111,6 +111,7 @@ def _url_host(host: str) -> str:
     return f"[{host}]" if ":" in host else host
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``explore`` to the command line (guarded like every command: one line per error)."""
     add_commands(app, {"explore": explore})

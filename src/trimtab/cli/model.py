@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from trimtab.cli._app import _optional_report, _ui, add_commands
+from trimtab.cli._app import _optional_report, _ui, add_commands, family
 from trimtab.errors import InputError
 
 # ---------------------------------------------------------------------- fit
@@ -120,6 +120,7 @@ def risk(
 
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``fit`` and ``risk`` to the command line."""
     add_commands(app, {"fit": fit, "risk": risk})

@@ -8,7 +8,7 @@ from typing import Annotated, Any
 
 import typer
 
-from trimtab.cli._app import Ui, _optional_report, _print_relaxation, _print_warnings, _report_module, _ui, add_commands
+from trimtab.cli._app import Ui, _optional_report, _print_relaxation, _print_warnings, _report_module, _ui, add_commands, family
 from trimtab.cli._guard import EXIT_INFEASIBLE, EXIT_SOLVER
 from trimtab.cli._guard import fail as _fail
 from trimtab.errors import InfeasibleError, InputError, SolverError
@@ -190,6 +190,7 @@ def _exit_for(runs: Sequence[Any]) -> None:
 
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``check``, ``rebalance`` and ``compare`` to the command line."""
     add_commands(app, {"check": check, "rebalance": rebalance, "compare": compare})

@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 import typer
 
 from trimtab.cli._guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
-from trimtab.cli._app import add_commands
+from trimtab.cli._app import add_commands, family
 from trimtab.cli._guard import fail as _fail
 from trimtab.errors import InputError
 
@@ -406,6 +406,7 @@ def backtest_command(
         sys.stderr.write(f"trimtab: warning: {name}: {error}\n")
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``sweep``, ``frontier`` and ``backtest`` to the main command-line app."""
     add_commands(app, {"sweep": sweep_command, "frontier": frontier_command, "backtest": backtest_command}, guard=guarded)

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from trimtab.cli._app import _ui, add_commands
+from trimtab.cli._app import _ui, add_commands, family
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # pandas is imported inside the commands: registering them keeps `trimtab --help` light
@@ -296,6 +296,7 @@ def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Pa
     return bench, None if attrs is None else attrs.reindex(model.assets)
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``stress``, ``replay`` and ``attribute-returns`` to the main command-line app."""
     add_commands(app, {"stress": stress_command, "replay": replay_command, "attribute-returns": attribute_returns_command})
