@@ -7,21 +7,22 @@ import pandas as pd
 
 from tests.conftest import random_model
 
+MAX_WEIGHT = 0.05
 SCENARIO = {
     "objective": {"maximize": "utility", "risk_aversion": 20.0, "costs": {"spread": "spread"}},
     "constraints": {
         "fully_invested": True,
         "long_only": True,
-        "weight": {"min": 0.0, "max": 0.05},
+        "weight": {"min": 0.0, "max": MAX_WEIGHT},
         "tracking_error": {"max": 0.08},
         "turnover": {"max": 0.5},
     },
 }
 
 
-def market(n_assets: int, seed: int = 3):
+def market(n_assets: int, seed: int = 3, n_factors: int = 6):
     """Model, alpha, benchmark and attributes (price, adv in shares a day, spread) for n assets."""
-    model = random_model(n_assets=n_assets, n_factors=6, seed=seed)
+    model = random_model(n_assets=n_assets, n_factors=n_factors, seed=seed)
     rng = np.random.default_rng(seed + 100)
     assets = model.assets
     cap = np.exp(rng.normal(np.log(5e9), 1.0, n_assets))
@@ -33,15 +34,16 @@ def market(n_assets: int, seed: int = 3):
     return model, alpha, bench, attributes
 
 
-def accounts(model, n_accounts: int, names_per_account: int, seed: int = 9, nav=(2e6, 4e7)) -> dict:
-    """Accounts holding a random subset of names at random weights (fully invested), NAV log-uniform."""
+def accounts(model, n_accounts: int, names_per_account: int, seed: int = 9, nav=(2e6, 2e7)) -> dict:
+    """Accounts holding a random subset of names, fully invested, each weight under MAX_WEIGHT."""
     rng = np.random.default_rng(seed)
     out = {}
     for k in range(n_accounts):
         held = rng.choice(model.n_assets, size=names_per_account, replace=False)
-        w = rng.dirichlet(np.ones(names_per_account)) * 0.98
-        w = np.minimum(w, 0.05)
-        w = w / w.sum() * 0.98
+        w = rng.dirichlet(np.full(names_per_account, 4.0))
+        for _ in range(20):  # clip and spread the excess until every weight is under the cap
+            w = np.minimum(w, 0.9 * MAX_WEIGHT)
+            w = w / w.sum()
         out[f"acct{k:04d}"] = {
             "holdings": pd.Series(w, index=model.assets[held]),
             "nav": float(np.exp(rng.uniform(np.log(nav[0]), np.log(nav[1])))),

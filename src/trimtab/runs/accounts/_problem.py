@@ -25,6 +25,10 @@ from trimtab.construct._spec import RebalanceSpec
 from trimtab.construct.constraints._base import Constraint, Rows, box_rows
 
 
+#: Weight of NAV added to each allotment: 1e-10 of a 100m account is a hundredth of a unit of currency.
+CAP_SLACK = 1e-10
+
+
 class _AccountBox(Constraint):
     """Per-asset bounds that come with the account, not with the scenario."""
 
@@ -95,7 +99,8 @@ class AccountProblem(RebalanceProblem):
             cap = np.full(n, np.inf)
             where = np.fromiter(o["allotment"], dtype=np.int64)
             shares = np.fromiter(o["allotment"].values(), dtype=np.float64)
-            cap[where] = shares * o["prices"][where] / float(data.nav)  # type: ignore[index]
+            # + CAP_SLACK: a forced sale allotted exactly its size stays feasible in floating point
+            cap[where] = shares * o["prices"][where] / float(data.nav) + CAP_SLACK  # type: ignore[index]
             self.constraints.append(AggregateCap((-cap, cap), data, self.spec))
         for c in self.constraints:
             _ = c.rows

@@ -14,7 +14,7 @@ from trimtab.runs.accounts._worker import ORDER_NOISE, STATUS_SOLVED
 
 #: The summary's columns, in order.
 SUMMARY_COLUMNS = ("status", "reason", "conflict", "nav", "tracking_error", "expected_alpha", "turnover", "cost",
-                   "orders", "cash_after", "given_up", "seconds")
+                   "orders", "cash_after", "given_up", "solver", "iterations", "seconds")
 
 
 @dataclass(frozen=True, eq=False)

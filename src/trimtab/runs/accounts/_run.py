@@ -113,7 +113,7 @@ def rebalance_accounts(
     shared = SharedInputs(uuid.uuid4().hex, model, spec, benchmark, alpha, attributes,
                           tuple(solvers) if solvers else None, unknown_assets, prices)
     runner = executor if executor is not None else InProcessExecutor()
-    keep = runner.kind == "inprocess"
+    keep = False  # an account's full result is built on request (AccountsResult[name])
     with runner.sharing(shared) as handle:
         state = _equilibrium(runner, handle, listed, agg, prices, adv, eta, keep, progress, model.assets)
     by_name = {a.name: a for a in listed}

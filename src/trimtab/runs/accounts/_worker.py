@@ -138,10 +138,10 @@ def solve_account(shared: SharedInputs, account: Account, pool_price: np.ndarray
         answer["nav"] = float(problem.data.nav)
         answer["holdings"] = problem.data.holdings
         answer["forced"] = forced_trades(problem)
-        result = problem.solve()
-        w = result.weights.reindex(shared.model.assets).fillna(0.0).to_numpy(dtype=np.float64)
-        answer.update(status=STATUS_SOLVED, reason="", conflict=None, weights=w, **_figures(problem, result, w))
-        if keep_result:
+        w, solver, iterations, result = _solve(problem, keep_result)
+        answer.update(status=STATUS_SOLVED, reason="", conflict=None, weights=w, solver=solver, iterations=iterations,
+                      **_figures(problem, w))
+        if result is not None:
             answer["result"] = replace(result, _model=None, _attributes=None)
     except InfeasibleError as err:
         answer.update(status=STATUS_INFEASIBLE, reason=_account_words(_first_line(err)),
@@ -171,7 +171,22 @@ def forced_trades(problem: Any) -> dict[int, float]:
     return {int(i): float(need[i]) for i in np.flatnonzero(need > ORDER_NOISE)}
 
 
-def _figures(problem: Any, result: Any, w: np.ndarray) -> dict[str, Any]:
+def _solve(problem: Any, full: bool) -> tuple[np.ndarray, str, int, Any]:
+    """Verified weights; the full RebalanceResult only when asked (building it costs as much as the
+    solve: the equilibrium's rounds need the weights alone)."""
+    from trimtab.construct import HEURISTIC_KEYS
+    from trimtab.construct import _heuristics
+
+    spec = problem.spec
+    if full or problem.objective.kind == "risk_budget" or any(k in spec.constraints for k in HEURISTIC_KEYS):
+        result = problem.solve()
+        w = result.weights.reindex(problem.model.assets).fillna(0.0).to_numpy(dtype=np.float64)
+        return w, result.solver, int(result.iterations), result if full else None
+    outcome = _heuristics.apply(problem, problem.solve_convex())
+    return np.asarray(outcome.weights, dtype=np.float64), outcome.solver, int(outcome.iterations), None
+
+
+def _figures(problem: Any, w: np.ndarray) -> dict[str, Any]:
     """The summary figures, recomputed from the weights with the model's own algebra."""
     data, model = problem.data, problem.model
     trade = w - data.holdings
@@ -186,8 +201,6 @@ def _figures(problem: Any, result: Any, w: np.ndarray) -> dict[str, Any]:
         "orders": int((np.abs(trade) > ORDER_NOISE).sum()),
         # cash after the trades settle, before their estimated costs (currency)
         "cash_after": float(data.nav) * (1.0 - float(w.sum())),
-        "solver": result.solver,
-        "iterations": int(result.iterations),
     }
 
 
