@@ -560,6 +560,8 @@ _register_explore(app)
 from trimtab._cli_stress import register as _register_stress_commands  # noqa: E402 - needs app and _guarded above
 
 _register_stress_commands(app)  # stress, replay, attribute-returns
+from trimtab._cli_accounts import register as _register_accounts  # noqa: E402 - many accounts at once
+_register_accounts(app)
 
 
 def _reflow_help() -> None:

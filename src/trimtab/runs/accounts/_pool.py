@@ -15,10 +15,12 @@ Pure numpy, no solver. With qₖᵢ = tₖᵢ·NAVₖ/priceᵢ the shares accoun
   (the pool's impact cost counted at ⅔ of its value; docs/accounts.md explains the difference with a
   joint solve that charges the full cost).
 
-An aggregate cap C = f·ADV binds on a name when the accounts' demands D (their trades before the cap
-was imposed on that name, at the prices of that round) sum over C. The cap is then shared: a forced
-trade (selling an excluded name) is granted first, in full; the rest of the cap goes pro rata to the
-remaining demand |Dₖ| − forcedₖ. A forced trade is the least trade that brings a position inside
+An aggregate cap C = f·ADV binds on a name when the accounts' demands D (their trades in the first
+round, before any cap) sum over C. From then on every name's cap is shared out (:func:`share_caps`),
+so no name can go over its cap as the accounts move their trades elsewhere: where the demands exceed
+the cap, a forced trade is granted first, in full, and the rest of the cap goes pro rata to the
+remaining demand |Dₖ| − forcedₖ; where the cap has room, each account keeps its demand and the room
+is shared by NAV. A forced trade is the least trade that brings a position inside
 the account's own position limits (an excluded name sold to zero, a weight above its cap sold down).
 """
 
@@ -39,32 +41,37 @@ def impact_price(eta: np.ndarray, gross: np.ndarray, adv: np.ndarray) -> np.ndar
     return np.nan_to_num(out, nan=0.0, posinf=0.0)
 
 
-def share_cap(cap: float, demand: np.ndarray, forced: np.ndarray) -> np.ndarray:
-    """Shares of one name allotted to each account under a cap of ``cap`` shares.
+def share_caps(cap: np.ndarray, demand: np.ndarray, forced: np.ndarray, navs: np.ndarray) -> np.ndarray:
+    """Shares of every name allotted to each account under the caps (accounts × names).
 
     Parameters
     ----------
-    cap : float
-        Gross shares all accounts together may trade.
+    cap : numpy.ndarray
+        Gross shares all accounts together may trade, per name.
     demand : numpy.ndarray
-        Each account's |shares| wanted in this name before the cap.
+        Each account's |shares| wanted per name before the caps (accounts × names).
     forced : numpy.ndarray
-        Shares each account must trade to meet its own position limits; granted first.
+        Shares each account must trade to meet its own position limits (accounts × names).
+    navs : numpy.ndarray
+        The accounts' NAVs.
 
     Returns
     -------
     numpy.ndarray
-        Allotted shares, Σ ≤ cap: forced trades first (pro rata among themselves when they alone
-        exceed the cap, so those accounts cannot solve and are reported), the rest pro rata to
-        demand − forced.
+        Allotted shares; every column sums to at most its cap. Where the demands exceed the cap:
+        forced trades first (pro rata among themselves when they alone exceed it), the rest pro rata
+        to demand − forced. Where the cap has room: each account keeps its demand, and the room left
+        is shared by NAV, so an account can still move into a name it did not want at first.
     """
-    demand = np.abs(demand)
+    demand = np.maximum(np.abs(demand), np.abs(forced))
     forced = np.abs(forced)
-    if float(forced.sum()) >= cap:
-        return forced * (cap / float(forced.sum())) if forced.sum() > 0 else np.zeros_like(forced)
-    left = cap - float(forced.sum())
-    extra = np.maximum(demand - forced, 0.0)
-    total = float(extra.sum())
-    if total <= 0.0:
-        return forced.copy()
-    return forced + extra * min(1.0, left / total)
+    total = demand.sum(axis=0)
+    out = demand + np.maximum(cap - total, 0.0)[None, :] * (navs / navs.sum())[:, None]
+    for i in np.flatnonzero(total > cap):
+        need = float(forced[:, i].sum())
+        if need >= cap[i]:
+            out[:, i] = forced[:, i] * (cap[i] / need) if need > 0 else 0.0
+            continue
+        extra = demand[:, i] - forced[:, i]
+        out[:, i] = forced[:, i] + extra * min(1.0, (cap[i] - need) / float(extra.sum()))
+    return out

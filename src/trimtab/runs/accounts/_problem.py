@@ -71,8 +71,8 @@ class AccountProblem(RebalanceProblem):
         As for :class:`~trimtab.construct.RebalanceProblem`.
     exclude : sequence of int
         Positions of the assets the account must end without.
-    allotment : Mapping[int, float]
-        Asset position → most shares the account may trade in it (its share of the aggregate cap).
+    allotment : numpy.ndarray, optional
+        Most shares the account may trade in each asset (its share of the aggregate caps).
     pool_price : numpy.ndarray, optional
         πᵢ, the pooled impact price (fraction of the price) paid per unit traded.
     prices : numpy.ndarray, optional
@@ -81,10 +81,10 @@ class AccountProblem(RebalanceProblem):
 
     def __init__(self, spec: RebalanceSpec, data: ProblemData, solvers: Sequence[str] | None = None,
                  unknown_assets: str = "error", warm: Any = None, *, exclude: Sequence[int] = (),
-                 allotment: Mapping[int, float] | None = None, pool_price: np.ndarray | None = None,
+                 allotment: np.ndarray | None = None, pool_price: np.ndarray | None = None,
                  prices: np.ndarray | None = None) -> None:
         super().__init__(spec, data, solvers, unknown_assets, warm)
-        self.account_options = {"exclude": tuple(exclude), "allotment": dict(allotment or {}),
+        self.account_options = {"exclude": tuple(exclude), "allotment": allotment,
                                 "pool_price": pool_price, "prices": prices}
         self._attach()
 
@@ -95,12 +95,9 @@ class AccountProblem(RebalanceProblem):
             lower[list(o["exclude"])] = 0.0
             upper[list(o["exclude"])] = 0.0
             self.constraints.append(Exclude((lower, upper), data, self.spec))
-        if o["allotment"]:
-            cap = np.full(n, np.inf)
-            where = np.fromiter(o["allotment"], dtype=np.int64)
-            shares = np.fromiter(o["allotment"].values(), dtype=np.float64)
+        if o["allotment"] is not None:
             # + CAP_SLACK: a forced sale allotted exactly its size stays feasible in floating point
-            cap[where] = shares * o["prices"][where] / float(data.nav) + CAP_SLACK  # type: ignore[index]
+            cap = o["allotment"] * o["prices"] / float(data.nav) + CAP_SLACK  # type: ignore[operator]
             self.constraints.append(AggregateCap((-cap, cap), data, self.spec))
         for c in self.constraints:
             _ = c.rows

@@ -13,7 +13,7 @@ import pandas as pd
 from trimtab.errors import ConvergenceWarning, InputError
 from trimtab.runs._executors import Executor, InProcessExecutor, Outcome
 from trimtab.runs.accounts._inputs import Account, Aggregate, check_accounts, check_aggregate
-from trimtab.runs.accounts._pool import impact_price, pooled_shares, share_cap
+from trimtab.runs.accounts._pool import impact_price, pooled_shares, share_caps
 from trimtab.runs.accounts._result import AccountsResult, build_result
 from trimtab.runs.accounts._worker import STATUS_SOLVED, SharedInputs, Task, _Where, solve_account, solve_chunk
 
@@ -82,9 +82,10 @@ def rebalance_accounts(
     With pooled impact, round r solves every account with the impact price πʳ added to its linear
     cost rate; the pooled gross Gᵢ = Σₖ|qₖᵢ| then sets π̂ᵢ = ηᵢ·√(Gᵢ/ADVᵢ), and the rounds stop when
     max |π̂ − πʳ| ≤ tolerance (the pooled trades have settled: :mod:`trimtab.runs.accounts._pool`).
-    A cap on a name is shared out in the first round its pooled gross exceeds it, pro rata to the
-    accounts' demands in that round (forced sales of excluded names first); the accounts are then
-    held to their shares in every later round.
+    When the first round's pooled gross exceeds the cap in any name, every name's cap is shared out
+    (:func:`~trimtab.runs.accounts._pool.share_caps`: pro rata to demand where it binds, forced trades
+    first; the room left by NAV where it does not) and the accounts are held to their shares in every
+    later round.
 
     Examples
     --------
@@ -121,7 +122,7 @@ def rebalance_accounts(
     allot = state["allot"]
 
     def resolve(name: str) -> Any:
-        answer = solve_account(shared, by_name[name], final_price, allot.get(name, {}), True)
+        answer = solve_account(shared, by_name[name], final_price, allot.get(name), True)
         if answer["status"] != STATUS_SOLVED:
             raise InputError(f"accounts: account {name!r} did not solve again here: {answer['reason']}")
         return answer["result"]
@@ -166,9 +167,9 @@ def _chunks(accounts: list[Account], n_workers: int) -> list[tuple[Account, ...]
 
 
 def _round(runner: Executor, handle: Any, active: list[Account], price: np.ndarray | None,
-           allot: Mapping[str, Mapping[int, float]], keep: bool, progress: Any) -> dict[str, dict[str, Any]]:
+           allot: Mapping[str, np.ndarray], keep: bool, progress: Any) -> dict[str, dict[str, Any]]:
     parts = _chunks(active, runner.n_workers)
-    tasks = [Task(part, price, {a.name: allot.get(a.name, {}) for a in part}, keep) for part in parts]
+    tasks = [Task(part, price, {a.name: allot[a.name] for a in part if a.name in allot}, keep) for part in parts]
     answers: dict[str, dict[str, Any]] = {}
     for outcome in runner.map(solve_chunk, tasks, labels=[f"chunk{i}" for i in range(len(tasks))],
                               progress=progress, shared=handle):
@@ -187,7 +188,7 @@ def _equilibrium(runner: Executor, handle: Any, listed: list[Account], agg: Aggr
     """Rounds of solves until the pooled trades settle; the caps shared out as they bind."""
     n = 0 if adv is None else len(adv)
     price = None
-    allot: dict[str, dict[int, float]] = {}
+    allot: dict[str, np.ndarray] = {}
     capped = np.zeros(n, dtype=bool)
     cap = None if agg.max_adv_fraction is None or adv is None else agg.max_adv_fraction * adv
     answers: dict[str, dict[str, Any]] = {}
@@ -210,14 +211,17 @@ def _equilibrium(runner: Executor, handle: Any, listed: list[Account], agg: Aggr
         shares = pooled_shares(trades, navs, prices)
         gross = np.abs(shares).sum(axis=0)
         newly = np.zeros(n, dtype=bool)
-        if cap is not None:
-            newly = (gross > cap * (1.0 + CAP_SLACK) + 1e-6) & ~capped
-            for i in np.flatnonzero(newly):
-                forced = np.array([_forced(answers[a.name], int(i), prices) for a in active])
-                shared_out = share_cap(float(cap[i]), shares[:, i], forced)
-                for a, demand, got in zip(active, shares[:, i], shared_out, strict=True):
-                    allot.setdefault(a.name, {})[int(i)] = float(got)
-                    given.append({"account": a.name, "asset": i, "demand": abs(float(demand)), "allotted": float(got)})
+        if cap is not None and not allot and (gross > cap * (1.0 + CAP_SLACK) + 1e-6).any():
+            newly = gross > cap
+            forced = np.zeros_like(shares)
+            for k, a in enumerate(active):
+                for i, need in answers[a.name].get("forced", {}).items():
+                    forced[k, i] = need * navs[k] / prices[i]
+            shared_out = share_caps(cap, shares, forced, navs)
+            allot.update({a.name: shared_out[k] for k, a in enumerate(active)})
+            rows, cols = np.nonzero(newly[None, :] & (np.abs(shares) > 0))
+            given.extend({"account": active[k].name, "asset": int(i), "demand": abs(float(shares[k, i])),
+                          "allotted": float(shared_out[k, i])} for k, i in zip(rows, cols, strict=True))
             capped |= newly
         change = 0.0
         if eta is not None:
@@ -253,11 +257,6 @@ def next_price(current: np.ndarray, target: np.ndarray,
     slope = np.minimum(np.where(usable, slope, -1.0), -1.0)
     step = np.where(usable, -residual / slope, DAMPING * residual)
     return np.maximum(current + step, 0.0), (current, residual)
-
-
-def _forced(answer: dict[str, Any], i: int, prices: np.ndarray) -> float:
-    """Shares the account must trade in name i to meet its own position limits."""
-    return answer.get("forced", {}).get(i, 0.0) * answer["nav"] / prices[i]
 
 
 def _given_up(given: list[dict[str, Any]], prices: np.ndarray | None, assets: pd.Index) -> pd.DataFrame:

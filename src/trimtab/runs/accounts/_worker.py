@@ -45,7 +45,7 @@ class Task:
 
     accounts: tuple[Account, ...]
     pool_price: np.ndarray | None
-    allotments: Mapping[str, Mapping[int, float]]
+    allotments: Mapping[str, np.ndarray]
     keep_results: bool = False
 
 
@@ -89,7 +89,7 @@ def forget(token: str) -> None:
 
 
 def account_problem(shared: SharedInputs, account: Account, pool_price: np.ndarray | None,
-                    allotment: Mapping[int, float]) -> Any:
+                    allotment: np.ndarray | None) -> Any:
     """The account's problem, ready to solve; raises TrimtabError naming the account on bad data."""
     from trimtab.construct._data import prepare
     from trimtab.runs.accounts._problem import AccountProblem
@@ -129,7 +129,7 @@ class _Where:
 
 
 def solve_account(shared: SharedInputs, account: Account, pool_price: np.ndarray | None,
-                  allotment: Mapping[int, float], keep_result: bool) -> dict[str, Any]:
+                  allotment: np.ndarray | None, keep_result: bool) -> dict[str, Any]:
     """One account's answer: status and reason, or its weights, figures and (optionally) full result."""
     started = time.perf_counter()
     answer: dict[str, Any] = {"account": account.name}
@@ -219,6 +219,6 @@ def solve_chunk(task: Task, shared: SharedInputs) -> list[dict[str, Any]]:
     """Solve every account of a chunk; one account's failure is its own row, never the chunk's."""
     out = []
     for account in task.accounts:
-        allotment = task.allotments.get(account.name, {})
+        allotment = task.allotments.get(account.name)
         out.append(solve_account(shared, account, task.pool_price, allotment, task.keep_results))
     return out
