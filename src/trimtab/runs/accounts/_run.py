@@ -167,9 +167,9 @@ def _chunks(accounts: list[Account], n_workers: int) -> list[tuple[Account, ...]
 
 
 def _round(runner: Executor, handle: Any, active: list[Account], price: np.ndarray | None,
-           allot: Mapping[str, np.ndarray], keep: bool, progress: Any) -> dict[str, dict[str, Any]]:
+           allot: Mapping[str, np.ndarray], keep: bool, progress: Any, warm: bool) -> dict[str, dict[str, Any]]:
     parts = _chunks(active, runner.n_workers)
-    tasks = [Task(part, price, {a.name: allot[a.name] for a in part if a.name in allot}, keep) for part in parts]
+    tasks = [Task(part, price, {a.name: allot[a.name] for a in part if a.name in allot}, keep, warm) for part in parts]
     answers: dict[str, dict[str, Any]] = {}
     for outcome in runner.map(solve_chunk, tasks, labels=[f"chunk{i}" for i in range(len(tasks))],
                               progress=progress, shared=handle):
@@ -196,11 +196,12 @@ def _equilibrium(runner: Executor, handle: Any, listed: list[Account], agg: Aggr
     log: list[dict[str, Any]] = []
     given: list[dict[str, Any]] = []
     memory: tuple[np.ndarray, np.ndarray] | None = None
-    converged, rounds = False, 0
+    converged, rounds, warm = False, 0, True
     seen = price
     for rounds in range(1, agg.max_rounds + 1):
         seen = price  # the prices this round's solves see
-        answers.update(_round(runner, handle, active, price, allot, keep, progress))
+        answers.update(_round(runner, handle, active, price, allot, keep, progress, warm))
+        warm = True
         active = [a for a in active if answers[a.name]["status"] == STATUS_SOLVED]
         if not agg.active or not active:
             converged = True
@@ -223,6 +224,7 @@ def _equilibrium(runner: Executor, handle: Any, listed: list[Account], agg: Aggr
             given.extend({"account": active[k].name, "asset": int(i), "demand": abs(float(shares[k, i])),
                           "allotted": float(shared_out[k, i])} for k, i in zip(rows, cols, strict=True))
             capped |= newly
+            warm = False  # the next round's bounds are new: its solves start cold
         change = 0.0
         if eta is not None:
             target = impact_price(eta, gross, adv)

@@ -2,8 +2,8 @@
 
 The shared inputs (model, scenario, alpha, benchmark, attributes) reach a worker once (scattered on
 Dask). The first chunk a worker runs aligns them to the model (:func:`built`); every later chunk and
-every later round of the equilibrium reuses that, and each account's problem starts from the last
-converged interior point the worker found (the warm start the what-if re-solves use).
+every later round of the equilibrium reuses that, and an account solved again in a later round starts
+from its own last converged interior point (the warm start the what-if re-solves use).
 """
 
 from __future__ import annotations
@@ -47,6 +47,9 @@ class Task:
     pool_price: np.ndarray | None
     allotments: Mapping[str, np.ndarray]
     keep_results: bool = False
+    #: start each account from its own last interior point (False right after the caps were shared:
+    #: the new bounds make the old point a worse start than a cold one)
+    warm: bool = True
 
 
 @dataclass(eq=False)
@@ -55,7 +58,10 @@ class Built:
 
     data: Any
     long_book: bool
-    warm: Any
+    #: account → its last converged interior point on this worker (a warm start pays for the same
+    #: account in the next round; from another account's point it cost 45 iterations against 28 cold,
+    #: measured on 30 accounts of 100 names in 1,500)
+    warm: dict[str, Any] = field(default_factory=dict)
     specs: dict[str, Any] = field(default_factory=dict)
 
 
@@ -69,14 +75,13 @@ def built(shared: SharedInputs) -> Built:
     found = _BUILT.get(shared.token)
     if found is not None:
         return found
-    from trimtab.construct import _fast
     from trimtab.construct._data import prepare
     from trimtab.construct._problem import _long_book
 
     long_book = _long_book(shared.spec)
     data = prepare(shared.model, holdings=None, benchmark=shared.benchmark, alpha=shared.alpha,
                    attributes=shared.attributes, nav=None, unknown_assets=shared.unknown_assets, long_book=long_book)
-    found = Built(data, long_book, _fast.WarmBox())
+    found = Built(data, long_book)
     while len(_BUILT) >= _KEEP:
         _BUILT.pop(next(iter(_BUILT)))
     _BUILT[shared.token] = found
@@ -110,7 +115,10 @@ def account_problem(shared: SharedInputs, account: Account, pool_price: np.ndarr
         raise type(err)(f"{where}: {err}") from None
     data = base.data.with_changes(holdings=fresh.holdings, nav=fresh.nav, sold_outside=fresh.sold_outside)
     exclude = data.index_of(account.exclude, _Where(f"{where}: exclude")) if account.exclude else ()
-    problem = AccountProblem(spec, data, shared.solvers, shared.unknown_assets, base.warm, exclude=list(exclude),
+    from trimtab.construct import _fast
+
+    warm = base.warm.setdefault(account.name, _fast.WarmBox())
+    problem = AccountProblem(spec, data, shared.solvers, shared.unknown_assets, warm, exclude=list(exclude),
                              allotment=allotment, pool_price=pool_price, prices=shared.prices)
     problem.changed = tuple(dict.fromkeys(k.removeprefix("constraints.").split(".", 1)[0] for k in account.limits))
     return problem
@@ -219,6 +227,8 @@ def solve_chunk(task: Task, shared: SharedInputs) -> list[dict[str, Any]]:
     """Solve every account of a chunk; one account's failure is its own row, never the chunk's."""
     out = []
     for account in task.accounts:
+        if not task.warm:
+            built(shared).warm.pop(account.name, None)
         allotment = task.allotments.get(account.name)
         out.append(solve_account(shared, account, task.pool_price, allotment, task.keep_results))
     return out
