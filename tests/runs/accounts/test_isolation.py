@@ -98,3 +98,15 @@ def test_shares_with_prices_and_the_weights_agree(small) -> None:
     b = run(small, {name: book[name]})
     assert a.summary.at[name, "nav"] == pytest.approx(nav)
     assert np.abs(a.weights[name] - b.weights[name]).max() < 1e-7
+
+
+@pytest.mark.slow
+def test_a_process_pool_gives_the_same_answers(small) -> None:
+    book = {k: dict(v) for k, v in small[4].items()}
+    book["acct0003"]["limits"] = {"tracking_error.max": 0.0005, "turnover.max": 0.001}
+    here = run(small, book, aggregate={"max_adv_fraction": 0.05})
+    with trimtab.get_executor("processes", workers=2) as pool:
+        there = run(small, book, aggregate={"max_adv_fraction": 0.05}, executor=pool)
+    assert list(there.summary["status"]) == list(here.summary["status"])
+    assert np.abs(there.weights - here.weights).to_numpy().max() < 1e-7
+    assert there.summary.at["acct0003", "conflict"] == here.summary.at["acct0003", "conflict"]
