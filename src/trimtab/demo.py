@@ -393,13 +393,5 @@ constraints:
 """,
 }
 
-def demo_account_tables(fund: DemoFund) -> dict[str, pd.DataFrame]:
-    """The 200 invented separately managed accounts (``trimtab accounts``): file stem → table."""
-    from trimtab.runs.accounts._demo import demo_accounts
-
-    accounts, holdings = demo_accounts(fund)
-    return {"accounts": accounts, "account_holdings": holdings}
-
-
 #: The scenarios ``trimtab demo`` runs, in the order of its comparison table.
 DEMO_SCENARIOS: tuple[str, ...] = ("base", "neutral_size_momentum", "low_turnover", "infeasible")

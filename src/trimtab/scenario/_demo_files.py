@@ -6,7 +6,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from trimtab.demo import DEMO_FILES, DemoFund, demo_account_tables
+from trimtab.demo import DEMO_FILES, DemoFund
+from trimtab.scenario._demo_accounts import demo_account_tables
 
 
 def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:

@@ -15,7 +15,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab.runs._report import PALETTE, _figure, _percent, _svg, figure_block, html_table, write_page
+from trimtab.report._pages import PALETTE, _figure, _percent, _svg, figure_block, html_table, write_page
 from trimtab.runs.accounts._result import AccountsResult
 
 #: Accounts listed as the worst by tracking error and by expected alpha.
@@ -35,7 +35,7 @@ def write_accounts(result: AccountsResult, target: str | Path, *, inputs: Sequen
                    title: str = "Accounts") -> list[str]:
     """summary.csv, orders.csv, orders/<account>.csv, blocks.csv, given_up.csv, weights.csv,
     convergence.csv, result.json and report.html into ``target``; returns the files written."""
-    from trimtab.scenario import output_folder
+    from trimtab._output import output_folder
 
     files: list[str] = []
     with output_folder(Path(target), inputs) as tmp:

@@ -15,12 +15,12 @@ from typing import Annotated
 
 import typer
 
-from trimtab._cli_guard import EXIT_INFEASIBLE, guarded
-from trimtab._cli_guard import fail as _fail
-from trimtab.runs._commands import (
+from trimtab.cli._app import (
     ExecutorOpt, JsonOpt, QuietOpt, ScenarioArg, SchedulerOpt, WorkersOpt, _emit, _executor, _flags, _say, _say_table,
-    progress_bar,
+    add_commands, family, progress_bar,
 )
+from trimtab.cli._guard import EXIT_INFEASIBLE
+from trimtab.cli._guard import fail as _fail
 
 AccountsOpt = Annotated[Path, typer.Option("--accounts", help="One account per row: account, nav, cash, exclude (a;b;c) and limit columns such as tracking_error.max.", show_default=False)]
 HoldingsOpt = Annotated[Path, typer.Option("--holdings", help="Long format: account, asset, and weight or shares.", show_default=False)]
@@ -30,7 +30,6 @@ ImpactOpt = Annotated[float | None, typer.Option("--impact", help="Square-root i
 OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/accounts-<name> next to the scenario).", show_default=False)]
 
 
-@guarded
 def accounts_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
@@ -54,7 +53,7 @@ def accounts_command(
     blocks.csv, given_up.csv, weights.csv and report.html. Exits 1 when any account did not solve.
     """
     from trimtab.runs.accounts import rebalance_accounts
-    from trimtab.runs.accounts._read import read_accounts
+    from trimtab.scenario._accounts import read_accounts
     from trimtab.runs.accounts._writer import write_accounts
     from trimtab.scenario import load_inputs, load_scenario
 
@@ -93,6 +92,7 @@ def accounts_command(
               "the others' orders are written", EXIT_INFEASIBLE)
 
 
+@family
 def register(app: typer.Typer) -> None:
-    """Add ``accounts`` to the main command-line app."""
-    app.command("accounts")(accounts_command)
+    """Add ``accounts`` to the command line."""
+    add_commands(app, {"accounts": accounts_command})

@@ -52,3 +52,9 @@ def demo_accounts(fund: Any, n_accounts: int = N_DEMO_ACCOUNTS, seed: int = 11) 
     return pd.DataFrame(rows), pd.concat(holdings, ignore_index=True)
 
 
+
+
+def demo_account_tables(fund: Any) -> dict[str, pd.DataFrame]:
+    """The demo's accounts as the files ``trimtab demo`` writes: file stem → table."""
+    accounts, holdings = demo_accounts(fund)
+    return {"accounts": accounts, "account_holdings": holdings}

@@ -32,7 +32,7 @@ OVERRIDE_KEYS = ("limits", "exclude")
 def read_accounts(accounts_path: Path, holdings_path: Path, spec: Any, *,
                   overrides_path: Path | None = None) -> dict[str, dict[str, Any]]:
     """The ``accounts`` mapping :func:`trimtab.rebalance_accounts` takes, read from the files."""
-    from trimtab.scenario import read_table
+    from trimtab.scenario._loaders import read_table
 
     table = read_table(accounts_path, what="accounts")
     if "account" not in table.columns:
@@ -81,7 +81,7 @@ def read_accounts(accounts_path: Path, holdings_path: Path, spec: Any, *,
 
 
 def _read_holdings(path: Path, known: set[str]) -> pd.DataFrame:
-    from trimtab.scenario import read_table
+    from trimtab.scenario._loaders import read_table
 
     frame = read_table(path, what="holdings")
     missing = [c for c in ("account", "asset") if c not in frame.columns]
@@ -112,7 +112,7 @@ def _read_holdings(path: Path, known: set[str]) -> pd.DataFrame:
 
 
 def _read_overrides(path: Path, known: set[str]) -> dict[str, dict[str, Any]]:
-    from trimtab._strict_yaml import read_yaml
+    from trimtab.scenario._strict_yaml import read_yaml
 
     body = read_yaml(path, what="overrides")
     if not isinstance(body, dict):
