@@ -24,7 +24,7 @@ from trimtab.cli._guard import fail as _fail
 
 AccountsOpt = Annotated[Path, typer.Option("--accounts", help="One account per row: account, nav, cash, exclude (a;b;c) and limit columns such as tracking_error.max.", show_default=False)]
 HoldingsOpt = Annotated[Path, typer.Option("--holdings", help="Long format: account, asset, and weight or shares.", show_default=False)]
-OverridesOpt = Annotated[Path | None, typer.Option("--overrides", help="YAML: account → {limits: {key: value}, exclude: [assets]}.", show_default=False)]
+OverridesOpt = Annotated[Path | None, typer.Option("--overrides", help="YAML: account → {limits: {key: value}, exclude: \\[assets]}.", show_default=False)]
 CapOpt = Annotated[float | None, typer.Option("--max-adv-fraction", help="Cap on the shares traded per name over all accounts, a fraction of ADV (0.05 = 5%).", min=0.0, max=1.0, show_default=False)]
 ImpactOpt = Annotated[float | None, typer.Option("--impact", help="Square-root impact coefficient: a pooled block of G shares moves the price by impact·√(G/ADV).", min=0.0, show_default=False)]
 OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Output folder (default: results/accounts-<name> next to the scenario).", show_default=False)]
