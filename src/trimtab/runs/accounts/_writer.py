@@ -112,6 +112,7 @@ def overview_sections(result: AccountsResult) -> list[tuple[str, str]]:
         cut = result.given_up[result.given_up["given_up"] > 0]
         by_account = cut.groupby("account").agg(names=("asset", "size"), shares=("given_up", "sum"),
                                                 notional=("given_up_notional", "sum")).sort_values("notional", ascending=False)
+        by_account[["shares", "notional"]] = by_account[["shares", "notional"]].round().astype("int64")  # whole units, shown 1,234
         sections.append(("Given up to the cap (largest first)", html_table(by_account.head(WORST * 2))))
     return sections
 
@@ -146,5 +147,5 @@ def _blocks_chart(blocks: pd.DataFrame, cap: float | None) -> dict[str, str]:
     ax.set_ylabel("gross shares, fraction of ADV")
     _percent(ax)
     ax.grid(alpha=0.3, axis="y")
-    ax.legend(loc="upper right", frameon=False, fontsize=9)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=9)
     return {f"The {len(top)} largest blocks against ADV (all accounts together)": _svg(fig, "acc-blocks")}
