@@ -45,7 +45,7 @@ def accounts_command(
     json_output: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
-    """Rebalance many accounts on one scenario (model, alpha, benchmark, limits), their trades pooled.
+    """Rebalance many accounts on one scenario and model, their trades pooled.
 
     Each account brings its holdings, NAV, exclusions and limit overrides. The trades of all accounts
     are priced with the impact of the pooled block (rounds until the pooled trades settle) and held
