@@ -257,7 +257,8 @@ def attribute_returns_command(
             raise InputError("attribute-returns: give --model and --returns (or --backtest FOLDER)")
         if (weights is None) == (holdings is None):
             raise InputError("attribute-returns: give exactly one of --weights (dates × assets) or --holdings (held fixed)")
-        asset_returns = _span(_dated_file(returns, "returns"), start, end)
+        all_returns = _dated_file(returns, "returns")
+        asset_returns = _span(all_returns, start, end)
         if holdings is not None:
             book = _book(fm, holdings, benchmark, attributes, 0.0, None)
             held: Any = book.holdings
@@ -265,8 +266,12 @@ def attribute_returns_command(
             attrs = book.attributes
         else:
             assert weights is not None
-            # a row dated t is held over the period whose return is dated t, until the next row
-            held = _dated_file(weights, "weights").reindex(asset_returns.index, method="ffill").fillna(0.0)
+            from trimtab.attribution._periods import weights_per_period
+            from trimtab.scenario._loaders import load_dated_weights
+            from trimtab.scenario._schema import ReturnsFile
+
+            book_rows = load_dated_weights(ReturnsFile.model_validate({"path": str(weights)}))
+            held = weights_per_period(book_rows, all_returns.index, asset_returns.index, str(weights))
             bench, attrs = _benchmark_and_attributes(fm, benchmark, attributes)
         result = attribute_returns(fm, held, asset_returns, factors, benchmark=bench, linking=linking)
         groups = _groups(attrs, group_by)

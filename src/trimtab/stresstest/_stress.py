@@ -15,6 +15,8 @@ import pandas as pd
 
 from trimtab._validation import list_labels
 from trimtab.errors import InputError
+from trimtab.units import check_book
+from trimtab.stresstest._entries import split_shocks
 from trimtab.stresstest._moves import checked_horizon, full_moves, plausibility, shock_set
 
 if TYPE_CHECKING:
@@ -203,7 +205,10 @@ def stress(
         raise InputError(f"stress: conditional must be True or False, got {conditional!r}")
     h = checked_horizon(horizon, model.periods_per_year)
     w = model.weights_array(holdings, name="holdings")
+    check_book(w, "stress", "holdings")
     b = model.weights_array(benchmark, name="benchmark") if benchmark is not None else None
+    if b is not None:
+        check_book(b, "stress", "benchmark")
     shock, moves, extra = shock_moves(model, shocks, conditional=bool(conditional), specific=specific, groups=groups)
     names = shock.names
     named = shock.named.to_numpy(dtype=np.float64)
@@ -248,6 +253,11 @@ def shock_moves(model: FactorModel, shocks: Any, *, conditional: bool,
                 groups: pd.Series | None = None) -> tuple[Any, np.ndarray, np.ndarray | None]:
     """The checked shocks, their full factor moves (shock × factor) and the specific moves
     (shock × asset, or None): what :func:`stress` applies, and all it can refuse in its inputs."""
+    shocks, inline = split_shocks(shocks)
+    if inline:
+        if specific is not None and not isinstance(specific, Mapping):
+            raise InputError(f"stress: specific: expected a mapping shock → {{asset or group: move}}, got {type(specific).__name__}")
+        specific = {**inline, **(specific or {})}
     shock = shock_set(shocks, model.factors)
     named = shock.named.to_numpy(dtype=np.float64)
     moves = full_moves(model._F, named, conditional=conditional, names=shock.names, factors=list(model.factors))
