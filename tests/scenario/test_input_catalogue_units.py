@@ -20,8 +20,8 @@ from tests.scenario.test_input_catalogue import (
     both,
     demo_source,  # noqa: F401 - the module's demo folder
     edit,
+    run_case,
     runner,
-    snapshot,
     work,  # noqa: F401 - a private copy of it per test
     write,
 )
@@ -119,14 +119,7 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
 
 @pytest.mark.parametrize(("change", "command", "code", "pattern"), [c[1:] for c in CASES], ids=[c[0] for c in CASES])
 def test_catalogue(work: Path, monkeypatch: pytest.MonkeyPatch, change: Callable[[Path], None], command: list[str], code: int, pattern: str) -> None:
-    change(work)
-    monkeypatch.chdir(work)
-    before = snapshot(work)
-    result = runner.invoke(app, command)
-    assert result.exit_code == code, (result.exit_code, result.stderr, result.stdout[-500:])
-    assert_one_line(result.stderr, result.stdout, pattern)
-    assert snapshot(work) == before  # no output written, no input changed
-
+    run_case(work, monkeypatch, change, command, code, pattern)
 
 # ---------------------------------------------------------------------- the other two paths
 def test_fractions_pass_and_declared_percent_is_converted(work: Path, monkeypatch: pytest.MonkeyPatch) -> None:
