@@ -33,6 +33,8 @@ def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path |
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
     from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
 
+    if nav is not None and not nav > 0:
+        raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
     attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
     columns = set(read_table(holdings, what="holdings").columns)
     kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
