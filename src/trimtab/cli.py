@@ -25,6 +25,7 @@ import typer
 
 from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_INTERNAL, EXIT_SOLVER, guarded  # noqa: F401 - re-exported
 from trimtab._cli_guard import fail as _fail
+from trimtab._cli_usage import OneLineGroup
 from trimtab._version import __version__
 from trimtab.errors import InfeasibleError, InputError, SolverError
 
@@ -43,6 +44,7 @@ app = typer.Typer(
     add_completion=False,
     pretty_exceptions_enable=False,
     context_settings={"help_option_names": ["-h", "--help"]},
+    cls=OneLineGroup,  # one-line usage errors, global options in either place, plain help placeholders
 )
 
 F = TypeVar("F", bound=Callable[..., Any])
@@ -152,7 +154,7 @@ def _root(
         bool, typer.Option("--version", callback=_version, is_eager=True, help="Print the version and exit.", metavar="")
     ] = False,
 ) -> None:
-    """Global options go before the command: `trimtab --json check base.yaml`."""
+    """Global options go before or after the command: `trimtab --json check base.yaml`."""
     ctx.obj = Ui(json=json_output, quiet=quiet, verbose=verbose)
 
 
