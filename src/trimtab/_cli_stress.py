@@ -55,7 +55,8 @@ def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | 
     return attributes[column]
 
 
-def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None) -> None:
+def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None,
+          realised: bool = False) -> None:
     from trimtab.cli import _ui
 
     ui = _ui(ctx)
@@ -64,9 +65,9 @@ def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | N
         ui.out.print(text, markup=False, highlight=False)
         if out is not None and files:
             ui.say(f"Wrote {len(files)} files to {out}")
-        from trimtab.report import CAUTION
+        from trimtab.report import CAUTION, REALISED_CAUTION
 
-        ui.out.print(f"[italic]{CAUTION}[/italic]")
+        ui.out.print(f"[italic]{REALISED_CAUTION if realised else CAUTION}[/italic]")
 
 
 # ---------------------------------------------------------------------- stress
@@ -292,7 +293,7 @@ def attribute_returns_command(
     document: dict[str, Any] = {"linked": result.factor_table(), "total": float(result.linked["total"])}
     if backtest is not None:
         document["compounded_active_returns"] = chained
-    _show(ctx, text, document, out, files)
+    _show(ctx, text, document, out, files, realised=True)
 
 
 def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Path | None) -> tuple[pd.Series | None, pd.DataFrame | None]:
