@@ -153,8 +153,10 @@ def stress(
     holdings : pandas.Series or array
         Weights of NAV by asset (assets the Series lacks hold 0).
     shocks : Mapping[str, Mapping[str, float]] or pandas.DataFrame
-        Shock name → {factor: move}, a return over the shock in the model's units (0.10 is +10%);
-        or a shock × factor DataFrame with NaN for factors not named.
+        Shock name → {factor: move}, a return over the shock as a fraction (0.10 is +10%; a move of
+        100% or more is refused as a likely percentage); or name → {factors: {factor: move},
+        specific: {...}, description: ...} as shock files write it; or a shock × factor DataFrame
+        with NaN for factors not named.
     benchmark : pandas.Series or array, optional
         Benchmark weights; gives the ``benchmark`` and ``active`` columns.
     conditional : bool, default True
@@ -176,7 +178,8 @@ def stress(
     Raises
     ------
     InputError
-        Unknown factors, assets, groups or shock names; non-finite moves; a bad horizon.
+        Unknown factors, assets, groups or shock names; non-finite moves or moves of 100% or more;
+        a bad horizon; a book that is not weights of NAV (:func:`trimtab.units.check_book`).
     ModelError
         When the covariance of a shock's named factors is singular and conditioning needs it.
 
