@@ -47,12 +47,12 @@ _MAD_TO_SD = 1.4826
 
 
 def unit_scale(unit: Any, where: str) -> float:
-    """1.0 for ``fraction``, 0.01 for ``percent``; anything else is an error naming ``where``."""
+    """1.0 for ``fraction``, 0.01 for ``percent``; anything else is an error naming ``where`` (the setting)."""
     if unit == "fraction":
         return 1.0
     if unit == "percent":
         return 0.01
-    raise InputError(f"{where}: unit must be one of {', '.join(UNITS)}, got {unit!r}")
+    raise InputError(f"{where} must be one of {', '.join(UNITS)}, got {unit!r}")
 
 
 def periods_per_year_of(index: pd.Index) -> float | None:
