@@ -56,8 +56,10 @@ def explore(
                             http=DeadlineH11Protocol, limit_concurrency=64, timeout_keep_alive=5)
     server = uvicorn.Server(config)
     # the address is the command's output, shown even with --quiet: without its token nothing answers
-    if ui.json:
-        ui.emit({"scenario": explorer.scenario.name, "url": url, "token": app.state.token})
+    if ui.json:  # one line, for a program that starts the server and reads its address
+        import json
+
+        sys.stdout.write(json.dumps({"scenario": explorer.scenario.name, "url": url, "token": app.state.token}) + "\n")
     else:
         sys.stdout.write(f"Exploring {explorer.scenario.name} at {url}  (Ctrl-C stops)\n")
     sys.stdout.flush()
