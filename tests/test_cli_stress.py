@@ -121,6 +121,12 @@ def test_a_backtest_of_several_scenarios_asks_which(demo: Path, tmp_path: Path) 
     assert "add --scenario base or --scenario low_turnover" in result.output
     result = in_folder(demo, "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "nope")
     assert result.exit_code == EXIT_BAD_INPUT and "--scenario nope: not in" in result.output
+    shown = in_folder(demo, "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "low_turnover", "--out", tmp_path / "ar")
+    assert shown.exit_code == 0, shown.output
+    # issue #20: realised returns carry a caution that fits them, not the forecasts' one
+    assert "past returns split by a risk model, not a forecast" in " ".join(shown.stdout.split()) and "model forecasts" not in shown.stdout
+    page = (tmp_path / "ar" / "report.html").read_text(encoding="utf-8")
+    assert "past returns split by a risk model, not a forecast" in page and "model forecasts" not in page
     result = in_folder(demo, "--json", "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "low_turnover")
     assert result.exit_code == 0, result.output
     history = pd.read_csv(bt / "history.csv").query("scenario == 'low_turnover'").dropna(subset=["realised_active"])
