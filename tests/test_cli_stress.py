@@ -192,3 +192,17 @@ def test_attribute_returns_with_a_weights_history(demo: Path, tmp_path: Path) ->
                                     benchmark=bench.reindex(model.assets, fill_value=0.0))
     assert api.linked["total"] == pytest.approx(document["total"], rel=1e-12)
     assert api.by_period.loc[:"2023-08-31", "total"].abs().max() < 1e-15
+
+
+def test_the_command_in_the_demo_shock_file_runs(demo: Path) -> None:
+    # issue #20: the comment's command failed (share holdings need prices); it is run as written
+    import re
+    import shlex
+
+    text = (demo / "shocks.yaml").read_text(encoding="utf-8")
+    comment = " ".join(line.lstrip("# ").strip() for line in text.splitlines() if line.startswith("#"))
+    command = re.search(r"`trimtab (stress [^`]+)`", comment)
+    assert command is not None, comment
+    result = in_folder(demo, *shlex.split(command.group(1)))
+    assert result.exit_code == 0, result.output
+    assert "equity_selloff" in result.stdout
