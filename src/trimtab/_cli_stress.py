@@ -187,11 +187,14 @@ def _backtest_tables(folder: Path) -> SimpleNamespace:
     return SimpleNamespace(**tables)
 
 
-def _dated_file(path: Path, what: str) -> pd.DataFrame:
+def _dated_file(path: Path, what: str, unit: str = "fraction") -> pd.DataFrame:
     from trimtab.scenario import load_returns
     from trimtab.scenario._schema import ReturnsFile
+    from trimtab.units import UNITS
 
-    return load_returns(ReturnsFile.model_validate({"path": str(path)}), what=what)
+    if unit not in UNITS:
+        raise InputError(f"--unit: expected one of {', '.join(UNITS)}, got {unit!r}")
+    return load_returns(ReturnsFile.model_validate({"path": str(path), "unit": unit}), what=what)
 
 
 def _span(frame: pd.DataFrame, start: str | None, end: str | None) -> pd.DataFrame:
@@ -223,6 +226,8 @@ def attribute_returns_command(
     end: Annotated[str | None, typer.Option("--end", help="Last date to attribute.", metavar="YYYY-MM-DD", show_default=False)] = None,
     linking: Annotated[str, typer.Option("--linking", help="How periods are linked: carino (logarithmic) or sum.", metavar="carino|sum")] = "carino",
     group_by: Annotated[str | None, typer.Option("--group-by", help="Attributes column to sum the asset contributions by.", show_default=False)] = None,
+    unit: Annotated[str, typer.Option("--unit", help="Unit of the --returns and --factor-returns files: fraction (0.01 is 1%) or percent (divided by 100).",
+                                      metavar="fraction|percent")] = "fraction",
     out: OutOpt = None,
 ) -> None:
     """Explain a realised active return factor by factor, and what stock picking added.
@@ -238,7 +243,7 @@ def attribute_returns_command(
     from trimtab.attribution import attribute_backtest_returns, attribute_returns
 
     fm = FactorModel.load(model) if model is not None else None
-    factors = _dated_file(factor_returns, "factor returns") if factor_returns is not None else None
+    factors = _dated_file(factor_returns, "factor returns", unit) if factor_returns is not None else None
     inputs = [p for p in (model, returns, weights, holdings, benchmark, attributes, factor_returns, backtest) if p is not None]
     groups = None
     if backtest is not None:
@@ -260,7 +265,7 @@ def attribute_returns_command(
             raise InputError("attribute-returns: give --model and --returns (or --backtest FOLDER)")
         if (weights is None) == (holdings is None):
             raise InputError("attribute-returns: give exactly one of --weights (dates × assets) or --holdings (held fixed)")
-        all_returns = _dated_file(returns, "returns")
+        all_returns = _dated_file(returns, "returns", unit)
         asset_returns = _span(all_returns, start, end)
         if holdings is not None:
             book = _book(fm, holdings, benchmark, attributes, 0.0, None)

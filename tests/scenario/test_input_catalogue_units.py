@@ -216,3 +216,17 @@ def test_python_rebalance_refuses_percent_alpha_and_books() -> None:
         trimtab.rebalance(model, mapping, holdings=book * 100, alpha=alpha)
     with pytest.raises(trimtab.InputError, match=r"^attribute: weights sum to 100"):
         model.attribute(book * 100)
+
+
+def test_attribute_returns_declares_percent_with_unit(work: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.chdir(work)
+    weights_file("w.csv")(work)
+    plain = runner.invoke(app, ["--json", *ATTRIBUTE[:5], "--holdings", "w.csv"])
+    assert plain.exit_code == 0, plain.stderr
+    times_100("data/returns.parquet")(work)
+    declared = runner.invoke(app, ["--json", *ATTRIBUTE[:5], "--holdings", "w.csv", "--unit", "percent"])
+    assert declared.exit_code == 0, declared.stderr
+    assert "returns read as percent (unit: percent) and divided by 100" in declared.stderr
+    import json
+
+    assert json.loads(declared.stdout)["total"] == pytest.approx(json.loads(plain.stdout)["total"], rel=1e-9)
