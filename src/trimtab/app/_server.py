@@ -258,7 +258,7 @@ def create_app(explorer: Explorer, *, host: str = "127.0.0.1", port: int = 8765,
 
     @app.exception_handler(OSError)
     async def _environment(request: Request, exc: OSError) -> JSONResponse:
-        from trimtab._cli_guard import environment_line
+        from trimtab._paths import environment_line
 
         full = exc.errno in (errno.ENOSPC, errno.EDQUOT)
         return JSONResponse({"detail": _first_line(Exception(environment_line(exc)), explorer)}, status_code=507 if full else 500)

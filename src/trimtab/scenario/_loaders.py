@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from trimtab._strict_yaml import check_regular
+from trimtab.scenario._strict_yaml import check_regular
 from trimtab.units import check_alpha, check_book, check_returns, unit_scale
 from trimtab._validation import list_labels
 from trimtab.errors import InputError

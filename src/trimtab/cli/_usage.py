@@ -22,7 +22,7 @@ import typer
 from typer._click import exceptions as usage  # the click this typer ships (typer raises its classes)
 from typer.core import TyperArgument, TyperGroup
 
-from trimtab._cli_guard import EXIT_BAD_INPUT, write_error
+from trimtab.cli._guard import EXIT_BAD_INPUT, write_error
 
 #: The root's flags that may also follow the command.
 GLOBAL_FLAGS = ("--json", "--quiet", "-q", "--verbose", "-v")
