@@ -29,6 +29,7 @@ from typing import TYPE_CHECKING
 import typer
 
 from trimtab.cli._guard import guarded
+from trimtab.cli._usage import OneLineGroup
 from trimtab._version import __version__
 from trimtab.errors import InfeasibleError
 
@@ -51,6 +52,7 @@ app = typer.Typer(
     add_completion=False,
     pretty_exceptions_enable=False,
     context_settings={"help_option_names": ["-h", "--help"]},
+    cls=OneLineGroup,  # one-line usage errors, global options in either place, plain help placeholders
 )
 
 F = TypeVar("F", bound=Callable[..., Any])
@@ -160,7 +162,7 @@ def _root(
         bool, typer.Option("--version", callback=_version, is_eager=True, help="Print the version and exit.", metavar="")
     ] = False,
 ) -> None:
-    """Global options go before the command: `trimtab --json check base.yaml`."""
+    """Global options go before or after the command: `trimtab --json check base.yaml`."""
     ctx.obj = Ui(json=json_output, quiet=quiet, verbose=verbose)
 
 
