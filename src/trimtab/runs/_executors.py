@@ -13,7 +13,8 @@ caller with many similar solves):
    (``RebalanceProblem.solve(**changes)``): each re-solve starts FACTOR_IPM from its neighbour's
    point (the problem's ``warm`` box), 20–35% fewer iterations than a cold start.
 2. Pass what every chunk reads alike (the model, the book, the scenario) as ``shared``: a Dask
-   cluster receives it once, scattered to every worker, not once inside every task.
+   cluster receives it once, scattered to every worker, not once inside every task; across several
+   ``map`` calls, hold it with ``with executor.sharing(value) as shared:``.
 3. Keep items and results small and picklable (figures, weights), and the function a module-level
    name (workers import it).
 
@@ -24,11 +25,12 @@ Dask workers of a LocalCluster started here run without glibc's ``MALLOC_TRIM_TH
 from __future__ import annotations
 
 import concurrent.futures as cf
-import contextlib
 import logging
 import multiprocessing
 import os
+import uuid
 from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -112,6 +114,12 @@ class Executor:
     def n_workers(self) -> int:
         """How many runs can go at once."""
         return 1
+
+    @contextmanager
+    def sharing(self, shared: Any) -> Iterator[Any]:
+        """What to pass as ``shared`` to several :meth:`map` calls so it travels once: on Dask, a
+        handle to the value scattered to every worker (released on exit); elsewhere the value."""
+        yield shared
 
     def map(
         self,
@@ -259,9 +267,20 @@ class DaskRunner(Executor):
             if self._cluster is not None:
                 self._cluster.close(timeout=CLOSE_TIMEOUT)
 
+    @contextmanager
+    def sharing(self, shared: Any) -> Iterator[Any]:
+        handle = self._client.scatter(shared, broadcast=True, hash=False)
+        try:
+            yield _Scattered(handle)
+        finally:
+            handle.release()
+
     def _run(self, func: Callable[..., Any], items: list[Any], labels: list[str], shared: Any) -> Iterator[Outcome]:
         # the shared part travels once to each worker, not inside every task of the graph
         handle = None
+        if isinstance(shared, _Scattered):  # scattered once by sharing() for several map calls
+            yield from self._submit(func, items, labels, (shared.future,))
+            return
         if shared is not NOTHING:
             try:
                 handle = self._client.scatter(shared, broadcast=True, hash=False)
@@ -269,22 +288,33 @@ class DaskRunner(Executor):
                 for i in range(len(items)):
                     yield _outcome(labels, items, i, False, f"the shared inputs could not be sent: {_describe(err)}")
                 return
-        extra = () if handle is None else (handle,)
         try:
-            futures = [self._client.submit(call_safely, func, item, *extra, pure=False,
-                                           key=f"trimtab-{labels[i]}-{id(self)}-{i}") for i, item in enumerate(items)]
-            index = {f.key: i for i, f in enumerate(futures)}
-            for future in self._as_completed(futures):
-                i = index[future.key]
-                try:
-                    ok, value = future.result()
-                except Exception as err:  # noqa: BLE001 - a lost worker or a pickling failure
-                    ok, value = False, _describe(err)
-                future.release()
-                yield _outcome(labels, items, i, ok, value)
+            yield from self._submit(func, items, labels, () if handle is None else (handle,))
         finally:
             if handle is not None:
                 handle.release()
+
+    def _submit(self, func: Callable[..., Any], items: list[Any], labels: list[str], extra: tuple[Any, ...]) -> Iterator[Outcome]:
+        # a fresh key per call: a key repeated by a later map() could be served the earlier result
+        call = uuid.uuid4().hex[:12]
+        futures = [self._client.submit(call_safely, func, item, *extra, pure=False,
+                                       key=f"trimtab-{labels[i]}-{call}-{i}") for i, item in enumerate(items)]
+        index = {f.key: i for i, f in enumerate(futures)}
+        for future in self._as_completed(futures):
+            i = index[future.key]
+            try:
+                ok, value = future.result()
+            except Exception as err:  # noqa: BLE001 - a lost worker or a pickling failure
+                ok, value = False, _describe(err)
+            future.release()
+            yield _outcome(labels, items, i, ok, value)
+
+
+class _Scattered:
+    """A value scattered to every worker by :meth:`DaskRunner.sharing`."""
+
+    def __init__(self, future: Any) -> None:
+        self.future = future
 
 
 #: Seconds to wait for a new LocalCluster's workers, and for a client or cluster to close. Generous:
@@ -301,7 +331,7 @@ CLOSE_TIMEOUT = 60.0
 WORKER_ENV_UNSET = ("MALLOC_TRIM_THRESHOLD_",)
 
 
-@contextlib.contextmanager
+@contextmanager
 def worker_environment() -> Iterator[None]:
     """Start a LocalCluster's workers without :data:`WORKER_ENV_UNSET`, and leave this process's
     environment as it was found.
