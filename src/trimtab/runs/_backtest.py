@@ -235,8 +235,17 @@ def backtest(
             "impact": impact if not isinstance(impact, pd.Series) else "by asset",
             "fit": fit if isinstance(fit, Mapping) or fit is None else getattr(fit, "__name__", "callable"),
             "periods_per_year": done[order[0]].periods_per_year,
+            "alpha_rows_used": _alpha_rows_used(alpha, dates),
+            "alpha_factor": {t.name: float(t.scenario["alpha_factor"]["volatility"]) for t in tasks
+                             if t.name in done and isinstance(t.scenario.get("alpha_factor"), Mapping)},
         },
     )
+
+
+def _alpha_rows_used(alpha: pd.DataFrame, dates: Sequence[Any]) -> int:
+    """How many distinct rows of the alpha history the rebalance dates read (1: one vector reused)."""
+    positions = {AsOf(alpha, date).n_rows for date in dates}
+    return len(positions - {0})
 
 
 def _rates(value: float | pd.Series, name: str, assets: pd.Index) -> pd.Series:
