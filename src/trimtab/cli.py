@@ -285,10 +285,12 @@ def risk(
     nav: Annotated[float | None, typer.Option("--nav", help="Net asset value (currency); default Σ shares·price + cash.", min=0.0)] = None,
     top: Annotated[int, typer.Option("--top", help="How many top contributors to list.", min=1)] = 10,
     out: Annotated[Path | None, typer.Option("--out", "-o", help="Also write the tables, JSON and HTML report to this folder.")] = None,
+    alpha: Annotated[Path | None, typer.Option("--alpha", help="Alpha file: asset, alpha. Adds how much of it the model's factors span.")] = None,
 ) -> None:
     """Attribute a book's risk to factors, factor groups and positions.
 
-    With --benchmark the risk attributed is active risk (tracking error).
+    With --benchmark the risk attributed is active risk (tracking error). With --alpha, also how much
+    of the alpha the model's factors span (the rest the model prices as diversifiable).
     """
     from trimtab import FactorModel
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
@@ -308,12 +310,16 @@ def risk(
             raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
         book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav}), attrs)
         bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
+        scores = load_series(SeriesFile.model_validate({"path": str(alpha)}), "alpha", "alpha") if alpha is not None else None
         aligned = align_inputs(
-            fm.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
-            files={"holdings": str(holdings), "benchmark": str(benchmark)},
+            fm.assets, holdings=book.weights, benchmark=bench, alpha=scores, attributes=attrs,
+            files={"holdings": str(holdings), "benchmark": str(benchmark), "alpha": str(alpha)},
         )
         step("attributing risk")
         attribution = fm.attribute(aligned.holdings, aligned.benchmark, attributes=aligned.attributes)
+        from trimtab.model import alpha_alignment
+
+        fit_of_alpha = alpha_alignment(fm, aligned.alpha) if aligned.alpha is not None else None
         if out is not None:
             step("writing the report")
             from trimtab.report._desk import holdings_line
@@ -328,6 +334,8 @@ def risk(
                 "by_factor": attribution.by_factor,
                 "by_factor_group": attribution.by_factor_group,
                 "top_assets": attribution.top_assets(top),
+                **({"alpha_alignment": {"spanned_share": fit_of_alpha.spanned_share, "factors": fit_of_alpha.factors,
+                                        "warnings": list(fit_of_alpha.warnings)}} if fit_of_alpha is not None else {}),
             }
         )
         return
@@ -340,6 +348,8 @@ def risk(
         from trimtab.report._desk import holdings_line
 
         ui.say(holdings_line(kind, book.nav, book.cash, nav is not None))
+        if fit_of_alpha is not None:
+            ui.out.print(fit_of_alpha.summary().as_text(), markup=False)
         if out is not None:
             ui.say(f"Wrote the tables, result.json and report.html to {out}")
 
@@ -494,13 +504,17 @@ def demo(
 
     ui = _ui(ctx)
     t0 = time.perf_counter()
-    with ui.progress(total=10) as step:
+    with ui.progress(total=11) as step:
         done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
+        step("backtest: the alpha history, without and with the alpha factor")
+        from trimtab.runs._demo_backtest import run_demo_backtest
+        history = run_demo_backtest(out)
     fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
     _print_warnings(ui, {r.name: r.result for r in runs if r.result is not None})
     rows = headline_rows(done)
-    ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
+    ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows,
+             "backtest_bias": history.bias.to_dict(orient="index")})
     if not ui.chatty:
         return
     ui.say(
@@ -522,13 +536,15 @@ def demo(
             why = "is impossible on purpose (a 0.5% tracking-error cap with 2% turnover)" if run.name == "infeasible" else "is infeasible"
             ui.say(f"\n[bold]{run.name}[/bold] {why}:")
             _print_relaxation(ui, run.name, run.error)
+    ui.say("\n" + history.summary())
     files = [
-        ("data/", "the invented fund: returns, factor returns, holdings, benchmark, alpha, attributes"),
+        ("data/", "the invented fund: returns, factor returns, holdings, benchmark, alpha, alpha history, attributes"),
         ("model/", "the fitted risk model"),
         ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
         ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),
         ("results/compare/report.html", "the four scenarios side by side, the impossible one with its relaxation"),
         ("", "table (comparison.csv and one folder each; infeasible/relaxation.csv holds the raw numbers)"),
+        ("results/backtest/report.html", "base and alpha_factor backtested side by side on the alpha history"),
         ("*.yaml", "the scenarios and fit configs, ready to edit and rerun"),
     ]
     width = max(len(name) for name, _ in files) + 2

@@ -325,7 +325,7 @@ def backtest_command(
     ctx: typer.Context,
     scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files, run side by side.", metavar="SCENARIO.yaml", show_default=False)],
     fit: Annotated[Path | None, typer.Option("--fit", help="Fit config (returns, factor returns, estimator); default: the first scenario's model.fit.", show_default=False)] = None,
-    alpha_history: Annotated[Path | None, typer.Option("--alpha-history", help="Dates × assets alpha file (annualised); default: each scenario's alpha at every date.", show_default=False)] = None,
+    alpha_history: Annotated[Path | None, typer.Option("--alpha-history", help="Alpha by date (annualised): long (date, asset, alpha) or wide (date, one column per asset); default: the scenario's one alpha at every date.", show_default=False)] = None,
     window: Annotated[int, typer.Option("--window", help="Rows in the trailing estimation window.", min=2)] = 250,
     every: Annotated[int, typer.Option("--every", help="Rebalance every n-th row.", min=1)] = 21,
     start: Annotated[str | None, typer.Option("--start", help="First rebalance on or after this date.", metavar="YYYY-MM-DD", show_default=False)] = None,
@@ -372,7 +372,8 @@ def backtest_command(
     inputs = [first] + [load_inputs(s, model=first.model) for s in loaded[1:]]
     if alpha_history is not None:
         # model_validate: type checkers do not see the file spec's positional Field defaults
-        alpha = load_returns(ReturnsFile.model_validate({"path": str(alpha_history)}), what="alpha history")
+        # wide (a date column, one column per asset) or long (date, asset, alpha)
+        alpha = load_returns(ReturnsFile.model_validate({"path": str(alpha_history), "value_column": "alpha"}), what="alpha history")
     else:
         if first.alpha is None:
             raise InputError(f"{scenarios[0]}: data.alpha: give an alpha file or --alpha-history")
