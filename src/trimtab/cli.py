@@ -289,10 +289,9 @@ def risk(
 ) -> None:
     """Attribute a book's risk to factors, factor groups and positions.
 
-    With --benchmark the risk attributed is active risk (tracking error). With --alpha, also how much
-    of the alpha the model's factors span (the rest the model prices as diversifiable).
+    With --benchmark the risk attributed is active risk (tracking error); --alpha adds how much of the alpha the factors span.
     """
-    from trimtab import FactorModel
+    from trimtab import FactorModel, alpha_alignment
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
     from trimtab.scenario._run import write_attribution
     from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
@@ -317,8 +316,6 @@ def risk(
         )
         step("attributing risk")
         attribution = fm.attribute(aligned.holdings, aligned.benchmark, attributes=aligned.attributes)
-        from trimtab.model import alpha_alignment
-
         fit_of_alpha = alpha_alignment(fm, aligned.alpha) if aligned.alpha is not None else None
         if out is not None:
             step("writing the report")
@@ -334,8 +331,7 @@ def risk(
                 "by_factor": attribution.by_factor,
                 "by_factor_group": attribution.by_factor_group,
                 "top_assets": attribution.top_assets(top),
-                **({"alpha_alignment": {"spanned_share": fit_of_alpha.spanned_share, "factors": fit_of_alpha.factors,
-                                        "warnings": list(fit_of_alpha.warnings)}} if fit_of_alpha is not None else {}),
+                **({"alpha_alignment": fit_of_alpha.as_json()} if fit_of_alpha is not None else {}),
             }
         )
         return
@@ -494,12 +490,13 @@ def demo(
 ) -> None:
     """Simulate the invented demo fund and run the whole job on it.
 
-    Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them and
-    writes the HTML reports; prints the headline table and where the files went.
+    Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them,
+    backtests base against alpha_factor on an alpha history with skill and writes the HTML reports.
     """
     from rich.table import Table
 
     from trimtab._format import format_percent as _pct
+    from trimtab.runs._demo_backtest import run_demo_backtest
     from trimtab.scenario._demo_run import headline_rows, run_demo
 
     ui = _ui(ctx)
@@ -507,14 +504,12 @@ def demo(
     with ui.progress(total=11) as step:
         done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
         step("backtest: the alpha history, without and with the alpha factor")
-        from trimtab.runs._demo_backtest import run_demo_backtest
         history = run_demo_backtest(out)
     fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
     _print_warnings(ui, {r.name: r.result for r in runs if r.result is not None})
     rows = headline_rows(done)
-    ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows,
-             "backtest_bias": history.bias.to_dict(orient="index")})
+    ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows, "backtest_bias": history.bias.to_dict(orient="index")})
     if not ui.chatty:
         return
     ui.say(

@@ -210,10 +210,14 @@ class RebalanceResult:
     @cached_property
     def stress(self) -> pd.DataFrame | None:
         """Every shock of the scenario (stress_loss and stress), before and after the trade; see
-        :func:`trimtab.construct._stress_table.stress_table`. None when the scenario has no shocks."""
+        :func:`trimtab.construct._stress_table.stress_table`. None when the scenario has no shocks.
+        Shocks and replays run on the model's own factors: an alpha factor has no history and, being
+        uncorrelated with the others, no conditional move."""
+        from trimtab.construct._alpha_factor import base_model
         from trimtab.construct._stress_table import stress_table
 
-        return stress_table(self._model, self._holdings, self.weights, self.benchmark, self.scenario)
+        model = None if self._model is None else base_model(self._model)
+        return stress_table(model, self._holdings, self.weights, self.benchmark, self.scenario)
 
     def _attribution(self, weights: pd.Series | None) -> RiskAttribution | None:
         # the seam to trimtab.attribution: absent module (or no model) → no pre/post attribution

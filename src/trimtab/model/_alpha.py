@@ -103,6 +103,15 @@ class AlphaAlignment:
             "forecast (consider alpha_factor: {volatility: ...})",
         )
 
+    def as_json(self) -> dict[str, Any]:
+        """``{spanned_share, implied_factor_returns, share_of_alpha, warnings}``, JSON-ready."""
+        return {
+            "spanned_share": float(self.spanned_share),
+            "implied_factor_returns": {str(k): float(v) for k, v in self.factors["implied_return"].items()},
+            "share_of_alpha": {str(k): float(v) for k, v in self.factors["share_of_alpha"].items()},
+            "warnings": list(self.warnings),
+        }
+
     def summary(self, top: int = 5) -> AlphaAlignmentSummary:
         """The split in brief, with the ``top`` factors that carry most of the alpha."""
         return AlphaAlignmentSummary(self, top)
