@@ -363,6 +363,8 @@ def test_demo_small(tmp_path: Path) -> None:
     assert (root / "results" / "base" / "report.html").exists()
     assert (root / "results" / "compare" / "report.html").exists()
     assert (root / "model" / "manifest.json").exists()
+    # the demo backtest (#24): base and alpha_factor side by side, each with its bias statistic
+    assert result.stdout.count("    bias ") == 2 and (root / "results" / "backtest" / "report.html").exists()
     # the demo's scenarios run again from the folder it wrote
     assert invoke("--quiet", "check", root / "neutral_size_momentum.yaml").exit_code == 0
     # a second run replaces the folder it wrote, but never a folder it did not write
