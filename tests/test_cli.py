@@ -80,7 +80,7 @@ def test_check_ok_prints_alignment_and_json(work: Path) -> None:
 @pytest.mark.parametrize(
     ("edit", "pattern"),
     [
-        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: alerts, backtest, constraints, data"),
+        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: alerts, alpha_factor, backtest, constraints, data"),
         (lambda t: t.replace("kind: shares", "kind: lots"), r"data\.holdings\.kind: expected 'weights' or 'shares', got 'lots'"),
         (lambda t: t.replace("model: model", "model: missing_model"), r"missing_model: no such model folder"),
         (lambda t: t.replace("data/alpha.csv", "data/alpha.txt"), r"alpha\.txt: alpha file not found"),
