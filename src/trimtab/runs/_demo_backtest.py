@@ -10,10 +10,9 @@ from __future__ import annotations
 from pathlib import Path
 
 from trimtab.demo import DEMO_BACKTEST
-from trimtab.runs._backtest import backtest
+from trimtab.report._pages import write_backtest
+from trimtab.runs._backtest import backtest, fit_settings_mapping
 from trimtab.runs._backtest_result import BacktestResult
-from trimtab.runs._commands import fit_settings_mapping
-from trimtab.runs._report import write_backtest
 from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
 from trimtab.scenario._demo_alpha import EVERY, WINDOW
 from trimtab.scenario._run import variant_limits
