@@ -7,6 +7,7 @@ from pathlib import Path
 import pandas as pd
 
 from trimtab.demo import DEMO_FILES, DemoFund
+from trimtab.scenario._demo_accounts import demo_account_tables
 from trimtab.scenario._demo_alpha import alpha_long, make_alpha_history
 
 
@@ -27,6 +28,8 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         folder/data/alpha_history.csv      date, asset, alpha (annualised, long): the backtest's alpha
                                            at each rebalance date (skill plus a theme tilt)
         folder/data/backtest_returns.parquet  the returns plus the theme the model does not carry
+        folder/data/accounts.csv           200 invented accounts: account, nav, cash, exclude, overrides
+        folder/data/account_holdings.csv   account, asset, shares (long format)
         folder/data/truth/                 the simulated model: exposures, factor_covariance,
                                            specific_variance (per day), and next_year_specific:
                                            the specific returns the alpha scores forecast; theme:
@@ -61,6 +64,9 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
     csv(fund.alpha.to_frame("alpha"), "alpha")
     csv(fund.attributes, "attributes")
     csv(fund.characteristics, "characteristics")
+    for name, table in demo_account_tables(fund).items():  # the accounts of `trimtab accounts`
+        table.to_csv(data / f"{name}.csv", index=False, float_format="%.10g")
+        written[name] = data / f"{name}.csv"
     csv(fund.exposures, "exposures", truth)
     csv(fund.factor_covariance, "factor_covariance", truth, index_label="factor")
     csv(fund.specific_variance.to_frame("specific_variance"), "specific_variance", truth)
