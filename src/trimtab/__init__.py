@@ -32,6 +32,8 @@ _LAZY = {
     "fit_statistical": "trimtab.model",
     "check_residuals": "trimtab.model",
     "bias_statistic": "trimtab.model",
+    "alpha_alignment": "trimtab.model",
+    "AlphaAlignment": "trimtab.model",
     "attribute": "trimtab.attribution",
     "RiskAttribution": "trimtab.attribution",
     "compare": "trimtab.attribution",

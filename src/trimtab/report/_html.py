@@ -29,6 +29,7 @@ from trimtab.report._content import (
     no_bound,
     rounding_lines,
 )
+from trimtab.report._alpha import alpha_html
 from trimtab.report._stress import stress_html
 from trimtab.report._files import atomic_write_text
 from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
@@ -179,6 +180,8 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
         parts.append(f'<{h} id="{key}-orders">Trade list</{h}>'
                      + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades))
     parts.append(f"<{h}>Risk figures</{h}>" + _headline_table(content))
+    if content.alpha_source is not None:
+        parts.append(alpha_html(content.alpha_source, h, key))
     if content.risk_budget is not None:
         budget = content.risk_budget
         parts.append(
