@@ -40,7 +40,7 @@ def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path |
     bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
     aligned = align_inputs(model.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
                            files={"holdings": str(holdings), "benchmark": str(benchmark)})
-    return SimpleNamespace(holdings=aligned.holdings, benchmark=aligned.benchmark, attributes=aligned.attributes)
+    return SimpleNamespace(holdings=aligned.holdings, benchmark=aligned.benchmark, attributes=aligned.attributes, nav=book.nav)
 
 
 def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | None:

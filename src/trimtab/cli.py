@@ -560,6 +560,9 @@ _register_explore(app)
 from trimtab._cli_stress import register as _register_stress_commands  # noqa: E402 - needs app and _guarded above
 
 _register_stress_commands(app)  # stress, replay, attribute-returns
+from trimtab._cli_overlay import register as _register_overlay  # noqa: E402 - needs app and _guarded above
+
+_register_overlay(app)
 
 
 def _reflow_help() -> None:

@@ -7,6 +7,7 @@ from pathlib import Path
 import pandas as pd
 
 from trimtab.demo import DEMO_FILES, DemoFund
+from trimtab.hedge._demo import demo_instruments
 
 
 def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
@@ -23,6 +24,9 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         folder/data/alpha.csv              asset, alpha (annualised)
         folder/data/attributes.csv         asset, industry, price, adv, spread, market_cap
         folder/data/characteristics.csv    asset, size, value, momentum, low_risk, industry
+        folder/data/instruments.csv        instrument, asset, weight: an index future and two style
+                                           baskets for ``trimtab overlay``
+        folder/data/contracts.csv          instrument, price, multiplier, cost (invented terms)
         folder/data/truth/                 the simulated model: exposures, factor_covariance,
                                            specific_variance (per day), and next_year_specific:
                                            the specific returns the alpha scores forecast
@@ -56,6 +60,10 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
     csv(fund.alpha.to_frame("alpha"), "alpha")
     csv(fund.attributes, "attributes")
     csv(fund.characteristics, "characteristics")
+    baskets, contracts = demo_instruments(fund)  # the overlay's index future and style baskets
+    baskets.to_csv(data / "instruments.csv", index=False, float_format="%.10g")
+    written["instruments"] = data / "instruments.csv"
+    csv(contracts, "contracts", index_label="instrument")
     csv(fund.exposures, "exposures", truth)
     csv(fund.factor_covariance, "factor_covariance", truth, index_label="factor")
     csv(fund.specific_variance.to_frame("specific_variance"), "specific_variance", truth)
