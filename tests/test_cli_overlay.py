@@ -129,3 +129,10 @@ def test_bad_files_are_one_line(demo: Path, tmp_path: Path, file: str, text: str
     assert result.exit_code == EXIT_BAD_INPUT, result.output
     assert message in result.output and "Traceback" not in result.output
     assert len(result.output.strip().splitlines()) == 1
+
+
+def test_unreachable_targets_exit_1(demo: Path) -> None:
+    result = in_folder(demo, *OVERLAY, "--target", "market=0", "--target", "size=0", "--target", "value=0", "--target", "momentum=0")
+    assert result.exit_code == 1
+    assert "the 3 instruments cannot reach all 4 target exposures" in result.output
+    assert len(result.output.strip().splitlines()) == 1

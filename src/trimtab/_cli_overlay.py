@@ -67,6 +67,8 @@ def overlay_command(
 
 def register(app: typer.Typer) -> None:
     """Add ``overlay`` to the main command-line app."""
-    from trimtab.cli import _guarded
+    from trimtab._cli_guard import guarded
 
-    app.command("overlay")(_guarded(overlay_command))
+    # no relaxation table: an overlay's only hard limits are its targets (and max_gross), which the
+    # error names
+    app.command("overlay")(guarded(overlay_command))

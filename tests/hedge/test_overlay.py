@@ -171,7 +171,7 @@ def test_max_gross_caps_the_notional(model, book):
         ({"contracts": {"index": {"price": 0.0, "multiplier": 50}}, "nav": 1e6}, InputError, "price must be a finite number > 0"),
         ({"contracts": {"index": {"price": 10.0, "multiplier": 50}}}, InputError, "nav: needed with contract terms"),
         ({"minimize": "risk"}, InputError, "minimize: expected one of"),
-        ({"targets": {"MktRF": 0.0, "SMB": 0.0, "HML": 0.0, "Mom": 0.0}}, InfeasibleError, "cannot reach every target"),
+        ({"targets": {"MktRF": 0.0, "SMB": 0.0, "HML": 0.0, "Mom": 0.0}}, InfeasibleError, "cannot reach all 4 target exposures"),
     ],
     ids=["unknown-factor", "unknown-asset", "price-zero", "nav-missing", "bad-minimize", "unreachable"],
 )

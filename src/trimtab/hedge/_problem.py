@@ -61,8 +61,8 @@ def solve_exact(quad: Quadratic, A: np.ndarray, r: np.ndarray, names: list[str])
         if np.any(np.abs(miss) > TARGET_TOLERANCE * np.maximum(1.0, np.abs(r))):
             worst = [names[i] for i in np.argsort(-np.abs(miss))[: min(5, len(names))] if abs(miss[i]) > TARGET_TOLERANCE]
             raise InfeasibleError(
-                "targets: the instruments cannot reach every target exposure together "
-                f"(closest miss on {', '.join(worst)}); target fewer factors or add an instrument exposed to them"
+                f"targets: the {M} instruments cannot reach all {len(names)} target exposures together "
+                f"(largest miss on {', '.join(worst)}); target fewer factors or add an instrument exposed to them"
             )
         Z = vt[rank:].T
     else:
