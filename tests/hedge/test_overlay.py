@@ -180,3 +180,31 @@ def test_bad_input_is_named(model, book, kwargs, error, match):
     args = {"instruments": {"index": baskets(model)["index"]}, **kwargs}
     with pytest.raises(error, match=match):
         trimtab.overlay(model, w, args.pop("instruments"), benchmark=b, **args)
+
+
+def test_risk_parts_match_the_dense_covariance(model, book):
+    # outside reference: the dense Σ = BFBᵀ + D with numpy; parts: factor (a+Xh)ᵀBFBᵀ(a+Xh), specific (a+Xh)ᵀD(a+Xh)
+    w, b = book
+    inst = baskets(model)
+    result = trimtab.overlay(model, w, inst, benchmark=b, targets={"MktRF": 0.0})
+    X = np.column_stack([x.reindex(model.assets).fillna(0.0).to_numpy() for x in inst.values()])
+    Bm, F, D = model.exposures.to_numpy(), model.factor_covariance.to_numpy(), np.diag(model.specific_variance.to_numpy())
+    overlay = X @ result.notional.to_numpy()
+    for column, base in (("total", w.to_numpy()), ("active", (w - b).to_numpy())):
+        for row, v in (("before", base), ("after", base + overlay)):
+            factor = v @ Bm @ F @ Bm.T @ v * 12
+            specific = v @ D @ v * 12
+            assert result.risk.loc[row, f"{column}_factor"] == pytest.approx(np.sqrt(factor), rel=1e-10)
+            assert result.risk.loc[row, f"{column}_specific"] == pytest.approx(np.sqrt(specific), rel=1e-10)
+            assert result.risk.loc[row, column] == pytest.approx(np.sqrt(factor + specific), rel=1e-10)
+    assert result.added_specific_risk == pytest.approx(np.sqrt(overlay @ D @ overlay * 12), rel=1e-10)
+
+
+def test_redundant_instruments_still_solve(model, book):
+    # two copies of one basket: the notional is split (minimum norm), the total is the single-basket hedge
+    w, _ = book
+    x = baskets(model)["index"]
+    one = trimtab.overlay(model, w, {"a": x}, minimize="total_risk")
+    two = trimtab.overlay(model, w, {"a": x, "b": x.copy()}, minimize="total_risk")
+    assert two.notional.sum() == pytest.approx(one.notional["a"], rel=1e-9)
+    assert two.notional["a"] == pytest.approx(two.notional["b"], rel=1e-9)

@@ -61,6 +61,10 @@ class OverlayResult:
         return self.summary().as_text()
 
 
+def _exposure(value: float) -> str:
+    return f"{round(float(value), 4) + 0.0:+.4f}"  # + 0.0: no "-0.0000"
+
+
 class OverlaySummary:
     """Text and a one-row-per-instrument frame of an :class:`OverlayResult`."""
 
@@ -85,9 +89,9 @@ class OverlaySummary:
         lines += ["", "Exposures (before → after rounding)"]
         ex = r.exposures
         table = pd.DataFrame({
-            "before": ex["before"].map(lambda v: f"{v:+.4f}"),
-            "after": ex["after_rounding"].map(lambda v: f"{v:+.4f}"),
-            "target": ex["target"].map(lambda v: "" if pd.isna(v) else f"{v:+.4f}"),
+            "before": ex["before"].map(_exposure),
+            "after": ex["after_rounding"].map(_exposure),
+            "target": ex["target"].map(lambda v: "" if pd.isna(v) else _exposure(v)),
         })
         moved = (ex["before"] - ex["after_rounding"]).abs().sort_values(ascending=False)
         keep = list(dict.fromkeys([*ex.index[ex["target"].notna()], *moved.index[:8]]))
@@ -100,7 +104,7 @@ class OverlaySummary:
             for part in ("", "_factor", "_specific"):
                 name = column + part
                 lines.append(f"  {name.replace('_', ' '):<20}{risk.loc['before', name]:>8.2%}{risk.loc['after_rounding', name]:>9.2%}")
-        lines.append(f"  specific risk the overlay adds on its own: {r.added_specific_risk:.2%}")
+        lines.append(f"  specific risk of the overlay on its own: {r.added_specific_risk:.2%}")
         if r.cost:
             lines.append(f"  cost of the trade: {r.cost:.4%} of NAV")
         lines += ["", *r.notes]
