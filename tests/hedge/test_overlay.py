@@ -208,3 +208,13 @@ def test_redundant_instruments_still_solve(model, book):
     two = trimtab.overlay(model, w, {"a": x, "b": x.copy()}, minimize="total_risk")
     assert two.notional.sum() == pytest.approx(one.notional["a"], rel=1e-9)
     assert two.notional["a"] == pytest.approx(two.notional["b"], rel=1e-9)
+
+
+def test_percentages_are_caught(model, french_data, book):
+    # a basket or return series written in percent (a fact of the trade: data vendors often do) is refused
+    w, _ = book
+    excess, _ = french_data
+    with pytest.raises(InputError, match=r"basket weights sum to 100 .*not percentages"):
+        trimtab.overlay(model, w, {"index": baskets(model)["index"] * 100})
+    with pytest.raises(InputError, match=r"instruments\['future'\]: a return of .* not percentages"):
+        trimtab.overlay(model, w, {"future": excess.iloc[:, 0] * 100})

@@ -58,6 +58,14 @@ class Instruments:
         return pd.DataFrame(self.exposures, index=factors, columns=self.names)
 
 
+#: A long-only basket's weights sum to about 1 (an index, or a fund's holdings less its cash); above
+#: this they were written in percent. A long/short basket's gross weight above the second bound too.
+LONG_BASKET_MAX = 1.5
+GROSS_BASKET_MAX = 10.0
+#: A per-period return beyond ±100% is taken as a percentage written as a number.
+RETURN_MAX = 1.0
+
+
 def _is_return_series(values: pd.Series) -> bool:
     return isinstance(values.index, pd.DatetimeIndex)
 
@@ -75,8 +83,15 @@ def _basket(model: Any, name: str, weights: pd.Series) -> np.ndarray:
         raise InputError(f"{owner}: basket weights must be finite numbers; not for {list_labels(bad)}")
     if not np.any(values.to_numpy(dtype=float) != 0.0):
         raise InputError(f"{owner}: the basket has no non-zero weight")
+    numbers = values.to_numpy(dtype=float)
+    total, gross = float(numbers.sum()), float(np.abs(numbers).sum())
+    if (numbers.min() >= 0 and total > LONG_BASKET_MAX) or gross > GROSS_BASKET_MAX:
+        raise InputError(
+            f"{owner}: basket weights sum to {total:g} (gross {gross:g}); write them as fractions of the basket "
+            f"(a long basket sums to 1, e.g. 0.02 for 2%), not percentages"
+        )
     out = np.zeros(model.n_assets)
-    out[model.assets.get_indexer(values.index)] = values.to_numpy(dtype=float)
+    out[model.assets.get_indexer(values.index)] = numbers
     return out
 
 
@@ -155,7 +170,12 @@ def prepare_instruments(model: Any, instruments: Mapping[str, Any]) -> Instrumen
             raise InputError(f"instruments[{name!r}]: expected a pandas Series (weights by asset, or returns by date), got {type(values).__name__}")
         if _is_return_series(values):
             kinds.append("returns")
-            series[name] = pd.to_numeric(values, errors="coerce").astype(float)
+            numbers = pd.to_numeric(values, errors="coerce").astype(float)
+            if np.any(np.abs(numbers.to_numpy()) > RETURN_MAX):
+                worst = numbers.abs().idxmax()
+                raise InputError(f"instruments[{name!r}]: a return of {numbers[worst]:g} on {worst:%Y-%m-%d}; "
+                                 "write returns as fractions (0.012 for 1.2%), not percentages")
+            series[name] = numbers
         else:
             kinds.append("basket")
             X[:, j] = _basket(model, name, values)
