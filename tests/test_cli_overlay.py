@@ -136,3 +136,17 @@ def test_unreachable_targets_exit_1(demo: Path) -> None:
     assert result.exit_code == 1
     assert "the 3 instruments cannot reach all 4 target exposures" in result.output
     assert len(result.output.strip().splitlines()) == 1
+
+
+def test_holdings_column_reads_a_rebalanced_book(demo: Path, tmp_path: Path) -> None:
+    # a rebalance's target_book.csv has target_weight and weight_after_orders columns besides shares
+    bench = pd.read_csv(demo / "data" / "benchmark.csv")
+    book = pd.DataFrame({"asset": bench["asset"], "shares": 1.0, "target_weight": bench["weight"], "weight_after_orders": bench["weight"]})
+    path = tmp_path / "target_book.csv"
+    book.to_csv(path, index=False)
+    result = in_folder(demo, "--json", "overlay", "--model", "model", "--holdings", path, "--holdings-column", "target_weight",
+                       "--benchmark", "data/benchmark.csv", "--instruments", "data/instruments.csv")
+    assert result.exit_code == 0, result.output
+    # the book is the benchmark: nothing to hedge against it
+    trades = json.loads(result.stdout)["trades"]
+    assert max(abs(t["notional"]) for t in trades) < 1e-9

@@ -23,6 +23,7 @@ def overlay_command(
     benchmark: BenchmarkOpt = None,
     attributes: AttributesOpt = None,
     cash: CashOpt = 0.0,
+    holdings_column: Annotated[str | None, typer.Option("--holdings-column", help="Read weights from this column, e.g. target_weight or weight_after_orders of a rebalance's target_book.csv.", show_default=False)] = None,
     target: Annotated[list[str] | None, typer.Option("--target", help="Exposure wanted after the overlay, FACTOR=VALUE (active with --benchmark); repeat.", show_default=False)] = None,
     minimize: Annotated[str, typer.Option("--minimize", help="Risk minimised over what the targets leave free.", metavar="active_risk|total_risk")] = "active_risk",
     contracts: Annotated[Path | None, typer.Option("--contracts", help="Contract terms: instrument, price, multiplier, optional cost per contract.", show_default=False)] = None,
@@ -45,7 +46,7 @@ def overlay_command(
     fm = FactorModel.load(model)
     if minimize not in ("active_risk", "total_risk"):
         raise InputError(f"--minimize: expected active_risk or total_risk, got {minimize!r}")
-    book = _book(fm, holdings, benchmark, attributes, cash, nav)
+    book = _book(fm, holdings, benchmark, attributes, cash, nav, holdings_column)
     nav = book.nav if nav is None else nav
     wanted = parse_targets(target, fm.factors)
     baskets = read_instruments(instruments, fm.assets)

@@ -28,15 +28,17 @@ OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Write the tabl
 
 
 # ---------------------------------------------------------------------- shared reading
-def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path | None, cash: float, nav: float | None) -> SimpleNamespace:
-    """Holdings (weights or shares), benchmark and attributes read and aligned to the model's assets."""
+def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path | None, cash: float, nav: float | None,
+          column: str | None = None) -> SimpleNamespace:
+    """Holdings (weights or shares; weights from ``column`` when given), benchmark and attributes read and
+    aligned to the model's assets."""
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
     from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
 
     attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
     columns = set(read_table(holdings, what="holdings").columns)
-    kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
-    book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav}), attrs)
+    kind = "weights" if column is not None or "weight" in columns or "shares" not in columns else "shares"
+    book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav, "column": column}), attrs)
     bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
     aligned = align_inputs(model.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
                            files={"holdings": str(holdings), "benchmark": str(benchmark)})
