@@ -218,3 +218,16 @@ def test_percentages_are_caught(model, french_data, book):
         trimtab.overlay(model, w, {"index": baskets(model)["index"] * 100})
     with pytest.raises(InputError, match=r"instruments\['future'\]: a return of .* not percentages"):
         trimtab.overlay(model, w, {"future": excess.iloc[:, 0] * 100})
+
+
+def test_return_series_uses_the_models_half_life(french_data, book):
+    # outside reference: statsmodels WLS with weights 0.5^((T−1−t)/h), as the model itself was fitted
+    excess, factors = french_data
+    h = 60.0
+    model = fit_time_series(excess, factors, half_life=h)
+    rng = np.random.default_rng(5)
+    series = excess.iloc[:, 3] * 0.5 + excess.iloc[:, 20] * 0.5 + rng.normal(0.0, 0.01, len(excess))
+    result = trimtab.overlay(model, book[0], {"future": series})
+    weights = 0.5 ** ((len(series) - 1 - np.arange(len(series))) / h)
+    fit = sm.WLS(series.to_numpy(), sm.add_constant(factors.to_numpy()), weights=weights).fit()
+    np.testing.assert_allclose(result.instruments.loc["future", FACTORS].to_numpy(dtype=float), fit.params[1:], rtol=1e-8)

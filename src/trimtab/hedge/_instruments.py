@@ -104,7 +104,7 @@ def fit_settings(model: Any) -> dict[str, Any]:
     report = model.fit_report
     settings = dict(report.settings) if report is not None else {}
     keep = {}
-    for key in ("half_life", "rolling_window", "exposure_half_life", "periods_per_year"):
+    for key in ("half_life", "min_periods", "rolling_window", "exposure_half_life", "periods_per_year"):
         if settings.get(key) is not None:
             keep[key] = settings[key]
     half_life = keep.get("half_life", keep.get("exposure_half_life"))
