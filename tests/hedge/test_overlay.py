@@ -231,3 +231,11 @@ def test_return_series_uses_the_models_half_life(french_data, book):
     weights = 0.5 ** ((len(series) - 1 - np.arange(len(series))) / h)
     fit = sm.WLS(series.to_numpy(), sm.add_constant(factors.to_numpy()), weights=weights).fit()
     np.testing.assert_allclose(result.instruments.loc["future", FACTORS].to_numpy(dtype=float), fit.params[1:], rtol=1e-8)
+
+
+def test_max_gross_too_small_for_the_targets_is_infeasible(model, book):
+    w, b = book
+    free = trimtab.overlay(model, w, baskets(model), benchmark=b, targets={"MktRF": 0.0, "SMB": 0.0})
+    with pytest.raises(InfeasibleError, match="max_gross"):
+        trimtab.overlay(model, w, baskets(model), benchmark=b, targets={"MktRF": 0.0, "SMB": 0.0},
+                        max_gross=0.2 * free.notional.abs().sum())
