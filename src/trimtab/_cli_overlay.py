@@ -31,7 +31,7 @@ def overlay_command(
     max_gross: Annotated[float | None, typer.Option("--max-gross", help="Cap on the overlay's gross notional Σ|h|, a fraction of NAV.", min=0.0, show_default=False)] = None,
     out: OutOpt = None,
 ) -> None:
-    """Size a few hedge instruments (index futures, baskets) to reach target factor exposures at least risk.
+    """Size index futures and baskets to reach target factor exposures at least risk.
 
     The hedged book is the book plus each instrument's notional times its basket; the overlay meets
     the --target exposures exactly (before rounding to whole contracts) and minimises the rest of
