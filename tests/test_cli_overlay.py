@@ -150,3 +150,19 @@ def test_holdings_column_reads_a_rebalanced_book(demo: Path, tmp_path: Path) -> 
     # the book is the benchmark: nothing to hedge against it
     trades = json.loads(result.stdout)["trades"]
     assert max(abs(t["notional"]) for t in trades) < 1e-9
+
+
+def test_contracts_held_give_the_trade(demo: Path, tmp_path: Path) -> None:
+    path = tmp_path / "contracts.csv"
+    path.write_text("instrument,price,multiplier,cost,held\nindex_future,4210,50,2.5,10\nsmall_cap_basket,100,1000,30,-5\n", encoding="utf-8")
+    out = tmp_path / "held"
+    result = in_folder(demo, *OVERLAY, "--target", "market=0", "--contracts", path, "--out", out)
+    assert result.exit_code == 0, result.output
+    trades = pd.read_csv(out / "trades.csv", index_col="instrument")
+    assert trades.loc["index_future", "trade"] == trades.loc["index_future", "contracts"] - 10
+    assert trades.loc["small_cap_basket", "trade"] == trades.loc["small_cap_basket", "contracts"] + 5
+    assert "to trade" in result.output
+    bad = tmp_path / "bad.csv"
+    bad.write_text("instrument,price,multiplier,held\nindex_future,4210,50,1.5\n", encoding="utf-8")
+    result = in_folder(demo, *OVERLAY, "--contracts", bad)
+    assert result.exit_code == EXIT_BAD_INPUT and "column held must be a whole number of contracts" in result.output

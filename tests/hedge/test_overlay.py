@@ -239,3 +239,25 @@ def test_max_gross_too_small_for_the_targets_is_infeasible(model, book):
     with pytest.raises(InfeasibleError, match="max_gross"):
         trimtab.overlay(model, w, baskets(model), benchmark=b, targets={"MktRF": 0.0, "SMB": 0.0},
                         max_gross=0.2 * free.notional.abs().sum())
+
+
+def test_contracts_held_today_count_before_and_in_the_trade(model, book):
+    w, b = book
+    terms = pd.DataFrame({"price": [5012.5, 2100.0, 1500.0], "multiplier": [50, 20, 10], "cost": [2.5, 3.0, 3.0],
+                          "held": [-100, 0, 40]}, index=["index", "size", "value"])
+    nav = 250e6
+    args = dict(benchmark=b, targets={"MktRF": 0.0, "SMB": 0.0}, contracts=terms, nav=nav)
+    result = trimtab.overlay(model, w, baskets(model), **args)
+    flat = trimtab.overlay(model, w, baskets(model), **{**args, "contracts": terms.assign(held=0)})
+    # the position to hold does not depend on what is held; the trade is the difference
+    assert list(result.contracts) == list(flat.contracts)
+    assert list(result.trades["trade"]) == [int(n - h) for n, h in zip(result.contracts, terms["held"], strict=True)]
+    size = terms["price"] * terms["multiplier"]
+    held_notional = (terms["held"] * size / nav).to_numpy()
+    X = np.column_stack([x.reindex(model.assets).fillna(0.0).to_numpy() for x in baskets(model).values()])
+    before = model.factor_exposure((w - b).to_numpy() + X @ held_notional)
+    np.testing.assert_allclose(result.exposures["before"], before.to_numpy(), atol=1e-14)
+    expected_cost = (terms["cost"] * (result.contracts.astype(float) - terms["held"]).abs()).sum() / nav
+    assert result.cost == pytest.approx(expected_cost, rel=1e-12)
+    with pytest.raises(InputError, match="held must be a whole number"):
+        trimtab.overlay(model, w, baskets(model), **{**args, "contracts": terms.assign(held=[0.5, 0, 0])})

@@ -7,6 +7,8 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+import pandas as pd
+
 from trimtab._stress_pages import _write, bars_chart
 from trimtab.runs._report import figure_block, html_table, write_page
 from trimtab.scenario import output_folder
@@ -55,6 +57,10 @@ def _trades_display(trades: Any) -> Any:
     """Whole contracts and currency amounts as integers, the cost in basis points of NAV."""
     shown = trades.copy()
     shown["amount"] = shown["amount"].round().astype("Int64")
+    for column in ("contracts", "held", "trade", "amount"):
+        if column in shown:  # whole numbers with thousands separators, "–" where there are none
+            shown[column] = pd.Series([float("nan") if pd.isna(v) else int(v) for v in shown[column]], index=shown.index,
+                                      dtype=object)
     shown["cost"] = shown["cost"] * 1e4
     return shown.rename(columns={"amount": "amount (currency)", "cost": "cost (bp of NAV)"})
 

@@ -42,16 +42,21 @@ def _contract_terms(contracts: Any, names: pd.Index, nav: float | None) -> pd.Da
     unknown = table.index.difference(names)
     if len(unknown):
         raise InputError(f"contracts: instruments not given: {list_labels(unknown)}; the instruments are {list_labels(names)}")
-    allowed = {"price", "multiplier", "cost"}
+    allowed = {"price", "multiplier", "cost", "held"}
     extra = [c for c in table.columns if c not in allowed]
     if extra:
-        raise InputError(f"contracts: unknown columns {list_labels(extra)}; allowed: price, multiplier, cost")
+        raise InputError(f"contracts: unknown columns {list_labels(extra)}; allowed: price, multiplier, cost, held")
     for column in ("price", "multiplier"):
         if column not in table.columns:
             raise InputError(f"contracts: missing column {column!r} (columns: price, multiplier, optional cost)")
-    if "cost" not in table.columns:
-        table["cost"] = 0.0
-    table = table[["price", "multiplier", "cost"]].apply(pd.to_numeric, errors="coerce")
+    for column in ("cost", "held"):
+        if column not in table.columns:
+            table[column] = 0.0
+    table = table[["price", "multiplier", "cost", "held"]].apply(pd.to_numeric, errors="coerce")
+    held = table["held"]
+    fractional = held.index[~np.isfinite(held) | (held != held.round())]
+    if len(fractional):
+        raise InputError(f"contracts: held must be a whole number of contracts (negative for short); not for {list_labels(fractional)}")
     for column, lowest in (("price", "> 0"), ("multiplier", "> 0"), ("cost", ">= 0")):
         values = table[column]
         bad = values.index[~np.isfinite(values) | ((values <= 0) if lowest == "> 0" else (values < 0))]
@@ -125,8 +130,10 @@ def overlay(
     minimize : {"active_risk", "total_risk"}, default "active_risk"
         The variance minimised over the remaining freedom.
     contracts : pandas.DataFrame or Mapping, optional
-        Per instrument: ``price``, ``multiplier`` and optional ``cost`` (currency per contract).
-        Instruments with terms are rounded to whole contracts; needs ``nav``.
+        Per instrument: ``price``, ``multiplier``, optional ``cost`` (currency per contract) and
+        optional ``held`` (contracts held today, negative short). Instruments with terms are rounded
+        to whole contracts; needs ``nav``. ``.contracts`` is the position to hold; the "before"
+        exposures and risk include the contracts held, and costs are charged on the difference.
     nav : float, optional
         Net asset value in currency.
     max_gross : float, optional
@@ -216,6 +223,8 @@ def overlay(
     rounded = notional.copy().rename("notional_after_rounding")
     amount = pd.Series(np.nan, index=names)
     per_contract_cost = pd.Series(0.0, index=names)
+    held = pd.Series(0.0, index=names)  # notional of the contracts already held
+    held_contracts = pd.Series(pd.array([pd.NA] * len(names), dtype="Int64"), index=names, name="held")
     if terms is not None:
         assert nav is not None
         size = terms["price"] * terms["multiplier"]
@@ -223,26 +232,29 @@ def overlay(
         for name in terms.index:
             contracts_out[name] = int(n[name])
             rounded[name] = int(n[name]) * float(size[name]) / nav
-        per_contract_cost = (terms["cost"] * n.abs()).reindex(names).fillna(0.0) / nav
+            held_contracts[name] = int(terms.loc[name, "held"])
+            held[name] = float(terms.loc[name, "held"]) * float(size[name]) / nav
+        per_contract_cost = (terms["cost"] * (n - terms["held"]).abs()).reindex(names).fillna(0.0) / nav
     if nav is not None:
         amount = rounded * nav
     h_rounded = rounded.to_numpy(dtype=float)
-    cost_each = rate * rounded.abs() + per_contract_cost
+    h_held = held.to_numpy(dtype=float)
+    cost_each = rate * (rounded - held).abs() + per_contract_cost
 
-    x_before = x0
+    x_before = x0 + inst.exposures @ h_held
     overlay_exposure = inst.exposures @ h_rounded
     target_column = pd.Series(np.nan, index=model.factors)
     target_column[target_names] = target_values
     exposures = pd.DataFrame({
         "before": x_before,
         "overlay": inst.exposures @ h,
-        "after": x_before + inst.exposures @ h,
-        "after_rounding": x_before + overlay_exposure,
+        "after": x0 + inst.exposures @ h,
+        "after_rounding": x0 + overlay_exposure,
         "target": target_column.to_numpy(),
     }, index=model.factors)
     exposures.index.name = "factor"
     risk = pd.DataFrame(
-        [_risk_row(model, inst, w, b, np.zeros_like(h)), _risk_row(model, inst, w, b, h), _risk_row(model, inst, w, b, h_rounded)],
+        [_risk_row(model, inst, w, b, h_held), _risk_row(model, inst, w, b, h), _risk_row(model, inst, w, b, h_rounded)],
         index=pd.Index(["before", "after", "after_rounding"], name="book"),
     )
     added = math.sqrt(max((float(model._d @ np.square(inst.baskets @ h_rounded))
@@ -252,6 +264,9 @@ def overlay(
     table.index.name = "instrument"
     trades = pd.DataFrame({"kind": list(inst.kinds), "notional": notional, "contracts": contracts_out,
                            "notional_after_rounding": rounded, "amount": amount, "cost": cost_each}, index=names)
+    if terms is not None and (terms["held"] != 0).any():
+        trades.insert(3, "held", held_contracts)
+        trades.insert(4, "trade", contracts_out - held_contracts)
     trades.index.name = "instrument"
     kind = "active" if minimize == "active_risk" and benchmark is not None else "total"
     notes = [f"Exposures are {kind}; targets met before rounding; risk minimised: {minimize.replace('_', ' ')}."]

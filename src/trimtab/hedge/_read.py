@@ -79,10 +79,10 @@ def read_contracts(path: Path, instruments: Sequence[str]) -> pd.DataFrame:
     from trimtab.scenario import read_table
 
     frame = read_table(path, what="contracts")
-    allowed = ("instrument", "price", "multiplier", "cost")
+    allowed = ("instrument", "price", "multiplier", "cost", "held")
     missing = [c for c in allowed[:3] if c not in frame.columns]
     if missing:
-        raise InputError(f"{path}: missing columns {list_labels(missing)} (a contract file has instrument, price, multiplier, optional cost)")
+        raise InputError(f"{path}: missing columns {list_labels(missing)} (a contract file has instrument, price, multiplier, optional cost and held)")
     extra = [c for c in frame.columns if c not in allowed]
     if extra:
         raise InputError(f"{path}: unknown columns {list_labels(extra)}; allowed: {', '.join(allowed)}")
@@ -94,6 +94,12 @@ def read_contracts(path: Path, instruments: Sequence[str]) -> pd.DataFrame:
     if len(unknown):
         raise InputError(f"{path}: instruments not in --instruments: {list_labels(unknown)}")
     table = frame.set_index("instrument")
+    if "held" in table.columns:
+        held = pd.to_numeric(table["held"], errors="coerce").to_numpy(dtype=float)
+        bad = ~np.isfinite(held) | (held != np.round(held))
+        if bad.any():
+            raise InputError(f"{path}: column held must be a whole number of contracts; not for {list_labels(table.index[bad])}")
+        table["held"] = held
     for column, rule in (("price", "> 0"), ("multiplier", "> 0"), ("cost", ">= 0")):
         if column not in table.columns:
             continue

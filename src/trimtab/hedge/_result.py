@@ -17,8 +17,9 @@ class OverlayResult:
     notional : pandas.Series
         Instrument → notional as a fraction of NAV before rounding (negative for short).
     contracts : pandas.Series
-        Instrument → whole contracts to trade (nullable integers; missing for an instrument without
-        contract terms, which trades at its notional).
+        Instrument → whole contracts to hold (nullable integers; missing for an instrument without
+        contract terms, which trades at its notional). With contracts ``held`` today, ``trades``
+        has the difference to trade.
     notional_after_rounding : pandas.Series
         contracts × price × multiplier / NAV, or the notional itself without contract terms.
     exposures : pandas.DataFrame
@@ -82,6 +83,9 @@ class OverlaySummary:
         shown["notional"] = trades["notional"].map(lambda v: f"{v:+.2%}")
         if trades["contracts"].notna().any():
             shown["contracts"] = trades["contracts"].map(lambda v: "" if pd.isna(v) else f"{int(v):+,d}")
+            if "held" in trades:
+                shown["held"] = trades["held"].map(lambda v: "" if pd.isna(v) else f"{int(v):+,d}")
+                shown["to trade"] = trades["trade"].map(lambda v: "" if pd.isna(v) else f"{int(v):+,d}")
             shown["after rounding"] = trades["notional_after_rounding"].map(lambda v: f"{v:+.2%}")
         if "amount" in trades and trades["amount"].notna().any():
             shown["amount"] = trades["amount"].map(lambda v: "" if pd.isna(v) else f"{v:+,.0f}")
