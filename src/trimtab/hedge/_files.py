@@ -39,7 +39,8 @@ def write_overlay(result: Any, target: Path, inputs: Sequence[Path], *, settings
             ("Charts", figure_block(charts)),
             ("Risk (annualised volatility)", html_table(risk, percent_columns=_PERCENT)),
             ("Exposures", html_table(ex.round(4) + 0.0, percent_columns=())),
-            ("Instruments (exposure per unit of notional)", html_table(_rounded(result.instruments), percent_columns=())),
+            ("Instruments (exposure per unit of notional)",
+             html_table(_rounded(result.instruments.drop(columns="kind").T.rename_axis("factor")), percent_columns=())),
             ("Summary", f"<pre>{html.escape(result.summary().as_text())}</pre>"),
         ]
         if len(result.fit):
