@@ -65,7 +65,7 @@ def test_cli_matches_the_python_api(demo: Path) -> None:
     assert result.exit_code == 0, result.output
     document = json.loads(result.stdout)
     model = trimtab.FactorModel.load(demo / "model")
-    from trimtab.hedge._read import read_instruments
+    from trimtab.scenario._instruments import read_instruments
 
     shares = pd.read_csv(demo / "data" / "holdings.csv", index_col="asset")["shares"]
     prices = pd.read_csv(demo / "data" / "attributes.csv", index_col="asset")["price"]

@@ -1,4 +1,7 @@
-"""The output folder of ``trimtab overlay``: CSV tables, result.json and a short report.html."""
+"""The output folder of ``trimtab overlay``: CSV tables, result.json and a short report.html.
+
+Lays out an :class:`~trimtab.hedge.OverlayResult`; computes nothing but display rounding.
+"""
 
 from __future__ import annotations
 
@@ -9,9 +12,9 @@ from typing import Any
 
 import pandas as pd
 
-from trimtab._stress_pages import _write, bars_chart
-from trimtab.runs._report import figure_block, html_table, write_page
-from trimtab.scenario import output_folder
+from trimtab._output import output_folder
+from trimtab.report._pages import figure_block, html_table, write_page
+from trimtab.report._stress_pages import _write, bars_chart
 
 _PERCENT = ("notional", "notional_after_rounding", "cost", "total", "total_factor", "total_specific", "active",
             "active_factor", "active_specific", "residual_volatility")

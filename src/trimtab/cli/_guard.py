@@ -4,7 +4,7 @@ Exit codes (docs/cli.md): 0 ok; 1 infeasible; 2 bad input; 3 solver failure; 4 a
 5 a problem with the environment the user can fix (read-only or full disk, permission denied, an
 output path below a file); 130 interrupted (SIGINT, Ctrl-C); 143 terminated (SIGTERM).
 
-This module imports nothing heavy, so the console-script entry point (:mod:`trimtab._entry`) can
+This module imports nothing heavy, so the console-script entry point (:mod:`trimtab.cli._entry`) can
 install the signal handlers before numpy, pandas or the optimizer are imported.
 """
 

@@ -1,6 +1,6 @@
 """The ``trimtab overlay`` command: size index futures and baskets to neutralise factor exposures.
 
-Registered on the main app by :func:`register`, with its conventions: one line and exit code 2 for
+Registered on the one app by :func:`register`, with its conventions: one line and exit code 2 for
 bad input, ``--json``/``--quiet`` before the command, ``--out`` written to a temporary folder, then
 renamed.
 """
@@ -12,7 +12,9 @@ from typing import Annotated
 
 import typer
 
-from trimtab._cli_stress import AttributesOpt, BenchmarkOpt, CashOpt, HoldingsOpt, ModelOpt, OutOpt, _book, _show
+from trimtab.cli._app import add_commands, family
+from trimtab.cli._book import AttributesOpt, BenchmarkOpt, CashOpt, HoldingsOpt, ModelOpt, OutOpt, read_book, show
+from trimtab.cli._guard import guarded
 
 
 def overlay_command(
@@ -40,13 +42,13 @@ def overlay_command(
     """
     from trimtab import FactorModel, overlay
     from trimtab.errors import InputError
-    from trimtab.hedge._files import write_overlay
-    from trimtab.hedge._read import parse_targets, read_contracts, read_instruments
+    from trimtab.report._overlay_pages import write_overlay
+    from trimtab.scenario._instruments import parse_targets, read_contracts, read_instruments
 
     fm = FactorModel.load(model)
     if minimize not in ("active_risk", "total_risk"):
         raise InputError(f"--minimize: expected active_risk or total_risk, got {minimize!r}")
-    book = _book(fm, holdings, benchmark, attributes, cash, nav, holdings_column)
+    book = read_book(fm, holdings, benchmark, attributes, cash, nav, holdings_column)
     nav = book.nav if nav is None else nav
     wanted = parse_targets(target, fm.factors)
     baskets = read_instruments(instruments, fm.assets)
@@ -62,14 +64,12 @@ def overlay_command(
                     "benchmark": str(benchmark) if benchmark else None, "targets": wanted, "minimize": minimize,
                     "contracts": str(contracts) if contracts else None, "nav": nav, "max_gross": max_gross}
         files = write_overlay(result, out, inputs, settings=settings)
-    _show(ctx, result.summary().as_text(), {"trades": result.trades, "exposures": result.exposures, "risk": result.risk,
+    show(ctx, result.summary().as_text(), {"trades": result.trades, "exposures": result.exposures, "risk": result.risk,
                                             "added_specific_risk": result.added_specific_risk, "cost": result.cost}, out, files)
 
 
+@family
 def register(app: typer.Typer) -> None:
-    """Add ``overlay`` to the main command-line app."""
-    from trimtab._cli_guard import guarded
-
-    # no relaxation table: an overlay's only hard limits are its targets (and max_gross), which the
-    # error names
-    app.command("overlay")(guarded(overlay_command))
+    """Add ``overlay`` to the command line (no relaxation table: an overlay's only hard limits are its
+    targets and max_gross, which its one error line names)."""
+    add_commands(app, {"overlay": overlay_command}, guard=guarded)
