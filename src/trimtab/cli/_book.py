@@ -14,6 +14,7 @@ from typing import Annotated, Any
 import typer
 
 from trimtab.cli._app import _ui
+from trimtab.errors import InputError
 
 ModelOpt = Annotated[Path, typer.Option("--model", "-m", help="A model folder written by `trimtab fit`.", show_default=False)]
 HoldingsOpt = Annotated[Path, typer.Option("--holdings", help="Holdings file: asset, weight (or asset, shares with prices).", show_default=False)]
@@ -31,6 +32,8 @@ def read_book(model: Any, holdings: Path, benchmark: Path | None, attributes: Pa
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
     from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
 
+    if nav is not None and not nav > 0:
+        raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
     attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
     columns = set(read_table(holdings, what="holdings").columns)
     kind = "weights" if column is not None or "weight" in columns or "shares" not in columns else "shares"
@@ -41,13 +44,16 @@ def read_book(model: Any, holdings: Path, benchmark: Path | None, attributes: Pa
     return SimpleNamespace(holdings=aligned.holdings, benchmark=aligned.benchmark, attributes=aligned.attributes, nav=book.nav)
 
 
-def show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None) -> None:
+def show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None,
+         realised: bool = False) -> None:
+    """Emit ``document`` (``--json``) or print ``text``, the files written and the caution (the realised-return
+    caution when ``realised``)."""
     ui = _ui(ctx)
     ui.emit({**document, "output": str(out) if out is not None else None, "files": files})
     if ui.chatty:
         ui.out.print(text, markup=False, highlight=False)
         if out is not None and files:
             ui.say(f"Wrote {len(files)} files to {out}")
-        from trimtab.report import CAUTION
+        from trimtab.report import CAUTION, REALISED_CAUTION
 
-        ui.out.print(f"[italic]{CAUTION}[/italic]")
+        ui.out.print(f"[italic]{REALISED_CAUTION if realised else CAUTION}[/italic]")

@@ -8,6 +8,7 @@ import pandas as pd
 
 from trimtab.demo import DEMO_FILES, DemoFund
 from trimtab.hedge._demo import demo_instruments
+from trimtab.scenario._demo_accounts import demo_account_tables
 
 
 def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
@@ -27,6 +28,8 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         folder/data/instruments.csv        instrument, asset, weight: an index future and two style
                                            baskets for ``trimtab overlay``
         folder/data/contracts.csv          instrument, price, multiplier, cost (invented terms)
+        folder/data/accounts.csv           200 invented accounts: account, nav, cash, exclude, overrides
+        folder/data/account_holdings.csv   account, asset, shares (long format)
         folder/data/truth/                 the simulated model: exposures, factor_covariance,
                                            specific_variance (per day), and next_year_specific:
                                            the specific returns the alpha scores forecast
@@ -64,6 +67,9 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
     baskets.to_csv(data / "instruments.csv", index=False, float_format="%.10g")
     written["instruments"] = data / "instruments.csv"
     csv(contracts, "contracts", index_label="instrument")
+    for name, table in demo_account_tables(fund).items():  # the accounts of `trimtab accounts`
+        table.to_csv(data / f"{name}.csv", index=False, float_format="%.10g")
+        written[name] = data / f"{name}.csv"
     csv(fund.exposures, "exposures", truth)
     csv(fund.factor_covariance, "factor_covariance", truth, index_label="factor")
     csv(fund.specific_variance.to_frame("specific_variance"), "specific_variance", truth)
