@@ -55,6 +55,8 @@ _LAZY = {
     "attribute_returns": "trimtab.attribution",
     "attribute_backtest_returns": "trimtab.attribution",
     "ReturnAttribution": "trimtab.attribution",
+    "overlay": "trimtab.hedge",
+    "OverlayResult": "trimtab.hedge",
 }
 
 __all__ = [

@@ -67,6 +67,7 @@ def demo(
     ui.say("\n" + history.summary())
     files = [
         ("data/", "the invented fund: returns, factor returns, holdings, benchmark, alpha, alpha history, attributes"),
+        ("", "and an index future and two style baskets for `trimtab overlay` (instruments.csv, contracts.csv)"),
         ("model/", "the fitted risk model"),
         ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
         ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),

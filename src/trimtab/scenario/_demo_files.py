@@ -7,6 +7,7 @@ from pathlib import Path
 import pandas as pd
 
 from trimtab.demo import DEMO_FILES, DemoFund
+from trimtab.hedge._demo import demo_instruments
 from trimtab.scenario._demo_accounts import demo_account_tables
 from trimtab.scenario._demo_alpha import alpha_long, make_alpha_history
 
@@ -28,6 +29,9 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         folder/data/alpha_history.csv      date, asset, alpha (annualised, long): the backtest's alpha
                                            at each rebalance date (skill plus a theme tilt)
         folder/data/backtest_returns.parquet  the returns plus the theme the model does not carry
+        folder/data/instruments.csv        instrument, asset, weight: an index future and two style
+                                           baskets for ``trimtab overlay``
+        folder/data/contracts.csv          instrument, price, multiplier, cost (invented terms)
         folder/data/accounts.csv           200 invented accounts: account, nav, cash, exclude, overrides
         folder/data/account_holdings.csv   account, asset, shares (long format)
         folder/data/truth/                 the simulated model: exposures, factor_covariance,
@@ -64,6 +68,10 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
     csv(fund.alpha.to_frame("alpha"), "alpha")
     csv(fund.attributes, "attributes")
     csv(fund.characteristics, "characteristics")
+    baskets, contracts = demo_instruments(fund)  # the overlay's index future and style baskets
+    baskets.to_csv(data / "instruments.csv", index=False, float_format="%.10g")
+    written["instruments"] = data / "instruments.csv"
+    csv(contracts, "contracts", index_label="instrument")
     for name, table in demo_account_tables(fund).items():  # the accounts of `trimtab accounts`
         table.to_csv(data / f"{name}.csv", index=False, float_format="%.10g")
         written[name] = data / f"{name}.csv"
