@@ -19,6 +19,7 @@ from trimtab._format import format_number, format_percent
 from trimtab.attribution import format_figure
 from trimtab.report._desk import amount_text, change_text
 from trimtab.report._filters import FILTERS, formatted, piece
+from trimtab.report._relaxation import RELAXATION_NUMBERS, display_relaxation, relaxation_rows
 from trimtab.report._stress import stress_table
 from trimtab.report._templates import environment, render, render_cards
 
@@ -42,7 +43,8 @@ def test_every_filter_is_registered_once_on_the_shared_environment() -> None:
 
 @pytest.mark.parametrize("value", VALUES, ids=[repr(v) for v in VALUES])
 @pytest.mark.parametrize("name, arguments", [("pct", ()), ("pct", (1,)), ("percent", ()), ("bp", ()), ("num", (3,)),
-                                             ("num", (0,)), ("sig", (3,)), ("count", ()), ("probability", ())],
+                                             ("num", (0,)), ("sig", (3,)), ("count", ()), ("probability", ()),
+                                             ("text", ()), ("in_unit", ("weight",)), ("in_unit", ("names",))],
                          ids=lambda x: str(x))
 def test_a_template_prints_what_the_function_returns(name: str, arguments: tuple, value: object) -> None:
     call = f"{name}({', '.join(map(repr, arguments))})" if arguments else name
@@ -66,6 +68,10 @@ def test_a_template_prints_what_the_function_returns(name: str, arguments: tuple
     (0.0004, ["order", "pp"], "+0.040"),
     (math.nan, ["order", "price"], "n/a"),
     (0.0123, ["probability"], "0.012"),
+    (-0.0006074, ["in_unit", "weight"], "-0.061%"),   # the example of format_in_unit's docstring
+    (-0.0000001, ["in_unit", "weight"], "0.000%"),
+    ("weight", ["unit_label"], "% of NAV"),
+    (math.nan, ["text"], ""),
     ("text & more", [], "text & more"),
     (None, None, ""),
 ], ids=lambda x: repr(x))
@@ -98,3 +104,19 @@ def test_the_stress_partial_prints_percent_and_the_named_limit() -> None:
     assert "rates &lt;up&gt;" in full
     brief = render("partials/stress.html.j2", **stress_table(frame, brief=True))
     assert "4.00%</td>" in brief and "(active)" not in brief
+
+
+def test_the_page_relaxation_partial_prints_what_the_report_table_shows() -> None:
+    table = pd.DataFrame({
+        "option": [1, 1, 2], "constraint": ["constraints.turnover.max", "tracking_error.max", "constraints.names"],
+        "side": ["upper", "upper", None], "limit": [0.02, 0.02, 40.0], "needed": [0.41252, 0.0251, 55.0],
+        "relax_by": [0.39252, 0.0051, math.nan], "unit": ["weight", "annualised volatility", "names"],
+    })
+    columns, rows = relaxation_rows(table)
+    html = render("partials/relaxation.html.j2", status="infeasible", message="", sentence="", conflict=[],
+                  rows=rows, columns=columns, numbers=RELAXATION_NUMBERS)
+    body = html.split("<tbody>")[1]
+    cells = [re.findall(r"<td>(.*?)</td>", row) for row in re.findall(r"<tr>(.*?)</tr>", body, re.S)]
+    assert cells == display_relaxation(table).astype(str).values.tolist()  # the report's own text of each cell
+    assert cells[0] == ["1", "constraints.turnover.max", "upper", "2.000%", "41.252%", "39.252%", "% of NAV"]
+    assert cells[2][2] == "" and cells[2][5] == "n/a"

@@ -29,19 +29,19 @@ TRADE_TOLERANCE = 1e-8
 def page_view(variant: Variant) -> dict[str, Any]:
     """The page's payload for one variant: status, figures, HTML sections and timing."""
     from trimtab.report import gather
-    from trimtab.report._relaxation import display_relaxation, relaxation_sentence, unsolved
+    from trimtab.report._relaxation import RELAXATION_NUMBERS, relaxation_rows, relaxation_sentence, unsolved
     from trimtab.report._templates import render
 
     started = time.perf_counter()
     if variant.error is not None:
         failure = unsolved(variant.error)
-        rows = display_relaxation(failure.relaxation).to_dict(orient="records") if len(failure.relaxation) else []
+        columns, rows = relaxation_rows(failure.relaxation) if len(failure.relaxation) else ([], [])
         html = {
             "relaxation": render(
                 "partials/relaxation.html.j2", status=failure.status, message=_message(failure),
                 sentence=relaxation_sentence(failure.relaxation) if rows else "", rows=rows,
                 conflict=[str(c) for c in getattr(failure, "conflict", ()) or ()],
-                columns=list(rows[0]) if rows else [],
+                columns=columns, numbers=RELAXATION_NUMBERS,
             )
         }
         figures: dict[str, Any] = {}

@@ -19,6 +19,9 @@ figure         a figure in its unit (:func:`format_figure`)         ``0.0123|fig
 change         a signed change, percentages in pp                   ``0.004|change("fraction")`` → +0.40 pp
 probability    a tail probability, two significant digits           ``0.0123|probability`` → 0.012
 order          a cell of the order list in its unit                 ``1234|order("shares")``
+in_unit        a relaxation number in its limit's unit              ``0.0006|in_unit("weight")`` → 0.060%
+unit_label     how such a number reads                              ``"weight"|unit_label`` → % of NAV
+text           a value as text, "" when missing                     ``nan|text`` → ""
 formatted      the filter a spec names: ``[name, *arguments]``      ``x|formatted(["pct", 1])``
 =============  ===================================================  =========================
 
@@ -28,7 +31,8 @@ whose spec is empty prints as it is (text). :func:`piece` builds one such value 
 
 Adding a filter: write (or import) the function here, taking the value first and its options after,
 and add it to :data:`FILTERS`; every template of :func:`trimtab.report._templates.environment` then
-has it. Test it in ``tests/report/test_filters.py``.
+has it. Test it in ``tests/report/test_filters.py``. A module imported here must not import
+:mod:`._templates` (no import circle).
 """
 
 from __future__ import annotations
@@ -40,6 +44,7 @@ from typing import Any
 from trimtab._format import format_number, format_percent
 from trimtab.attribution import format_figure
 from trimtab.report._desk import amount_text, change_text
+from trimtab.report._relaxation import format_in_unit, unit_label
 
 
 def number(value: Any) -> float | None:
@@ -75,6 +80,11 @@ def count(value: Any, missing: str = "–") -> str:
     """A whole number with thousands separators (1183 → "1,183"); ``missing`` when there is none."""
     x = number(value)
     return missing if x is None else f"{x:,.0f}"
+
+
+def text(value: Any) -> str:
+    """A value as text; "" when missing (None or NaN)."""
+    return "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
 
 
 def probability(value: Any) -> str:
@@ -113,6 +123,9 @@ FILTERS: dict[str, Callable[..., str]] = {
     "change": change_text,
     "probability": probability,
     "order": order_text,
+    "in_unit": format_in_unit,
+    "unit_label": unit_label,
+    "text": text,
 }
 
 
