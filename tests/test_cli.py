@@ -80,7 +80,7 @@ def test_check_ok_prints_alignment_and_json(work: Path) -> None:
 @pytest.mark.parametrize(
     ("edit", "pattern"),
     [
-        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: alerts, backtest, constraints, data"),
+        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: alerts, alpha_factor, backtest, constraints, data"),
         (lambda t: t.replace("kind: shares", "kind: lots"), r"data\.holdings\.kind: expected 'weights' or 'shares', got 'lots'"),
         (lambda t: t.replace("model: model", "model: missing_model"), r"missing_model: no such model folder"),
         (lambda t: t.replace("data/alpha.csv", "data/alpha.txt"), r"alpha\.txt: alpha file not found"),
@@ -337,10 +337,15 @@ def test_compare(work: Path) -> None:
     # the infeasible scenario keeps its column and gets its part in the report, not dropped
     status = next(line for line in result.stdout.splitlines() if line.startswith("│ status"))
     assert [c.strip() for c in status.split("│")[2:4]] == ["solved", "infeasible"]
-    assert "Infeasible (infeasible): how far each conflicting limit must move" in result.stdout
+    assert "Scenario infeasible cannot hold as written: how far each conflicting limit must move" in result.stdout
     page = (work / "cmp" / "report.html").read_text(encoding="utf-8")
-    assert "Scenario: infeasible</h2>" in page and "These limits cannot all hold: constraints.tracking_error.max" in page
-    assert "constraints.tracking_error.max from 0.500% to" in page or "constraints.tracking_error.max 0.500% →" in page
+    # issue #20: the comparison links to each scenario's own report instead of repeating it
+    assert "Scenario: infeasible</h2>" in page and 'href="infeasible/report.html"' in page and 'href="base/report.html"' in page
+    assert len(page) < len((work / "cmp" / "base" / "report.html").read_text(encoding="utf-8"))  # not every report again
+    own = (work / "cmp" / "infeasible" / "report.html").read_text(encoding="utf-8")
+    assert "These limits cannot all hold: constraints.tracking_error.max" in own
+    assert "constraints.tracking_error.max from 0.500% to" in own or "constraints.tracking_error.max 0.500% →" in own
+    assert (work / "cmp" / "base" / "report.html").exists()
     raw = pd.read_csv(work / "cmp" / "infeasible" / "relaxation.csv")
     assert "scale" not in raw.columns
     turnover = raw.set_index("constraint").loc["constraints.turnover.max"]
@@ -363,6 +368,8 @@ def test_demo_small(tmp_path: Path) -> None:
     assert (root / "results" / "base" / "report.html").exists()
     assert (root / "results" / "compare" / "report.html").exists()
     assert (root / "model" / "manifest.json").exists()
+    # the demo backtest (#24): base and alpha_factor side by side, each with its bias statistic
+    assert result.stdout.count("    bias ") == 2 and (root / "results" / "backtest" / "report.html").exists()
     # the demo's scenarios run again from the folder it wrote
     assert invoke("--quiet", "check", root / "neutral_size_momentum.yaml").exit_code == 0
     # a second run replaces the folder it wrote, but never a folder it did not write

@@ -13,35 +13,12 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from trimtab.cli._app import _ui, add_commands, family
+from trimtab.cli._app import add_commands, family
+from trimtab.cli._book import AttributesOpt, BenchmarkOpt, CashOpt, HoldingsOpt, ModelOpt, NavOpt, OutOpt, read_book, show
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # pandas is imported inside the commands: registering them keeps `trimtab --help` light
     import pandas as pd
-
-ModelOpt = Annotated[Path, typer.Option("--model", "-m", help="A model folder written by `trimtab fit`.", show_default=False)]
-HoldingsOpt = Annotated[Path, typer.Option("--holdings", help="Holdings file: asset, weight (or asset, shares with prices).", show_default=False)]
-BenchmarkOpt = Annotated[Path | None, typer.Option("--benchmark", help="Benchmark file: asset, weight. Adds the benchmark and active figures.")]
-AttributesOpt = Annotated[Path | None, typer.Option("--attributes", help="Attributes file (prices for shares; group columns).")]
-CashOpt = Annotated[float, typer.Option("--cash", help="Cash besides the positions (currency), for holdings given as shares.", min=0.0)]
-NavOpt = Annotated[float | None, typer.Option("--nav", help="Net asset value (currency); default Σ shares·price + cash.", min=0.0)]
-OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Write the tables, result.json and report.html to this folder.", show_default=False)]
-
-
-# ---------------------------------------------------------------------- shared reading
-def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path | None, cash: float, nav: float | None) -> SimpleNamespace:
-    """Holdings (weights or shares), benchmark and attributes read and aligned to the model's assets."""
-    from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
-    from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
-
-    attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
-    columns = set(read_table(holdings, what="holdings").columns)
-    kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
-    book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav}), attrs)
-    bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
-    aligned = align_inputs(model.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
-                           files={"holdings": str(holdings), "benchmark": str(benchmark)})
-    return SimpleNamespace(holdings=aligned.holdings, benchmark=aligned.benchmark, attributes=aligned.attributes)
 
 
 def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | None:
@@ -52,18 +29,6 @@ def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | 
     if column not in attributes.columns:
         raise InputError(f"--group-by {column}: the attributes file has no column {column!r}; it has: {', '.join(map(str, attributes.columns))}")
     return attributes[column]
-
-
-def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None) -> None:
-    ui = _ui(ctx)
-    ui.emit({**document, "output": str(out) if out is not None else None, "files": files})
-    if ui.chatty:
-        ui.out.print(text, markup=False, highlight=False)
-        if out is not None and files:
-            ui.say(f"Wrote {len(files)} files to {out}")
-        from trimtab.report import CAUTION
-
-        ui.out.print(f"[italic]{CAUTION}[/italic]")
 
 
 # ---------------------------------------------------------------------- stress
@@ -95,7 +60,7 @@ def stress_command(
 
     fm = FactorModel.load(model)
     entries = load_shocks(shocks)
-    book = _book(fm, holdings, benchmark, attributes, cash, nav)
+    book = read_book(fm, holdings, benchmark, attributes, cash, nav)
     result = stress(fm, book.holdings, factor_moves(entries), benchmark=book.benchmark, conditional=not unconditional,
                     horizon=horizon, specific=specific_moves(entries), groups=_groups(book.attributes, group_by))
     files = None
@@ -103,7 +68,7 @@ def stress_command(
         settings = {"model": str(model), "holdings": str(holdings), "shocks": str(shocks), "conditional": result.conditional,
                     "horizon": result.horizon}
         files = write_stress(result, out, [model, holdings, shocks, *(p for p in (benchmark, attributes) if p)], settings=settings)
-    _show(ctx, result.summary().as_text(), {"shocks": result.table(), "factor_moves": result.factor_moves}, out, files)
+    show(ctx, result.summary().as_text(), {"shocks": result.table(), "factor_moves": result.factor_moves}, out, files)
 
 
 # ---------------------------------------------------------------------- replay
@@ -146,7 +111,7 @@ def replay_command(
     from trimtab.stresstest import factor_history, replay
 
     fm = FactorModel.load(model)
-    book = _book(fm, holdings, benchmark, attributes, cash, nav)
+    book = read_book(fm, holdings, benchmark, attributes, cash, nav)
     chosen = _windows(window)
     if length is None and not chosen:
         length = max(1, round(fm.periods_per_year / 12))
@@ -162,7 +127,7 @@ def replay_command(
         settings = {"model": str(model), "holdings": str(holdings), "length": length, "worst": worst, "windows": chosen}
         files = write_replay(result, out, [model, holdings, *(p for p in (benchmark, attributes) if p)],
                              cumulative=cumulative, settings=settings)
-    _show(ctx, result.summary().as_text(), {"windows": result.windows, "factor_moves": result.factor_moves}, out, files)
+    show(ctx, result.summary().as_text(), {"windows": result.windows, "factor_moves": result.factor_moves}, out, files)
 
 
 # ---------------------------------------------------------------------- attribute-returns
@@ -183,11 +148,14 @@ def _backtest_tables(folder: Path) -> SimpleNamespace:
     return SimpleNamespace(**tables)
 
 
-def _dated_file(path: Path, what: str) -> pd.DataFrame:
+def _dated_file(path: Path, what: str, unit: str = "fraction") -> pd.DataFrame:
     from trimtab.scenario import load_returns
     from trimtab.scenario._schema import ReturnsFile
+    from trimtab.units import UNITS
 
-    return load_returns(ReturnsFile.model_validate({"path": str(path)}), what=what)
+    if unit not in UNITS:
+        raise InputError(f"--unit: expected one of {', '.join(UNITS)}, got {unit!r}")
+    return load_returns(ReturnsFile.model_validate({"path": str(path), "unit": unit}), what=what)
 
 
 def _span(frame: pd.DataFrame, start: str | None, end: str | None) -> pd.DataFrame:
@@ -219,6 +187,8 @@ def attribute_returns_command(
     end: Annotated[str | None, typer.Option("--end", help="Last date to attribute.", metavar="YYYY-MM-DD", show_default=False)] = None,
     linking: Annotated[str, typer.Option("--linking", help="How periods are linked: carino (logarithmic) or sum.", metavar="carino|sum")] = "carino",
     group_by: Annotated[str | None, typer.Option("--group-by", help="Attributes column to sum the asset contributions by.", show_default=False)] = None,
+    unit: Annotated[str, typer.Option("--unit", help="Unit of the --returns and --factor-returns files: fraction (0.01 is 1%) or percent (divided by 100).",
+                                      metavar="fraction|percent")] = "fraction",
     out: OutOpt = None,
 ) -> None:
     """Explain a realised active return factor by factor, and what stock picking added.
@@ -234,7 +204,7 @@ def attribute_returns_command(
     from trimtab.attribution import attribute_backtest_returns, attribute_returns
 
     fm = FactorModel.load(model) if model is not None else None
-    factors = _dated_file(factor_returns, "factor returns") if factor_returns is not None else None
+    factors = _dated_file(factor_returns, "factor returns", unit) if factor_returns is not None else None
     inputs = [p for p in (model, returns, weights, holdings, benchmark, attributes, factor_returns, backtest) if p is not None]
     groups = None
     if backtest is not None:
@@ -256,16 +226,21 @@ def attribute_returns_command(
             raise InputError("attribute-returns: give --model and --returns (or --backtest FOLDER)")
         if (weights is None) == (holdings is None):
             raise InputError("attribute-returns: give exactly one of --weights (dates × assets) or --holdings (held fixed)")
-        asset_returns = _span(_dated_file(returns, "returns"), start, end)
+        all_returns = _dated_file(returns, "returns", unit)
+        asset_returns = _span(all_returns, start, end)
         if holdings is not None:
-            book = _book(fm, holdings, benchmark, attributes, 0.0, None)
+            book = read_book(fm, holdings, benchmark, attributes, 0.0, None)
             held: Any = book.holdings
             bench = book.benchmark
             attrs = book.attributes
         else:
             assert weights is not None
-            # a row dated t is held over the period whose return is dated t, until the next row
-            held = _dated_file(weights, "weights").reindex(asset_returns.index, method="ffill").fillna(0.0)
+            from trimtab.attribution._periods import weights_per_period
+            from trimtab.scenario._loaders import load_dated_weights
+            from trimtab.scenario._schema import ReturnsFile
+
+            book_rows = load_dated_weights(ReturnsFile.model_validate({"path": str(weights)}))
+            held = weights_per_period(book_rows, all_returns.index, asset_returns.index, str(weights))
             bench, attrs = _benchmark_and_attributes(fm, benchmark, attributes)
         result = attribute_returns(fm, held, asset_returns, factors, benchmark=bench, linking=linking)
         groups = _groups(attrs, group_by)
@@ -284,7 +259,7 @@ def attribute_returns_command(
     document: dict[str, Any] = {"linked": result.factor_table(), "total": float(result.linked["total"])}
     if backtest is not None:
         document["compounded_active_returns"] = chained
-    _show(ctx, text, document, out, files)
+    show(ctx, text, document, out, files, realised=True)
 
 
 def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Path | None) -> tuple[pd.Series | None, pd.DataFrame | None]:

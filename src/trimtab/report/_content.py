@@ -52,6 +52,13 @@ CAUTION = (
     "Your firm's compliance rules and applicable regulation govern."
 )
 
+#: The caution of pages that show realised (past) returns rather than forecasts: attribute-returns, backtests.
+REALISED_CAUTION = (
+    "These figures are past returns split by a risk model, not a forecast and not investment advice; the split "
+    "depends on the model's exposures. Verify before acting on them. Your firm's compliance rules and applicable "
+    "regulation govern."
+)
+
 #: Constraint names (or kinds) read as the risk budget, in order of preference.
 RISK_BUDGET_NAMES = ("tracking_error", "active_risk", "total_risk")
 
@@ -112,6 +119,8 @@ class ReportContent:
     checks: pd.DataFrame | None = None
     #: every asset before and after (the optimizer's columns, and the orders as sent when rounded)
     target_book: pd.DataFrame | None = None
+    #: the result whose alpha_alignment and alpha_factor the alpha section shows (trimtab.report._alpha)
+    alpha_source: Any = None
 
     @property
     def is_rebalance(self) -> bool:
@@ -178,6 +187,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         checks=final_limits(subject),
         target_book=target_book(subject, trades),
         stress=stress_frame(subject),
+        alpha_source=subject if getattr(subject, "alpha_alignment", None) is not None else None,
     )
 
 
