@@ -33,6 +33,7 @@ from trimtab.report._alpha import alpha_html
 from trimtab.report._stress import stress_html
 from trimtab.report._files import atomic_write_text
 from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
+from trimtab.report._filters import piece
 from trimtab.report._templates import render_cards
 from trimtab.report._relaxation import (
     Unsolved,
@@ -380,12 +381,13 @@ def _key_figures(content: ReportContent) -> str:
         if key not in headline.index:
             continue
         row = headline.loc[key]
-        was = f"before {format_figure(row['pre'], row['unit'])}" if "pre" in headline.columns else ""
-        cards.append({"key": key, "label": str(row["label"]), "value": format_figure(row["post"], row["unit"]), "note": was})
+        was = ["before ", piece(row["pre"], "figure", row["unit"])] if "pre" in headline.columns else ""
+        cards.append({"key": key, "label": str(row["label"]), "value": row["post"], "format": ["figure", row["unit"]],
+                      "note": was})
     if content.risk_budget is not None:
         budget = content.risk_budget
-        cards.insert(1, {"key": "risk_budget_used", "label": "Risk budget used", "value": format_figure(budget.used, "fraction"),
-                         "note": f"cap {format_figure(budget.cap, 'fraction')}"})
+        cards.insert(1, {"key": "risk_budget_used", "label": "Risk budget used", "value": budget.used,
+                         "format": ["figure", "fraction"], "note": ["cap ", piece(budget.cap, "figure", "fraction")]})
     note = ""
     if content.post.is_zero_risk:
         note = '<p class="note">The portfolio has zero risk: contributions are undefined and shown as n/a.</p>'

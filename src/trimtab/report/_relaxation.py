@@ -121,6 +121,17 @@ def unit_label(unit: Any) -> str:
     return str(unit)
 
 
+def relaxation_rows(table: pd.DataFrame) -> tuple[list[str], list[dict[str, Any]]]:
+    """The relaxation table's columns shown and its rows as raw values, each with its ``unit`` (the
+    explore page's partial prints them with the ``in_unit``, ``unit_label`` and ``text`` filters, as
+    :func:`display_relaxation` does)."""
+    columns = [c for c in RELAXATION_COLUMNS if c in table.columns]
+    units = table["unit"].tolist() if "unit" in table.columns else [""] * len(table)
+    rows = [{**{c: record[c] for c in columns}, "unit": unit}
+            for record, unit in zip(table.to_dict(orient="records"), units, strict=True)]
+    return columns, rows
+
+
 def display_relaxation(table: pd.DataFrame) -> pd.DataFrame:
     """The relaxation table as text, numbers in each row's unit (for the terminal and HTML)."""
     columns = [c for c in RELAXATION_COLUMNS if c in table.columns]
