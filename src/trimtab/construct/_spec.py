@@ -164,7 +164,7 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     'active_risk'
     """
     top = Path(source)
-    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay"], ["objective"])
+    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay", "orders"], ["objective"])
     problems: list[Problem] = []
     objective = _collect(problems, _objective, top / "objective", body["objective"])
     raw = body.get("constraints") or {}
@@ -188,6 +188,10 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
         normalised["stress"] = _stress_list(top / "stress", body["stress"], constraints.get("stress_loss"))
     if body.get("replay") is not None:
         normalised["replay"] = _replay(top / "replay", body["replay"])
+    if body.get("orders") is not None:
+        from trimtab.construct._spec_orders import validate_orders
+
+        normalised["orders"] = validate_orders(top / "orders", body["orders"])
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
 
 

@@ -56,6 +56,8 @@ class Scenario:
             mapping["stress"] = self.spec.stress
         if self.spec.replay is not None:
             mapping["replay"] = self.spec.replay
+        if self.spec.orders is not None:
+            mapping["orders"] = self.spec.orders
         return resolve_shock_files(mapping)
 
     @property
