@@ -387,10 +387,17 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
         step("writing the outputs")
         written = write_rebalance(run, out)
     _print_warnings(ui, run.result)
-    ui.emit({"scenario": loaded.name, "status": "solved", "output": str(written.folder), "files": written.files, **_result_document(run.result)})
+    fit = run.result.trade_list is None or run.result.trade_list.ok
+    ui.emit({"scenario": loaded.name, "status": "solved" if fit else "not_fit_to_send", "output": str(written.folder),
+             "files": written.files, **_result_document(run.result)})
     if ui.chatty:
         _print_result(ui, run.result)
         ui.say(f"Wrote {len(written.files)} files to {written.folder}")
+    if not fit:
+        from trimtab._cli_guard import EXIT_NOT_FIT
+        from trimtab.construct._orders import not_fit_line
+
+        _fail(f"{loaded.path}: {not_fit_line(run.result.trade_list)}", EXIT_NOT_FIT)
 
 
 def _print_warnings(ui: Ui, subject: Any) -> None:

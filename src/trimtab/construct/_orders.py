@@ -7,7 +7,8 @@ Scenario section ``orders`` (all optional, docs/scenarios.md):
 - ``min_trade_weight``: the noise floor of a list in weights, fraction of NAV (default 1e-6); a list
   in shares drops orders below half a lot (half a share for the sale of a whole position);
 - ``tolerance``: the rounding tolerance per kind of limit, ``weight``, ``exposure``, ``beta``, ``risk``;
-- ``repair``: ``milp`` (default) or ``greedy``, the search that makes the rounded book hold every limit.
+- ``repair``: ``auto`` (default: greedy, then the MILP if a breach is left), ``greedy`` or ``milp``, the
+  search that makes the rounded book hold every limit.
 
 When no rounded book holds every limit within its tolerance, the result's status is
 :data:`NOT_FIT_STATUS`: the orders are still written, marked not fit to send, and ``trimtab
@@ -71,7 +72,7 @@ def trade_list_for(problem: RebalanceProblem, outcome: Outcome) -> tuple[TradeLi
         lower=lower, upper=upper, rows=outcome.rows, model=book_model(problem), adv=checked.adv,
         sold_outside=data.sold_outside if len(data.sold_outside) else None,
         min_cash=min_cash(problem), fully_invested="fully_invested" in problem.spec.constraints,
-        tolerances=settings.get("tolerance"), method=settings.get("repair", "milp"),
+        tolerances=settings.get("tolerance"), method=settings.get("repair", "auto"),
     )
     notices = [RunWarning("inputs", f"attributes: {text}", {}) for text in checked.unused_bad]
     return rounded, notices
@@ -88,6 +89,15 @@ def rounding_notices(trade_list: TradeList) -> list[RunWarning]:
         )
         for r in trade_list.breached.itertuples()
     ]
+
+
+def not_fit_line(trade_list: TradeList) -> str:
+    """The one-line verdict on orders that breach a limit: every breached limit with its value and excess."""
+    parts = [f"{r.name} {r.value:.6g} ({r.excess:.3g} beyond {_limit_text(r)} + tolerance {r.tolerance:.1g})"
+             for r in trade_list.breached.itertuples()]
+    return (f"orders NOT FIT TO SEND (written, marked so): no book in whole lots holds every limit; "
+            f"on the rounded book {'; '.join(parts)}. Residual cash after trades and costs "
+            f"{trade_list.cash_after_costs:,.2f}")
 
 
 def _limit_text(row: Any) -> str:

@@ -14,7 +14,7 @@ the book could still buy) above that minimum.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -29,6 +29,7 @@ from trimtab.construct._repair import (
     repair_greedy,
     repair_milp,
     tolerance_kind,
+    total_excess,
 )
 from trimtab.construct.constraints._base import Rows
 
@@ -165,9 +166,11 @@ def book_limits(
 
 def repair_book(
     start: np.ndarray, w0: np.ndarray, lot_w: np.ndarray, lower: np.ndarray, upper: np.ndarray, movable: np.ndarray,
-    limits: Sequence[Limit], model: BookModel, *, method: str = "milp",
+    limits: Sequence[Limit], model: BookModel, *, method: str = "auto",
 ) -> np.ndarray:
-    """Add or remove whole lots until every limit holds (or as near as the lots allow)."""
+    """Add or remove whole lots until every limit holds (or as near as the lots allow).
+
+    ``auto`` runs the greedy search and, when it leaves a limit breached, the MILP from its book."""
     lot = np.where(np.isfinite(lot_w) & (lot_w > 0), lot_w, 0.0)
     safe_start = np.where(np.isfinite(start), start, w0)
     t = safe_start - w0
@@ -183,7 +186,12 @@ def repair_book(
     ]
     problem = RepairProblem(w0=w0, start=safe_start, lot_w=lot, lower=lower, upper=upper, movable=movable & (lot > 0),
                             limits=limits, gradient=model.gradient(safe_start, w0), jacobians=jacs)
-    return repair_milp(problem) if method == "milp" else repair_greedy(problem)
+    if method == "milp":
+        return repair_milp(problem)
+    w = repair_greedy(problem)
+    if method == "greedy" or total_excess(limits, w) <= 0:
+        return w
+    return repair_milp(replace(problem, start=w))
 
 
 def verification_table(limits: Sequence[Limit], soft_rows: Sequence[Rows], w: np.ndarray) -> pd.DataFrame:

@@ -14,7 +14,7 @@ from trimtab.construct._repair import ROUNDING_TOLERANCE
 #: Plausible sizes: a cash floor above half the NAV, a noise floor above 1% of NAV, a tolerance above
 #: 1% of NAV (weights), 0.1 (exposure, beta) or 1% a year (risk) are typing mistakes.
 _PLAUSIBLE_TOLERANCE = {"weight": 0.01, "exposure": 0.1, "beta": 0.1, "risk": 0.01}
-REPAIRS = ("milp", "greedy")
+REPAIRS = ("auto", "greedy", "milp")
 
 
 def validate_orders(path: Any, value: Any) -> dict[str, Any]:

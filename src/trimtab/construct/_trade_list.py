@@ -148,7 +148,7 @@ def build_trade_list(
     min_cash: float = 0.0,
     fully_invested: bool = False,
     tolerances: Mapping[str, float] | None = None,
-    method: str = "milp",
+    method: str = "auto",
     top_moves: int = 10,
 ) -> TradeList:
     """Round the trades ``target − holdings`` to whole lots, repair the rounded book until every limit
@@ -184,7 +184,7 @@ def build_trade_list(
         The scenario is fully invested: the cash left after costs is at most one lot above ``min_cash``.
     tolerances : mapping, optional
         Rounding tolerance per kind (weight, exposure, beta, risk); defaults ROUNDING_TOLERANCE.
-    method : {"milp", "greedy"}
+    method : {"auto", "greedy", "milp"}
         The repair search (module docstring of :mod:`trimtab.construct._repair`).
 
     Returns
