@@ -158,3 +158,65 @@ def test_positions_sold_outside_the_optimizer_are_in_the_list() -> None:
     tl = result.trade_list
     assert tl.cash_before == pytest.approx(fund.nav * (1 - holdings.sum()), abs=1e-3)  # ~0: float noise at NAV 1e8
     assert result.figures["names_sold"] == float((result.orders["side"] == "sell").sum())
+
+
+def test_a_bad_order_input_on_an_asset_held_or_traded_is_an_input_error() -> None:
+    from trimtab.errors import InputError
+
+    fund = make_fund(30, 3, seed=137)
+    held = fund.holdings.index[0]
+    for column, value, shown in (("price", 0.0, "0"), ("price", np.nan, "nan"), ("price", -5.0, "-5"),
+                                 ("lot", 0.0, "0"), ("lot", -100.0, "-100"), ("lot", np.nan, "nan")):
+        attrs = fund.attributes.copy()
+        attrs.loc[held, column] = value
+        with pytest.raises(InputError, match=rf"^attributes: column '{column}' must be a number > 0 for assets held or "
+                                              rf"traded: {held} \({shown}\)$"):
+            _solve(fund, attributes=attrs)
+
+
+def test_adv_of_zero_on_a_traded_asset_is_an_error_never_inf() -> None:
+    from trimtab.errors import InputError
+
+    fund = make_fund(30, 3, seed=138)
+    traded = _solve(fund).orders.index[0]
+    attrs = fund.attributes.copy()
+    attrs.loc[traded, "adv"] = 0.0
+    with pytest.raises(InputError, match=rf"column 'adv' must be a number > 0 for assets traded: {traded} \(0\)"):
+        _solve(fund, attributes=attrs)
+
+
+def test_a_bad_price_on_an_asset_neither_held_nor_traded_only_warns() -> None:
+    fund = make_fund(30, 3, seed=139)
+    holdings = fund.holdings.copy()
+    idle = holdings.index[-1]
+    holdings[idle] = 0.0
+    holdings /= holdings.sum()
+    scenario = {**SCENARIO, "constraints": {**SCENARIO["constraints"], "no_buy": [idle]}}
+    attrs = fund.attributes.copy()
+    attrs.loc[idle, "price"] = np.nan
+    result = _solve(fund, scenario, attributes=attrs, holdings=holdings)
+    assert result.trade_list is not None and idle not in result.orders.index
+    (warning,) = [w for w in result.warnings if w.kind == "inputs"]
+    assert f"column 'price' is not a number > 0 for 1 assets neither held nor traded (not used): {idle} (nan)" in warning.message
+    assert np.isfinite(result.orders[["shares", "notional", "cost", "adv_percent"]].to_numpy(dtype=float)).all()
+
+
+def test_no_noise_orders_in_a_list_in_weights() -> None:
+    # a trade of 1e-8 of NAV is no order: dropped before the list is written, the book re-verified
+    from trimtab.construct import build_problem
+    from trimtab.construct._orders import weights_without_noise
+
+    fund = make_fund(30, 3, seed=140)
+    scenario = {"objective": {"minimize": "active_risk"}, "constraints": {"long_only": True, "weight": {"max": 0.5}}}
+    problem = build_problem(fund.model, scenario, **{**fund.kwargs(), "attributes": None, "nav": None})
+    outcome = problem.solve_convex()
+    from dataclasses import replace
+
+    noisy = outcome.weights.copy()
+    noisy[:3] = fund.holdings.to_numpy()[:3] + np.array([1.16e-8, -5e-7, 2e-6])
+    cleaned, note = weights_without_noise(problem, replace(outcome, weights=noisy))
+    assert note is not None and note.startswith("orders: dropped 2 trades below 1e-06 of NAV")
+    np.testing.assert_array_equal(cleaned[:2], fund.holdings.to_numpy()[:2])
+    assert cleaned[2] == noisy[2]
+    result = rebalance(fund.model, {**scenario, "orders": {"min_trade_weight": 1e-4}}, **{**fund.kwargs(), "attributes": None, "nav": None})
+    assert (result.orders["weight_change"].abs() >= 1e-4).all()
