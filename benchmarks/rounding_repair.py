@@ -21,7 +21,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from trimtab.construct._heuristics import _fixes, _hard_box, rounded_weights
+from trimtab.construct._lots import fixes as _fixes
+from trimtab.construct._lots import hard_box as _hard_box
+from trimtab.construct._lots import rounded_weights
 from trimtab.construct._orders import min_cash
 from trimtab.construct._repair import ROUNDING_TOLERANCE, total_excess
 from trimtab.construct._rounded_book import book_limits, book_model, repair_book

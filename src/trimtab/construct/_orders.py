@@ -50,7 +50,8 @@ def min_cash(problem: RebalanceProblem) -> float:
 def trade_list_for(problem: RebalanceProblem, outcome: Outcome) -> tuple[TradeList | None, list[RunWarning]]:
     """The order-ready list when the NAV and a price column are known (None otherwise: the list is
     in weights), with warnings about order inputs that were not used."""
-    from trimtab.construct._heuristics import _fixes, _hard_box
+    from trimtab.construct._lots import fixes as _fixes
+    from trimtab.construct._lots import hard_box as _hard_box
 
     data = problem.data
     attrs = data.attributes

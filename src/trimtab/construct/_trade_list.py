@@ -30,7 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from trimtab.construct._heuristics import rounded_weights
+from trimtab.construct._lots import rounded_weights
 from trimtab.construct._repair import ROUNDING_TOLERANCE
 from trimtab.construct._rounded_book import BookModel, book_limits, repair_book, verification_table
 from trimtab.construct.constraints._base import Rows
