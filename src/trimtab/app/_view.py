@@ -14,6 +14,7 @@ from typing import Any
 import pandas as pd
 
 from trimtab.app._session import Variant
+from trimtab.report._html_desk import cash_card
 from trimtab.report._templates import (
     binding_rows, bp, exposure_rows, num, number, pct, render_cards, render_trades, trade_rows, warning_rows,
 )
@@ -47,7 +48,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
         content = gather(variant.result, top=TOP_TRADES)
         figures = key_figures(variant.result, content)
         html = {
-            "headline": render_cards(headline_cards(figures, content)),
+            "headline": render_cards(headline_cards(figures, content) + cash_card(content.rounding)),
             "exposures": render("partials/exposures.html.j2", rows=exposure_rows(content.exposures)),
             "trades": _trades(content),
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
