@@ -124,7 +124,7 @@ def test_desk_sections_render_in_headless_chromium(solved: tuple, tmp_path: Path
         assert any(h and h.startswith(expected) for h in headings), expected
     text = "".join(one.itertext())
     assert "Desk check" in text and "Expected active return (alpha)" in text and "Information ratio" in text
-    assert "factor concentration" in text and "Cash:" in text
+    assert "factor concentration" in text and "Cash after trades and costs:" in text
     orders = one.find(".//table[@class='orders']")
     rows = orders.findall(".//tbody/tr")
     assert len(rows) == min(25, len(tight.orders))

@@ -366,7 +366,27 @@ def _constraint_table(problem: RebalanceProblem, outcome: Outcome) -> pd.DataFra
             records.extend(describe_rows(rows, rows.evaluate(outcome.weights), mu_up, mu_lo))
     table = pd.DataFrame.from_records(records, columns=CONSTRAINT_COLUMNS)
     table["binding_assets"] = table["name"].map(_binding_assets(list(outcome.rows), outcome.weights, BINDING_TOL))
-    return table
+    return _merge_same_binding(table)
+
+
+def _merge_same_binding(table: pd.DataFrame) -> pd.DataFrame:
+    """One row per binding per-asset limit: limits that bind the same assets at the same value (long_only
+    and weight.min at 0, say) become one row named ``long_only = weight``; the merged bound's dual is
+    given to each of them (``split_box_duals``), so the row keeps the largest, not the sum."""
+    per_asset = table["asset"].notna() & table["binding"].astype(bool)
+    if per_asset.sum() < 2:
+        return table
+    keys = table.loc[per_asset].apply(lambda r: (round(float(r["value"]), 12), int(r["n_binding"]), str(r["binding_assets"]),
+                                                 str(r["unit"])), axis=1)
+    drop = []
+    for _, group in table.loc[per_asset].groupby(keys, sort=False):
+        if len(group) < 2:
+            continue
+        first = group.index[0]
+        table.loc[first, "name"] = " = ".join(group["name"].astype(str))
+        table.loc[first, "shadow_price"] = float(group["shadow_price"].max())
+        drop.extend(group.index[1:])
+    return table.drop(index=drop).reset_index(drop=True)
 
 
 def _binding_assets(rows: list[Any], weights: np.ndarray, tol: float) -> dict[str, str]:

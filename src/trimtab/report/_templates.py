@@ -104,7 +104,7 @@ def binding_rows(table: pd.DataFrame | None) -> list[dict[str, str]]:
         asset = row.get("asset")
         rows.append({
             "name": str(row.get("name", "")), "kind": str(row.get("kind", "")),
-            "value": pct(row.get("value"), 3) if unit.startswith("weight") or unit in ("fraction", "annualised volatility") else num(number(row.get("value")), 4),
+            "value": pct(row.get("value"), 3) if unit.startswith(("weight", "fraction")) or unit == "annualised volatility" else num(number(row.get("value")), 4),
             "where": "" if asset is None or (isinstance(asset, float) and math.isnan(asset)) else f"{asset}" + (f" and {int(count) - 1} more" if count and count > 1 else ""),
             "shadow_price": num(number(row.get("shadow_price")), 4),
         })
