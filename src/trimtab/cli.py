@@ -365,7 +365,8 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
 
     Solves, verifies every limit on the returned weights, and writes the weights, trades, constraint
     table, pre- and post-trade attributions, result.json and report.html. An infeasible scenario
-    prints its relaxation table, writes nothing and exits with 1.
+    prints its relaxation table, writes nothing and exits with 1. Orders that no book in whole lots
+    can make hold every limit are written as trades_not_fit_to_send.csv and the command exits with 6.
     """
     from trimtab.scenario import load_inputs, load_scenario
     from trimtab.scenario._run import solve, write_rebalance
