@@ -86,8 +86,11 @@ def _file_named(message: str, inputs: ScenarioInputs) -> str:
     for name, spec in files.items():
         if spec is not None and message.startswith(f"{name}: "):
             return f"{spec.path}: {message}"
-    if data.attributes is not None and "attribute column " in message:
-        return message.replace("attribute column ", f"{data.attributes.path}: column ", 1)
+    if data.attributes is not None:  # a value of a column (not a missing column): name its file
+        import re
+
+        return re.sub(r"attribute column ('[^']*') (must|has)", lambda m: f"{data.attributes.path}: column {m[1]} {m[2]}",  # type: ignore[union-attr]
+                      message, count=1)
     return message
 
 
