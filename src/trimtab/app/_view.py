@@ -40,6 +40,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
                 "partials/relaxation.html.j2", status=failure.status, message=_message(failure),
                 sentence=relaxation_sentence(failure.relaxation) if rows else "", rows=rows,
                 conflict=[str(c) for c in getattr(failure, "conflict", ()) or ()],
+                reasons=list(failure.reasons),
                 columns=list(rows[0]) if rows else [],
             )
         }
