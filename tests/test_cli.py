@@ -465,7 +465,7 @@ def test_help_and_check_load_only_what_they_need(demo_folder: Path) -> None:
     import subprocess
     import sys
 
-    probe = ("import sys, atexit; from trimtab._entry import main; "
+    probe = ("import sys, atexit; from trimtab.cli._entry import main; "
              "atexit.register(lambda: sys.stderr.write('LOADED ' + ' '.join(sorted(sys.modules)) + chr(10))); "
              "sys.argv = ['trimtab', *sys.argv[1:]]; main()")
 

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 
 from trimtab import _paths
-from trimtab._cli_guard import (
+from trimtab.cli._guard import (
     EXIT_INTERRUPTED,
     EXIT_TERMINATED,
     Terminated,
@@ -65,9 +65,9 @@ def test_a_swallowed_interrupt_is_reported_as_the_signal_it_was(monkeypatch: pyt
     import signal
     import types
 
-    import trimtab._entry as entry
+    import trimtab.cli._entry as entry
     import trimtab._paths as paths
-    from trimtab._cli_guard import interrupt_line
+    from trimtab.cli._guard import interrupt_line
 
     monkeypatch.setattr(paths, "COMPLETED", [])
     assert interrupt_line(paths.InterruptedBeforeCommit(signal.SIGTERM)) == ("terminated; nothing was written", 143)

@@ -16,7 +16,7 @@ import yaml
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from trimtab._strict_yaml import MAX_DEPTH, dump_yaml, load_yaml_text, read_regular_file
+from trimtab.scenario._strict_yaml import MAX_DEPTH, dump_yaml, load_yaml_text, read_regular_file
 from trimtab.errors import InputError, ScenarioError
 from trimtab.scenario._loaders import read_table
 

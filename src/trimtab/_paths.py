@@ -1,4 +1,6 @@
-"""File-system helpers for writing outputs: modes under the user's umask, partial folders, parents.
+"""File-system helpers: reading a regular file safely (:func:`read_regular_file`, shared by the model
+store and the YAML and table readers), and writing outputs: modes under the user's umask, partial
+folders, parents.
 
 A folder being written is a hidden sibling of its target named ``.<target>.partial-<pid>-<random>``
 (and a folder being replaced ``.<target>.old-<pid>-<random>``), so a run that was killed before it
@@ -13,9 +15,12 @@ import errno
 import os
 import re
 import shutil
+import stat
 import tempfile
 import threading
 from pathlib import Path
+
+from trimtab.errors import InputError
 
 _STALE = re.compile(r"^\..+\.(?:partial|old)-(?P<pid>\d+)-[A-Za-z0-9_]{8}$")
 _UMASK_LOCK = threading.Lock()
@@ -25,6 +30,8 @@ COMPLETED: list[Path] = []
 #: in a callback Python runs for itself (a weakref or import-lock callback) is swallowed, so an
 #: output folder checks this record again before it is put in place.
 RECEIVED_SIGNALS: list[int] = []
+#: The largest input file :func:`read_regular_file` reads unless told otherwise (8 MiB).
+MAX_FILE_BYTES = 8 * 1024 * 1024
 
 
 class InterruptedBeforeCommit(BaseException):
@@ -131,3 +138,63 @@ def remove_created(created: list[Path]) -> None:
             os.rmdir(folder)
         except OSError:
             pass  # gone, or holds something that is not ours to remove
+
+
+def read_regular_file(path: str | Path, what: str, limit: int | None = None, error: type[InputError] = InputError) -> bytes:
+    """The bytes of ``path``, which must be a regular file (not a folder, device or pipe).
+
+    The file is opened without blocking, so a named pipe cannot hang the tool, and checked again
+    once open. ``limit`` caps the size read; a longer file is an error naming the limit.
+
+    Raises
+    ------
+    InputError
+        One line naming the path and what is wrong. Permission and I/O faults are re-raised as
+        ``OSError`` with the path, for the command line to report as an environment problem.
+    """
+    p = Path(path)
+    try:
+        info = os.stat(p)
+    except FileNotFoundError:
+        raise error(f"{p}: no such {what} file") from None
+    except NotADirectoryError:
+        raise error(f"{p}: no such {what} file (a part of the path is a file, not a folder)") from None
+    except OSError as err:
+        raise OSError(err.errno, err.strerror, str(p)) from None
+    check_regular(p, info.st_mode, what, error)
+    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0)
+    try:
+        fd = os.open(p, flags)
+    except OSError as err:
+        raise OSError(err.errno, err.strerror, str(p)) from None
+    try:
+        check_regular(p, os.fstat(fd).st_mode, what, error)
+        cap = MAX_FILE_BYTES if limit is None else limit
+        chunks: list[bytes] = []
+        size = 0
+        while True:
+            chunk = os.read(fd, 1 << 20)
+            if not chunk:
+                break
+            size += len(chunk)
+            if size > cap:
+                shown = f"{cap // (1024 * 1024)} MiB" if cap >= 1024 * 1024 else f"{cap:,} bytes"
+                raise error(f"{p}: the {what} file is larger than {shown}; not read")
+            chunks.append(chunk)
+        return b"".join(chunks)
+    except OSError as err:
+        if err.errno == errno.EAGAIN:
+            raise error(f"{p}: the {what} file cannot be read without waiting (is it a pipe?)") from None
+        raise OSError(err.errno, err.strerror, str(p)) from None
+    finally:
+        os.close(fd)
+
+
+def check_regular(path: Path, mode: int, what: str, error: type[InputError] = InputError) -> None:
+    """Raise unless ``mode`` (from ``os.stat``) is that of a regular file."""
+    if stat.S_ISREG(mode):
+        return
+    if stat.S_ISDIR(mode):
+        raise error(f"{path}: is a folder; expected a {what} file")
+    kind = "a named pipe" if stat.S_ISFIFO(mode) else "a device" if stat.S_ISCHR(mode) or stat.S_ISBLK(mode) else "a socket" if stat.S_ISSOCK(mode) else "not a regular file"
+    raise error(f"{path}: is {kind}; expected a {what} file (a regular file)")

@@ -9,7 +9,7 @@ import pytest
 from typer.testing import CliRunner
 
 from tests.app._browser import explore_server, free_port
-from trimtab._cli_explore import _is_loopback, _url_host
+from trimtab.cli.explore import _is_loopback, _url_host
 from trimtab.cli import EXIT_BAD_INPUT, app
 
 runner = CliRunner()

@@ -12,7 +12,7 @@ import typer
 from typer.testing import CliRunner
 
 from trimtab.errors import InputError
-from trimtab.runs._commands import parse_grid, parse_values, register
+from trimtab.cli.runs import parse_grid, parse_values, register
 
 
 @pytest.fixture(scope="module")

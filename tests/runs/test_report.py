@@ -15,7 +15,7 @@ from tests.runs.test_backtest import SCENARIO, simulate
 from trimtab.errors import InputError
 from trimtab.report import CAUTION
 from trimtab.runs import backtest, frontier, sweep
-from trimtab.runs._report import html_table, render_page, write_backtest, write_frontier, write_sweep
+from trimtab.report._pages import html_table, render_page, write_backtest, write_frontier, write_sweep
 
 
 def _strict(path) -> str:

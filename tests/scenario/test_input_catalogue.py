@@ -336,7 +336,7 @@ def test_exponent_without_a_dot_is_a_number(work: Path, monkeypatch: pytest.Monk
 
 # ---------------------------------------------------------------------- subprocesses
 def trimtab_command(*args: str) -> list[str]:
-    return [sys.executable, "-c", "from trimtab._entry import main; main()", *args]
+    return [sys.executable, "-c", "from trimtab.cli._entry import main; main()", *args]
 
 
 def handlers_installed(pid: int) -> bool:

@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from trimtab._desk_figures import DESK_FIGURES  # noqa: F401 - re-exported: the figures this module computes
+from trimtab.attribution._desk_figures import DESK_FIGURES  # noqa: F401 - re-exported: the figures this module computes
 
 
 #: A weight or trade above this (absolute) counts.

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -15,6 +15,7 @@ from trimtab.construct._assembly import Assembly
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._data import ProblemData, prepare
 from trimtab.construct._objective import Objective
+from trimtab.construct._outcome import Outcome
 from trimtab.construct._spec import RebalanceSpec, validate_scenario
 from trimtab.construct._stress_table import check_listed_shocks
 from trimtab.construct._variables import Variables
@@ -22,26 +23,6 @@ from trimtab.construct._verify import describe_failures, failures, soft_penalty,
 from trimtab.construct.constraints import REGISTRY, Constraint, Rows
 from trimtab.errors import InputError, SolverError
 from trimtab.model import FactorModel
-
-
-@dataclass(eq=False)
-class Outcome:
-    """A verified convex solve."""
-
-    weights: np.ndarray
-    status: str
-    solver: str
-    iterations: int
-    solve_time: float
-    build_time: float
-    attempts: list[_solve.Attempt]
-    verification: pd.DataFrame
-    duals: dict[int, tuple[np.ndarray, np.ndarray]]
-    rows: list[Rows]
-    solver_objective: float
-    notes: list[str] = field(default_factory=list)
-    #: Solvers passed over because the problem is outside their class, with the reason.
-    skipped: list[str] = field(default_factory=list)
 
 
 class RebalanceProblem:

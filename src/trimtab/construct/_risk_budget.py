@@ -19,12 +19,13 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import list_labels
+from trimtab.construct._outcome import Outcome
 from trimtab.construct._verify import verify
 from trimtab.construct.constraints._base import Rows
 from trimtab.errors import SolverError
 
 if TYPE_CHECKING:
-    from trimtab.construct._problem import Outcome, RebalanceProblem
+    from trimtab.construct._problem import RebalanceProblem
 
 #: Newton stops when the decrement λ²/2 falls below this (f is scale-free in b).
 NEWTON_TOL = 1e-22
@@ -113,8 +114,6 @@ def contributions(problem: RebalanceProblem, w: np.ndarray) -> np.ndarray:
 
 def solve_risk_budget(problem: RebalanceProblem) -> Outcome:
     """Newton on Spinu's formulation, then w = x/Σx and the verification of the shares."""
-    from trimtab.construct._problem import Outcome
-
     start = time.perf_counter()
     target = budgets(problem)
     U = problem.model._scaled_exposures * np.sqrt(problem.data.periods_per_year)

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._desk_figures import WARNING_KINDS
+from trimtab.attribution._desk_figures import WARNING_KINDS
 
 #: Every warning kind, with what it means.
 KINDS = WARNING_KINDS

@@ -6,6 +6,7 @@ limit unless asked.
 
 from __future__ import annotations
 
+import importlib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -312,10 +313,15 @@ class FactorModel:
         """Risk attribution of ``weights`` (total risk) or of ``weights − benchmark`` (active risk).
 
         See :func:`trimtab.attribution.attribute` for the figures and their formulas.
-        """
-        from trimtab.attribution import attribute
 
-        return attribute(self, weights, benchmark, **kwargs)
+        Notes
+        -----
+        A thin shim: the attribution package sits above the model (it takes a ``FactorModel``), so
+        the model never imports it; the function is looked up when the method runs
+        (docs/architecture.md, "The one late-bound call").
+        """
+        attribution = importlib.import_module("trimtab.attribution")
+        return attribution.attribute(self, weights, benchmark, **kwargs)  # type: ignore[no-any-return]
 
     # ------------------------------------------------------------------ storage
     def save(self, path: str | Path, *, file_format: str = "parquet", overwrite: bool = False) -> Path:
@@ -333,7 +339,7 @@ class FactorModel:
         """Read a model folder written by :meth:`save`, validating every table."""
         from trimtab.model._store import load_model
 
-        return load_model(path)
+        return load_model(path, FactorModel)  # type: ignore[no-any-return]
 
     # ------------------------------------------------------------------ helpers
     def _vector_or_block(self, vector: Any, name: str) -> np.ndarray:

@@ -27,8 +27,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._paths import COMPLETED, ensure_parent_folder, make_partial, remove_created, remove_stale_partials
-from trimtab._strict_yaml import check_regular, read_regular_file
+from trimtab._paths import (
+    COMPLETED, check_regular, ensure_parent_folder, make_partial, read_regular_file, remove_created, remove_stale_partials,
+)
 from trimtab._version import __version__
 from trimtab.errors import InputError, ModelError
 
@@ -166,10 +167,10 @@ def _table_path(folder: Path, manifest_path: Path, name: str, entry: Any) -> Pat
     return fpath
 
 
-def load_model(path: str | Path) -> Any:
-    """Read and validate a model folder written by :func:`save_model`."""
-    from trimtab.model._factor_model import FactorModel
-
+def load_model(path: str | Path, model_class: Any) -> Any:
+    """Read and validate a model folder written by :func:`save_model` into ``model_class``
+    (:class:`~trimtab.model.FactorModel`, handed down by :meth:`FactorModel.load`: storage sits below
+    the model class and never imports it)."""
     folder = Path(path)
     manifest_path = folder / "manifest.json"
     if not folder.is_dir():
@@ -229,7 +230,7 @@ def load_model(path: str | Path) -> Any:
         raise InputError(f"{folder / tables['specific_variance']['file']}: column 'specific_variance' missing")
     d = sv["specific_variance"]
     try:
-        model = FactorModel(
+        model = model_class(
             B,
             F,
             d,

@@ -16,11 +16,11 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import PercentFormatter
 
-from trimtab.report._content import RiskBudget
-
-if TYPE_CHECKING:
+if TYPE_CHECKING:  # the content tables come in as arguments: charts sit below _content, never import it
     from matplotlib.axes import Axes
     from matplotlib.typing import RcKeyType
+
+    from trimtab.report._content import RiskBudget
 
 BEFORE = "#a3acb5"
 AFTER = "#2a6f77"

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from trimtab._desk_figures import DESK_FIGURES
+from trimtab.attribution._desk_figures import DESK_FIGURES
 
 if TYPE_CHECKING:
     from trimtab.attribution import RiskAttribution

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from trimtab._desk_figures import WARNING_KINDS
+from trimtab.attribution._desk_figures import WARNING_KINDS
 from trimtab.attribution import HEADLINE_FIGURES
 
 
@@ -102,7 +102,7 @@ JSON_SCHEMA: dict[str, Any] = {
                 "type": "object",
                 "required": ["kind", "message", "details"],
                 "properties": {
-                    "kind": {"enum": list(WARNING_KINDS)},  # trimtab._desk_figures.WARNING_KINDS
+                    "kind": {"enum": list(WARNING_KINDS)},  # trimtab.attribution._desk_figures.WARNING_KINDS
                     "message": {"type": "string"},
                     "details": {"type": "object"},
                 },

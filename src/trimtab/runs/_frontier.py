@@ -56,7 +56,7 @@ class FrontierResult:
 
     def charts(self) -> dict[str, str]:
         """Inline SVG charts: expected active return against TE (and against turnover)."""
-        from trimtab.runs._report import frontier_chart
+        from trimtab.report._pages import frontier_chart
 
         out = {"Expected active return against forecast tracking error": frontier_chart(self.tracking_error, name="frontier-te")}
         if self.turnover is not None:

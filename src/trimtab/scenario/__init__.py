@@ -22,7 +22,7 @@ from trimtab.scenario._scenario import (
     load_model_for,
     load_scenario,
 )
-from trimtab.scenario._output import MARKER, check_inputs_outside, check_target, output_folder, write_text_atomic
+from trimtab._output import MARKER, check_inputs_outside, check_target, output_folder, write_text_atomic
 from trimtab.scenario._schema import FitConfig, FitSettings, ScenarioSpec
 from trimtab.scenario._yaml import deep_merge
 

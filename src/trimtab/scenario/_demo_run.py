@@ -11,7 +11,7 @@ from typing import Any
 from trimtab.demo import DEMO_SCENARIOS, DemoFund, make_demo_fund
 from trimtab.scenario._demo_files import write_demo
 from trimtab.scenario._fit import fit_model, load_fit_config
-from trimtab.scenario._output import output_folder
+from trimtab._output import output_folder
 from trimtab.scenario._run import ScenarioRun, load_all, solve, write_comparison, write_rebalance
 from trimtab.scenario._scenario import ScenarioInputs, load_scenario
 

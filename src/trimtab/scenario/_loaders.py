@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from trimtab._strict_yaml import check_regular
+from trimtab.scenario._strict_yaml import check_regular
 from trimtab._validation import list_labels
 from trimtab.errors import InputError
 from trimtab.scenario._schema import AttributesFile, HoldingsFile, ReturnsFile, SeriesFile, _FileSpec

@@ -13,11 +13,11 @@ from typing import Any
 
 import pandas as pd
 
-from trimtab._strict_yaml import dump_yaml
+from trimtab.scenario._strict_yaml import dump_yaml
 from trimtab.errors import InfeasibleError, InputError, SolverError
 from trimtab.model import FactorModel
 from trimtab.scenario._fit import require
-from trimtab.scenario._output import output_folder
+from trimtab._output import output_folder
 from trimtab.scenario._scenario import Scenario, ScenarioInputs, load_inputs, load_model_for
 
 

@@ -17,7 +17,7 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
-from trimtab._strict_yaml import read_yaml
+from trimtab.scenario._strict_yaml import read_yaml
 from trimtab._validation import number_as_text
 from trimtab.errors import Problem, ScenarioError
 
@@ -43,7 +43,7 @@ NOT_INHERITED: tuple[tuple[str, ...], ...] = (("name",), ("output", "dir"))
 
 
 def read_yaml_mapping(path: Path, what: str = "scenario") -> dict[str, Any]:
-    """Read ``path`` with the strict loader (:func:`trimtab._strict_yaml.read_yaml`); the top level
+    """Read ``path`` with the strict loader (:func:`trimtab.scenario._strict_yaml.read_yaml`); the top level
     must be a mapping with text keys."""
     raw = read_yaml(path, what)
     if raw is None:

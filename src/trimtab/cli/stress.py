@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
+from trimtab.cli._app import _ui, add_commands, family
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # pandas is imported inside the commands: registering them keeps `trimtab --help` light
@@ -54,8 +55,6 @@ def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | 
 
 
 def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None) -> None:
-    from trimtab.cli import _ui
-
     ui = _ui(ctx)
     ui.emit({**document, "output": str(out) if out is not None else None, "files": files})
     if ui.chatty:
@@ -89,7 +88,7 @@ def stress_command(
     horizon, with its χ² tail probability.
     """
     from trimtab import FactorModel
-    from trimtab._stress_pages import write_stress
+    from trimtab.report._stress_pages import write_stress
     from trimtab.scenario._shocks import load_shocks
     from trimtab.stresstest import stress
     from trimtab.stresstest._entries import factor_moves, specific_moves
@@ -143,7 +142,7 @@ def replay_command(
     import pandas as pd
 
     from trimtab import FactorModel
-    from trimtab._stress_pages import write_replay
+    from trimtab.report._stress_pages import write_replay
     from trimtab.stresstest import factor_history, replay
 
     fm = FactorModel.load(model)
@@ -231,7 +230,7 @@ def attribute_returns_command(
     the model's history).
     """
     from trimtab import FactorModel
-    from trimtab._stress_pages import write_return_attribution
+    from trimtab.report._stress_pages import write_return_attribution
     from trimtab.attribution import attribute_backtest_returns, attribute_returns
 
     fm = FactorModel.load(model) if model is not None else None
@@ -297,10 +296,7 @@ def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Pa
     return bench, None if attrs is None else attrs.reindex(model.assets)
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``stress``, ``replay`` and ``attribute-returns`` to the main command-line app."""
-    from trimtab.cli import _guarded
-
-    app.command("stress")(_guarded(stress_command))
-    app.command("replay")(_guarded(replay_command))
-    app.command("attribute-returns")(_guarded(attribute_returns_command))
+    add_commands(app, {"stress": stress_command, "replay": replay_command, "attribute-returns": attribute_returns_command})

@@ -23,7 +23,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import PercentFormatter
 
 from trimtab._version import __version__
-from trimtab.report import CAUTION
+from trimtab.report._content import CAUTION
 
 if TYPE_CHECKING:
     from matplotlib.typing import RcKeyType
@@ -229,7 +229,7 @@ def figure_block(charts: Mapping[str, str]) -> str:
 
 def write_page(path: str | Path, title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = ()) -> Path:
     """Write :func:`render_page` to ``path`` through a temporary file."""
-    from trimtab.scenario import write_text_atomic
+    from trimtab._output import write_text_atomic
 
     target = Path(path)
     write_text_atomic(target, render_page(title, sections, notes=notes))
@@ -279,7 +279,7 @@ def sweep_charts(result: Any) -> dict[str, str]:
 
 def write_sweep(result: Any, target: str | Path, *, inputs: Sequence[str | Path] = (), title: str = "Sweep") -> Path:
     """sweep.csv, result.json and report.html into ``target`` (a temporary folder, then renamed)."""
-    from trimtab.scenario import output_folder
+    from trimtab._output import output_folder
 
     with output_folder(Path(target), inputs) as tmp:
         _write_tables(tmp, {"sweep": result.table})
@@ -294,7 +294,7 @@ def write_sweep(result: Any, target: str | Path, *, inputs: Sequence[str | Path]
 
 def write_frontier(result: Any, target: str | Path, *, inputs: Sequence[str | Path] = (), title: str = "Frontier") -> Path:
     """frontier_te.csv (and frontier_turnover.csv), result.json and report.html into ``target``."""
-    from trimtab.scenario import output_folder
+    from trimtab._output import output_folder
 
     with output_folder(Path(target), inputs) as tmp:
         _write_tables(tmp, {"frontier_te": result.tracking_error, "frontier_turnover": result.turnover})
@@ -311,7 +311,7 @@ def write_frontier(result: Any, target: str | Path, *, inputs: Sequence[str | Pa
 def write_backtest(result: Any, target: str | Path, *, inputs: Sequence[str | Path] = (), title: str = "Backtest") -> Path:
     """history.csv, exposures.csv, risk_contributions.csv, bias.csv, totals.csv, result.json and
     report.html into ``target``."""
-    from trimtab.scenario import output_folder
+    from trimtab._output import output_folder
 
     with output_folder(Path(target), inputs) as tmp:
         _write_tables(tmp, {

@@ -1,4 +1,4 @@
-"""``trimtab explore``: the live what-if page on this machine (registered from :mod:`trimtab.cli`).
+"""``trimtab explore``: the live what-if page on this machine (registered by :mod:`trimtab.cli`).
 
 The web stack is imported only when the command runs, so the other commands start as fast as before.
 """
@@ -10,6 +10,8 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+
+from trimtab.cli._app import _ui, add_commands, family
 
 def explore(
     ctx: typer.Context,
@@ -34,8 +36,6 @@ def explore(
 
     from trimtab.app import Explorer
     from trimtab.app._server import create_app
-    from trimtab.cli import _ui
-
     ui = _ui(ctx)
     _check_port(host, port)
     with ui.progress() as step:
@@ -111,8 +111,7 @@ def _url_host(host: str) -> str:
     return f"[{host}]" if ":" in host else host
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``explore`` to the command line (guarded like every command: one line per error)."""
-    from trimtab.cli import _guarded
-
-    app.command()(_guarded(explore))
+    add_commands(app, {"explore": explore})

@@ -17,8 +17,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab.runs._report import PALETTE, _figure, _percent, _svg, figure_block, html_table, lines_chart, write_page
-from trimtab.scenario import output_folder
+from trimtab.report._pages import PALETTE, _figure, _percent, _svg, figure_block, html_table, lines_chart, write_page
+from trimtab._output import output_folder
 
 _PERCENT = ("book", "benchmark", "active", "specific_band_book", "specific_band_active", "contribution", "share_of_return",
             "share_of_risk", "factor", "specific", "total", "mean_active_weight", "largest_loss")

@@ -18,8 +18,9 @@ from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
 import typer
 
-from trimtab._cli_guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
-from trimtab._cli_guard import fail as _fail
+from trimtab.cli._guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
+from trimtab.cli._app import add_commands, family
+from trimtab.cli._guard import fail as _fail
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # numpy, pandas and yaml are imported where used: registering the commands stays light
@@ -120,7 +121,7 @@ def parse_values(text: str, owner: str) -> list[Any]:
     """``a:b:n`` (n evenly spaced values), ``[v1, v2]`` (a YAML list) or ``v1,v2,…`` (YAML scalars)."""
     import numpy as np
 
-    from trimtab._strict_yaml import load_yaml_text
+    from trimtab.scenario._strict_yaml import load_yaml_text
 
     body = text.strip()
     if not body:
@@ -146,7 +147,7 @@ def parse_values(text: str, owner: str) -> list[Any]:
 
 def parse_grid(items: Sequence[str], grid_file: Path | None) -> dict[str, list[Any]] | list[dict[str, Any]]:
     """``--grid KEY=VALUES`` options (every combination), or a grid file (a mapping or a list of points)."""
-    from trimtab._strict_yaml import read_yaml
+    from trimtab.scenario._strict_yaml import read_yaml
 
     if grid_file is not None:
         if items:
@@ -213,7 +214,6 @@ def _report_failures(table: pd.DataFrame, label: Callable[[Any], str] = str) -> 
 # ---------------------------------------------------------------------------------------------
 # sweep
 # ---------------------------------------------------------------------------------------------
-@guarded
 def sweep_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
@@ -231,7 +231,7 @@ def sweep_command(
     The grid can vary the risk aversion, the tracking-error cap, the turnover cap or any limit by its
     dotted key; every combination of the values is solved.
     """
-    from trimtab.runs._report import write_sweep
+    from trimtab.report._pages import write_sweep
     from trimtab.runs._sweep import grid_points, sweep
 
     as_json, quiet = _flags(ctx, json_output, quiet)
@@ -256,7 +256,6 @@ def sweep_command(
 # ---------------------------------------------------------------------------------------------
 # frontier
 # ---------------------------------------------------------------------------------------------
-@guarded
 def frontier_command(
     ctx: typer.Context,
     scenario: ScenarioArg,
@@ -275,7 +274,7 @@ def frontier_command(
     Every point is solved under the scenario's other limits; writes the tables and a report with
     the charts.
     """
-    from trimtab.runs._report import write_frontier
+    from trimtab.report._pages import write_frontier
     from trimtab.runs._frontier import frontier
 
     as_json, quiet = _flags(ctx, json_output, quiet)
@@ -320,7 +319,6 @@ def fit_settings_mapping(settings: Any) -> dict[str, Any]:
     return out
 
 
-@guarded
 def backtest_command(
     ctx: typer.Context,
     scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files, run side by side.", metavar="SCENARIO.yaml", show_default=False)],
@@ -348,7 +346,7 @@ def backtest_command(
     import pandas as pd
 
     from trimtab.runs._backtest import backtest
-    from trimtab.runs._report import write_backtest
+    from trimtab.report._pages import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
     from trimtab.scenario._run import variant_limits
     from trimtab.scenario._schema import FitSettings, ReturnsFile
@@ -408,11 +406,10 @@ def backtest_command(
         sys.stderr.write(f"trimtab: warning: {name}: {error}\n")
 
 
+@family
 def register(app: typer.Typer) -> None:
     """Add ``sweep``, ``frontier`` and ``backtest`` to the main command-line app."""
-    app.command("sweep")(sweep_command)
-    app.command("frontier")(frontier_command)
-    app.command("backtest")(backtest_command)
+    add_commands(app, {"sweep": sweep_command, "frontier": frontier_command, "backtest": backtest_command}, guard=guarded)
 
 
 __all__ = ["backtest_command", "frontier_command", "parse_grid", "parse_values", "register", "sweep_command"]

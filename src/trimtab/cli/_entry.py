@@ -11,7 +11,7 @@ import signal
 import sys
 from types import FrameType
 
-from trimtab._cli_guard import REPORTED, Terminated, interrupt_line, write_error
+from trimtab.cli._guard import REPORTED, Terminated, interrupt_line, write_error
 from trimtab._paths import RECEIVED_SIGNALS as _RECEIVED
 
 

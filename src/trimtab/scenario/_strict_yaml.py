@@ -18,20 +18,18 @@ goes through :func:`read_yaml`. On top of PyYAML's safe loader it
 
 from __future__ import annotations
 
-import errno
-import os
 import re
-import stat
 from pathlib import Path
 from typing import Any
 
 import yaml
 from yaml.nodes import MappingNode, Node, ScalarNode, SequenceNode
 
-from trimtab.errors import InputError, Problem, ScenarioError
+from trimtab._paths import MAX_FILE_BYTES, check_regular, read_regular_file  # noqa: F401 - re-exported: the YAML readers' file checks
+from trimtab.errors import Problem, ScenarioError
 
 #: Largest YAML file read, in bytes.
-MAX_BYTES = 8 * 1024 * 1024
+MAX_BYTES = MAX_FILE_BYTES
 #: Deepest nesting of mappings and lists.
 MAX_DEPTH = 64
 #: Most values (mapping entries, list items, scalars) once every alias is expanded.
@@ -80,66 +78,6 @@ for _cls in (StrictLoader, StrictDumper):
 def dump_yaml(value: Any) -> str:
     """``value`` as YAML that :func:`load_yaml_text` reads back as the same value."""
     return yaml.dump(value, Dumper=StrictDumper, sort_keys=False, allow_unicode=True)
-
-
-def read_regular_file(path: str | Path, what: str, limit: int | None = None, error: type[InputError] = InputError) -> bytes:
-    """The bytes of ``path``, which must be a regular file (not a folder, device or pipe).
-
-    The file is opened without blocking, so a named pipe cannot hang the tool, and checked again
-    once open. ``limit`` caps the size read; a longer file is an error naming the limit.
-
-    Raises
-    ------
-    InputError
-        One line naming the path and what is wrong. Permission and I/O faults are re-raised as
-        ``OSError`` with the path, for the command line to report as an environment problem.
-    """
-    p = Path(path)
-    try:
-        info = os.stat(p)
-    except FileNotFoundError:
-        raise error(f"{p}: no such {what} file") from None
-    except NotADirectoryError:
-        raise error(f"{p}: no such {what} file (a part of the path is a file, not a folder)") from None
-    except OSError as err:
-        raise OSError(err.errno, err.strerror, str(p)) from None
-    check_regular(p, info.st_mode, what, error)
-    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0)
-    try:
-        fd = os.open(p, flags)
-    except OSError as err:
-        raise OSError(err.errno, err.strerror, str(p)) from None
-    try:
-        check_regular(p, os.fstat(fd).st_mode, what, error)
-        cap = MAX_BYTES if limit is None else limit
-        chunks: list[bytes] = []
-        size = 0
-        while True:
-            chunk = os.read(fd, 1 << 20)
-            if not chunk:
-                break
-            size += len(chunk)
-            if size > cap:
-                shown = f"{cap // (1024 * 1024)} MiB" if cap >= 1024 * 1024 else f"{cap:,} bytes"
-                raise error(f"{p}: the {what} file is larger than {shown}; not read")
-            chunks.append(chunk)
-        return b"".join(chunks)
-    except OSError as err:
-        if err.errno == errno.EAGAIN:
-            raise error(f"{p}: the {what} file cannot be read without waiting (is it a pipe?)") from None
-        raise OSError(err.errno, err.strerror, str(p)) from None
-    finally:
-        os.close(fd)
-
-
-def check_regular(path: Path, mode: int, what: str, error: type[InputError] = InputError) -> None:
-    """Raise unless ``mode`` (from ``os.stat``) is that of a regular file."""
-    if stat.S_ISREG(mode):
-        return
-    if stat.S_ISDIR(mode):
-        raise error(f"{path}: is a folder; expected a {what} file")
-    kind = "a named pipe" if stat.S_ISFIFO(mode) else "a device" if stat.S_ISCHR(mode) or stat.S_ISBLK(mode) else "a socket" if stat.S_ISSOCK(mode) else "not a regular file"
-    raise error(f"{path}: is {kind}; expected a {what} file (a regular file)")
 
 
 def read_yaml(path: str | Path, what: str = "scenario") -> Any:

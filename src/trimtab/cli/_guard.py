@@ -5,7 +5,7 @@ Exit codes (docs/cli.md): 0 ok; 1 infeasible; 2 bad input; 3 solver failure; 4 a
 output path below a file); 6 orders not fit to send (written, but no book in whole lots holds every
 limit); 130 interrupted (SIGINT, Ctrl-C); 143 terminated (SIGTERM).
 
-This module imports nothing heavy, so the console-script entry point (:mod:`trimtab._entry`) can
+This module imports nothing heavy, so the console-script entry point (:mod:`trimtab.cli._entry`) can
 install the signal handlers before numpy, pandas or the optimizer are imported.
 """
 
