@@ -21,7 +21,7 @@ SRC = Path(__file__).resolve().parents[1] / "src" / "trimtab"
 #: docs/architecture.md, "Layers": a part may import the parts of lower layers (and itself), nothing
 #: above or beside it. The root modules are the foundation and may import one another (no circle).
 LAYERS: tuple[frozenset[str], ...] = (
-    frozenset({"errors", "_version", "_typing", "_validation", "_format", "_paths", "_output", "demo"}),
+    frozenset({"errors", "_version", "_typing", "_validation", "_format", "_paths", "_output", "demo", "units"}),
     frozenset({"model"}),
     frozenset({"attribution", "stresstest"}),
     frozenset({"construct"}),

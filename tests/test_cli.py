@@ -344,10 +344,15 @@ def test_compare(work: Path) -> None:
     # the infeasible scenario keeps its column and gets its part in the report, not dropped
     status = next(line for line in result.stdout.splitlines() if line.startswith("│ status"))
     assert [c.strip() for c in status.split("│")[2:4]] == ["solved", "infeasible"]
-    assert "Infeasible (infeasible): how far each conflicting limit must move" in result.stdout
+    assert "Scenario infeasible cannot hold as written: how far each conflicting limit must move" in result.stdout
     page = (work / "cmp" / "report.html").read_text(encoding="utf-8")
-    assert "Scenario: infeasible</h2>" in page and "These limits cannot all hold: constraints.tracking_error.max" in page
-    assert "constraints.tracking_error.max from 0.500% to" in page or "constraints.tracking_error.max 0.500% →" in page
+    # issue #20: the comparison links to each scenario's own report instead of repeating it
+    assert "Scenario: infeasible</h2>" in page and 'href="infeasible/report.html"' in page and 'href="base/report.html"' in page
+    assert len(page) < len((work / "cmp" / "base" / "report.html").read_text(encoding="utf-8"))  # not every report again
+    own = (work / "cmp" / "infeasible" / "report.html").read_text(encoding="utf-8")
+    assert "These limits cannot all hold: constraints.tracking_error.max" in own
+    assert "constraints.tracking_error.max from 0.500% to" in own or "constraints.tracking_error.max 0.500% →" in own
+    assert (work / "cmp" / "base" / "report.html").exists()
     raw = pd.read_csv(work / "cmp" / "infeasible" / "relaxation.csv")
     assert "scale" not in raw.columns
     turnover = raw.set_index("constraint").loc["constraints.turnover.max"]

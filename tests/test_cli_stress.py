@@ -121,6 +121,12 @@ def test_a_backtest_of_several_scenarios_asks_which(demo: Path, tmp_path: Path) 
     assert "add --scenario base or --scenario low_turnover" in result.output
     result = in_folder(demo, "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "nope")
     assert result.exit_code == EXIT_BAD_INPUT and "--scenario nope: not in" in result.output
+    shown = in_folder(demo, "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "low_turnover", "--out", tmp_path / "ar")
+    assert shown.exit_code == 0, shown.output
+    # issue #20: realised returns carry a caution that fits them, not the forecasts' one
+    assert "past returns split by a risk model, not a forecast" in " ".join(shown.stdout.split()) and "model forecasts" not in shown.stdout
+    page = (tmp_path / "ar" / "report.html").read_text(encoding="utf-8")
+    assert "past returns split by a risk model, not a forecast" in page and "model forecasts" not in page
     result = in_folder(demo, "--json", "attribute-returns", "--backtest", bt, "--model", "model", "--scenario", "low_turnover")
     assert result.exit_code == 0, result.output
     history = pd.read_csv(bt / "history.csv").query("scenario == 'low_turnover'").dropna(subset=["realised_active"])
@@ -186,3 +192,17 @@ def test_attribute_returns_with_a_weights_history(demo: Path, tmp_path: Path) ->
                                     benchmark=bench.reindex(model.assets, fill_value=0.0))
     assert api.linked["total"] == pytest.approx(document["total"], rel=1e-12)
     assert api.by_period.loc[:"2023-08-31", "total"].abs().max() < 1e-15
+
+
+def test_the_command_in_the_demo_shock_file_runs(demo: Path) -> None:
+    # issue #20: the comment's command failed (share holdings need prices); it is run as written
+    import re
+    import shlex
+
+    text = (demo / "shocks.yaml").read_text(encoding="utf-8")
+    comment = " ".join(line.lstrip("# ").strip() for line in text.splitlines() if line.startswith("#"))
+    command = re.search(r"`trimtab (stress [^`]+)`", comment)
+    assert command is not None, comment
+    result = in_folder(demo, *shlex.split(command.group(1)))
+    assert result.exit_code == 0, result.output
+    assert "equity_selloff" in result.stdout

@@ -44,6 +44,8 @@ _LAZY = {
     "frontier": "trimtab.runs",
     "backtest": "trimtab.runs",
     "get_executor": "trimtab.runs",
+    "rebalance_accounts": "trimtab.runs.accounts",
+    "AccountsResult": "trimtab.runs.accounts",
     "stress": "trimtab.stresstest",
     "replay": "trimtab.stresstest",
     "StressResult": "trimtab.stresstest",

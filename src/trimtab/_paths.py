@@ -198,3 +198,29 @@ def check_regular(path: Path, mode: int, what: str, error: type[InputError] = In
         raise error(f"{path}: is a folder; expected a {what} file")
     kind = "a named pipe" if stat.S_ISFIFO(mode) else "a device" if stat.S_ISCHR(mode) or stat.S_ISBLK(mode) else "a socket" if stat.S_ISSOCK(mode) else "not a regular file"
     raise error(f"{path}: is {kind}; expected a {what} file (a regular file)")
+
+
+#: errno → the cause in a user's words.
+OS_CAUSES = {
+    errno.EROFS: "the file system is read-only",
+    errno.ENOSPC: "no space left on the disk",
+    errno.EDQUOT: "the disk quota is exceeded",
+    errno.EACCES: "permission denied",
+    errno.EPERM: "operation not permitted",
+    errno.ENOTDIR: "is a file, so no folder can be made below it",
+    errno.EISDIR: "is a folder",
+    errno.EEXIST: "exists and is not a folder",
+    errno.ENAMETOOLONG: "the name is too long",
+    errno.EMFILE: "too many open files",
+    errno.EIO: "input/output error on the disk",
+    errno.ENOENT: "no such file or folder",
+    errno.ELOOP: "too many symbolic links",
+}
+
+
+def environment_line(err: OSError) -> str:
+    """``<path>: cannot <do it>: <cause>`` for an operating-system fault, in the user's words."""
+    cause = OS_CAUSES.get(err.errno or -1) or (err.strerror or type(err).__name__).lower()
+    paths = [p for p in (err.filename, err.filename2) if p]
+    where = f"{os.fsdecode(paths[0])}: " if paths else ""
+    return f"{where}{cause} (fix the disk or the path and rerun; the inputs are unchanged)"

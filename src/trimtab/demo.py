@@ -364,7 +364,8 @@ constraints:
 # model's other factors move as the model says they co-move with them). The base scenario reports
 # every shock before and after the trade (stress: shocks.yaml), with the three worst months of the
 # model's history (replay:); stress_limit.yaml caps the shocks' losses.
-# `trimtab stress --model model --holdings data/holdings.csv --shocks shocks.yaml` runs them alone.
+# `trimtab stress --model model --holdings data/holdings.csv --attributes data/attributes.csv --cash 6000000
+#  --benchmark data/benchmark.csv --shocks shocks.yaml` runs them alone (from the demo folder).
 description: Invented demo shocks (returns over about a month)
 shocks:
   equity_selloff:

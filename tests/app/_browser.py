@@ -41,31 +41,70 @@ def free_port() -> int:
 
 @contextmanager
 def explore_server(scenario: Path, port: int, host: str = "127.0.0.1") -> Iterator[subprocess.Popen[str]]:
-    """``trimtab explore SCENARIO --no-browser --port PORT --host HOST`` until it answers; Ctrl-C on leaving."""
+    """``trimtab explore SCENARIO --no-browser --port PORT --host HOST`` until it answers; Ctrl-C on leaving.
+
+    The process gets ``url``: the address the command printed, its token included, as a user would
+    copy it (issue #20: the page and the API answer only with the token).
+    """
+    import queue
+    import re
+    import threading
+
     process = subprocess.Popen(
         [sys.executable, "-m", "trimtab.cli", "explore", str(scenario), "--no-browser", "--port", str(port), "--host", host],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
     )
+    lines: queue.Queue[str] = queue.Queue()
+    seen: list[str] = []
+
+    def read() -> None:
+        assert process.stdout is not None
+        for line in process.stdout:
+            lines.put(line)
+
+    reader = threading.Thread(target=read, daemon=True)
+    reader.start()
     try:
         deadline = time.monotonic() + 120
+        url = None
+        while url is None:
+            try:
+                seen.append(lines.get(timeout=0.5))
+            except queue.Empty:
+                if process.poll() is not None or time.monotonic() > deadline:
+                    raise RuntimeError(f"trimtab explore printed no address: {seen}") from None
+                continue
+            found = re.search(r"(http://\S+\?token=[\w-]+)", seen[-1])
+            url = found.group(1) if found else None
         while True:
             try:
-                urllib.request.urlopen(f"http://127.0.0.1:{port}/api/scenario", timeout=2).read()
+                urllib.request.urlopen(url, timeout=2).read()
                 break
             except OSError:
                 if process.poll() is not None or time.monotonic() > deadline:
                     raise RuntimeError("trimtab explore did not start (its stderr follows below)") from None
                 time.sleep(0.3)
+        process.url = url  # type: ignore[attr-defined]
+        process.token = url.rsplit("token=", 1)[1]  # type: ignore[attr-defined]
         yield process
     finally:
         if process.poll() is None:
             process.send_signal(signal.SIGINT)
         try:
-            output = process.communicate(timeout=30)
+            process.wait(timeout=30)
         except subprocess.TimeoutExpired:
             process.kill()
-            output = process.communicate()
-        process.output = output  # type: ignore[attr-defined]  # (stdout, stderr), for the test to read
+            process.wait()
+        assert process.stderr is not None
+        err = process.stderr.read()
+        process.stderr.close()
+        reader.join(timeout=10)  # it ends at the end of stdout
+        assert process.stdout is not None
+        process.stdout.close()
+        out = "".join(seen)
+        while not lines.empty():
+            out += lines.get()
+        process.output = (out, err)  # type: ignore[attr-defined]  # (stdout, stderr), for the test to read
 
 
 @contextmanager

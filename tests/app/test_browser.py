@@ -16,7 +16,7 @@ def test_moving_the_te_cap_re_solves_and_grows_the_trail_which_a_refresh_keeps(d
 
     port = free_port()
     with explore_server(demo_folder / "base.yaml", port) as server, chromium() as driver:
-        driver.get(f"http://127.0.0.1:{port}/")
+        driver.get(server.url)  # the address explore printed, its token included
         wait_for_variant(driver, 1)
         card = driver.find_element(By.CSS_SELECTOR, '[data-figure="tracking_error"] .value')
         assert card.text == "3.00%"
@@ -70,8 +70,8 @@ def test_the_issue_walkthrough_te_cap_and_momentum_bound_three_pins_save_and_reb
     from selenium.webdriver.support.ui import WebDriverWait
 
     port = free_port()
-    with explore_server(demo_folder / "base.yaml", port), chromium() as driver:
-        driver.get(f"http://127.0.0.1:{port}/")
+    with explore_server(demo_folder / "base.yaml", port) as server, chromium() as driver:
+        driver.get(server.url)
         wait_for_variant(driver, 1)
         set_value(driver, "n-tracking_error.max", "2.5")
         wait_for_variant(driver, 2)
@@ -97,7 +97,7 @@ def test_the_issue_walkthrough_te_cap_and_momentum_bound_three_pins_save_and_reb
         WebDriverWait(driver, 30).until(lambda d: d.find_element(By.ID, "save-message").text.startswith("Saved variant 3"))
         # the variant's own weights, from the API with the same changes
         body = json.dumps({"limits": {"tracking_error.max": 0.025, "factor_exposure.bounds.momentum.1": 0.0}}).encode()
-        request = urllib.request.Request(f"http://127.0.0.1:{port}/api/solve", data=body, headers={"Content-Type": "application/json"})
+        request = urllib.request.Request(f"http://127.0.0.1:{port}/api/solve", data=body, headers={"Content-Type": "application/json", "X-Trimtab-Token": server.token})
         document = json.loads(urllib.request.urlopen(request, timeout=60).read())
         errors = [e for e in driver.get_log("browser") if e["level"] == "SEVERE"]
         assert errors == [], errors

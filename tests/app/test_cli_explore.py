@@ -50,3 +50,33 @@ def test_off_loopback_it_warns_and_ctrl_c_stops_it_cleanly(demo_folder: Path) ->
     assert server.returncode == 0, err
     assert err.startswith("trimtab: warning: listening on 0.0.0.0: anyone who can reach this machine")
     assert "Stopped; nothing was written except the scenarios you saved." in out
+
+
+@pytest.mark.slow
+def test_with_json_the_address_and_token_are_one_line_a_program_reads(demo_folder: Path) -> None:
+    import json
+    import subprocess
+    import sys
+    import time
+    import urllib.request
+
+    port = free_port()
+    process = subprocess.Popen([sys.executable, "-m", "trimtab.cli", "explore", str(demo_folder / "base.yaml"), "--no-browser",
+                                "--port", str(port), "--json"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        assert process.stdout is not None
+        document = json.loads(process.stdout.readline())  # issue #20: how another program gets the token
+        assert document["url"] == f"http://127.0.0.1:{port}/?token={document['token']}"
+        request = urllib.request.Request(f"http://127.0.0.1:{port}/api/scenario", headers={"X-Trimtab-Token": document["token"]})
+        deadline = time.monotonic() + 120
+        while True:
+            try:
+                answer = json.loads(urllib.request.urlopen(request, timeout=5).read())
+                break
+            except OSError:
+                assert time.monotonic() < deadline and process.poll() is None
+                time.sleep(0.3)
+        assert answer["scenario"] == "base"
+    finally:
+        process.send_signal(__import__("signal").SIGINT)
+        process.communicate(timeout=30)

@@ -55,7 +55,7 @@ def test_zero_policy_sells_unknown_holdings_and_counts_their_turnover(small):
     [
         ({"benchmark": "sum"}, r"^benchmark: weights must sum to 1 \(got 0\.9\)$"),
         ({"alpha": "nan"}, r"^alpha: NaN or infinite values for assets: A0003$"),
-        ({"holdings": "over"}, r"^holdings: sum to 1\.5 > 1 in a long-only book without leverage"),
+        ({"holdings": "over"}, r"^rebalance: holdings weights sum to 1\.5, more than the whole NAV \(1\)"),
         ({"holdings": "frame"}, r"^holdings: expected a pandas Series by asset, got DataFrame$"),
         ({"holdings": "dup"}, r"^holdings: duplicate asset ids: A0001$"),
         ({"holdings": "text"}, r"^holdings: expected numbers, got dtype"),

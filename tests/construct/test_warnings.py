@@ -9,7 +9,7 @@ import pytest
 from trimtab.construct import _solve, rebalance
 from trimtab.construct._orders import rounding_notices
 from trimtab.construct._trade_list import TradeList
-from trimtab.construct._warnings import KINDS, AlertSettings, concentration_warnings
+from trimtab.construct._warnings import KINDS, AlertSettings, concentration_warnings, share_text
 from trimtab.scenario import align_inputs
 from trimtab.scenario._notices import alignment_warnings
 
@@ -130,3 +130,9 @@ def test_every_kind_is_documented() -> None:
     text = (Path(__file__).resolve().parents[2] / "docs" / "outputs.md").read_text(encoding="utf-8")
     for kind in KINDS:
         assert f"`{kind}`" in text, kind
+
+
+@pytest.mark.parametrize(("percent", "threshold", "text"), [(50.02, 0.5, "50.02%"), (50.4, 0.5, "50.4%"), (75.4, 0.5, "75%"), (20.0001, 0.2, "20.0001%")])
+def test_a_share_above_its_alert_never_reads_as_equal_to_it(percent: float, threshold: float, text: str) -> None:
+    # issue #20: "takes 50% (alert above 50%)"
+    assert share_text(percent, threshold) == text

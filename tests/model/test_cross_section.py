@@ -422,7 +422,7 @@ def test_no_asset_left_for_the_model():
 def test_exposure_dates_that_do_not_order(dates, message):
     rng = np.random.default_rng(2)
     assets = [f"A{i}" for i in range(20)]
-    returns = pd.DataFrame(rng.normal(size=(5, 20)), columns=assets)
+    returns = pd.DataFrame(0.01 * rng.normal(size=(5, 20)), columns=assets)
     long = pd.DataFrame({"date": dates, "asset": assets, "size": rng.normal(size=20)})
     with pytest.raises(InputError, match=message):
         fit_cross_section(returns, long, periods_per_year=12)

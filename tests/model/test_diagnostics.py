@@ -147,6 +147,10 @@ def test_does_not_flag_exact_factor_model_residuals() -> None:
     # Under independence the count is about alpha × pairs = 31.6 with binomial s.d. ≈ 5.6.
     assert abs(result.pairs_significant - result.expected_significant) < 4 * np.sqrt(result.expected_significant)
     assert "not flagged" in result.summary()
+    # issue #20: the verdict leads with the rule it applies and the excess ratio
+    ratio = result.pairs_significant / result.expected_significant
+    assert (f"rule: flagged when the significant pairs exceed 2× the expected count and the binomial tail p < {result.alpha:g}; "
+            f"here {ratio:.2f}× expected, p = {result.p_value:.3g}: not flagged") in result.summary()
 
 
 def test_flag_rule_needs_both_excess_count_and_small_p_value() -> None:

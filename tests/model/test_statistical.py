@@ -172,7 +172,7 @@ def test_first_principal_component_of_french_industries_tracks_the_market():
 
 def test_pure_noise_prefers_no_factor_and_warns():
     rng = np.random.default_rng(8)
-    noise = pd.DataFrame(rng.normal(size=(300, 100)), index=pd.bdate_range("2021-01-01", periods=300))
+    noise = pd.DataFrame(0.01 * rng.normal(size=(300, 100)), index=pd.bdate_range("2021-01-01", periods=300))
     with pytest.warns(DataWarning, match="IC_p2 is lowest with no factor at all; using k = 1"):
         model = fit_statistical(noise, max_factors=5)
     assert model.n_factors == 1

@@ -94,9 +94,9 @@ def test_terminal_comparison_keeps_the_infeasible_column(result: StandInResult) 
     assert [c.strip() for c in status.split("│")[2:5]] == ["solved", "infeasible", "solver failure"]
     risk_row = next(line for line in text.splitlines() if "Active risk (tracking error)" in line)
     assert format_figure(result.post_trade.risk, "fraction") in risk_row and risk_row.count("n/a") == 2
-    assert "Infeasible (tight): how far each conflicting limit must move" in text
+    assert "Scenario tight cannot hold as written: how far each conflicting limit must move" in text
     # the conflict set comes first, before the table
-    assert text.index("tight: These limits cannot all hold: constraints.tracking_error.max") < text.index("Infeasible (tight)")
+    assert text.index("tight: These limits cannot all hold: constraints.tracking_error.max") < text.index("Scenario tight cannot hold as written")
     assert "-0.061%" in text and "-0.0006074" not in text
     assert "broken: solver failure: every solver failed" in text
 
@@ -104,7 +104,7 @@ def test_terminal_comparison_keeps_the_infeasible_column(result: StandInResult) 
 def test_print_relaxation_without_a_table() -> None:
     console = recorded()
     print_relaxation(InfeasibleError("x.yaml: infeasible"), console=console, name="x")
-    assert "Infeasible (x): how far each conflicting limit must move: the optimizer gave no relaxation table" in console.export_text()
+    assert "Scenario x cannot hold as written: how far each conflicting limit must move: the optimizer gave no relaxation table" in console.export_text()
 
 
 def test_html_comparison_shows_the_infeasible_part(result: StandInResult, report_model: FactorModel) -> None:

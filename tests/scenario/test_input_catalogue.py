@@ -301,6 +301,11 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
 
 @pytest.mark.parametrize(("change", "command", "code", "pattern"), [c[1:] for c in CASES], ids=[c[0] for c in CASES])
 def test_catalogue(work: Path, monkeypatch: pytest.MonkeyPatch, change: Callable[[Path], None], command: list[str], code: int, pattern: str) -> None:
+    run_case(work, monkeypatch, change, command, code, pattern)
+
+
+def run_case(work: Path, monkeypatch: pytest.MonkeyPatch, change: Callable[[Path], None], command: list[str], code: int, pattern: str) -> None:
+    """Apply ``change``, run ``trimtab command``: its exit code, one line matching ``pattern``, nothing written."""
     change(work)
     monkeypatch.chdir(work)
     before = snapshot(work)

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from trimtab.errors import InputError
+from trimtab.errors import DataWarning, InputError
 from trimtab.scenario import load_attributes, load_holdings, load_returns, load_series, read_table
 from trimtab.scenario._schema import AttributesFile, HoldingsFile, ReturnsFile, SeriesFile
 
@@ -154,8 +154,12 @@ def test_series_and_attributes(tmp_path: Path) -> None:
     (tmp_path / "a.csv").write_text("ticker,score,alpha\nAAA,1.5,0.02\nBBB,-1,-0.01\n", encoding="utf-8")
     alpha = load_series(SeriesFile(path=str(tmp_path / "a.csv"), asset_column="ticker"), "alpha", "alpha")
     assert alpha.to_dict() == {"AAA": 0.02, "BBB": -0.01}
-    score = load_series(SeriesFile(path=str(tmp_path / "a.csv"), asset_column="ticker", column="score"), "alpha", "alpha")
-    assert score.to_dict() == {"AAA": 1.5, "BBB": -1.0}
+    # issue #20: a column of scores (spread 125%) is not alpha as a fraction; declared percent is divided by 100
+    with pytest.raises(InputError, match=r"a\.csv: alpha looks like percent, not annual fractions: its spread across assets is 1\.25 .*declare unit: percent"):
+        load_series(SeriesFile(path=str(tmp_path / "a.csv"), asset_column="ticker", column="score"), "alpha", "alpha")
+    with pytest.warns(DataWarning, match=r"a\.csv: alpha read as percent \(unit: percent\) and divided by 100"):
+        score = load_series(SeriesFile(path=str(tmp_path / "a.csv"), asset_column="ticker", column="score", unit="percent"), "alpha", "alpha")
+    assert score.to_dict() == {"AAA": 0.015, "BBB": -0.01}
     with pytest.raises(InputError, match=r"a\.csv: alpha file lacks column 'asset'; found columns: ticker, score, alpha \(set column"):
         load_series(SeriesFile(path=str(tmp_path / "a.csv")), "alpha", "alpha")
     (tmp_path / "attr.csv").write_text("asset,industry,price\n7,Orchard Foods,10\nBBB,Murmur Media,20\n", encoding="utf-8")

@@ -26,13 +26,13 @@ def test_the_demo_shock_file_loads():
         ("", "the shock file is empty"),
         ("shock: {}\n", r"shock: unknown key; did you mean shocks\?"),  # issue #11: the closest key suggested
         ("description: x\n", "shocks: required key missing"),
-        ("shocks:\n  a: {market: -0.1}\n", r"shocks\.a\.market: unknown key; allowed here: factors, description, specific"),
+        ("shocks:\n  a: {factors: {market: -0.1}, market: -0.1}\n", r"shocks\.a\.market: unknown key; allowed here: factors, description, specific"),
         ("shocks:\n  a: {factors: {market: -5}}\n", r"shocks\.a\.factors\.market: a move of -5 is -500%"),
         ("shocks:\n  a: {factors: {market: '-10%'}}\n", r"shocks\.a\.factors\.market: expected a finite number"),
         ("shocks:\n  a: {factors: {}}\n", r"shocks\.a\.factors: expected a mapping factor → move"),
         ("shocks: [1, 2]\n", "shocks: expected a mapping of shock name"),
     ],
-    ids=["empty", "unknown-top", "no-shocks", "short-form", "percent", "text", "no-factors", "list"],
+    ids=["empty", "unknown-top", "no-shocks", "mixed-forms", "percent", "text", "no-factors", "list"],
 )
 def test_bad_shock_files_fail_in_one_line(tmp_path, text, match):
     path = tmp_path / "shocks.yaml"
@@ -41,6 +41,14 @@ def test_bad_shock_files_fail_in_one_line(tmp_path, text, match):
         load_shocks(path)
     message = str(caught.value)
     assert "\n" not in message and message.startswith(str(path))
+
+
+def test_short_form_is_the_same_shock(tmp_path):
+    # issue #20: one shock vocabulary; {crash: {market: -0.1}} as trimtab.stress() takes it
+    short, full = tmp_path / "short.yaml", tmp_path / "full.yaml"
+    short.write_text("shocks:\n  crash: {market: -0.1}\n", encoding="utf-8")
+    full.write_text("shocks:\n  crash: {factors: {market: -0.1}}\n", encoding="utf-8")
+    assert load_shocks(short) == load_shocks(full)
 
 
 def test_paths_are_replaced_by_their_shocks(tmp_path):

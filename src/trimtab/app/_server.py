@@ -1,13 +1,16 @@
 """The HTTP side of ``trimtab explore``: the page, its two assets and a small JSON API (docs/api.md).
 
-Safety: only the package's own assets are served (a fixed list, no paths from the request);
-request bodies are capped (413 above :data:`MAX_BODY`); a POST must be JSON and, when the
-browser names its origin, come from this page; limit keys and values are checked against the
-scenario; solves run one at a time (the explorer's lock); only Save writes a file.
+Safety: a request must name this server in its Host, come from this page when the browser names
+its origin, and carry the run's token (:mod:`trimtab.app._guard`); only the package's own assets
+are served (a fixed list, no paths from the request); request bodies are capped (413 above
+:data:`MAX_BODY`); a POST must be JSON whose numbers are JSON numbers; limit keys and values are
+checked against the scenario; solves run one at a time (the explorer's lock); only Save writes a
+file, under the umask; every failure answers one JSON document ``{"detail": …}``.
 """
 
 from __future__ import annotations
 
+import errno
 import json
 from importlib import resources
 from typing import Any
@@ -15,10 +18,12 @@ from typing import Any
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import HTMLResponse, JSONResponse, Response
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Field, StrictFloat, model_validator
+from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from trimtab._version import __version__
+from trimtab.app._guard import AccessGuard, allowed_hosts, new_token
 from trimtab.app._session import Explorer
 from trimtab.errors import TrimtabError
 
@@ -33,13 +38,21 @@ class SolveRequest(BaseModel):
 
     model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
 
-    limits: dict[str, float | None] = Field(
+    limits: dict[str, StrictFloat | None] = Field(
         default_factory=dict,
         description="dotted key path → value, as `trimtab sweep` takes them (GET /api/scenario lists them); "
         "null opens one side of a bound",
         examples=[{"tracking_error.max": 0.02, "factor_exposure.bounds.momentum.1": 0.1}],
     )
-    risk_aversion: float | None = Field(None, description="λ of a utility objective (same as limits.risk_aversion)")
+    risk_aversion: StrictFloat | None = Field(None, description="λ of a utility objective (same as limits.risk_aversion)")
+
+    @model_validator(mode="before")
+    @classmethod
+    def _plain_text(cls, value: Any) -> Any:
+        """Refuse a key or text holding a lone surrogate (JSON's ``\\ud800``): it is no character."""
+        if not _encodable(value):
+            raise ValueError("text holds a lone surrogate (an escape such as \\ud800 that is no character)")
+        return value
 
 
 class SaveRequest(SolveRequest):
@@ -139,8 +152,32 @@ def _too_large(limit: int) -> Response:
     return JSONResponse({"detail": f"request body over {limit // 1024} KiB"}, status_code=413)
 
 
-def create_app(explorer: Explorer) -> FastAPI:
-    """The web application serving ``explorer``: the page at ``/`` and the API under ``/api``."""
+def _encodable(value: Any) -> bool:
+    """Every key and text in ``value`` encodes as UTF-8 (none holds a lone surrogate)."""
+    if isinstance(value, str):
+        try:
+            value.encode("utf-8")
+        except UnicodeEncodeError:
+            return False
+        return True
+    if isinstance(value, dict):
+        return all(_encodable(k) and _encodable(v) for k, v in value.items())
+    if isinstance(value, list):
+        return all(_encodable(v) for v in value)
+    return True
+
+
+def create_app(explorer: Explorer, *, host: str = "127.0.0.1", port: int = 8765, token: str | None = None) -> FastAPI:
+    """The web application serving ``explorer``: the page at ``/`` and the API under ``/api``.
+
+    Parameters
+    ----------
+    explorer : Explorer
+    host, port : str, int
+        The address served: requests must name it (or a loopback name) in their Host header.
+    token : str, optional
+        The run's secret; default :func:`trimtab.app._guard.new_token`. Kept as ``app.state.token``.
+    """
     app = FastAPI(
         title="trimtab explore",
         version=__version__,
@@ -155,6 +192,12 @@ def create_app(explorer: Explorer) -> FastAPI:
     async def _invalid(request: Request, exc: RequestValidationError) -> JSONResponse:
         return JSONResponse({"detail": _one_line(exc.errors())}, status_code=422)
 
+    @app.exception_handler(StarletteHTTPException)
+    async def _http(request: Request, exc: StarletteHTTPException) -> JSONResponse:
+        if exc.status_code == 400 and "parsing the body" in str(exc.detail):  # bytes that are not UTF-8 text
+            return JSONResponse({"detail": "the body is not valid JSON (UTF-8 text)"}, status_code=422)
+        return JSONResponse({"detail": str(exc.detail)}, status_code=exc.status_code, headers=getattr(exc, "headers", None))
+
     @app.exception_handler(TrimtabError)
     async def _bad(request: Request, exc: TrimtabError) -> JSONResponse:
         return JSONResponse({"detail": _first_line(exc, explorer)}, status_code=_status(exc))
@@ -165,9 +208,6 @@ def create_app(explorer: Explorer) -> FastAPI:
             kind = request.headers.get("content-type", "").split(";")[0].strip().lower()
             if kind != "application/json":
                 return JSONResponse({"detail": "send the body as JSON (Content-Type: application/json)"}, status_code=415)
-            origin = request.headers.get("origin")
-            if origin is not None and origin.split("://", 1)[-1] != request.headers.get("host"):
-                return JSONResponse({"detail": f"requests from {origin} are not accepted"}, status_code=403)
         response: Response = await call_next(request)
         response.headers.setdefault("X-Content-Type-Options", "nosniff")
         response.headers.setdefault("Cache-Control", "no-store")
@@ -216,7 +256,23 @@ def create_app(explorer: Explorer) -> FastAPI:
         path = explorer.save(body.name, changes)
         return Saved(file=str(path), name=body.name, extends=explorer.scenario.path.name, changes=changes)
 
+    @app.exception_handler(OSError)
+    async def _environment(request: Request, exc: OSError) -> JSONResponse:
+        from trimtab._paths import environment_line
+
+        full = exc.errno in (errno.ENOSPC, errno.EDQUOT)
+        return JSONResponse({"detail": _first_line(Exception(environment_line(exc)), explorer)}, status_code=507 if full else 500)
+
+    @app.exception_handler(Exception)
+    async def _bug(request: Request, exc: Exception) -> JSONResponse:
+        text = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+        return JSONResponse({"detail": f"internal error (a bug in trimtab; please report it): {type(exc).__name__}: {text}"[:500]},
+                            status_code=500)
+
+    secret = token if token is not None else new_token()
     app.add_middleware(BodyLimit, limit=MAX_BODY)
+    app.add_middleware(AccessGuard, hosts=allowed_hosts(host, port), token=secret)
+    app.state.token = secret
     app.state.explorer = explorer
     return app
 
@@ -231,14 +287,26 @@ def _one_line(errors: Any) -> str:
         return "invalid request"
     error = errors[0]
     where = ".".join(str(p) for p in error.get("loc", ()) if p != "body")
-    what = str(error.get("msg", "invalid value"))
+    what = str(error.get("msg", "invalid value")).removeprefix("Value error, ")
     if error.get("type") == "json_invalid":
         return "the body is not valid JSON"
     if error.get("type") == "extra_forbidden":
         return f"{where}: unknown key (expected limits, risk_aversion{', name' if 'name' in str(errors) else ''})"
     got = error.get("input")
+    if error.get("type") == "float_type" and isinstance(got, (bool, str)):
+        return f"{where}: expected a JSON number, got {json.dumps(got)[:60]}" + ("; write it without quotes" if _numeric(got) else "")
     shown = "" if isinstance(got, (dict, list)) or got is None else f" (got {got!r})"
     return f"{where or 'body'}: {what}{shown}"
+
+
+def _numeric(value: Any) -> bool:
+    if not isinstance(value, str):
+        return False
+    try:
+        float(value)
+    except ValueError:
+        return False
+    return True
 
 
 def _first_line(err: BaseException, explorer: Explorer) -> str:

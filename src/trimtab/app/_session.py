@@ -23,6 +23,7 @@ from typing import Any
 import yaml
 
 from trimtab.app._limits import Limit, apply, changed, check_changes, saved_changes, scenario_limits, update_arguments
+from trimtab._paths import file_mode
 from trimtab.errors import InfeasibleError, InputError, SolverError
 
 #: A saved scenario's name: letters, digits, ``-`` and ``_`` (it becomes the file name).
@@ -209,7 +210,7 @@ class Explorer:
         try:
             with os.fdopen(fd, "w", encoding="utf-8") as handle:
                 handle.write(text)
-            os.chmod(tmp, 0o644)
+            os.chmod(tmp, file_mode())  # as any new file under the user's umask
             os.link(tmp, target)  # fails when the name exists: never overwrites
         except FileExistsError:
             raise InputError(f"name: {target.name} already exists beside the scenario; choose another name") from None

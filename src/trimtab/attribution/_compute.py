@@ -14,6 +14,7 @@ import pandas as pd
 
 from trimtab._validation import check_unique, list_labels
 from trimtab.attribution._result import RiskAttribution
+from trimtab.units import check_book
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:
@@ -103,7 +104,10 @@ def attribute(
     if not isinstance(model, FactorModel):
         raise InputError(f"attribute: model must be a trimtab.FactorModel, got {type(model).__name__}")
     w = model.weights_array(weights, name="weights")
+    check_book(w, "attribute", "weights")
     b = None if benchmark is None else model.weights_array(benchmark, name="benchmark")
+    if b is not None:
+        check_book(b, "attribute", "benchmark")
     groups = _factor_group_labels(model, factor_groups)
     attrs = _checked_attributes(model, attributes)
 

@@ -2,7 +2,7 @@
 
 :mod:`trimtab.cli._app` builds the app (global options ``--json``, ``--quiet``, ``--verbose``,
 ``--version``) and wraps every command in the one guard (:mod:`trimtab.cli._guard`); each family
-module (``demo``, ``model``, ``rebalance``, ``runs``, ``explore``, ``stress``) has a ``register(app)``
+module (``accounts``, ``demo``, ``model``, ``rebalance``, ``runs``, ``explore``, ``stress``) has a ``register(app)``
 marked ``@family`` that adds its commands, and no family imports another. Adding a family is one new
 module plus one import line in :func:`_build` below (see docs/architecture.md).
 
@@ -23,6 +23,7 @@ def _build() -> Any:
     from trimtab.cli._app import FAMILIES, app, finish
 
     # the command families, one line each; the order of `trimtab --help` is HELP_ORDER in cli/_app.py
+    from trimtab.cli import accounts  # noqa: F401
     from trimtab.cli import demo  # noqa: F401
     from trimtab.cli import explore  # noqa: F401
     from trimtab.cli import model  # noqa: F401

@@ -12,12 +12,14 @@ report it). Everything printed goes through the cli package; the work is done by
 from __future__ import annotations
 
 import inspect
+import math
+from pathlib import Path
 
 import functools
 import json
 import sys
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Annotated, Any, TypeVar
@@ -27,12 +29,16 @@ from typing import TYPE_CHECKING
 import typer
 
 from trimtab.cli._guard import guarded
+from trimtab.cli._usage import OneLineGroup
 from trimtab._version import __version__
 from trimtab.errors import InfeasibleError
 
 if TYPE_CHECKING:  # imported where used: `trimtab --help` loads neither pandas nor the optimizer
+    import pandas as pd
     from rich.console import Console
     from rich.table import Table
+
+    from trimtab.runs._executors import Executor, Outcome
 
 
 
@@ -46,6 +52,7 @@ app = typer.Typer(
     add_completion=False,
     pretty_exceptions_enable=False,
     context_settings={"help_option_names": ["-h", "--help"]},
+    cls=OneLineGroup,  # one-line usage errors, global options in either place, plain help placeholders
 )
 
 F = TypeVar("F", bound=Callable[..., Any])
@@ -155,7 +162,7 @@ def _root(
         bool, typer.Option("--version", callback=_version, is_eager=True, help="Print the version and exit.", metavar="")
     ] = False,
 ) -> None:
-    """Global options go before the command: `trimtab --json check base.yaml`."""
+    """Global options go before or after the command: `trimtab --json check base.yaml`."""
     ctx.obj = Ui(json=json_output, quiet=quiet, verbose=verbose)
 
 
@@ -189,7 +196,7 @@ def _print_warnings(ui: Ui, subject: Any) -> None:
 
 
 #: The order of ``trimtab --help``; commands not listed follow in the order their families register.
-HELP_ORDER = ("demo", "check", "fit", "risk", "rebalance", "compare", "sweep", "frontier", "backtest", "explore",
+HELP_ORDER = ("demo", "check", "fit", "risk", "rebalance", "compare", "sweep", "frontier", "backtest", "accounts", "explore",
               "stress", "replay", "attribute-returns")
 
 
@@ -228,3 +235,92 @@ def _reflow_help(app: typer.Typer) -> None:
             paragraphs = inspect.cleandoc(command.callback.__doc__).split("\n\n")
             command.help = "\n\n".join(" ".join(p.split()) for p in paragraphs)
 
+
+# ---------------------------------------------------------------------------------------------
+# Conventions shared by the many-run commands (sweep, frontier, backtest, accounts)
+# ---------------------------------------------------------------------------------------------
+def _flags(ctx: typer.Context, json_output: bool, quiet: bool) -> tuple[bool, bool]:
+    """--json / --quiet given to the command or to the main app before it."""
+    root = ctx.find_root().obj
+    return json_output or bool(getattr(root, "json", False)), quiet or bool(getattr(root, "quiet", False))
+
+
+@contextmanager
+def progress_bar(total: int, label: str, quiet: bool) -> Iterator[Callable[[Outcome], None]]:
+    """A rich progress bar on stderr (off with --quiet or when stderr is not a terminal)."""
+    from rich.console import Console
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    console = Console(file=sys.stderr)
+    bar = Progress(
+        TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+        console=console, transient=True, disable=quiet or not console.is_terminal,
+    )
+    with bar:
+        task = bar.add_task(label, total=total)
+        yield lambda outcome: bar.update(task, advance=1, description=f"{label}: {outcome.label}")
+
+
+def _executor(executor: str | None, workers: int | None, scheduler: str | None) -> Executor:
+    from trimtab.runs._executors import get_executor, resolve_kind
+
+    return get_executor(resolve_kind(executor, workers, scheduler), workers=workers, scheduler=scheduler)
+
+
+def _jsonable(value: Any) -> Any:
+    import numpy as np
+    import pandas as pd
+
+    if isinstance(value, Mapping):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, pd.DataFrame):
+        return _jsonable(value.reset_index().to_dict(orient="records"))
+    if isinstance(value, pd.Series):
+        return _jsonable(value.to_dict())
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return None if not math.isfinite(float(value)) else float(value)
+    if isinstance(value, (str, type(None))):
+        return value
+    if isinstance(value, pd.Timestamp):
+        return value.isoformat()
+    return str(value)
+
+
+def _emit(document: Mapping[str, Any]) -> None:
+    sys.stdout.write(json.dumps(_jsonable(document), indent=2) + "\n")
+
+
+def _say(text: str, chatty: bool) -> None:
+    if chatty:
+        from rich.console import Console
+
+        Console(file=sys.stdout, highlight=False, width=max(100, Console().width)).print(text, markup=False)
+
+
+#: Table columns that are fractions of NAV or annualised fractions, shown as percentages.
+_PERCENT_COLUMNS = ("tracking_error", "turnover", "expected_alpha", "tracking_error.max", "turnover.max", "limit")
+
+
+def _say_table(frame: pd.DataFrame, title: str, chatty: bool) -> None:
+    """A results table in rich form, fractions as percentages (see :func:`trimtab._format.frame_table`)."""
+    if chatty:
+        from rich.console import Console
+
+        from trimtab._format import frame_table
+
+        table = frame_table(frame, title, percent=_PERCENT_COLUMNS, max_rows=len(frame))
+        Console(file=sys.stdout, highlight=False, width=max(100, Console().width)).print(table)
+
+
+ScenarioArg = Annotated[Path, typer.Argument(help="A scenario YAML file.", metavar="SCENARIO.yaml", show_default=False)]
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.", metavar="")]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).", metavar="")]
+ExecutorOpt = Annotated[str | None, typer.Option("--executor", help="inprocess, processes or dask (default: dask with --workers/--scheduler, else inprocess).", metavar="KIND", show_default=False)]
+WorkersOpt = Annotated[int | None, typer.Option("--workers", help="Worker processes (a local Dask cluster unless --executor processes).", min=1, show_default=False)]
+SchedulerOpt = Annotated[str | None, typer.Option("--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786.", metavar="ADDRESS", show_default=False)]

@@ -20,27 +20,13 @@ import warnings
 from collections.abc import Callable, Sequence
 from typing import Any, TypeVar
 
+from trimtab._paths import environment_line  # noqa: F401 - an OS fault's cause in a user's words (shared with the explore page)
+
 EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL, EXIT_ENVIRONMENT = 0, 1, 2, 3, 4, 5
 EXIT_NOT_FIT = 6
 EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
 F = TypeVar("F", bound=Callable[..., Any])
 
-#: errno → the cause in a user's words.
-_CAUSES = {
-    errno.EROFS: "the file system is read-only",
-    errno.ENOSPC: "no space left on the disk",
-    errno.EDQUOT: "the disk quota is exceeded",
-    errno.EACCES: "permission denied",
-    errno.EPERM: "operation not permitted",
-    errno.ENOTDIR: "is a file, so no folder can be made below it",
-    errno.EISDIR: "is a folder",
-    errno.EEXIST: "exists and is not a folder",
-    errno.ENAMETOOLONG: "the name is too long",
-    errno.EMFILE: "too many open files",
-    errno.EIO: "input/output error on the disk",
-    errno.ENOENT: "no such file or folder",
-    errno.ELOOP: "too many symbolic links",
-}
 
 
 class Terminated(BaseException):
@@ -68,14 +54,6 @@ def interrupt_line(err: BaseException) -> tuple[str, int]:
         done = ", ".join(str(p) for p in COMPLETED)
         return f"{what}; {done} had been written completely before, nothing else was written", code
     return f"{what}; nothing was written", code
-
-
-def environment_line(err: OSError) -> str:
-    """``<path>: cannot <do it>: <cause>`` for an operating-system fault, in the user's words."""
-    cause = _CAUSES.get(err.errno or -1) or (err.strerror or type(err).__name__).lower()
-    paths = [p for p in (err.filename, err.filename2) if p]
-    where = f"{os.fsdecode(paths[0])}: " if paths else ""
-    return f"{where}{cause} (fix the disk or the path and rerun; the inputs are unchanged)"
 
 
 #: Hints in messages shared with the Python API (keyword arguments, attributes) → a scenario's words.

@@ -65,8 +65,8 @@ def demo(
         ("model/", "the fitted risk model"),
         ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
         ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),
-        ("results/compare/report.html", "the four scenarios side by side, the impossible one with its relaxation"),
-        ("", "table (comparison.csv and one folder each; infeasible/relaxation.csv holds the raw numbers)"),
+        ("results/compare/report.html", "the four scenarios side by side, linking to each one's own report"),
+        ("results/compare/*/", "one folder each (infeasible/report.html shows its relaxation table)"),
         ("*.yaml", "the scenarios and fit configs, ready to edit and rerun"),
     ]
     width = max(len(name) for name, _ in files) + 2

@@ -42,16 +42,27 @@ def explore(
         step("reading the scenario and building the problem")
         explorer = Explorer.open(scenario)
         step("solving the scenario as written")
-        app = create_app(explorer)
-    url = f"http://{_url_host(host)}:{port}/"
+        app = create_app(explorer, host=host, port=port)
+    url = f"http://{_url_host(host)}:{port}/?token={app.state.token}"
     if not _is_loopback(host):
         sys.stderr.write(
             f"trimtab: warning: listening on {host}: anyone who can reach this machine on port {port} can "
             "see the portfolio and save scenario files; use --host 127.0.0.1 to keep it on this machine\n"
         )
-    config = uvicorn.Config(app, host=host, port=port, log_level="warning", access_log=False, lifespan="off")
+    from trimtab.app._guard import DeadlineH11Protocol
+
+    # a request must arrive whole within the guard's deadline; at most 64 connections at once
+    config = uvicorn.Config(app, host=host, port=port, log_level="warning", access_log=False, lifespan="off",
+                            http=DeadlineH11Protocol, limit_concurrency=64, timeout_keep_alive=5)
     server = uvicorn.Server(config)
-    ui.say(f"Exploring {explorer.scenario.name} at {url}  (Ctrl-C stops)")
+    # the address is the command's output, shown even with --quiet: without its token nothing answers
+    if ui.json:  # one line, for a program that starts the server and reads its address
+        import json
+
+        sys.stdout.write(json.dumps({"scenario": explorer.scenario.name, "url": url, "token": app.state.token}) + "\n")
+    else:
+        sys.stdout.write(f"Exploring {explorer.scenario.name} at {url}  (Ctrl-C stops)\n")
+    sys.stdout.flush()
     if not no_browser:
         threading.Timer(1.0, lambda: webbrowser.open(url)).start()
     # Ctrl-C is how this command ends: uvicorn shuts down on it and raises it again afterwards, which

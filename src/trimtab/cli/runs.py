@@ -8,106 +8,25 @@ what was expected, never a traceback; outputs written to a temporary folder, the
 
 from __future__ import annotations
 
-import json
-import math
 import sys
-from collections.abc import Callable, Iterator, Mapping, Sequence
-from contextlib import contextmanager
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
 import typer
 
 from trimtab.cli._guard import EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER, guarded
-from trimtab.cli._app import add_commands, family
+from trimtab.cli._app import (  # noqa: F401 - the conventions every many-run command shares
+    ExecutorOpt, JsonOpt, QuietOpt, ScenarioArg, SchedulerOpt, WorkersOpt, _emit, _executor, _flags, _jsonable, _say,
+    _say_table, add_commands, family, progress_bar,
+)
 from trimtab.cli._guard import fail as _fail
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # numpy, pandas and yaml are imported where used: registering the commands stays light
     import pandas as pd
-from trimtab.runs._executors import Executor, Outcome, get_executor, resolve_kind
 
 F = TypeVar("F", bound=Callable[..., Any])
-
-
-# ---------------------------------------------------------------------------------------------
-# Conventions shared by the three commands
-# ---------------------------------------------------------------------------------------------
-def _flags(ctx: typer.Context, json_output: bool, quiet: bool) -> tuple[bool, bool]:
-    """--json / --quiet given to the command or to the main app before it."""
-    root = ctx.find_root().obj
-    return json_output or bool(getattr(root, "json", False)), quiet or bool(getattr(root, "quiet", False))
-
-
-@contextmanager
-def progress_bar(total: int, label: str, quiet: bool) -> Iterator[Callable[[Outcome], None]]:
-    """A rich progress bar on stderr (off with --quiet or when stderr is not a terminal)."""
-    from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
-
-    console = Console(file=sys.stderr)
-    bar = Progress(
-        TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
-        console=console, transient=True, disable=quiet or not console.is_terminal,
-    )
-    with bar:
-        task = bar.add_task(label, total=total)
-        yield lambda outcome: bar.update(task, advance=1, description=f"{label}: {outcome.label}")
-
-
-def _executor(executor: str | None, workers: int | None, scheduler: str | None) -> Executor:
-    return get_executor(resolve_kind(executor, workers, scheduler), workers=workers, scheduler=scheduler)
-
-
-def _jsonable(value: Any) -> Any:
-    import numpy as np
-    import pandas as pd
-
-    if isinstance(value, Mapping):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, pd.DataFrame):
-        return _jsonable(value.reset_index().to_dict(orient="records"))
-    if isinstance(value, pd.Series):
-        return _jsonable(value.to_dict())
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return None if not math.isfinite(float(value)) else float(value)
-    if isinstance(value, (str, type(None))):
-        return value
-    if isinstance(value, pd.Timestamp):
-        return value.isoformat()
-    return str(value)
-
-
-def _emit(document: Mapping[str, Any]) -> None:
-    sys.stdout.write(json.dumps(_jsonable(document), indent=2) + "\n")
-
-
-def _say(text: str, chatty: bool) -> None:
-    if chatty:
-        from rich.console import Console
-
-        Console(file=sys.stdout, highlight=False, width=max(100, Console().width)).print(text, markup=False)
-
-
-#: Table columns that are fractions of NAV or annualised fractions, shown as percentages.
-_PERCENT_COLUMNS = ("tracking_error", "turnover", "expected_alpha", "tracking_error.max", "turnover.max", "limit")
-
-
-def _say_table(frame: pd.DataFrame, title: str, chatty: bool) -> None:
-    """A results table in rich form, fractions as percentages (see :func:`trimtab._format.frame_table`)."""
-    if chatty:
-        from rich.console import Console
-
-        from trimtab._format import frame_table
-
-        table = frame_table(frame, title, percent=_PERCENT_COLUMNS, max_rows=len(frame))
-        Console(file=sys.stdout, highlight=False, width=max(100, Console().width)).print(table)
 
 
 def _default_out(scenario: Any, command: str) -> Path:
@@ -177,15 +96,9 @@ def _check_floats(values: list[Any], owner: str) -> list[float]:
 # ---------------------------------------------------------------------------------------------
 # Shared options
 # ---------------------------------------------------------------------------------------------
-ScenarioArg = Annotated[Path, typer.Argument(help="A scenario YAML file.", metavar="SCENARIO.yaml", show_default=False)]
 def _out_option(command: str) -> Any:
     """``--out`` of one command, its default folder spelled out."""
     return typer.Option("--out", "-o", help=f"Output folder (default: results/{command}-<name> next to the scenario).", show_default=False)
-JsonOpt = Annotated[bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.", metavar="")]
-QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors (and --json output).", metavar="")]
-ExecutorOpt = Annotated[str | None, typer.Option("--executor", help="inprocess, processes or dask (default: dask with --workers/--scheduler, else inprocess).", metavar="KIND", show_default=False)]
-WorkersOpt = Annotated[int | None, typer.Option("--workers", help="Worker processes (a local Dask cluster unless --executor processes).", min=1, show_default=False)]
-SchedulerOpt = Annotated[str | None, typer.Option("--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786.", metavar="ADDRESS", show_default=False)]
 
 
 def _load(scenario: Path) -> Any:

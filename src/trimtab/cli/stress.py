@@ -34,6 +34,8 @@ def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path |
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
     from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
 
+    if nav is not None and not nav > 0:
+        raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
     attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
     columns = set(read_table(holdings, what="holdings").columns)
     kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
@@ -54,16 +56,17 @@ def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | 
     return attributes[column]
 
 
-def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None) -> None:
+def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None,
+          realised: bool = False) -> None:
     ui = _ui(ctx)
     ui.emit({**document, "output": str(out) if out is not None else None, "files": files})
     if ui.chatty:
         ui.out.print(text, markup=False, highlight=False)
         if out is not None and files:
             ui.say(f"Wrote {len(files)} files to {out}")
-        from trimtab.report import CAUTION
+        from trimtab.report import CAUTION, REALISED_CAUTION
 
-        ui.out.print(f"[italic]{CAUTION}[/italic]")
+        ui.out.print(f"[italic]{REALISED_CAUTION if realised else CAUTION}[/italic]")
 
 
 # ---------------------------------------------------------------------- stress
@@ -183,11 +186,14 @@ def _backtest_tables(folder: Path) -> SimpleNamespace:
     return SimpleNamespace(**tables)
 
 
-def _dated_file(path: Path, what: str) -> pd.DataFrame:
+def _dated_file(path: Path, what: str, unit: str = "fraction") -> pd.DataFrame:
     from trimtab.scenario import load_returns
     from trimtab.scenario._schema import ReturnsFile
+    from trimtab.units import UNITS
 
-    return load_returns(ReturnsFile.model_validate({"path": str(path)}), what=what)
+    if unit not in UNITS:
+        raise InputError(f"--unit: expected one of {', '.join(UNITS)}, got {unit!r}")
+    return load_returns(ReturnsFile.model_validate({"path": str(path), "unit": unit}), what=what)
 
 
 def _span(frame: pd.DataFrame, start: str | None, end: str | None) -> pd.DataFrame:
@@ -219,6 +225,8 @@ def attribute_returns_command(
     end: Annotated[str | None, typer.Option("--end", help="Last date to attribute.", metavar="YYYY-MM-DD", show_default=False)] = None,
     linking: Annotated[str, typer.Option("--linking", help="How periods are linked: carino (logarithmic) or sum.", metavar="carino|sum")] = "carino",
     group_by: Annotated[str | None, typer.Option("--group-by", help="Attributes column to sum the asset contributions by.", show_default=False)] = None,
+    unit: Annotated[str, typer.Option("--unit", help="Unit of the --returns and --factor-returns files: fraction (0.01 is 1%) or percent (divided by 100).",
+                                      metavar="fraction|percent")] = "fraction",
     out: OutOpt = None,
 ) -> None:
     """Explain a realised active return factor by factor, and what stock picking added.
@@ -234,7 +242,7 @@ def attribute_returns_command(
     from trimtab.attribution import attribute_backtest_returns, attribute_returns
 
     fm = FactorModel.load(model) if model is not None else None
-    factors = _dated_file(factor_returns, "factor returns") if factor_returns is not None else None
+    factors = _dated_file(factor_returns, "factor returns", unit) if factor_returns is not None else None
     inputs = [p for p in (model, returns, weights, holdings, benchmark, attributes, factor_returns, backtest) if p is not None]
     groups = None
     if backtest is not None:
@@ -256,7 +264,8 @@ def attribute_returns_command(
             raise InputError("attribute-returns: give --model and --returns (or --backtest FOLDER)")
         if (weights is None) == (holdings is None):
             raise InputError("attribute-returns: give exactly one of --weights (dates × assets) or --holdings (held fixed)")
-        asset_returns = _span(_dated_file(returns, "returns"), start, end)
+        all_returns = _dated_file(returns, "returns", unit)
+        asset_returns = _span(all_returns, start, end)
         if holdings is not None:
             book = _book(fm, holdings, benchmark, attributes, 0.0, None)
             held: Any = book.holdings
@@ -264,8 +273,12 @@ def attribute_returns_command(
             attrs = book.attributes
         else:
             assert weights is not None
-            # a row dated t is held over the period whose return is dated t, until the next row
-            held = _dated_file(weights, "weights").reindex(asset_returns.index, method="ffill").fillna(0.0)
+            from trimtab.attribution._periods import weights_per_period
+            from trimtab.scenario._loaders import load_dated_weights
+            from trimtab.scenario._schema import ReturnsFile
+
+            book_rows = load_dated_weights(ReturnsFile.model_validate({"path": str(weights)}))
+            held = weights_per_period(book_rows, all_returns.index, asset_returns.index, str(weights))
             bench, attrs = _benchmark_and_attributes(fm, benchmark, attributes)
         result = attribute_returns(fm, held, asset_returns, factors, benchmark=bench, linking=linking)
         groups = _groups(attrs, group_by)
@@ -284,7 +297,7 @@ def attribute_returns_command(
     document: dict[str, Any] = {"linked": result.factor_table(), "total": float(result.linked["total"])}
     if backtest is not None:
         document["compounded_active_returns"] = chained
-    _show(ctx, text, document, out, files)
+    _show(ctx, text, document, out, files, realised=True)
 
 
 def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Path | None) -> tuple[pd.Series | None, pd.DataFrame | None]:

@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import check_unique, list_labels
+from trimtab.units import check_alpha, check_book
 from trimtab.errors import DataWarning, InputError, ModelError
 from trimtab.model._arguments import is_positive_number
 from trimtab.model import FactorModel
@@ -28,8 +29,6 @@ from trimtab.model import FactorModel
 POLICIES = ("error", "drop", "zero")
 #: A benchmark must sum to 1 within this (fractions of NAV).
 BENCHMARK_SUM_TOL = 1e-6
-#: A long-only book without leverage may hold at most this much above NAV.
-HOLDINGS_SUM_TOL = 1e-6
 
 
 @dataclass(frozen=True, eq=False)
@@ -160,11 +159,8 @@ def prepare(
             raise InputError(f"rebalance: nav must be a positive, finite number (currency), got {shown}")
         nav = float(nav)
     w0, sold = _weights(model, holdings, "holdings", unknown_assets, sell_unknown=True)
-    if long_book and w0.sum() + sold.sum() > 1.0 + HOLDINGS_SUM_TOL:
-        raise InputError(
-            f"holdings: sum to {w0.sum() + sold.sum():.6g} > 1 in a long-only book without leverage; "
-            "expected weights as fractions of NAV"
-        )
+    del long_book  # one book rule for every command, long-only or not: trimtab.units.check_book
+    check_book(np.concatenate([w0, sold.to_numpy(dtype=np.float64)]), "rebalance", "holdings")
     b = None
     if benchmark is not None:
         b, _ = _weights(model, benchmark, "benchmark", unknown_assets, sell_unknown=False)
@@ -177,6 +173,7 @@ def prepare(
     a = np.zeros(model.n_assets)
     if alpha is not None:
         a, _ = _weights(model, alpha, "alpha", unknown_assets, sell_unknown=False)
+        check_alpha(pd.Series(a), "rebalance: alpha", key=None)
     attrs = None
     if attributes is not None:
         if not isinstance(attributes, pd.DataFrame):

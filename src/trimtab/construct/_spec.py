@@ -373,8 +373,25 @@ def _beta(path: Path, value: Any) -> dict[str, Any]:
     return _range(path, value)
 
 
+#: The smallest positive risk cap (annualised volatility) taken: 1e-6, 0.0001% a year. A variance of
+#: 1e-12 sits below what float64 resolves beside asset variances of 1e-2 to 1e-1 (relative 1e-11 or
+#: less, near the solver's tolerances), so a smaller positive cap cannot be honoured or refuted;
+#: judgement. 0 stays allowed: no risk at all.
+MIN_RISK_CAP = 1e-6
+
+
+def _meaningful(path: Path, out: dict[str, Any]) -> dict[str, Any]:
+    cap = out["max"]
+    if 0.0 < cap < MIN_RISK_CAP:
+        raise (path / "max").fail(
+            f"{cap:g} is below the smallest risk cap trimtab can honour, {MIN_RISK_CAP:g} (0.0001% a year); "
+            "write 0 for no risk at all"
+        )
+    return out
+
+
 def _risk_cap(path: Path, value: Any) -> dict[str, Any]:
-    return _cap(path, value)
+    return _meaningful(path, _cap(path, value))
 
 
 def _turnover(path: Path, value: Any) -> dict[str, Any]:
@@ -382,7 +399,7 @@ def _turnover(path: Path, value: Any) -> dict[str, Any]:
 
 
 def _part_risk_cap(path: Path, value: Any) -> dict[str, Any]:
-    return _cap(path, value, {"active": f.flag}, {"active": True})
+    return _meaningful(path, _cap(path, value, {"active": f.flag}, {"active": True}))
 
 
 def _shocks(path: Path, value: Any) -> dict[str, dict[str, Any]]:

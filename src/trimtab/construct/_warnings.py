@@ -103,6 +103,15 @@ def pinned_positions(rows: Sequence[Any], weights: np.ndarray) -> pd.Series:
     return pd.Series(found, dtype=object, name="limit")
 
 
+def share_text(percent: float, threshold: float) -> str:
+    """``percent`` with as few decimals as show it above ``threshold`` (50.3%, not 50% above 50%)."""
+    for decimals in range(5):
+        text = f"{percent:.{decimals}f}"
+        if float(text) > 100 * threshold:
+            return f"{text}%"
+    return f"{percent:.6g}%"
+
+
 def concentration_warnings(attribution: Any, pinned: pd.Series | None, settings: AlertSettings) -> list[RunWarning]:
     """Factor and position shares of the variance above the thresholds; positions pinned at caps.
 
@@ -117,7 +126,7 @@ def concentration_warnings(attribution: Any, pinned: pd.Series | None, settings:
             exposure = attribution.by_factor.loc[factor, "active_exposure"]
             out.append(RunWarning(
                 "factor_concentration",
-                f"factor {factor} takes {pct:.0f}% of the {what} variance (alert above {settings.factor_share:.0%}; "
+                f"factor {factor} takes {share_text(pct, settings.factor_share)} of the {what} variance (alert above {settings.factor_share:.0%}; "
                 f"exposure {exposure:+.3f})",
                 {"factor": str(factor), "share": float(pct) / 100, "threshold": settings.factor_share,
                  "exposure": float(exposure)},
@@ -127,7 +136,7 @@ def concentration_warnings(attribution: Any, pinned: pd.Series | None, settings:
         for asset, pct in big.items():
             out.append(RunWarning(
                 "asset_concentration",
-                f"position {asset} takes {pct:.0f}% of the {what} variance (alert above {settings.asset_share:.0%})",
+                f"position {asset} takes {share_text(pct, settings.asset_share)} of the {what} variance (alert above {settings.asset_share:.0%})",
                 {"asset": str(asset), "share": float(pct) / 100, "threshold": settings.asset_share},
             ))
     if pinned is not None and settings.pinned_positions > 0 and len(pinned) >= settings.pinned_positions:

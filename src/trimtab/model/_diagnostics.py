@@ -96,12 +96,15 @@ class ResidualCheck:
             if self.method == "sampled pairs"
             else f"{self.pairs_tested:,} pairs (all pairs, blockwise)"
         )
+        ratio = self.pairs_significant / self.expected_significant if self.expected_significant > 0 else float("nan")
+        rule = (f"rule: flagged when the significant pairs exceed {FLAG_RATIO:g}× the expected count and the binomial "
+                f"tail p < {self.alpha:g}; here {ratio:.2f}× expected, p = {self.p_value:.3g}")
         verdict = "FLAGGED: residuals look correlated across assets" if self.flagged else "not flagged"
         lines = [
             f"Residual cross-correlation check on {self.n_assets_used} assets × {self.n_periods} periods, {scope}",
+            f"  {rule}: {verdict}",
             f"  significant at alpha={self.alpha:g} (|z| > {self.critical_z:.3f}): {self.pairs_significant:,}"
-            f" vs {self.expected_significant:,.1f} expected under independence; binomial tail p = {self.p_value:.3g}",
-            f"  verdict: {verdict}",
+            f" vs {self.expected_significant:,.1f} expected under independence",
         ]
         if len(self.excluded_assets):
             lines.append(f"  not tested (under {MIN_COMMON_OBS} observations or constant): {list_labels(self.excluded_assets)}")

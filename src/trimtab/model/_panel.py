@@ -14,6 +14,7 @@ import pandas as pd
 
 from trimtab._validation import check_finite_frame, check_unique, list_labels
 from trimtab._version import __version__
+from trimtab.units import check_returns
 from trimtab.errors import DataWarning, InputError
 from trimtab.model._arguments import is_positive_number
 from trimtab.model._covariance_settings import CovarianceSettings
@@ -93,7 +94,7 @@ def check_returns_panel(asset_returns: Any, owner: str) -> pd.DataFrame:
     check_date_frame(asset_returns, f"{owner}: asset_returns", "assets", allow_nan=True)
     if asset_returns.shape[1] == 0:
         raise InputError(f"{owner}: asset_returns has no asset columns")
-    return asset_returns.astype(np.float64)
+    return check_returns(asset_returns.astype(np.float64), f"{owner}: asset_returns", key=None)
 
 
 def infer_periods_per_year(index: pd.Index, periods_per_year: Any, owner: str) -> float:

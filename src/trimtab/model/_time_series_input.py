@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import list_labels
+from trimtab.units import check_returns
 from trimtab.errors import InputError
 from trimtab.model._panel import check_date_frame, date_label
 
@@ -31,6 +32,8 @@ def validated_returns(asset_returns: Any, factor_returns: Any) -> tuple[pd.DataF
     assets = check_date_frame(asset_returns, f"{OWNER}: asset_returns", "assets", finite=False, nonempty=True)
     factors = check_date_frame(factor_returns, f"{OWNER}: factor_returns", "factors", finite=False, nonempty=True)
     values = assets.to_numpy(dtype=np.float64)
+    check_returns(assets, f"{OWNER}: asset_returns", key=None)
+    check_returns(factors, f"{OWNER}: factor_returns", what="factor returns", key=None)
     infinite = np.isinf(values)
     if infinite.any():
         raise InputError(

@@ -5,7 +5,7 @@ results duck-typed, so any object with the agreed ``RebalanceResult`` fields wor
 written under a temporary name and renamed. The caution text is :data:`CAUTION`.
 """
 
-from trimtab.report._content import CAUTION, ReportContent, RiskBudget, gather
+from trimtab.report._content import CAUTION, REALISED_CAUTION, ReportContent, RiskBudget, gather
 from trimtab.report._files import (
     SCHEMA_VERSION,
     TABLE_FORMATS,
@@ -28,6 +28,7 @@ from trimtab.report._terminal import (
 
 __all__ = [
     "CAUTION",
+    "REALISED_CAUTION",
     "COMPARISON_SCHEMA",
     "JSON_SCHEMA",
     "SCHEMA_VERSION",

@@ -52,6 +52,13 @@ CAUTION = (
     "Your firm's compliance rules and applicable regulation govern."
 )
 
+#: The caution of pages that show realised (past) returns rather than forecasts: attribute-returns, backtests.
+REALISED_CAUTION = (
+    "These figures are past returns split by a risk model, not a forecast and not investment advice; the split "
+    "depends on the model's exposures. Verify before acting on them. Your firm's compliance rules and applicable "
+    "regulation govern."
+)
+
 #: Constraint names (or kinds) read as the risk budget, in order of preference.
 RISK_BUDGET_NAMES = ("tracking_error", "active_risk", "total_risk")
 

@@ -77,7 +77,7 @@ _ASSET_UNITS = {
 
 def write_html(
     subject: Any, path: str | Path, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25,
-    notes: Sequence[str] = (),
+    notes: Sequence[str] = (), links: Mapping[str, str] | None = None,
 ) -> Path:
     """Write one self-contained HTML report (inline CSS and SVG charts; opens offline, prints cleanly).
 
@@ -98,6 +98,9 @@ def write_html(
         Largest trades listed (the full list goes to :func:`write_tables` / :func:`write_json`).
     notes : sequence of str, optional
         Lines stated under the title (for instance the NAV and cash a book's weights come from).
+    links : Mapping[str, str], optional
+        For several scenarios: name → the address of that scenario's own report, linked from the
+        comparison in place of repeating the report (``trimtab compare`` writes one per folder).
 
     Returns
     -------
@@ -109,29 +112,32 @@ def write_html(
     InputError
         If ``subject`` is not a result, an attribution or a non-empty mapping of them.
     """
-    document = render_html(subject, title=title, top=top, max_trades=max_trades, notes=notes)
+    document = render_html(subject, title=title, top=top, max_trades=max_trades, notes=notes, links=links)
     return atomic_write_text(Path(path), document)
 
 
 def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int = 10, max_trades: int = 25,
-                notes: Sequence[str] = ()) -> str:
+                notes: Sequence[str] = (), links: Mapping[str, str] | None = None) -> str:
     """The HTML document of :func:`write_html` as a string (``notes``: lines stated under the title,
     such as the NAV and cash a book's weights were derived with)."""
     if isinstance(subject, Mapping):
         if not subject:
             gather_many(subject)  # raises the one-line error of an empty mapping
         solved, failed = split_subjects(subject)
-        contents = gather_many(solved, top=max(top, max_trades)) if solved else {}
         names = [str(name) for name in subject]
+        linked = links or {}
+        shown = {n: r for n, r in solved.items() if str(n) not in linked}
+        contents = gather_many(shown, top=max(top, max_trades)) if shown else {}
         parts = [_comparison_section(subject, failed, names)]
         for i, name in enumerate(names):
             inner = (
-                _unsolved_body(failed[name]) if name in failed
+                _linked_body(name, linked[name], failed.get(name)) if name in linked
+                else _unsolved_body(failed[name]) if name in failed
                 else _report_body(contents[name], f"s{i}", top, max_trades, level=3)
             )
             parts.append(f'<article id="scenario-{i}"><h2 class="scenario">Scenario: {_e(name)}</h2>{inner}</article>')
         nav = _nav(
-            [(f"scenario-{i}", f"Scenario: {name}" + (f" ({failed[name].status})" if name in failed else ""))
+            [(f"scenario-{i}", f"Scenario: {name}" + (f" (status: {failed[name].status})" if name in failed else ""))
              for i, name in enumerate(names)],
             comparison=True,
         )
@@ -283,7 +289,7 @@ def _comparison_section(subjects: Mapping[str, Any], failed: Mapping[str, Unsolv
     if failed:
         note = (
             f" {_e(', '.join(failed))} did not solve: "
-            + ("its part below shows" if len(failed) == 1 else "their parts below show")
+            + ("its report shows" if len(failed) == 1 else "their reports show")
             + " which limits conflict and how far each must move."
         )
     chart = ""
@@ -300,6 +306,16 @@ def _comparison_section(subjects: Mapping[str, Any], failed: Mapping[str, Unsolv
         f"<p>What each scenario gains and gives up after its trades, and the change from {_e(names[0])}.{note}</p>"
         f"{desk.comparison_rows(table, names, list(failed))}{chart}</section>"
     )
+
+
+def _linked_body(name: str, address: str, failure: Unsolved | None) -> str:
+    """A scenario's part as a link to its own report (what it shows), with its status."""
+    status = failure.status if failure is not None else "solved"
+    what = ("which limits conflict and how far each must move" if status == "infeasible"
+            else "its status and message" if failure is not None
+            else "its risk budget, trades, limits and risk before and after")
+    return (f'<section><p class="meta">Status <span class="status{" bad" if failure is not None else ""}">{_e(status)}</span></p>'
+            f'<p>Its full report, with {what}: <a href="{_e(address)}">{_e(address)}</a>.</p></section>')
 
 
 def _unsolved_body(failure: Unsolved) -> str:

@@ -203,8 +203,9 @@ def _cell_class(value: Any) -> str:
     return "text long" if len(str(value)) > 40 else "text"
 
 
-def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = ()) -> str:
-    """One self-contained page: title, caution, then (heading, HTML body) sections. No scripts."""
+def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = (), caution: str = CAUTION) -> str:
+    """One self-contained page: title, caution (a forecast's, or ``REALISED_CAUTION`` for past returns),
+    then (heading, HTML body) sections. No scripts."""
     when = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     parts = [
         "<!DOCTYPE html>",
@@ -213,7 +214,7 @@ def render_page(title: str, sections: Sequence[tuple[str, str]], *, notes: Seque
         f"<style>{_css()}\ntd.long {{ min-width: 14rem; overflow-wrap: anywhere; }}</style></head><body><main>",
         f"<h1>{html.escape(title)}</h1>",
         f'<p class="meta">trimtab {html.escape(__version__)} · written {when}</p>',
-        f'<p class="caution">{html.escape(CAUTION, quote=False)}</p>',
+        f'<p class="caution">{html.escape(caution, quote=False)}</p>',
     ]
     parts += [f'<p class="note">{html.escape(n)}</p>' for n in notes]
     for heading, body in sections:
@@ -227,12 +228,13 @@ def figure_block(charts: Mapping[str, str]) -> str:
     return "".join(f"<figure>{svg}<figcaption>{html.escape(caption)}</figcaption></figure>" for caption, svg in charts.items())
 
 
-def write_page(path: str | Path, title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = ()) -> Path:
+def write_page(path: str | Path, title: str, sections: Sequence[tuple[str, str]], *, notes: Sequence[str] = (),
+               caution: str = CAUTION) -> Path:
     """Write :func:`render_page` to ``path`` through a temporary file."""
     from trimtab._output import write_text_atomic
 
     target = Path(path)
-    write_text_atomic(target, render_page(title, sections, notes=notes))
+    write_text_atomic(target, render_page(title, sections, notes=notes, caution=caution))
     return target
 
 

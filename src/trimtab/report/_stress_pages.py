@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from trimtab.report._content import REALISED_CAUTION
 from trimtab.report._pages import PALETTE, _figure, _percent, _svg, figure_block, html_table, lines_chart, write_page
 from trimtab._output import output_folder
 
@@ -154,5 +155,5 @@ def write_return_attribution(result: Any, target: Path, inputs: Sequence[Path], 
         notes = [f"Per period: factor k = active exposure × factor return; the remainder ({', '.join(result.remainder)}) makes each "
                  f"period sum to (w − b)ᵀr. Periods linked with {result.linking} linking, so the components add up to "
                  "∏(1 + R_t) − ∏(1 + Rb_t) exactly."]
-        write_page(tmp / "report.html", "Active return attribution", sections, notes=notes)
+        write_page(tmp / "report.html", "Active return attribution", sections, notes=notes, caution=REALISED_CAUTION)
     return files

@@ -265,7 +265,8 @@ def print_relaxation(error: Any, console: Console | None = None, *, name: str | 
     """
     failure = error if isinstance(error, Unsolved) else unsolved(error)
     out = console or Console()
-    title = f"Infeasible{f' ({name})' if name else ''}: how far each conflicting limit must move"
+    title = f"Scenario {name} cannot hold as written: how far each conflicting limit must move" if name else \
+        "Infeasible: how far each conflicting limit must move"
     out.print(f"{f'{name}: ' if name else ''}{conflict_sentence(failure)}", markup=False, highlight=False)
     frame = failure.relaxation
     if frame.empty:

@@ -10,7 +10,9 @@ from __future__ import annotations
 import concurrent.futures as cf
 import logging
 import multiprocessing
+import uuid
 from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -94,6 +96,12 @@ class Executor:
     def n_workers(self) -> int:
         """How many runs can go at once."""
         return 1
+
+    @contextmanager
+    def sharing(self, shared: Any) -> Iterator[Any]:
+        """What to pass as ``shared`` to several :meth:`map` calls so it travels once: on Dask, a
+        handle to the value scattered to every worker (released on exit); elsewhere the value."""
+        yield shared
 
     def map(
         self,
@@ -240,9 +248,20 @@ class DaskRunner(Executor):
             if self._cluster is not None:
                 self._cluster.close(timeout=CLOSE_TIMEOUT)
 
+    @contextmanager
+    def sharing(self, shared: Any) -> Iterator[Any]:
+        handle = self._client.scatter(shared, broadcast=True, hash=False)
+        try:
+            yield _Scattered(handle)
+        finally:
+            handle.release()
+
     def _run(self, func: Callable[..., Any], items: list[Any], labels: list[str], shared: Any) -> Iterator[Outcome]:
         # the shared part travels once to each worker, not inside every task of the graph
         handle = None
+        if isinstance(shared, _Scattered):  # scattered once by sharing() for several map calls
+            yield from self._submit(func, items, labels, (shared.future,))
+            return
         if shared is not NOTHING:
             try:
                 handle = self._client.scatter(shared, broadcast=True, hash=False)
@@ -250,22 +269,33 @@ class DaskRunner(Executor):
                 for i in range(len(items)):
                     yield _outcome(labels, items, i, False, f"the shared inputs could not be sent: {_describe(err)}")
                 return
-        extra = () if handle is None else (handle,)
         try:
-            futures = [self._client.submit(call_safely, func, item, *extra, pure=False,
-                                           key=f"trimtab-{labels[i]}-{id(self)}-{i}") for i, item in enumerate(items)]
-            index = {f.key: i for i, f in enumerate(futures)}
-            for future in self._as_completed(futures):
-                i = index[future.key]
-                try:
-                    ok, value = future.result()
-                except Exception as err:  # noqa: BLE001 - a lost worker or a pickling failure
-                    ok, value = False, _describe(err)
-                future.release()
-                yield _outcome(labels, items, i, ok, value)
+            yield from self._submit(func, items, labels, () if handle is None else (handle,))
         finally:
             if handle is not None:
                 handle.release()
+
+    def _submit(self, func: Callable[..., Any], items: list[Any], labels: list[str], extra: tuple[Any, ...]) -> Iterator[Outcome]:
+        # a fresh key per call: a key repeated by a later map() could be served the earlier result
+        call = uuid.uuid4().hex[:12]
+        futures = [self._client.submit(call_safely, func, item, *extra, pure=False,
+                                       key=f"trimtab-{labels[i]}-{call}-{i}") for i, item in enumerate(items)]
+        index = {f.key: i for i, f in enumerate(futures)}
+        for future in self._as_completed(futures):
+            i = index[future.key]
+            try:
+                ok, value = future.result()
+            except Exception as err:  # noqa: BLE001 - a lost worker or a pickling failure
+                ok, value = False, _describe(err)
+            future.release()
+            yield _outcome(labels, items, i, ok, value)
+
+
+class _Scattered:
+    """A value scattered to every worker by :meth:`DaskRunner.sharing`."""
+
+    def __init__(self, future: Any) -> None:
+        self.future = future
 
 
 #: Seconds to wait for a new LocalCluster's workers, and for a client or cluster to close. Generous:

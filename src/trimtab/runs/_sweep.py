@@ -250,7 +250,7 @@ def run_chunk(task: SweepTask, shared: SweepInputs) -> list[dict[str, Any]]:
             if shared.keep_results:
                 row["result"] = result
         except InfeasibleError as err:
-            row.update(status="infeasible", error=_first_line(err))
+            row.update(status="infeasible", error=_infeasible_line(err))
         except SolverError as err:
             row.update(status="solver failure", error=_first_line(err))
         except TrimtabError as err:
@@ -279,6 +279,18 @@ def _check_point(scenario: Mapping[str, Any], point: Mapping[str, Any]) -> None:
 def _first_line(err: BaseException) -> str:
     text = str(err).strip().splitlines()
     return text[0] if text else type(err).__name__
+
+
+def _infeasible_line(err: InfeasibleError) -> str:
+    """The conflict, pointing to what exists: a sweep writes no relaxation table, a rebalance does."""
+    text = _first_line(err)
+    tails = ("; any one of", "; the relaxation table")
+    if not any(tail in text for tail in tails):
+        return text
+    text = text.split("infeasible: ", 1)[1] if "infeasible: " in text else text
+    for tail in tails:
+        text = text.split(tail, 1)[0]
+    return f"{text} (trimtab rebalance at this point prints how far each must move)"
 
 
 # ---------------------------------------------------------------------------------------------

@@ -7,6 +7,7 @@ from pathlib import Path
 import pandas as pd
 
 from trimtab.demo import DEMO_FILES, DemoFund
+from trimtab.scenario._demo_accounts import demo_account_tables
 
 
 def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
@@ -23,6 +24,8 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
         folder/data/alpha.csv              asset, alpha (annualised)
         folder/data/attributes.csv         asset, industry, price, adv, spread, market_cap
         folder/data/characteristics.csv    asset, size, value, momentum, low_risk, industry
+        folder/data/accounts.csv           200 invented accounts: account, nav, cash, exclude, overrides
+        folder/data/account_holdings.csv   account, asset, shares (long format)
         folder/data/truth/                 the simulated model: exposures, factor_covariance,
                                            specific_variance (per day), and next_year_specific:
                                            the specific returns the alpha scores forecast
@@ -56,6 +59,9 @@ def write_demo(fund: DemoFund, folder: str | Path) -> dict[str, Path]:
     csv(fund.alpha.to_frame("alpha"), "alpha")
     csv(fund.attributes, "attributes")
     csv(fund.characteristics, "characteristics")
+    for name, table in demo_account_tables(fund).items():  # the accounts of `trimtab accounts`
+        table.to_csv(data / f"{name}.csv", index=False, float_format="%.10g")
+        written[name] = data / f"{name}.csv"
     csv(fund.exposures, "exposures", truth)
     csv(fund.factor_covariance, "factor_covariance", truth, index_label="factor")
     csv(fund.specific_variance.to_frame("specific_variance"), "specific_variance", truth)

@@ -51,17 +51,17 @@ def fit_model(settings: FitSettings, source: str | Path = "fit") -> FactorModel:
     FactorModel
         With ``factor_groups`` from the settings when given, and the settings in its provenance.
     """
-    returns = load_returns(settings.returns, what="returns")
+    returns = load_returns(settings.returns, what="returns", periods_per_year=settings.periods_per_year)
     kwargs: dict[str, Any] = {}
     if settings.half_life is not None:
         kwargs["half_life"] = settings.half_life
     if settings.min_periods is not None:
         kwargs["min_periods"] = settings.min_periods
-    if settings.periods_per_year != 252:
+    if settings.periods_per_year is not None:
         kwargs["periods_per_year"] = settings.periods_per_year
     if settings.method == "time_series":
         assert settings.factor_returns is not None
-        factors = load_returns(settings.factor_returns, what="factor returns")
+        factors = load_returns(settings.factor_returns, what="factor returns", periods_per_year=settings.periods_per_year)
         estimator = require("trimtab.model", "fit_time_series")
         args: tuple[Any, ...] = (returns, factors)
     elif settings.method == "cross_section":

@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab.scenario._strict_yaml import check_regular
+from trimtab.units import check_alpha, check_book, check_returns, unit_scale
 from trimtab._validation import list_labels
 from trimtab.errors import InputError
 from trimtab.scenario._schema import AttributesFile, HoldingsFile, ReturnsFile, SeriesFile, _FileSpec
@@ -129,7 +130,12 @@ def load_series(spec: SeriesFile, what: str, default_column: str) -> pd.Series:
     column = spec.column or default_column
     hint = "" if spec.column else f" (set column: to name the {what} column)"
     _require_columns(frame, [spec.asset_column, column], path, what, hint)
-    return _series(frame, spec, column, path, what)
+    values = _series(frame, spec, column, path, what)
+    if what == "alpha":
+        return check_alpha(values, str(path), unit=spec.unit)
+    values = values * unit_scale(spec.unit, f"{path}: unit")
+    check_book(values.to_numpy(), str(path), what)
+    return values
 
 
 def load_attributes(spec: AttributesFile) -> pd.DataFrame:
@@ -179,6 +185,7 @@ def load_holdings(spec: HoldingsFile, attributes: pd.DataFrame | None = None) ->
         hint = "" if spec.column else " (holdings as weights need asset, weight; or set kind: shares)"
         _require_columns(frame, [spec.asset_column, column], path, "holdings", hint)
         weights = _series(frame, spec, column, path, "holdings")
+        check_book(weights.to_numpy(), str(path))
         return Holdings(weights.rename("weight"), spec.nav, cash=spec.cash)
 
     column = spec.column or "shares"
@@ -209,16 +216,40 @@ def load_holdings(spec: HoldingsFile, attributes: pd.DataFrame | None = None) ->
     nav = float(spec.nav) if spec.nav is not None else float(value.sum() + spec.cash)
     if not (np.isfinite(nav) and nav > 0):
         raise InputError(f"{path}: the book's value Σ shares·price + cash is {nav:g}; expected a positive, finite NAV")
-    return Holdings((value / nav).rename("weight"), nav, shares=shares, prices=prices, cash=spec.cash)
+    weights = (value / nav).rename("weight")
+    check_book(weights.to_numpy(), str(path))
+    return Holdings(weights, nav, shares=shares, prices=prices, cash=spec.cash)
 
 
-def load_returns(spec: ReturnsFile, what: str = "returns") -> pd.DataFrame:
+def load_returns(spec: ReturnsFile, what: str = "returns", periods_per_year: float | None = None) -> pd.DataFrame:
     """Read returns as a dates × names DataFrame from a wide or a long file.
 
     Wide: a date column and one column per asset (or factor). Long: columns date, asset, return
     (names configurable). ``layout: auto`` reads a file as long when it has exactly those columns.
-    Dates must parse and be unique; returns must be numbers (empty cells are missing data).
+    Dates must parse and be unique; returns must be numbers (empty cells are missing data) and
+    fractions, or declared ``unit: percent`` (:func:`trimtab.units.check_returns`).
     """
+    frame = load_dated_table(spec, what)
+    return check_returns(frame, str(spec.path), unit=spec.unit, what=what, periods_per_year=periods_per_year)
+
+
+def load_dated_weights(spec: ReturnsFile, what: str = "weights") -> pd.DataFrame:
+    """Read dates × assets weights (as :func:`load_returns` reads its layouts): no empty cell, and
+    every row a book by :func:`trimtab.units.check_book`."""
+    frame = load_dated_table(spec, what)
+    path = Path(spec.path)
+    empty = frame.isna()
+    if empty.to_numpy().any():
+        cells = [f"{c} on {d.date()}" for d, row in empty.iterrows() for c in row.index[row.to_numpy()]]
+        raise InputError(f"{path}: {what} file has empty or NaN weights (write 0 for no position): {list_labels(cells)}")
+    frame = frame * unit_scale(spec.unit, f"{path}: unit")
+    for date, row in frame.iterrows():
+        check_book(row.to_numpy(), f"{path}: row {date.date()}", what)
+    return frame
+
+
+def load_dated_table(spec: ReturnsFile, what: str) -> pd.DataFrame:
+    """A dates × names table from a wide or a long file, numbers unchecked for their unit."""
     path = Path(spec.path)
     frame = read_table(path, spec.format, what=what)
     long_cols = {spec.date_column, spec.asset_column, spec.value_column}

@@ -10,6 +10,7 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
+from urllib.parse import quote
 
 import pandas as pd
 
@@ -242,12 +243,13 @@ def write_comparison(runs: Sequence[ScenarioRun], target: Path, *, html: bool = 
     with output_folder(target, inputs) as tmp:
         comparison_table(runs).to_csv(tmp / "comparison.csv")
         report.write_json(comparison_subjects(runs), tmp / "comparison.json")
-        if html:
-            report.write_html(comparison_subjects(runs), tmp / "report.html", title="What-if comparison")
+        if html:  # links to each scenario's own report rather than repeating it
+            report.write_html(comparison_subjects(runs), tmp / "report.html", title="What-if comparison",
+                              links={run.name: f"{quote(run.name)}/report.html" for run in runs})
         for run in runs:
             sub = tmp / run.name
             sub.mkdir()
-            write_run_files(run, sub, Path(target) / run.name, tables="csv", write_json=True, html=False)
+            write_run_files(run, sub, Path(target) / run.name, tables="csv", write_json=True, html=html)
         names = sorted(str(p.relative_to(tmp)) for p in tmp.rglob("*") if p.is_file())
     return Written(target, names)
 

@@ -13,6 +13,7 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 FileFormat = Literal["auto", "csv", "parquet"]
+Unit = Literal["fraction", "percent"]
 
 
 class _Strict(BaseModel):
@@ -51,12 +52,14 @@ class ReturnsFile(_FileSpec):
     layout: Literal["auto", "wide", "long"] = "auto"
     date_column: str = Field("date", min_length=1)
     value_column: str = Field("return", min_length=1, description="the return column of a long file")
+    unit: Unit = Field("fraction", description="fraction (0.01 is 1%) or percent (1 is 1%; divided by 100 when read)")
 
 
 class SeriesFile(_FileSpec):
     """One number per asset (alpha, benchmark weight): columns ``asset`` and ``column``."""
 
     column: str | None = Field(None, min_length=1, description="the value column (default: alpha or weight)")
+    unit: Unit = Field("fraction", description="fraction (0.01 is 1%) or percent (1 is 1%; divided by 100 when read)")
 
 
 class HoldingsFile(_FileSpec):
@@ -97,7 +100,9 @@ class FitSettings(_Strict):
     n_factors: int | None = Field(None, ge=1, strict=True, description="statistical: the number of factors")
     half_life: float | None = Field(None, gt=0, strict=True, description="EWMA half-life in periods")
     min_periods: int | None = Field(None, ge=2, strict=True, description="fewest observations an asset needs")
-    periods_per_year: float = Field(252, gt=0, strict=True)
+    periods_per_year: float | None = Field(
+        None, gt=0, strict=True, description="default: inferred from the median date spacing (daily 252, weekly 52, monthly 12, …)"
+    )
     factor_groups: dict[str, str] | None = Field(None, description="factor → group label for reports")
     options: dict[str, Any] = Field(default_factory=dict, description="further estimator keywords")
 

@@ -10,6 +10,7 @@ import math
 from collections.abc import Callable, Mapping
 from typing import Any
 
+from trimtab.units import move_problem
 from trimtab._validation import closest_key_hint, list_labels
 
 ENTRY_KEYS = ("factors", "description", "specific")
@@ -26,6 +27,8 @@ def shock_entries(value: Any, fail: Fail) -> dict[str, dict[str, Any]]:
             raise fail((), f"a shock name must be non-empty text, got {name!r}")
         if not isinstance(entry, Mapping):
             raise fail((name,), f"expected a mapping with factors: {{factor: move}}, got {_short(entry)}")
+        if is_short_form(entry):
+            entry = {"factors": entry}
         unknown = [k for k in entry if k not in ENTRY_KEYS]
         if unknown:
             raise fail((name, str(unknown[0])), f"unknown key; {closest_key_hint(unknown[0], ENTRY_KEYS)}"
@@ -43,6 +46,32 @@ def shock_entries(value: Any, fail: Fail) -> dict[str, dict[str, Any]]:
     return out
 
 
+def is_short_form(entry: Mapping[Any, Any]) -> bool:
+    """True for a shock written as ``{factor: move}`` (no factors/description/specific key): the short
+    spelling :func:`trimtab.stress` has always taken, accepted wherever shocks are written."""
+    return bool(entry) and not any(k in ENTRY_KEYS for k in entry)
+
+
+def split_shocks(shocks: Any) -> tuple[Any, dict[str, dict[Any, float]] | None]:
+    """Shocks in either spelling → (name → {factor: move}, name → {asset or group: move} or None).
+
+    ``{crash: {MktRF: -0.1}}`` and ``{crash: {factors: {MktRF: -0.1}, specific: {...}}}`` are the
+    same shock; anything else (a DataFrame, a bad value) is passed on unchanged for the checks.
+    """
+    if not isinstance(shocks, Mapping):
+        return shocks, None
+    factors: dict[Any, Any] = {}
+    specific: dict[str, dict[Any, float]] = {}
+    for name, entry in shocks.items():
+        if isinstance(entry, Mapping) and entry and not is_short_form(entry) and all(k in ENTRY_KEYS for k in entry):
+            factors[name] = entry.get("factors") or {}
+            if entry.get("specific"):
+                specific[name] = dict(entry["specific"])
+        else:
+            factors[name] = entry
+    return factors, specific or None
+
+
 def _moves(value: Any, fail: Fail, where: tuple[str, ...], what: str) -> dict[Any, float]:
     if not isinstance(value, Mapping) or not value:
         raise fail(where, f"expected a mapping {what} → move (a return, 0.05 is 5%), got {_short(value)}")
@@ -50,9 +79,9 @@ def _moves(value: Any, fail: Fail, where: tuple[str, ...], what: str) -> dict[An
     for key, move in value.items():
         if isinstance(move, bool) or not isinstance(move, (int, float)) or not math.isfinite(float(move)):
             raise fail((*where, str(key)), f"expected a finite number (a return, -0.10 is -10%), got {_short(move)}")
-        if abs(float(move)) >= 1.0 and what == "factor":
-            # a move of 100% or more is almost always a percentage typed as a number
-            raise fail((*where, str(key)), f"a move of {float(move):g} is {100 * float(move):g}%; write returns as fractions (-0.10 is -10%)")
+        problem = move_problem(float(move)) if what == "factor" else None
+        if problem:
+            raise fail((*where, str(key)), problem)
         out[key] = float(move)
     return out
 

@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 import scipy.linalg as la
 
+from trimtab.units import move_problem
 from trimtab._validation import list_labels
 from trimtab.errors import InputError, ModelError
 
@@ -74,6 +75,9 @@ def shock_set(shocks: Any, factors: Sequence[Any], owner: str = "stress") -> Sho
         for factor, move in moves.items():
             if isinstance(move, bool) or not isinstance(move, (int, float, np.integer, np.floating)) or not np.isfinite(move):
                 raise InputError(f"{owner}: shocks: {name}.{factor}: expected a finite number (a return over the shock), got {move!r}")
+            problem = move_problem(float(move))
+            if problem:
+                raise InputError(f"{owner}: shocks: {name}.{factor}: {problem}")
             out.loc[name, factor] = float(move)
     return ShockSet(out)
 

@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab._validation import check_unique, list_labels
+from trimtab.units import check_book
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:
@@ -182,7 +183,10 @@ def replay(
         raise InputError("replay: give windows (named date ranges), length (to find the worst windows), or both")
     history = factor_history(model, factor_returns)
     w = model.weights_array(holdings, name="holdings")
+    check_book(w, "replay", "holdings")
     b = model.weights_array(benchmark, name="benchmark") if benchmark is not None else None
+    if b is not None:
+        check_book(b, "replay", "benchmark")
     B, d = model._B, model._d
     f = history.to_numpy()
     dates = history.index

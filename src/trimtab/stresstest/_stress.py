@@ -15,6 +15,8 @@ import pandas as pd
 
 from trimtab._validation import list_labels
 from trimtab.errors import InputError
+from trimtab.units import check_book
+from trimtab.stresstest._entries import split_shocks
 from trimtab.stresstest._moves import checked_horizon, full_moves, plausibility, shock_set
 
 if TYPE_CHECKING:
@@ -151,8 +153,10 @@ def stress(
     holdings : pandas.Series or array
         Weights of NAV by asset (assets the Series lacks hold 0).
     shocks : Mapping[str, Mapping[str, float]] or pandas.DataFrame
-        Shock name → {factor: move}, a return over the shock in the model's units (0.10 is +10%);
-        or a shock × factor DataFrame with NaN for factors not named.
+        Shock name → {factor: move}, a return over the shock as a fraction (0.10 is +10%; a move of
+        100% or more is refused as a likely percentage); or name → {factors: {factor: move},
+        specific: {...}, description: ...} as shock files write it; or a shock × factor DataFrame
+        with NaN for factors not named.
     benchmark : pandas.Series or array, optional
         Benchmark weights; gives the ``benchmark`` and ``active`` columns.
     conditional : bool, default True
@@ -174,7 +178,8 @@ def stress(
     Raises
     ------
     InputError
-        Unknown factors, assets, groups or shock names; non-finite moves; a bad horizon.
+        Unknown factors, assets, groups or shock names; non-finite moves or moves of 100% or more;
+        a bad horizon; a book that is not weights of NAV (:func:`trimtab.units.check_book`).
     ModelError
         When the covariance of a shock's named factors is singular and conditioning needs it.
 
@@ -203,7 +208,10 @@ def stress(
         raise InputError(f"stress: conditional must be True or False, got {conditional!r}")
     h = checked_horizon(horizon, model.periods_per_year)
     w = model.weights_array(holdings, name="holdings")
+    check_book(w, "stress", "holdings")
     b = model.weights_array(benchmark, name="benchmark") if benchmark is not None else None
+    if b is not None:
+        check_book(b, "stress", "benchmark")
     shock, moves, extra = shock_moves(model, shocks, conditional=bool(conditional), specific=specific, groups=groups)
     names = shock.names
     named = shock.named.to_numpy(dtype=np.float64)
@@ -248,6 +256,11 @@ def shock_moves(model: FactorModel, shocks: Any, *, conditional: bool,
                 groups: pd.Series | None = None) -> tuple[Any, np.ndarray, np.ndarray | None]:
     """The checked shocks, their full factor moves (shock × factor) and the specific moves
     (shock × asset, or None): what :func:`stress` applies, and all it can refuse in its inputs."""
+    shocks, inline = split_shocks(shocks)
+    if inline:
+        if specific is not None and not isinstance(specific, Mapping):
+            raise InputError(f"stress: specific: expected a mapping shock → {{asset or group: move}}, got {type(specific).__name__}")
+        specific = {**inline, **(specific or {})}
     shock = shock_set(shocks, model.factors)
     named = shock.named.to_numpy(dtype=np.float64)
     moves = full_moves(model._F, named, conditional=conditional, names=shock.names, factors=list(model.factors))

@@ -114,7 +114,7 @@ def test_shadow_price_is_the_gain_per_unit_of_loosening():
     [
         ({"shocks": SHOCKS}, r"missing required key\(s\) max"),
         ({"shocks": SHOCKS, "max": -0.01}, r"stress_loss\.max: must be ≥ 0"),
-        ({"shocks": {"x": {"f0": -0.1}}, "max": 0.01}, r"stress_loss\.shocks\.x\.f0: unknown key; allowed here: factors"),
+        ({"shocks": {"x": {"factors": {"f0": -0.1}, "f0": -0.1}}, "max": 0.01}, r"stress_loss\.shocks\.x\.f0: unknown key; allowed here: factors"),
         ({"shocks": {"x": {"factors": {"f0": -10}}}, "max": 0.01}, r"shocks\.x\.factors\.f0: a move of -10 is -1000%"),
         ({"shocks": {"x": {"factors": {"f0": "big"}}}, "max": 0.01}, r"shocks\.x\.factors\.f0: expected a finite number"),
         ({"shocks": "shocks.yaml", "max": 0.01}, r"a shock file \(shocks\.yaml\) is read when a scenario file is loaded"),
@@ -122,7 +122,7 @@ def test_shadow_price_is_the_gain_per_unit_of_loosening():
          r"shocks\.x\.specific: a stress limit moves factors only"),
         ({"shocks": SHOCKS, "max": 0.01, "active": "yes"}, r"stress_loss\.active: expected true or false"),
     ],
-    ids=["no-max", "negative-max", "short-form", "percent-typo", "text-move", "file-in-python", "specific", "active-text"],
+    ids=["no-max", "negative-max", "mixed-forms", "percent-typo", "text-move", "file-in-python", "specific", "active-text"],
 )
 def test_bad_options_name_the_key(options, match):
     with pytest.raises(ScenarioError, match=match):

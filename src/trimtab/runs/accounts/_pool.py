@@ -1,0 +1,77 @@
+"""The pooled trade: its size per name, the impact price it sets, and the sharing of an aggregate cap.
+
+Pure numpy, no solver. With qₖᵢ = tₖᵢ·NAVₖ/priceᵢ the shares account k trades in name i:
+
+- pooled gross Gᵢ = Σₖ |qₖᵢ| (buys and sells are not crossed between client accounts: crossing
+  between managed accounts is restricted in many jurisdictions, and not crossing is the cautious
+  assumption for impact);
+- impact price πᵢ = ηᵢ·√(Gᵢ/ADVᵢ) as a fraction of the price (the square-root law of market
+  impact, common practice; coefficient from the user), paid on every share of the block, so account
+  k pays πᵢ·|tₖᵢ| of its NAV;
+- the equilibrium: the accounts solved at prices π give trades whose pool sets the same prices,
+  π = η·√(G(π)/ADV) (O'Cinneide, Scherer and Xu, "Pooling trades in a quantitative investment
+  process", J. Portfolio Management, 2006; cited from memory). Each account takes the price as given,
+  so the equilibrium is also the optimum of one joint problem, Σₖ NAVₖ·Uₖ − κ·Σᵢ priceᵢ·∫₀^{Gᵢ} ηᵢ√(x/ADVᵢ) dx
+  (the pool's impact cost counted at ⅔ of its value; docs/accounts.md explains the difference with a
+  joint solve that charges the full cost).
+
+An aggregate cap C = f·ADV binds on a name when the accounts' demands D (their trades in the first
+round, before any cap) sum over C. From then on every name's cap is shared out (:func:`share_caps`),
+so no name can go over its cap as the accounts move their trades elsewhere: where the demands exceed
+the cap, a forced trade is granted first, in full, and the rest of the cap goes pro rata to the
+remaining demand |Dₖ| − forcedₖ; where the cap has room, each account keeps its demand and the room
+is shared by NAV. A forced trade is the least trade that brings a position inside
+the account's own position limits (an excluded name sold to zero, a weight above its cap sold down).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+def pooled_shares(trades: np.ndarray, navs: np.ndarray, prices: np.ndarray) -> np.ndarray:
+    """Shares traded, accounts × assets (signed), from trades in weights of each account's NAV."""
+    return trades * navs[:, None] / prices[None, :]
+
+
+def impact_price(eta: np.ndarray, gross: np.ndarray, adv: np.ndarray) -> np.ndarray:
+    """πᵢ = ηᵢ·√(Gᵢ/ADVᵢ): the impact of the pooled block, a fraction of the price (0 where ADV is 0)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = eta * np.sqrt(np.where(adv > 0, gross / adv, 0.0))
+    return np.nan_to_num(out, nan=0.0, posinf=0.0)
+
+
+def share_caps(cap: np.ndarray, demand: np.ndarray, forced: np.ndarray, navs: np.ndarray) -> np.ndarray:
+    """Shares of every name allotted to each account under the caps (accounts × names).
+
+    Parameters
+    ----------
+    cap : numpy.ndarray
+        Gross shares all accounts together may trade, per name.
+    demand : numpy.ndarray
+        Each account's |shares| wanted per name before the caps (accounts × names).
+    forced : numpy.ndarray
+        Shares each account must trade to meet its own position limits (accounts × names).
+    navs : numpy.ndarray
+        The accounts' NAVs.
+
+    Returns
+    -------
+    numpy.ndarray
+        Allotted shares; every column sums to at most its cap. Where the demands exceed the cap:
+        forced trades first (pro rata among themselves when they alone exceed it), the rest pro rata
+        to demand − forced. Where the cap has room: each account keeps its demand, and the room left
+        is shared by NAV, so an account can still move into a name it did not want at first.
+    """
+    demand = np.maximum(np.abs(demand), np.abs(forced))
+    forced = np.abs(forced)
+    total = demand.sum(axis=0)
+    out = demand + np.maximum(cap - total, 0.0)[None, :] * (navs / navs.sum())[:, None]
+    for i in np.flatnonzero(total > cap):
+        need = float(forced[:, i].sum())
+        if need >= cap[i]:
+            out[:, i] = forced[:, i] * (cap[i] / need) if need > 0 else 0.0
+            continue
+        extra = demand[:, i] - forced[:, i]
+        out[:, i] = forced[:, i] + extra * min(1.0, (cap[i] - need) / float(extra.sum()))
+    return out
