@@ -199,6 +199,47 @@ def test_the_error_travels_between_processes_without_its_problem() -> None:
     pd.testing.assert_frame_equal(back.relaxation, err.relaxation)
 
 
+def edge_case() -> tuple[Fund, dict, dict]:
+    """#21: 300 names with rich limits and a TE cap 0.1% (relative) below the smallest reachable TE.
+
+    Before the fix FACTOR_IPM stalled, Clarabel failed with a numerical error on every rung, the
+    feasibility tests of the diagnosis could not tell (SCS called a point beyond the cap optimal) and
+    the run ended as a solver failure (exit 3) with no conflict set.
+    """
+    fund = make_fund(300, 8, seed=1, drift=0.5)
+    others = {"fully_invested": True, "long_only": True, "weight": {"max": 0.006}, "turnover": {"max": 0.08},
+              "factor_exposure": {"active": True, "bounds": {"default": [-0.2, 0.2]}},
+              "group": {"by": "industry", "active": True, "bounds": {"default": [-0.05, 0.05]}},
+              "liquidity": {"max_adv_fraction": 0.2}}
+    floor = achievable_te(fund, others)
+    objective = {"maximize": "utility", "risk_aversion": 1.0, "cost_aversion": 1.0,
+                 "costs": {"spread": "spread", "commission": "commission"}}
+    return fund, {**others, "tracking_error": {"max": floor * (1 - 1e-3)}}, objective
+
+
+def test_the_edge_of_feasibility_is_diagnosed_on_the_default_path() -> None:
+    fund, constraints, objective = edge_case()
+    scenario = {"objective": objective, "constraints": constraints}
+    errors = {}
+    for name, solvers in (("default", None), ("clarabel", ["CLARABEL"])):
+        with pytest.raises(InfeasibleError) as caught:
+            rebalance(fund.model, scenario, solvers=solvers, **fund.kwargs())
+        errors[name] = caught.value
+    new, old = errors["default"], errors["clarabel"]
+    assert new.conflict == ["constraints.fully_invested", "constraints.weight.max", "constraints.turnover.max",
+                            "constraints.tracking_error.max"]
+    # the same diagnosis as the Clarabel-only path (the path that diagnosed it before the regression)
+    assert new.conflict == old.conflict
+    pd.testing.assert_frame_equal(new.relaxation.drop(columns=["needed", "relax_by"]),
+                                  old.relaxation.drop(columns=["needed", "relax_by"]))
+    np.testing.assert_allclose(new.relaxation["relax_by"], old.relaxation["relax_by"], rtol=1e-3, atol=1e-8)
+    te = new.relaxation[new.relaxation["constraint"] == "constraints.tracking_error.max"]
+    assert te["needed"].iloc[0] == pytest.approx(constraints["tracking_error"]["max"] / (1 - 1e-3), rel=2e-4)
+    # the first option applied solves, and its weights hold the loosened limits (verified from w)
+    result = new.relaxed()
+    assert float(result.weights.sum()) <= 1.0 + 1e-7
+
+
 # issue #19: one plain sentence per limit of the conflict set
 def _infeasible_with(constraints):
     from trimtab.construct import rebalance

@@ -7,10 +7,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from trimtab.construct import _ipm, _ipm_newton, build_problem, rebalance
+from trimtab.construct import _fast, _ipm, _ipm_newton, build_problem, rebalance
 from trimtab.errors import InfeasibleError, SolverError
 
-from ._dense import dense_solve
+from ._dense import dense_feasible, dense_solve
 from .conftest import make_fund
 from .test_problem import every_constraint
 
@@ -126,6 +126,72 @@ def test_infeasible_and_unbounded_problems_are_still_diagnosed():
     with pytest.raises(SolverError, match="unbounded"):
         rebalance(fund.model, {"objective": {"maximize": "alpha"}, "constraints": {"fully_invested": True}},
                   **fund.kwargs())
+
+
+def _qp(fund, scenario):
+    problem = build_problem(fund.model, scenario, **fund.kwargs())
+    return _fast.translate(problem, problem.all_rows()).qp
+
+
+def _linear_farkas_bound(qp, sol):
+    """min over the boxes of Σ y·g(x) for the linear rows, y the solution's row multipliers, written
+    from the QP's data alone (Farkas' lemma over a box: a positive minimum proves no x holds every row)."""
+    n = qp.n
+    up, lo = sol.row_upper, sol.row_lower
+    y = up - lo  # coefficient of each row's value
+    a = qp.Aw + qp.Ay @ qp.B.T  # rows × N, the value's w-gradient
+    coef_w = y @ a
+    coef_t = float(y @ qp.at)
+    cu, cv = coef_w + coef_t, -coef_w + coef_t  # on u and v, with w = w0 + u − v
+    coef = np.concatenate([cu, cv])
+    with np.errstate(invalid="ignore"):
+        box = np.where(coef > 0, coef * qp.lb, np.where(coef < 0, coef * qp.ub, 0.0))
+    limits = -np.where(up > 0, up * qp.hi, 0.0) + np.where(lo > 0, lo * qp.lo, 0.0)
+    return float(y @ (qp.Aw @ qp.w0 + qp.Ay @ (qp.B.T @ qp.w0) + qp.const) + box.sum() + limits.sum())
+
+
+def test_a_primal_infeasible_problem_stops_with_a_farkas_certificate():
+    # #21: 40 names at most 2% each cannot hold 100% (closed form: Σ caps = 80%)
+    fund = make_fund(40, 4, seed=69)
+    qp = _qp(fund, {"objective": {"maximize": "utility", "risk_aversion": 5},
+                    "constraints": {"fully_invested": True, "long_only": True, "weight": {"max": 0.02}}})
+    sol = _ipm.solve(qp)
+    assert sol.status == "infeasible" and not sol.converged
+    assert sol.iterations < 30  # detected, not waited out to MAX_ITER
+    # the multipliers it stopped with certify it, checked from the problem's data (outside the method)
+    y_size = max(np.abs(sol.row_upper).max(), np.abs(sol.row_lower).max())
+    assert _linear_farkas_bound(qp, sol) / y_size > 0.1  # the 20% shortfall, times the budget's multiplier
+
+
+def test_a_te_cap_below_its_reach_is_certified_infeasible_early():
+    fund = make_fund(60, 4, seed=3, drift=0.6)
+    constraints = {"fully_invested": True, "long_only": True, "turnover": {"max": 0.05}, "tracking_error": {"max": 0.001}}
+    # the outside reference: a dense N×N cvxpy formulation finds these limits infeasible
+    assert not dense_feasible(fund.model, {"constraints": constraints}, holdings=fund.holdings,
+                              benchmark=fund.benchmark, attributes=fund.attributes, nav=fund.nav)
+    sol = _ipm.solve(_qp(fund, {"objective": {"minimize": "active_risk"}, "constraints": constraints}))
+    assert sol.status == "infeasible" and sol.iterations < 40
+    assert sol.cap_duals[0] > 0  # the cap takes part in the certificate
+
+
+def test_the_same_limits_within_reach_are_never_called_infeasible():
+    # on a feasible problem the Farkas bound cannot be positive (weak duality), at any iterate
+    fund = make_fund(60, 4, seed=3, drift=0.6)
+    constraints = {"fully_invested": True, "long_only": True, "turnover": {"max": 0.05}, "tracking_error": {"max": 0.2}}
+    sol = _ipm.solve(_qp(fund, {"objective": {"minimize": "active_risk"}, "constraints": constraints}))
+    assert sol.converged
+
+
+def test_an_unbounded_objective_stops_with_a_ray():
+    # maximise alpha with only the budget: w = w0 + t·d with Σd = 0 and αᵀd > 0 gains without bound
+    fund = make_fund(40, 4, seed=69)
+    qp = _qp(fund, {"objective": {"maximize": "alpha"}, "constraints": {"fully_invested": True}})
+    sol = _ipm.solve(qp)
+    assert sol.status == "unbounded" and not sol.converged and sol.iterations < _ipm.MAX_ITER
+    d = qp.weights(sol.x) - qp.w0
+    d /= np.abs(d).max()
+    assert abs(d.sum()) < 1e-6  # keeps the budget
+    assert qp.alpha @ d > 1e-3  # and raises expected alpha
 
 
 @pytest.mark.parametrize("inside", [0, 3])

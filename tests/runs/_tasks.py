@@ -99,3 +99,10 @@ class ClosedFormProblem:
             lam = float(risk_aversion if risk_aversion is not None else self.objective["risk_aversion"])
             scale = 1.0 / (2.0 * lam * periods)
         return ClosedFormResult(pd.Series(self.benchmark.to_numpy() + scale * self.direction, index=self.model.assets))
+
+
+def allocator_setting(_: object) -> str | None:
+    """The glibc trim threshold a worker process started with (None: unset)."""
+    import os
+
+    return os.environ.get("MALLOC_TRIM_THRESHOLD_")

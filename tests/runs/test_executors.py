@@ -190,3 +190,20 @@ def test_local_cluster_options_fix_no_port() -> None:
     options = local_cluster_options(3)
     assert options["n_workers"] == 3 and options["host"] == "127.0.0.1" and options["scheduler_port"] == 0
     assert options["scheduler_kwargs"] == {"dashboard": False, "dashboard_address": "127.0.0.1:0"}
+
+
+def test_dask_workers_start_without_the_trim_threshold_and_leave_the_parent_alone(held_dashboard_port) -> None:
+    # #21: dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 in its workers (distributed.yaml,
+    # nanny.pre-spawn-environ) and writes its pre-spawn variables into the parent's os.environ
+    pytest.importorskip("distributed")
+    import os
+
+    from tests.runs._tasks import allocator_setting
+
+    os.environ.pop("MALLOC_TRIM_THRESHOLD_", None)
+    before = dict(os.environ)
+    with get_executor("dask", workers=1) as ex:
+        seen = [o.value for o in ex.map(allocator_setting, [0])]
+        during = dict(os.environ)
+    assert seen == [None]
+    assert during == before and dict(os.environ) == before

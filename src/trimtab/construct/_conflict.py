@@ -7,13 +7,20 @@ subset can: drop any one of its limits and the others are satisfiable together. 
 the deletion filter (Chinneck & Dravnieks, "Locating minimal infeasible constraint sets in linear
 programs", ORSA J. Computing 3(2), 1991): start from every group (infeasible); for each group in
 turn, drop it if the rest are still infeasible, else keep it. What is left is irreducible. Each
-test is one feasibility problem (no objective) solved with the cvxpy solvers of the problem's
-order; groups are tested in scenario order, those a variant scenario changed last, so that when
+test is one feasibility problem, solved by FACTOR_IPM when it is in the problem's solver order and
+can take the rows (:mod:`trimtab.construct._diagnosis_ipm`), else with the cvxpy solvers of the
+problem's order; groups are tested in scenario order, those a variant scenario changed last, so that when
 several conflict sets exist the one naming the limits just changed is preferred.
 
-A feasibility answer the solvers cannot give (neither feasible nor infeasible) keeps the group:
-the set is then still infeasible but may not be irreducible, and :attr:`Conflict.irreducible`
-says so.
+A solver's "feasible" counts only when its weights hold every limit of the test within the
+verification tolerance (SCS at its own tolerance calls a point 0.1% beyond a TE cap optimal). When
+no solver can tell (at the very edge of feasibility Clarabel fails with a numerical error, #21),
+the *elastic measure* decides: every limit of the test gets slacks (weighted as in the elastic
+problem of :mod:`trimtab.construct._elastic`) and their weighted sum is minimised. That problem
+is always feasible and well posed. A breach left at its optimum beyond ELASTIC_TOL relative to its
+limit is a positive violation: the limits cannot all hold. None of them breached beyond their
+verification tolerance: they can. Only an answer in between (or no answer) keeps the group: the
+set is then still infeasible but may not be irreducible, and :attr:`Conflict.irreducible` says so.
 """
 
 from __future__ import annotations
@@ -25,7 +32,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from trimtab._format import compact_limits
-from trimtab.construct import _solve
+from trimtab.construct import _diagnosis_ipm, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
@@ -36,6 +43,8 @@ if TYPE_CHECKING:
 
 #: Settings of a feasibility test's first try (the solver's own defaults otherwise).
 FEASIBILITY_SETTINGS: dict[str, dict[str, Any]] = {"CLARABEL": {"max_iter": 200}, "SCS": {"max_iters": 20_000}}
+#: A slack counts when above max(ELASTIC_TOL, ELASTIC_TOL·|limit|).
+ELASTIC_TOL = 1e-6
 #: Keys whose limits are on/off rules rather than numbers: they can conflict but a relaxation never moves them.
 RULE_KEYS = ("long_only", "no_buy", "no_sell", "no_trade")
 
@@ -153,13 +162,37 @@ def cvxpy_solvers(problem: RebalanceProblem) -> list[str]:
     return list(dict.fromkeys(first + named)) or ["SCS"]
 
 
+class LazySolvers(Sequence[str]):
+    """:func:`cvxpy_solvers`, asked for only when a cvxpy solve is reached: asking imports cvxpy
+    and every solver interface (1–2.6 s in a fresh process), which a diagnosis in factor form skips."""
+
+    def __init__(self, problem: RebalanceProblem) -> None:
+        self._problem = problem
+        self._names: list[str] | None = None
+
+    def _get(self) -> list[str]:
+        if self._names is None:
+            self._names = cvxpy_solvers(self._problem)
+        return self._names
+
+    def __getitem__(self, i: Any) -> Any:
+        return self._get()[i]
+
+    def __len__(self) -> int:
+        return len(self._get())
+
+
 def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[str]) -> bool | None:
-    """Whether the rows hold together (True/False), or None when no solver could tell."""
+    """Whether the rows hold together (True/False), or None when neither the solvers nor the elastic
+    measure could tell (see the module notes)."""
+    hard = [r for r in rows if np.isfinite(r.lower).any() or np.isfinite(r.upper).any()]
+    answer = _diagnosis_ipm.feasible(problem, hard)  # FACTOR_IPM first, when in the solver order
+    if answer is not None:
+        return answer
     variables = Variables(problem.data)
     assembly = Assembly(variables)
-    for r in rows:
-        if np.isfinite(r.lower).any() or np.isfinite(r.upper).any():
-            assembly.add(r)
+    for r in hard:
+        assembly.add(r)
     cvx = cp.Problem(cp.Minimize(0), assembly.finish())
     # a solver's own default tolerances first: a yes/no answer needs no 1e-10 accuracy, and near the
     # edge of feasibility Clarabel certifies infeasibility in a fraction of the iterations it takes
@@ -167,9 +200,47 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         status = _solve.run(cvx, solver, settings).status
         if status in (cp.OPTIMAL, cp.OPTIMAL_INACCURATE):
-            return True
+            if variables.w.value is not None and _diagnosis_ipm.holds(hard, np.asarray(variables.w.value, dtype=np.float64)):
+                return True
+            continue  # a point beyond the limits proves nothing
         if status in _solve.INFEASIBLE:
             return False
+    return elastic_feasible(problem, hard, solvers)
+
+
+def penalty(rows: Rows, index: np.ndarray | None = None) -> float:
+    """1/|limit| (at least 1%): a move is measured relative to the limit's own size."""
+    lo = rows.lower if index is None else rows.lower[index]
+    hi = rows.upper if index is None else rows.upper[index]
+    finite = np.concatenate([np.abs(lo[np.isfinite(lo)]), np.abs(hi[np.isfinite(hi)])])
+    return 1.0 / max(0.01, float(finite.max()) if len(finite) else 0.0)
+
+
+def elastic_feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[str]) -> bool | None:
+    """The elastic measure's answer: False on a positive violation, True when every row holds, else None."""
+    variables = Variables(problem.data)
+    assembly = Assembly(variables)
+    for r in rows:
+        assembly.add(replace(r, soft=penalty(r)))
+    cvx = cp.Problem(cp.Minimize(assembly.penalty), assembly.finish())
+    for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
+        attempt = _solve.run(cvx, solver, settings)
+        if attempt.status != cp.OPTIMAL or variables.w.value is None:
+            continue
+        weights = np.asarray(variables.w.value, dtype=np.float64)
+        if _diagnosis_ipm.holds(rows, weights):
+            return True
+        positive, measured = False, 0.0
+        for r in rows:
+            limit = np.fmax(np.where(np.isfinite(r.lower), np.abs(r.lower), 0.0),
+                            np.where(np.isfinite(r.upper), np.abs(r.upper), 0.0))
+            breach = r.breach(np.asarray(r.evaluate(weights), dtype=np.float64))
+            positive |= bool(np.any(breach > ELASTIC_TOL * np.maximum(1.0, limit)))
+            measured += penalty(r) * float(breach.sum())
+        # the solver's own optimum must show the violation the weights show (a point read back
+        # wrongly, or far from the optimum, proves nothing)
+        solver_value = float(cvx.value) if cvx.value is not None else 0.0
+        return False if positive and solver_value >= 0.5 * measured else None
     return None
 
 
@@ -195,7 +266,7 @@ def conflict_set(problem: RebalanceProblem, extra: Sequence[Rows] = (), changed:
         Groups in report order: those in ``changed`` first, then scenario order.
     """
     groups = limit_groups(problem, extra)
-    solvers = cvxpy_solvers(problem)
+    solvers = LazySolvers(problem)
     solves = 0
     keep: set[int] = set()
     hinted = {i for i, g in enumerate(groups) if g.path in set(hint or ())}

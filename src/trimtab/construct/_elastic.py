@@ -24,15 +24,17 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _solve
+from trimtab.construct import _diagnosis_ipm, _elastic_ipm, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._conflict import (
+    ELASTIC_TOL,
     FEASIBILITY_SETTINGS,
     Conflict,
     LimitGroup,
     conflict_set,
     cvxpy_solvers,
     limit_groups,
+    penalty,
 )
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._variables import Variables
@@ -43,8 +45,6 @@ if TYPE_CHECKING:
     from trimtab.construct._problem import RebalanceProblem
 
 COLUMNS = ["option", "constraint", "kind", "side", "limit", "needed", "relax_by", "unit"]
-#: A slack counts when above max(ELASTIC_TOL, ELASTIC_TOL·|limit|).
-ELASTIC_TOL = 1e-6
 #: Kinds whose limits are fractions of NAV: never proposed beyond ±100%.
 WEIGHT_RANGE = ("weight", "active_weight", "trade", "group", "active_group", "must_hold")
 #: A relaxed limit is loosened by this much beyond the elastic optimum, so a re-solve at the
@@ -80,19 +80,20 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
 # ---------------------------------------------------------------------------------------------
 # Elastic problems
 # ---------------------------------------------------------------------------------------------
-def _penalty(rows: Rows, index: np.ndarray | None) -> float:
-    """1/|limit| (at least 1%): a move is measured relative to the limit's own size."""
-    lo = rows.lower if index is None else rows.lower[index]
-    hi = rows.upper if index is None else rows.upper[index]
-    finite = np.concatenate([np.abs(lo[np.isfinite(lo)]), np.abs(hi[np.isfinite(hi)])])
-    return 1.0 / max(0.01, float(finite.max()) if len(finite) else 0.0)
-
-
 def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: Sequence[LimitGroup]) -> np.ndarray | None:
     """The weights minimising the weighted moves of ``movable`` with every other hard limit as written."""
+    if len(movable) == 1 and _diagnosis_ipm.available(problem):
+        weights = _extreme(problem, extra, movable[0])
+        if weights is not _diagnosis_ipm.UNANSWERED:
+            return weights  # type: ignore[return-value]
     free: dict[int, list[LimitGroup]] = {}
     for g in movable:
         free.setdefault(id(g.rows), []).append(g)
+    if _diagnosis_ipm.available(problem):
+        weights = _elastic_ipm.elastic(problem, [r for r in problem.all_rows(extra) if r.soft is None],
+                                       _movable_elements(problem, extra, free))
+        if weights is not _diagnosis_ipm.UNANSWERED:
+            return weights  # type: ignore[return-value]
     variables = Variables(problem.data)
     assembly = Assembly(variables)
     for rows in problem.all_rows(extra):
@@ -104,7 +105,7 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
             continue
         whole = any(g.index is None for g in groups)
         index = None if whole else np.concatenate([g.index for g in groups])  # type: ignore[misc]
-        soft = replace(rows, soft=_penalty(rows, index))
+        soft = replace(rows, soft=penalty(rows, index))
         if whole:
             assembly.add(soft)
             continue
@@ -123,6 +124,37 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
         if attempt.status in _solve.INFEASIBLE:
             return None
     return None
+
+
+def _movable_elements(problem: RebalanceProblem, extra: Sequence[Rows],
+                      free: dict[int, list[LimitGroup]]) -> dict[int, tuple[np.ndarray, float]]:
+    """id(rows) → (its movable elements, their price), as elastic_weights prices them."""
+    out: dict[int, tuple[np.ndarray, float]] = {}
+    for rows in problem.all_rows(extra):
+        groups = free.get(id(rows))
+        if not groups or rows.soft is not None:
+            continue
+        whole = any(g.index is None for g in groups)
+        index = None if whole else np.concatenate([g.index for g in groups])  # type: ignore[misc]
+        mask = np.ones(rows.size, dtype=bool) if index is None else np.isin(np.arange(rows.size), index)
+        out[id(rows)] = (mask, penalty(rows, index))
+    return out
+
+
+def _extreme(problem: RebalanceProblem, extra: Sequence[Rows], group: LimitGroup) -> object:
+    """One group movable, in factor form (:func:`trimtab.construct._diagnosis_ipm.extreme`): the
+    other hard limits as written, the group's own elements free in its block."""
+    others: list[Rows] = []
+    for rows in problem.all_rows(extra):
+        if rows.soft is not None:
+            continue
+        if rows is not group.rows:
+            others.append(rows)
+        elif group.index is not None:
+            mask = np.zeros(rows.size, dtype=bool)
+            mask[group.index] = True
+            others.append(replace(rows, lower=np.where(mask, -np.inf, rows.lower), upper=np.where(mask, np.inf, rows.upper)))
+    return _diagnosis_ipm.extreme(problem, others, group.restricted())
 
 
 def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str] | None:

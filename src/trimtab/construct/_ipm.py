@@ -78,6 +78,14 @@ SHORT_STEP = 1e-3
 #: Iterations without a better iterate that end a run once an acceptable one exists.
 STALL_ITER = 2
 DIVERGED = 1e8
+#: A Farkas bound (see :meth:`_Run.farkas`) above this, in units of the rows with the multipliers
+#: scaled to a largest of 1, certifies that no point of the boxes satisfies the rows and caps.
+FARKAS_TOL = 1e-9
+#: ... with entries of J_hᵀy (y so scaled) this small counted as 0 where a coordinate is unbounded.
+FARKAS_DUAL_TOL = 1e-9
+#: A diverging iterate's direction d certifies an unbounded objective when it stays within the
+#: limits' recession cone and lowers the objective, to this relative accuracy (see _Run.unbounded).
+RECESSION_TOL = 1e-7
 #: Warm starts: gaps at least WARM_GAP × the cold start's, multipliers at least WARM_MU·mu0 / gap.
 WARM_GAP = 1e-1
 WARM_MU = 1e-1
@@ -122,6 +130,14 @@ def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False, warm: Warm
     when it is within every tolerance (``optimal``), when its steps stall or a Newton solve fails or
     goes non-finite, or after ``max_iter`` iterations. ``converged`` is True for ``optimal`` and for
     ``optimal_stalled`` (a stopped run whose best iterate is within the ACCEPT_* residuals).
+
+    Infeasibility is detected, not waited out: while the primal residual is above its tolerance
+    (and no acceptable iterate exists), every iteration tests the multipliers as a Farkas
+    certificate (:meth:`_Run.farkas`); a positive bound stops the run as ``infeasible``, with the
+    certifying multipliers in the solution (``row_upper``, ``row_lower``, ``cap_duals``). An iterate
+    beyond DIVERGED stops it as ``unbounded`` when its direction is a ray along which the objective
+    falls without bound (:meth:`_Run.unbounded`; the direction is the solution's x), else as
+    ``diverged``.
     """
     # overflow or 0/0 near a failing end is caught by the finiteness checks, not by warnings
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
@@ -140,6 +156,7 @@ class _Run:
         self.has_lb = self.free & np.isfinite(qp.lb)
         self.has_ub = self.free & np.isfinite(qp.ub)
         self.Gw = _row_columns(qp)
+        self.implied_ub = implied_upper(qp)
         self.b_norm2 = np.einsum("ij,ij->i", qp.B, qp.B)
         self.at = qp.at
         self.Ay_fac = qp.Ay[rows.factor_only]
@@ -225,6 +242,9 @@ class _Run:
             qa = shared if shared is not None else qp.sigma(a, cap.factor, cap.specific)
             caps[k] = a @ qa / cap.tau2 - 1.0
             grad = 2.0 * qa / cap.tau2
+            if cap.slack is not None:  # an elastic slack column (_elastic_ipm): no exposure, no d
+                caps[k] -= w[cap.slack]
+                grad[cap.slack] -= 1.0
             self.cap_grads.append(grad)
         self.h = np.concatenate([self.values[self.up_side] - qp.hi[self.up_side],
                                  qp.lo[self.lo_side] - self.values[self.lo_side], caps])
@@ -270,6 +290,58 @@ class _Run:
         for k, gk in enumerate(self.cap_grads):
             w_part = w_part + self.z[self.m_lin + k] * gk
         return g + _expand(w_part, float(self.at @ rm))
+
+    # ------------------------------------------------------------------ certificates
+    def farkas(self) -> float:
+        """A lower bound on min over the boxes of yᵀg(x), y = (z, ν) scaled to a largest entry of 1.
+
+        g collects the inequality rows and caps (h ≤ 0) and the equality rows (Ax − b = 0). For y with
+        z ≥ 0, yᵀg is convex, so it lies above its linearisation at the iterate x̄:
+        yᵀg(x) ≥ yᵀg(x̄) + cᵀ(x − x̄), c = J_hᵀz + Aᵀν, whose minimum over the boxes lb ≤ x ≤ ub is
+        separable: Σⱼ min(cⱼ(lbⱼ − x̄ⱼ), cⱼ(ubⱼ − x̄ⱼ)). ub may be tightened by any bound every feasible
+        point keeps (:func:`implied_upper`: a turnover cap bounds every trade), which keeps the
+        minimum finite where the boxes alone have no upper bound. Any feasible x gives yᵀg(x) ≤ 0, so a positive
+        bound proves that none exists (Farkas' lemma in its convex form; e.g. Boyd & Vandenberghe,
+        Convex Optimization, §5.8). As an infeasible problem is iterated the multipliers of the
+        conflicting rows grow without bound and the scaled y approaches such a certificate; on a
+        feasible problem the bound cannot be positive, whatever the iterate. Where a coordinate has
+        no bound on the side cⱼ points to, the exact minimum is −∞ unless cⱼ = 0; an iterate's y
+        never makes it exactly 0, so |cⱼ| ≤ FARKAS_DUAL_TOL counts as 0: an approximate certificate
+        to that tolerance, the rule general conic solvers apply to theirs (Clarabel's
+        ``tol_infeas_rel``, OSQP's ``eps_prim_inf``).
+        """
+        size = max(float(np.max(self.z, initial=0.0)), float(np.max(np.abs(self.nu), initial=0.0)))
+        if not size > 0 or not np.isfinite(size):
+            return -np.inf
+        z, nu = self.z / size, self.nu / size
+        c = self.jac_t(z, nu)
+        r_eq = self.values[self.rows.eq] - self.b_eq
+        return box_minimum(float(z @ self.h + nu @ r_eq), c, self.qp, self.x, self.free, self.implied_ub)
+
+    def unbounded(self) -> bool:
+        """Whether the direction d = x/‖x‖ of a diverging iterate certifies an unbounded objective:
+        d keeps every box (dⱼ ≥ 0 where lbⱼ is finite, ≤ 0 where ubⱼ is), moves no equality row,
+        moves no inequality row towards its finite limit, leaves every cap's and the objective's
+        quadratic part at 0 (dᵀΣd = 0 along it) and lowers the linear part of the objective."""
+        qp = self.qp
+        d = np.where(self.free, self.x, 0.0)
+        d = d / max(float(np.max(np.abs(d))), 1e-300)
+        n = self.n
+        dw = d[:n] - d[n:]
+        tol = RECESSION_TOL
+        if np.any(d[np.isfinite(qp.lb) & self.free] < -tol) or np.any(d[np.isfinite(qp.ub) & self.free] > tol):
+            return False
+        change = self.Gw.T @ dw + self.at * d.sum()
+        finite_hi, finite_lo = np.isfinite(qp.hi), np.isfinite(qp.lo)
+        if np.any(change[finite_hi] > tol) or np.any(change[finite_lo] < -tol):
+            return False
+        for cap in qp.caps:
+            if dw @ qp.sigma(dw, cap.factor, cap.specific) > tol:
+                return False
+        if qp.risk_weight and dw @ qp.sigma(dw) > tol:
+            return False
+        slope = float(-qp.alpha @ dw + qp.cost @ (d[:n] + d[n:]))
+        return slope < -tol
 
     # ------------------------------------------------------------------ state
     def state(self) -> tuple[np.ndarray, ...]:
@@ -415,8 +487,11 @@ class _Run:
             if merit <= 1.0:
                 status = "optimal"
                 break
+            if acceptable is None and res["primal"] > TOL_PRIMAL and self.farkas() > FARKAS_TOL:
+                status = "infeasible"
+                break
             if np.max(np.abs(self.x[self.free]), initial=0.0) > DIVERGED:
-                status = "diverged"
+                status = "unbounded" if self.unbounded() else "diverged"
                 break
             try:
                 step = self.iterate()
@@ -435,7 +510,10 @@ class _Run:
                 status = "stalled"
                 break
         assert best is not None
-        if status != "optimal" and acceptable is not None:
+        if status in ("infeasible", "unbounded"):
+            # the last iterate is the certificate: its multipliers (infeasible), its direction (unbounded)
+            state = self.state()
+        elif status != "optimal" and acceptable is not None:
             _, state, res = acceptable
             status = "optimal_stalled"
         else:
@@ -461,6 +539,30 @@ class _Run:
             warm=Warm(self.x.copy(), self.s.copy(), self.z.copy(), self.zl.copy(), self.zu.copy(), self.nu.copy(),
                       self.scale, qp.w0.copy()),
         )
+
+
+def implied_upper(qp: QP) -> np.ndarray:
+    """Upper bounds on x that every feasible point keeps: ub, and from a row on trades alone
+    (at·1ᵀ(u + v) + c ≤ hi with at > 0, as a turnover cap) each uⱼ, vⱼ ≤ (hi − c)/at."""
+    ub = qp.ub.copy()
+    only_trades = ~np.any(qp.Aw != 0, axis=1) & ~np.any(qp.Ay != 0, axis=1) & (qp.at > 0) & np.isfinite(qp.hi)
+    for i in np.flatnonzero(only_trades):
+        ub = np.minimum(ub, max((qp.hi[i] - qp.const[i]) / qp.at[i], 0.0))
+    return np.maximum(ub, qp.lb)
+
+
+def box_minimum(base: float, c: np.ndarray, qp: QP, x: np.ndarray, free: np.ndarray,
+                upper: np.ndarray | None = None) -> float:
+    """base + min over lb ≤ x′ ≤ upper of cᵀ(x′ − x) on the free coordinates (see _Run.farkas);
+    ``upper`` defaults to :func:`implied_upper`."""
+    ub = implied_upper(qp) if upper is None else upper
+    # a side without a bound contributes −∞ unless |cⱼ| ≤ FARKAS_DUAL_TOL (then 0)
+    c = np.where(np.abs(c) <= FARKAS_DUAL_TOL, 0.0, c)
+    with np.errstate(invalid="ignore"):
+        down = np.where(c > 0, c * (qp.lb - x), 0.0)
+        up = np.where(c < 0, c * (ub - x), 0.0)
+    bound = base + float(down[free].sum() + up[free].sum())
+    return bound if np.isfinite(bound) else -np.inf
 
 
 def _objective_gradient(qp: QP, x: np.ndarray, sa: np.ndarray | None = None) -> np.ndarray:

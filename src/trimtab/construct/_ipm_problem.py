@@ -23,6 +23,8 @@ class Cap:
     factor: bool
     specific: bool
     tau2: float
+    #: the coordinate of w holding an elastic slack σ of the cap: (w − b)ᵀQ(w − b)/τ² − 1 ≤ σ (None: none)
+    slack: int | None = None
 
 
 @dataclass(eq=False)

@@ -209,6 +209,11 @@ class RebalanceProblem:
                 sol = answer.solution
                 attempts.append(_solve.Attempt(solver, sol.status, sol.iterations, time.perf_counter() - start, "",
                                                _fast.settings()))
+                if sol.status == "infeasible":
+                    # a Farkas certificate (_ipm._Run.farkas): no general solver need say it again
+                    _elastic.diagnose(self, extra, attempts)  # raises InfeasibleError when confirmed
+                    rejected.append(f"{name}: infeasible but the limits can all hold (no conflict set)")
+                    continue
                 if not sol.converged:
                     rejected.append(f"{name}: {sol.status}")
                     continue
