@@ -80,7 +80,7 @@ def test_check_ok_prints_alignment_and_json(work: Path) -> None:
 @pytest.mark.parametrize(
     ("edit", "pattern"),
     [
-        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: alerts, backtest, constraints, data"),
+        (lambda t: t + "colour: red\n", r"base\.yaml: colour: unknown key; allowed here: alerts, alpha_factor, backtest, constraints, data"),
         (lambda t: t.replace("kind: shares", "kind: lots"), r"data\.holdings\.kind: expected 'weights' or 'shares', got 'lots'"),
         (lambda t: t.replace("model: model", "model: missing_model"), r"missing_model: no such model folder"),
         (lambda t: t.replace("data/alpha.csv", "data/alpha.txt"), r"alpha\.txt: alpha file not found"),
@@ -375,6 +375,8 @@ def test_demo_small(tmp_path: Path) -> None:
     assert (root / "results" / "base" / "report.html").exists()
     assert (root / "results" / "compare" / "report.html").exists()
     assert (root / "model" / "manifest.json").exists()
+    # the demo backtest (#24): base and alpha_factor side by side, each with its bias statistic
+    assert result.stdout.count("    bias ") == 2 and (root / "results" / "backtest" / "report.html").exists()
     # the demo's scenarios run again from the folder it wrote
     assert invoke("--quiet", "check", root / "neutral_size_momentum.yaml").exit_code == 0
     # a second run replaces the folder it wrote, but never a folder it did not write

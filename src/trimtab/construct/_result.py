@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab._version import __version__
+from trimtab.construct._alpha_factor import alpha_lines, alpha_provenance, alpha_warnings
 from trimtab.construct._figures import desk_figures
 from trimtab.construct._solve import SOLVER_SETTINGS
 from trimtab.construct._orders import NOT_FIT_STATUS, rounding_notices, trade_list_for, weights_without_noise
@@ -27,6 +28,7 @@ from trimtab.construct._verify import OBJECTIVE_TOL
 from trimtab.construct.constraints._base import ABS_TOL, REL_TOL
 
 if TYPE_CHECKING:
+    from trimtab.model._alpha import AlphaAlignment
     from trimtab.attribution import RiskAttribution
     from trimtab.construct._problem import Outcome, RebalanceProblem
     from trimtab.model import FactorModel
@@ -123,6 +125,21 @@ class RebalanceResult:
         when there is a benchmark."""
         return self._attribution(self.final_weights)
 
+    @cached_property
+    def alpha_alignment(self) -> AlphaAlignment | None:
+        """How much of :attr:`alpha` the model's own factors span (before any alpha factor), or None
+        without an alpha objective or a model; see :func:`trimtab.alpha_alignment`."""
+        if self.alpha is None or self._model is None:
+            return None
+        from trimtab.model._alpha import alpha_alignment, without_alpha_factor
+
+        return alpha_alignment(without_alpha_factor(self._model), self.alpha)
+
+    @property
+    def alpha_factor(self) -> Mapping[str, Any] | None:
+        """The alpha factor the risk figures include (volatility, spanned share), or None."""
+        return self.provenance.get("alpha_factor")
+
     @property
     def final_weights(self) -> pd.Series:
         """The book after the trades as they would be sent: rounded when there is a trade list."""
@@ -191,10 +208,14 @@ class RebalanceResult:
     @cached_property
     def stress(self) -> pd.DataFrame | None:
         """Every shock of the scenario (stress_loss and stress), before and after the trade; see
-        :func:`trimtab.construct._stress_table.stress_table`. None when the scenario has no shocks."""
+        :func:`trimtab.construct._stress_table.stress_table`. None when the scenario has no shocks.
+        Shocks and replays run on the model's own factors: an alpha factor has no history and, being
+        uncorrelated with the others, no conditional move."""
+        from trimtab.construct._alpha_factor import base_model
         from trimtab.construct._stress_table import stress_table
 
-        return stress_table(self._model, self._holdings, self.weights, self.benchmark, self.scenario)
+        model = None if self._model is None else base_model(self._model)
+        return stress_table(model, self._holdings, self.weights, self.benchmark, self.scenario)
 
     def _attribution(self, weights: pd.Series | None) -> RiskAttribution | None:
         # the seam to trimtab.attribution: absent module (or no model) → no pre/post attribution
@@ -236,6 +257,7 @@ class RebalanceResult:
         for key, label in (("tracking_error", "Ex-ante tracking error"), ("total_risk", "Ex-ante total risk")):
             if key in self.ex_ante:
                 lines.append(f"{label} (annualised): {self.ex_ante[key]:.2%}")
+        lines.extend(alpha_lines(self))
         figures = self.figures
         if figures and np.isfinite(figures.get("expected_alpha", np.nan)):
             lines.append(
@@ -293,6 +315,7 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
         notices.extend(rounding_notices(trade_list))
         if not trade_list.ok:
             status = NOT_FIT_STATUS
+    notices.extend(alpha_warnings(problem))
     return RebalanceResult(
         weights=weights,
         initial_weights=initial,
@@ -429,4 +452,5 @@ def _provenance(problem: RebalanceProblem, outcome: Outcome) -> dict[str, Any]:
         "notes": list(outcome.notes),
         "model": repr(problem.model),
         "periods_per_year": problem.data.periods_per_year,
+        **alpha_provenance(problem),
     }

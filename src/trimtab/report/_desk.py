@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab.attribution._desk_figures import DESK_FIGURES
+from trimtab.report._alpha import alpha_context_line
 
 if TYPE_CHECKING:
     from trimtab.attribution import RiskAttribution
@@ -231,7 +232,7 @@ def context_lines(content: ReportContent) -> list[str]:
         if ctx.get("holdings_coverage") is not None:
             cover = f"; {ctx['holdings_coverage']:.1%} of the held weight is in the model"
         lines.append(f"Risk model: {ctx['model_assets']:,} assets × {ctx.get('model_factors', '?')} factors{when}{cover}")
-    return lines
+    return lines + alpha_context_line(content.alpha_source)
 
 
 def rounding_lines(content: ReportContent) -> list[str]:

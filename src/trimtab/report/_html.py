@@ -29,6 +29,7 @@ from trimtab.report._content import (
     no_bound,
     rounding_lines,
 )
+from trimtab.report._alpha import alpha_html
 from trimtab.report._stress import stress_html
 from trimtab.report._files import atomic_write_text
 from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
@@ -181,6 +182,8 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
                      + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades,
                                            fit=content.rounding is None or content.rounding.get("fit_to_send", True)))
     parts.append(f"<{h}>Risk figures</{h}>" + _headline_table(content))
+    if content.alpha_source is not None:
+        parts.append(alpha_html(content.alpha_source, h, key))
     if content.risk_budget is not None:
         budget = content.risk_budget
         parts.append(

@@ -310,6 +310,17 @@ def write_frontier(result: Any, target: str | Path, *, inputs: Sequence[str | Pa
     return Path(target)
 
 
+def _alpha_factor_note(settings: Any) -> str:
+    """Which scenarios forecast on the model with the alpha factor (docs/model.md), as a note."""
+    priced = dict(settings.get("alpha_factor") or {})
+    if not priced:
+        return ""
+    names = ", ".join(f"{name} (volatility {sigma:.2%} a year)" for name, sigma in priced.items())
+    return ('<p class="note">' + html.escape(
+        f"Forecast on the model augmented with the alpha factor, the part of each date's alpha the factors do not "
+        f"span priced as one more factor: {names}. The other scenarios' forecasts price that part as specific risk.") + "</p>")
+
+
 def write_backtest(result: Any, target: str | Path, *, inputs: Sequence[str | Path] = (), title: str = "Backtest") -> Path:
     """history.csv, exposures.csv, risk_contributions.csv, bias.csv, totals.csv, result.json and
     report.html into ``target``."""
@@ -329,7 +340,8 @@ def write_backtest(result: Any, target: str | Path, *, inputs: Sequence[str | Pa
             ("Dates that did not solve as written",
              html_table(unsolved) if len(unsolved) else "<p>Every date solved with its limits as written.</p>"),
             ("Realised against forecast risk", html_table(result.bias)
-             + '<p class="note">Bias statistic b = std(rₜ/σₜ) over the holding periods; inside 1 ± √(2/T) the forecasts held.</p>'),
+             + '<p class="note">Bias statistic b = std(rₜ/σₜ) over the holding periods; inside 1 ± √(2/T) the forecasts held.</p>'
+             + _alpha_factor_note(result.settings)),
             ("Totals", html_table(result.totals, percent_columns=_PERCENT)),
             ("Charts", figure_block(backtest_charts(result))),
         ]
