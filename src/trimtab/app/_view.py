@@ -16,6 +16,7 @@ import pandas as pd
 
 from trimtab.app._session import Variant
 from trimtab.report._filters import number, piece
+from trimtab.report._html_desk import cash_card
 from trimtab.report._templates import (
     binding_rows, exposure_rows, render_cards, render_trades, trade_rows, warning_rows,
 )
@@ -42,6 +43,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
                 sentence=relaxation_sentence(failure.relaxation) if rows else "", rows=rows,
                 conflict=[str(c) for c in getattr(failure, "conflict", ()) or ()],
                 columns=columns, numbers=RELAXATION_NUMBERS,
+                reasons=list(failure.reasons),
             )
         }
         figures: dict[str, Any] = {}
@@ -49,7 +51,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
         content = gather(variant.result, top=TOP_TRADES)
         figures = key_figures(variant.result, content)
         html = {
-            "headline": render_cards(headline_cards(figures, content)),
+            "headline": render_cards(headline_cards(figures, content) + cash_card(content.rounding)),
             "exposures": render("partials/exposures.html.j2", rows=exposure_rows(content.exposures)),
             "trades": _trades(content),
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),

@@ -172,14 +172,16 @@ def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int 
 def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *, level: int) -> str:
     h = f"h{level}"
     post, pre = content.post, content.pre
-    parts = [_run_line(content) + desk.context_section(context_lines(content)), desk.desk_cards(content.figures) + _key_figures(content)]
+    parts = [_run_line(content) + desk.context_section(context_lines(content)) + desk.verdict_section(content),
+             desk.desk_cards(content.figures, content.rounding) + _key_figures(content)]
     if content.is_rebalance:
         parts.append(desk.warnings_section(content.warnings, h, f"{key}-warnings"))
     if content.figures is not None:
         parts.append(f"<{h}>What the trades do</{h}>" + desk.figures_table(content.figures))
     if content.orders is not None and len(content.orders):
         parts.append(f'<{h} id="{key}-orders">Trade list</{h}>'
-                     + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades))
+                     + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades,
+                                           fit=content.rounding is None or content.rounding.get("fit_to_send", True)))
     parts.append(f"<{h}>Risk figures</{h}>" + _headline_table(content))
     if content.alpha_source is not None:
         parts.append(alpha_html(content.alpha_source, h, key))

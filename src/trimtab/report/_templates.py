@@ -121,7 +121,7 @@ def binding_rows(table: pd.DataFrame | None) -> list[dict[str, Any]]:
         rows.append({
             "name": str(row.get("name", "")), "kind": str(row.get("kind", "")),
             "value": row.get("value"),
-            "value_format": ["pct", 3] if unit.startswith("weight") or unit in ("fraction", "annualised volatility") else ["num", 4],
+            "value_format": ["pct", 3] if unit.startswith(("weight", "fraction")) or unit == "annualised volatility" else ["num", 4],
             "where": "" if asset is None or (isinstance(asset, float) and math.isnan(asset)) else f"{asset}" + (f" and {int(count) - 1} more" if count and count > 1 else ""),
             "shadow_price": row.get("shadow_price"),
         })
