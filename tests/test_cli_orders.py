@@ -18,41 +18,21 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
-from tests.demo_helpers import make_demo_folder
+from tests.demo_helpers import LOTS_MANDATE, add_lots_fund, make_demo_folder
 from trimtab.cli import app
 
 runner = CliRunner()
 NOT_FIT = 6
 
-MANDATE = """extends: base.yaml
-data:
-  holdings: {{path: data/holdings_w.csv, kind: weights, nav: {nav}}}
-  benchmark: data/benchmark.csv
-  alpha: data/alpha.csv
-  attributes: data/attributes_lots.csv
-constraints:
-  factor_exposure: {{active: true, bounds: {{momentum: [0, 0]}}}}
-  beta: {{min: 0.98, max: 1.02}}
-  group: {{by: industry, active: true, bounds: {{default: [-0.01, 0.01]}}}}
-"""
-
-
 @pytest.fixture(scope="module")
 def fund(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    folder = make_demo_folder(tmp_path_factory.mktemp("orders-demo"))
-    attrs = pd.read_csv(folder / "data" / "attributes.csv")
-    attrs["lot"] = 100
-    attrs.to_csv(folder / "data" / "attributes_lots.csv", index=False)
-    shares = pd.read_csv(folder / "data" / "holdings.csv").set_index("asset")["shares"]
-    value = shares * attrs.set_index("asset")["price"].reindex(shares.index)
-    (value / (value.sum() * 1.012)).rename("weight").to_csv(folder / "data" / "holdings_w.csv")  # 1.2% cash
-    return folder
+    return add_lots_fund(make_demo_folder(tmp_path_factory.mktemp("orders-demo")))
 
 
 def _run(fund: Path, tmp_path: Path, nav: float) -> tuple[object, Path]:
     work = tmp_path / "fund"
     shutil.copytree(fund, work)
-    (work / "mandate.yaml").write_text(MANDATE.format(nav=nav), encoding="utf-8")
+    (work / "mandate.yaml").write_text(LOTS_MANDATE.format(nav=nav), encoding="utf-8")
     out = work / "out"
     return runner.invoke(app, ["rebalance", str(work / "mandate.yaml"), "--out", str(out)]), out
 

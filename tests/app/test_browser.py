@@ -117,3 +117,37 @@ def test_the_issue_walkthrough_te_cap_and_momentum_bound_three_pins_save_and_reb
         np.testing.assert_allclose(rerun.sort_index(), variant.reindex(rerun.index).sort_index(), atol=1e-6)
     finally:
         saved.unlink(missing_ok=True)
+
+
+def test_orders_not_fit_to_send_show_as_such_in_the_status_box_trail_chart_and_save(not_fit_scenario: Path) -> None:
+    """#19: a variant whose rounded orders breach a limit is not shown as solved: the status names it,
+    a red box lists each breached limit, the trail and the chart mark it, and Save says so."""
+    from selenium.webdriver.common.by import By
+    from selenium.webdriver.support.ui import WebDriverWait
+
+    from trimtab.app import Explorer
+
+    breached = list(Explorer.open(not_fit_scenario).solve({}).result.trade_list.breached["name"])
+    port = free_port()
+    with explore_server(not_fit_scenario, port) as server, chromium() as driver:
+        driver.get(server.url)
+        wait_for_variant(driver, 1)
+        status = driver.find_element(By.ID, "status")
+        assert status.text.startswith("Variant 1: orders not fit to send") and "bad" in status.get_attribute("class")
+        items = driver.find_elements(By.CSS_SELECTOR, "#verdict .notfit li")
+        assert [i.get_attribute("data-limit") for i in items] == breached
+        assert all("on the rounded book against" in i.text and "beyond the tolerance" in i.text for i in items)
+        cell = driver.find_elements(By.CSS_SELECTOR, "table.trail tbody tr td")[2]
+        assert cell.text == "orders not fit to send" and "status-bad" in cell.get_attribute("class")
+        assert len(driver.find_elements(By.CSS_SELECTOR, "#chart circle.point.notfit")) == 1
+        name = driver.find_element(By.ID, "save-name")
+        name.clear()
+        name.send_keys("browser_not_fit")
+        driver.find_element(By.ID, "save-button").click()
+        message = driver.find_element(By.ID, "save-message")
+        WebDriverWait(driver, 30).until(lambda d: message.text)
+        assert "ORDERS ARE NOT FIT TO SEND" in message.text and "exits with 6" in message.text
+        assert "bad" in message.get_attribute("class")
+        assert (not_fit_scenario.parent / "browser_not_fit.yaml").exists()
+        errors = [e for e in driver.get_log("browser") if e["level"] == "SEVERE"]
+        assert errors == [], errors

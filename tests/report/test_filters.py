@@ -72,6 +72,11 @@ def test_a_template_prints_what_the_function_returns(name: str, arguments: tuple
     (-0.0000001, ["in_unit", "weight"], "0.000%"),
     ("weight", ["unit_label"], "% of NAV"),
     (math.nan, ["text"], ""),
+    (-0.01, ["bounds", 0.01], "[-0.01, 0.01]"),      # a limit's bounds (the not-fit-to-send box, #19)
+    (0.0, ["bounds", 0.0], "0"),
+    (None, ["bounds", 0.03], "at most 0.03"),        # an open side is None in the page's rows
+    (math.nan, ["bounds", 0.03], "at most 0.03"),    # and NaN in the report's frame
+    (0.98, ["bounds", math.inf], "at least 0.98"),
     ("text & more", [], "text & more"),
     (None, None, ""),
 ], ids=lambda x: repr(x))

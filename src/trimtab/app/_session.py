@@ -24,6 +24,7 @@ import yaml
 
 from trimtab.app._limits import Limit, apply, changed, check_changes, saved_changes, scenario_limits, update_arguments
 from trimtab._paths import file_mode
+from trimtab.construct._orders import NOT_FIT_STATUS
 from trimtab.errors import InfeasibleError, InputError, SolverError
 
 #: A saved scenario's name: letters, digits, ``-`` and ``_`` (it becomes the file name).
@@ -51,8 +52,10 @@ class Variant:
 
     @property
     def status(self) -> str:
+        """``solved``; ``orders not fit to send`` when the optimizer solved but the book rounded to
+        whole lots breaches a limit beyond its rounding tolerance; ``infeasible``; ``solver failure``."""
         if self.error is None:
-            return "solved"
+            return NOT_FIT_STATUS if getattr(self.result, "status", None) == NOT_FIT_STATUS else "solved"
         return "infeasible" if isinstance(self.error, InfeasibleError) else "solver failure"
 
     @property

@@ -16,19 +16,26 @@ import pandas as pd
 
 from trimtab.app._session import Variant
 from trimtab.report._filters import number, piece
-from trimtab.report._html_desk import cash_card
+from trimtab.report._desk import breached_rows
+from trimtab.report._html_desk import cash_card, verdict_section
 from trimtab.report._templates import (
     binding_rows, exposure_rows, render_cards, render_trades, trade_rows, warning_rows,
 )
 
 #: Trades and binding limits listed on the page.
 TOP_TRADES = 15
+#: What the page says under the red box of orders not fit to send.
+PAGE_NOTE = ("The portfolio below is the book these orders produce. Loosen a breached limit, or return to a "
+             "variant in the trail; trimtab rebalance on this variant writes its orders as "
+             "trades_not_fit_to_send.csv and exits with 6.")
 #: Trades no larger than this (a fraction of NAV) are solver noise, not trades.
 TRADE_TOLERANCE = 1e-8
 
 
 def page_view(variant: Variant) -> dict[str, Any]:
-    """The page's payload for one variant: status, figures, HTML sections and timing."""
+    """The page's payload for one variant: status, figures, HTML sections, timing, and the limits its
+    rounded orders breach (``breached``: name, kind, value, lower, upper, tolerance, excess; empty
+    unless the status is ``orders not fit to send``)."""
     from trimtab.report import gather
     from trimtab.report._relaxation import RELAXATION_NUMBERS, relaxation_rows, relaxation_sentence, unsolved
     from trimtab.report._templates import render
@@ -47,10 +54,13 @@ def page_view(variant: Variant) -> dict[str, Any]:
             )
         }
         figures: dict[str, Any] = {}
+        breached: list[dict[str, Any]] = []
     else:
         content = gather(variant.result, top=TOP_TRADES)
         figures = key_figures(variant.result, content)
+        breached = breached_rows(content.rounding)
         html = {
+            "verdict": verdict_section(content.rounding, note=PAGE_NOTE),
             "headline": render_cards(headline_cards(figures, content) + cash_card(content.rounding)),
             "exposures": render("partials/exposures.html.j2", rows=exposure_rows(content.exposures)),
             "trades": _trades(content),
@@ -60,7 +70,8 @@ def page_view(variant: Variant) -> dict[str, Any]:
         }
     seconds = dict(variant.seconds)
     seconds["render"] = time.perf_counter() - started
-    return {"status": variant.status, "changes": variant.changes, "figures": figures, "html": html, "seconds": seconds}
+    return {"status": variant.status, "changes": variant.changes, "figures": figures, "html": html, "seconds": seconds,
+            "breached": breached}
 
 
 # ---------------------------------------------------------------------- figures

@@ -360,8 +360,16 @@ def _cap_from_scenario(scenario: Mapping[str, Any], name: str) -> float | None:
 
 
 def _run(subject: Any) -> dict[str, Any]:
+    """Status, solver, iterations and times; with orders not fit to send, the one-line verdict as
+    ``message`` (each breached limit with its value on the rounded book and its excess)."""
     keys = ("status", "solver", "iterations", "solve_time", "build_time")
-    return {k: getattr(subject, k) for k in keys if getattr(subject, k, None) is not None}
+    run = {k: getattr(subject, k) for k in keys if getattr(subject, k, None) is not None}
+    trade_list = getattr(subject, "trade_list", None)
+    if trade_list is not None and not trade_list.ok:
+        from trimtab.construct._orders import not_fit_line
+
+        run["message"] = not_fit_line(trade_list)
+    return run
 
 
 def _trade_summary(trades: pd.DataFrame | None) -> pd.DataFrame | None:

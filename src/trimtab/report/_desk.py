@@ -22,6 +22,8 @@ if TYPE_CHECKING:
 
 #: Trades no larger than this (a fraction of NAV) are solver noise and not counted as trades.
 TRADE_TOLERANCE = 1e-8
+#: The first words of every not-fit-to-send verdict (terminal, report, explore page).
+NOT_FIT_HEADING = "ORDERS NOT FIT TO SEND: no book in whole lots holds every limit within its rounding tolerance."
 
 
 def frame_or_none(value: Any) -> pd.DataFrame | None:
@@ -141,15 +143,27 @@ def verdict_lines(content: ReportContent) -> list[str]:
     r = content.rounding
     if r is None or r.get("fit_to_send", True):
         return []
-    lines = ["ORDERS NOT FIT TO SEND: no book in whole lots holds every limit within its rounding tolerance. "
-             "The orders are written for inspection only (trades_not_fit_to_send.csv)."]
+    lines = [f"{NOT_FIT_HEADING} The orders are written for inspection only (trades_not_fit_to_send.csv)."]
     for row in r["breached"].itertuples():
-        lines.append(f"{row.name}: {row.value:.6g} on the rounded book against {_bounds_text(row.lower, row.upper)}, "
+        lines.append(f"{row.name}: {row.value:.6g} on the rounded book against {bounds_text(row.lower, row.upper)}, "
                      f"{row.excess:.3g} beyond the tolerance {row.tolerance:.1g}")
     return lines
 
 
-def _bounds_text(lower: float, upper: float) -> str:
+def breached_rows(rounding: Mapping[str, Any] | None) -> list[dict[str, Any]]:
+    """The limits the rounded book breaches beyond their tolerance, as raw records (name, kind, value,
+    lower, upper, tolerance, excess; an open side None, so the rows are plain JSON); empty when the
+    orders are fit to send or there is no trade list."""
+    if rounding is None or rounding.get("fit_to_send", True):
+        return []
+    return [{k: None if isinstance(v, float) and not np.isfinite(v) else v for k, v in row.items()}
+            for row in rounding["breached"].to_dict("records")]
+
+
+def bounds_text(lower: Any, upper: Any) -> str:
+    """A limit's bounds as text: "0.98" (equal ends), "[-0.01, 0.01]", "at most 0.03", "at least 0"."""
+    lower = -np.inf if lower is None else float(lower)
+    upper = np.inf if upper is None else float(upper)
     lo, hi = np.isfinite(lower), np.isfinite(upper)
     if lo and hi:
         return f"{lower:.6g}" if lower == upper else f"[{lower:.6g}, {upper:.6g}]"

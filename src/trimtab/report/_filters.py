@@ -22,6 +22,7 @@ order          a cell of the order list in its unit                 ``1234|order
 in_unit        a relaxation number in its limit's unit              ``0.0006|in_unit("weight")`` → 0.060%
 unit_label     how such a number reads                              ``"weight"|unit_label`` → % of NAV
 text           a value as text, "" when missing                     ``nan|text`` → ""
+bounds         a limit's bounds, lower first                        ``-0.01|bounds(0.01)`` → [-0.01, 0.01]
 formatted      the filter a spec names: ``[name, *arguments]``      ``x|formatted(["pct", 1])``
 =============  ===================================================  =========================
 
@@ -43,7 +44,7 @@ from typing import Any
 
 from trimtab._format import format_number, format_percent
 from trimtab.attribution import format_figure
-from trimtab.report._desk import amount_text, change_text
+from trimtab.report._desk import amount_text, bounds_text, change_text
 from trimtab.report._relaxation import format_in_unit, unit_label
 
 
@@ -126,6 +127,7 @@ FILTERS: dict[str, Callable[..., str]] = {
     "in_unit": format_in_unit,
     "unit_label": unit_label,
     "text": text,
+    "bounds": bounds_text,
 }
 
 

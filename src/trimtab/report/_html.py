@@ -172,7 +172,7 @@ def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int 
 def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *, level: int) -> str:
     h = f"h{level}"
     post, pre = content.post, content.pre
-    parts = [_run_line(content) + desk.context_section(context_lines(content)) + desk.verdict_section(content),
+    parts = [_run_line(content) + desk.context_section(context_lines(content)) + desk.verdict_section(content.rounding),
              desk.desk_cards(content.figures, content.rounding) + _key_figures(content)]
     if content.is_rebalance:
         parts.append(desk.warnings_section(content.warnings, h, f"{key}-warnings"))

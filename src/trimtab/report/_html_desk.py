@@ -14,10 +14,10 @@ import pandas as pd
 
 from trimtab.attribution import format_figure
 from trimtab.report._content import change_text, display_unit, settings_rows
-from trimtab.report._desk import cents, verdict_lines
+from trimtab.report._desk import NOT_FIT_HEADING, breached_rows, cents
 from trimtab.report._html_parts import _e
 from trimtab.report._filters import piece
-from trimtab.report._templates import render_cards, render_trades
+from trimtab.report._templates import render, render_cards, render_trades
 
 #: Desk figures shown as cards at the top of a rebalance report, in order.
 DESK_CARDS = ("expected_alpha", "information_ratio", "tracking_error", "turnover", "cost", "names_bought", "names_sold")
@@ -42,6 +42,10 @@ def warnings_section(warnings: Sequence[Mapping[str, Any]], heading: str = "h2",
     return f'<{heading} id="{anchor}">Warnings ({len(warnings)})</{heading}><ul class="warnings">{items}</ul>'
 
 
+#: What the report says of orders not fit to send.
+WRITTEN_NOTE = "The orders are written for inspection only (trades_not_fit_to_send.csv); trimtab rebalance exits with 6."
+
+
 def cash_card(rounding: Mapping[str, Any] | None) -> list[dict[str, str]]:
     """The headline card of the cash after trades and costs (none for a list in weights); its note
     says when the orders are not fit to send."""
@@ -52,13 +56,13 @@ def cash_card(rounding: Mapping[str, Any] | None) -> list[dict[str, str]]:
              "value": cents(rounding["cash_after_costs"]), "note": note}]
 
 
-def verdict_section(content: Any) -> str:
-    """A red box naming each limit the rounded book breaches, when the orders are not fit to send."""
-    lines = verdict_lines(content)
-    if not lines:
+def verdict_section(rounding: Mapping[str, Any] | None, note: str = WRITTEN_NOTE) -> str:
+    """A red box naming each limit the rounded book breaches (its value and excess), when the orders
+    are not fit to send ('' otherwise); the report and the explore page render the same partial."""
+    rows = breached_rows(rounding)
+    if not rows:
         return ""
-    items = "".join(f"<li>{_e(line)}</li>" for line in lines[1:])
-    return f'<div class="notfit"><p><strong>{_e(lines[0])}</strong></p><ul>{items}</ul></div>'
+    return render("partials/verdict.html.j2", heading=NOT_FIT_HEADING, rows=rows, note=note)
 
 
 def desk_cards(figures: pd.DataFrame | None, rounding: Mapping[str, Any] | None = None) -> str:

@@ -9,6 +9,11 @@
   let shown = null;              // the variant on screen
   let inFlight = false, pending = false, slowTimer = null, typingTimer = null;
 
+  // a variant with a portfolio: solved, or solved with rounded orders that breach a limit
+  const NOT_FIT = "orders not fit to send";
+  const hasBook = (v) => v.status === "solved" || v.status === NOT_FIT;
+  const countText = (n, word) => `${n} ${word}${n === 1 ? "" : "s"}`;
+  const breachedText = (v) => (v.breached || []).map((b) => b.name).join(", ");
   const $ = (id) => document.getElementById(id);
   const el = (tag, attrs, text) => {
     const node = document.createElement(tag);
@@ -138,12 +143,14 @@
   // ------------------------------------------------------------------ showing a variant
   function show(variant) {
     shown = variant;
-    const solved = variant.status === "solved";
-    $("status").textContent = `Variant ${variant.id}: ${variant.status}`;
-    $("status").className = solved ? "ok" : "bad";
+    const solved = hasBook(variant);
+    const notFit = variant.status === NOT_FIT;
+    $("status").textContent = `Variant ${variant.id}: ${variant.status}` + (notFit ? ` (${countText((variant.breached || []).length, "limit")} breached on the rounded book)` : "");
+    $("status").className = variant.status === "solved" ? "ok" : "bad";
     const s = variant.seconds || {};
     $("timing").textContent = `solve ${(1000 * (s.solve || 0)).toFixed(0)} ms · page ${(1000 * (s.render || 0)).toFixed(0)} ms` +
       (s.round_trip ? ` · round trip ${(1000 * s.round_trip).toFixed(0)} ms` : "");
+    $("verdict").innerHTML = solved ? variant.html.verdict || "" : "";
     $("headline").innerHTML = solved ? variant.html.headline : "";
     $("unsolved").innerHTML = solved ? "" : variant.html.relaxation;
     $("warnings").innerHTML = solved ? variant.html.warnings || "" : "";
@@ -179,7 +186,8 @@
       const f = v.figures || {};
       const row = el("tr", { class: (v === shown ? "shown " : "") + (v.pinned ? "pinned" : ""), "data-variant": String(v.id) });
       const cells = [String(v.id), changeText(v.changes), v.status, pct(f.tracking_error), pct(f.alpha), num(f.information_ratio), pct(f.turnover, 1), bp(f.cost)];
-      cells.forEach((text, i) => row.appendChild(el("td", { class: i >= 3 ? "num" : "" }, text)));
+      cells.forEach((text, i) => row.appendChild(el("td", { class: i >= 3 ? "num" : i === 2 && v.status !== "solved" ? "status-bad" : "" }, text)));
+      if (v.status === NOT_FIT) row.cells[2].title = `breached on the rounded book: ${breachedText(v)}`;
       const actions = el("td");
       const pin = el("button", { type: "button", class: "pin" }, v.pinned ? "unpin" : "pin");
       pin.addEventListener("click", () => { v.pinned = !v.pinned; keepTrail(); drawTrail(); drawChart(); drawPinned(); });
@@ -273,7 +281,7 @@
   };
 
   function drawChart() {
-    const points = trail.filter((v) => v.status === "solved" && v.figures && v.figures.tracking_error !== null && v.figures.alpha !== null);
+    const points = trail.filter((v) => hasBook(v) && v.figures && v.figures.tracking_error !== null && v.figures.alpha !== null);
     const W = 640, H = 260, L = 64, R = 16, T = 12, B = 40;
     const svg = svgEl("svg", { viewBox: `0 0 ${W} ${H}`, role: "img", "aria-label": "expected alpha against tracking error of every solved variant" });
     if (!points.length) { $("chart").replaceChildren(svg); return; }
@@ -294,9 +302,9 @@
     svg.appendChild(svgEl("text", { x: (L + W - R) / 2, y: H - 4, class: "axis-label", "text-anchor": "middle" }, "tracking error (a year)"));
     svg.appendChild(svgEl("text", { x: 12, y: (T + H - B) / 2, class: "axis-label", "text-anchor": "middle", transform: `rotate(-90 12 ${(T + H - B) / 2})` }, "expected alpha"));
     for (const v of points) {
-      const cls = "point" + (v.pinned ? " pinned" : "") + (v === shown ? " shown" : "");
+      const cls = "point" + (v.pinned ? " pinned" : "") + (v === shown ? " shown" : "") + (v.status === NOT_FIT ? " notfit" : "");
       const dot = svgEl("circle", { cx: X(v.figures.tracking_error), cy: Y(v.figures.alpha), r: v === shown ? 7 : 5, class: cls, "data-variant": v.id, tabindex: 0 });
-      dot.appendChild(svgEl("title", {}, `Variant ${v.id}: ${changeText(v.changes)}; TE ${pct(v.figures.tracking_error)}, alpha ${pct(v.figures.alpha)}`));
+      dot.appendChild(svgEl("title", {}, `Variant ${v.id}${v.status === NOT_FIT ? " (" + NOT_FIT + ")" : ""}: ${changeText(v.changes)}; TE ${pct(v.figures.tracking_error)}, alpha ${pct(v.figures.alpha)}`));
       dot.addEventListener("click", () => returnTo(v));
       svg.appendChild(dot);
       svg.appendChild(svgEl("text", { x: X(v.figures.tracking_error) + 8, y: Y(v.figures.alpha) - 6, class: "point-label" }, String(v.id)));
@@ -310,7 +318,7 @@
     const message = $("save-message");
     message.className = "";
     if (!shown) return;
-    if (shown.status !== "solved") {
+    if (!hasBook(shown)) {
       message.textContent = `Variant ${shown.id} is ${shown.status}: choose a solved variant to save (click "show" in the trail).`;
       message.className = "bad";
       return;
@@ -319,7 +327,11 @@
       method: "POST", headers: { "Content-Type": "application/json" }, body: JSON.stringify({ name, limits: shown.changes }),
     });
     const body = await response.json();
-    if (response.ok) { message.textContent = `Saved variant ${shown.id} as ${body.file}. Run it with: trimtab rebalance ${body.file}`; message.className = "ok"; }
+    if (response.ok && shown.status === NOT_FIT) {
+      // saved as asked, but said plainly: its orders breach a limit once rounded to whole lots
+      message.textContent = `Saved variant ${shown.id} as ${body.file}, but its ORDERS ARE NOT FIT TO SEND (breached on the rounded book: ${breachedText(shown)}): trimtab rebalance ${body.file} writes them as trades_not_fit_to_send.csv and exits with 6.`;
+      message.className = "bad";
+    } else if (response.ok) { message.textContent = `Saved variant ${shown.id} as ${body.file}. Run it with: trimtab rebalance ${body.file}`; message.className = "ok"; }
     else { message.textContent = body.detail || response.statusText; message.className = "bad"; }
   }
 
