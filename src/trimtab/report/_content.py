@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from trimtab.report._stress import stress_frame
+from trimtab.report._tolerance import within_tolerance
 from trimtab.attribution import (
     HEADLINE_FIGURES,
     RiskAttribution,
@@ -117,6 +118,8 @@ class ReportContent:
     warnings: list[dict[str, Any]] = field(default_factory=list)
     context: dict[str, Any] = field(default_factory=dict)
     checks: pd.DataFrame | None = None
+    #: limits the rounded book holds only within their rounding tolerance (trimtab.report._tolerance)
+    within_tolerance: pd.DataFrame | None = None
     #: every asset before and after (the optimizer's columns, and the orders as sent when rounded)
     target_book: pd.DataFrame | None = None
     #: the result whose alpha_alignment and alpha_factor the alpha section shows (trimtab.report._alpha)
@@ -185,6 +188,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         warnings=warning_records(subject),
         context=run_context(subject, post),
         checks=final_limits(subject),
+        within_tolerance=within_tolerance(subject),
         target_book=target_book(subject, trades),
         stress=stress_frame(subject),
         alpha_source=subject if getattr(subject, "alpha_alignment", None) is not None else None,

@@ -31,6 +31,7 @@ from trimtab.report._content import (
 )
 from trimtab.report._alpha import alpha_html
 from trimtab.report._stress import stress_html
+from trimtab.report._tolerance import tolerance_lines
 from trimtab.report._files import atomic_write_text
 from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
 from trimtab.report._filters import piece
@@ -177,7 +178,8 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
     if content.is_rebalance:
         parts.append(desk.warnings_section(content.warnings, h, f"{key}-warnings"))
     if content.figures is not None:
-        parts.append(f"<{h}>What the trades do</{h}>" + desk.figures_table(content.figures))
+        parts.append(f"<{h}>What the trades do</{h}>" + desk.figures_table(content.figures)
+                     + "".join(f'<p class="note">{_e(line)}</p>' for line in tolerance_lines(content.within_tolerance)))
     if content.orders is not None and len(content.orders):
         parts.append(f'<{h} id="{key}-orders">Trade list</{h}>'
                      + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades,
@@ -274,7 +276,7 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
     if content.constraints is not None:
         parts.append(f"<{h}>Constraints</{h}>" + _constraint_table(content.constraints))
     if content.checks is not None:
-        parts.append(f'<{h} id="{key}-verification">Verification</{h}>' + desk.limits_section(content.checks))
+        parts.append(f'<{h} id="{key}-verification">Verification</{h}>' + desk.limits_section(content.checks, within=content.within_tolerance))
     if content.objective is not None:
         parts.append(
             f"<{h}>Objective</{h}>" + _table(content.objective.to_frame("value"), {"value": "ratio"}, "Term")

@@ -18,6 +18,7 @@ from trimtab.report._desk import NOT_FIT_HEADING, breached_rows, cents
 from trimtab.report._html_parts import _e
 from trimtab.report._filters import piece
 from trimtab.report._templates import render, render_cards, render_trades
+from trimtab.report._tolerance import status_text
 
 #: Desk figures shown as cards at the top of a rebalance report, in order.
 DESK_CARDS = ("expected_alpha", "information_ratio", "tracking_error", "turnover", "cost", "names_bought", "names_sold")
@@ -159,8 +160,11 @@ def orders_section(orders: pd.DataFrame | None, in_shares: bool, rounding_lines:
     return f'<div class="wide">{table}</div>{notes}'
 
 
-def limits_section(checks: pd.DataFrame | None, units: Mapping[str, str] | None = None) -> str:
-    """Every limit on the final book: value, lower and upper limit, slack to the nearer one, and whether it holds."""
+def limits_section(checks: pd.DataFrame | None, units: Mapping[str, str] | None = None,
+                   within: pd.DataFrame | None = None) -> str:
+    """Every limit on the final book: value, lower and upper limit, slack to the nearer one, and whether
+    it holds; a limit held only within its rounding tolerance (``within``, from
+    :func:`trimtab.report._tolerance.within_tolerance`) says so."""
     if checks is None or checks.empty:
         return ""
     rows = []
@@ -170,6 +174,8 @@ def limits_section(checks: pd.DataFrame | None, units: Mapping[str, str] | None 
             for c in ("value", "lower", "upper", "slack")
         )
         ok = '<td><span class="status ok">holds</span></td>' if bool(row["ok"]) else '<td><span class="status bad">breached</span></td>'
+        if bool(row["ok"]) and within is not None and name in within.index:
+            ok = f'<td><span class="status ok">{_e(status_text(row["kind"], float(within.loc[name, "tolerance"])))}</span></td>'
         rows.append(f"<tr><td>{_e(name).replace('[', '<wbr>[')}</td><td>{_e(row['kind'])}</td>{cells}{ok}</tr>")
     n_ok = int(checks["ok"].astype(bool).sum())
     return (

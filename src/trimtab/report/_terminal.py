@@ -25,6 +25,7 @@ from trimtab.report._content import (
     rounding_lines,
 )
 from trimtab.report._desk import cash_line, verdict_lines
+from trimtab.report._tolerance import tolerance_lines
 from trimtab.report._relaxation import Unsolved, conflict_sentence, display_relaxation, relaxation_sentence, split_subjects, unsolved
 
 
@@ -91,6 +92,8 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
         )
     if content.figures is not None:
         out.print(_figures_table(content.figures, "What the trades do"))
+    for line in tolerance_lines(content.within_tolerance):
+        out.print(line, markup=False, highlight=False)
     out.print(_headline_table(content, "Risk before and after"))
     _print_body(out, content, top)
     print_stress(content, out)
