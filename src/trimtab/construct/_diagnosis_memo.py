@@ -14,6 +14,9 @@ exactly (none changes which conflict set or which relaxation is found):
   move exactly one limit g, its weights are also optimal for the elastic problem in which g alone
   may move (that problem's feasible points are among M's, its objective is M's there, up to the
   price of g's elements, which is one number for all of them), so the relaxation of g reuses them.
+  Only for a limit of one number (a risk cap, one row, one band): its move at the optimum is unique,
+  while per-asset caps can share a move among their assets in many optimal ways, and another
+  optimum would print another relaxation table than a solve of g alone.
 
 The memory lives for one diagnosis (:func:`remembering`); outside one, nothing is remembered.
 """

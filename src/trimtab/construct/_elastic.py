@@ -187,10 +187,17 @@ def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str
         moved = [g for g in movable if _moves(problem, g, weights)]
         if not moved:
             return None
-        if len(moved) == 1 and memo is not None:
+        if len(moved) == 1 and memo is not None and _one_element(moved[0]):
             memo.single[moved[0].path] = weights  # also the optimum with that group alone movable
         enforced.extend(moved)
     return None
+
+
+def _one_element(group: LimitGroup) -> bool:
+    """The group bounds one number (a cap, one row, one band): its elastic optimum's move is unique.
+    A group of many elements (per-asset caps) has many optimal ways to share a move between them."""
+    rows = group.restricted()
+    return not rows.box and int(np.count_nonzero(np.isfinite(rows.lower) | np.isfinite(rows.upper))) == 1
 
 
 def relaxation(problem: RebalanceProblem, extra: Sequence[Rows], conflict: Conflict) -> tuple[pd.DataFrame, list[dict[str, Any]]]:
