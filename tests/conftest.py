@@ -25,3 +25,12 @@ def random_model(n_assets: int = 40, n_factors: int = 5, seed: int = 0, periods_
 @pytest.fixture
 def small_model() -> FactorModel:
     return random_model()
+
+
+def french_monthly() -> tuple[pd.DataFrame, pd.DataFrame]:
+    """linearmodels' monthly French data: the 30 portfolios' excess returns and MktRF, SMB, HML, Mom."""
+    from linearmodels.datasets import french
+
+    data = french.load().set_index("dates")
+    portfolios = data.columns[5:]
+    return data[portfolios].sub(data["RF"], axis=0), data[["MktRF", "SMB", "HML", "Mom"]]

@@ -23,7 +23,7 @@ SRC = Path(__file__).resolve().parents[1] / "src" / "trimtab"
 LAYERS: tuple[frozenset[str], ...] = (
     frozenset({"errors", "_version", "_typing", "_validation", "_format", "_paths", "_output", "demo", "units"}),
     frozenset({"model"}),
-    frozenset({"attribution", "stresstest"}),
+    frozenset({"attribution", "stresstest", "hedge"}),
     frozenset({"construct"}),
     frozenset({"report"}),
     frozenset({"scenario"}),

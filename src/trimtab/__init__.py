@@ -32,6 +32,8 @@ _LAZY = {
     "fit_statistical": "trimtab.model",
     "check_residuals": "trimtab.model",
     "bias_statistic": "trimtab.model",
+    "alpha_alignment": "trimtab.model",
+    "AlphaAlignment": "trimtab.model",
     "attribute": "trimtab.attribution",
     "RiskAttribution": "trimtab.attribution",
     "compare": "trimtab.attribution",
@@ -53,6 +55,8 @@ _LAZY = {
     "attribute_returns": "trimtab.attribution",
     "attribute_backtest_returns": "trimtab.attribution",
     "ReturnAttribution": "trimtab.attribution",
+    "overlay": "trimtab.hedge",
+    "OverlayResult": "trimtab.hedge",
 }
 
 __all__ = [

@@ -13,10 +13,11 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 from linearmodels.asset_pricing import TradedFactorModel
-from linearmodels.datasets import french
 
 from trimtab import DataWarning, FactorModel, InputError, fit_time_series
 from trimtab.model import CovarianceSettings
+
+from ..conftest import french_monthly
 
 FACTORS = ["MktRF", "SMB", "HML", "Mom"]
 REL = 1e-8
@@ -24,10 +25,7 @@ REL = 1e-8
 
 @pytest.fixture(scope="module")
 def french_data() -> tuple[pd.DataFrame, pd.DataFrame]:
-    data = french.load().set_index("dates")
-    portfolios = data.columns[5:]
-    excess = data[portfolios].sub(data["RF"], axis=0)
-    return excess, data[FACTORS]
+    return french_monthly()
 
 
 def ew_weights(n: int, half_life: float) -> np.ndarray:

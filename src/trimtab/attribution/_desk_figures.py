@@ -31,4 +31,5 @@ WARNING_KINDS: dict[str, str] = {
     "factor_concentration": "one factor takes more than the set share of the (active) variance",
     "asset_concentration": "one position takes more than the set share of the (active) variance",
     "pinned_at_cap": "positions sit at an upper weight limit",
+    "unspanned_alpha": "most of the alpha is outside the risk model's factor span: the model prices it as diversifiable specific risk (scenario key alpha_factor prices it)",
 }

@@ -27,6 +27,7 @@ def _build() -> Any:
     from trimtab.cli import demo  # noqa: F401
     from trimtab.cli import explore  # noqa: F401
     from trimtab.cli import model  # noqa: F401
+    from trimtab.cli import overlay  # noqa: F401
     from trimtab.cli import rebalance  # noqa: F401
     from trimtab.cli import runs  # noqa: F401
     from trimtab.cli import stress  # noqa: F401

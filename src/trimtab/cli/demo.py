@@ -22,23 +22,27 @@ def demo(
 ) -> None:
     """Simulate the invented demo fund and run the whole job on it.
 
-    Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them and
-    writes the HTML reports; prints the headline table and where the files went.
+    Fits the risk model, reports today's risk, rebalances the four demo scenarios, compares them,
+    backtests base against alpha_factor on an alpha history with skill and writes the HTML reports.
     """
     from rich.table import Table
 
     from trimtab._format import format_percent as _pct
+    from trimtab.runs._demo_backtest import run_demo_backtest
     from trimtab.scenario._demo_run import headline_rows, run_demo
 
     ui = _ui(ctx)
     t0 = time.perf_counter()
-    with ui.progress(total=10) as step:
+    with ui.progress(total=11) as step:
         done = run_demo(out, seed=seed, n_assets=n_assets, step=step)
+        step("backtest: the alpha history, without and with the alpha factor")
+        history = run_demo_backtest(out)
     fund, pre_trade, runs, n_holdings = done.fund, done.pre_trade, done.runs, done.n_holdings
     elapsed = time.perf_counter() - t0
     _print_warnings(ui, {r.name: r.result for r in runs if r.result is not None})
     rows = headline_rows(done)
-    ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows})
+    ui.emit({"output": str(out), "seed": seed, "n_assets": n_assets, "seconds": elapsed, "pre_trade": pre_trade.headline(), "scenarios": rows,
+             "backtest_bias": history.bias.to_dict(orient="index")})
     if not ui.chatty:
         return
     ui.say(
@@ -60,13 +64,17 @@ def demo(
             why = "is impossible on purpose (a 0.5% tracking-error cap with 2% turnover)" if run.name == "infeasible" else "is infeasible"
             ui.say(f"\n[bold]{run.name}[/bold] {why}:")
             _print_relaxation(ui, run.name, run.error)
+    ui.say("\n" + history.summary())
     files = [
-        ("data/", "the invented fund: returns, factor returns, holdings, benchmark, alpha, attributes"),
+        ("data/", "the invented fund: returns, factor returns, holdings, benchmark, alpha, alpha history, attributes"),
+        ("", "and an index future and two style baskets for `trimtab overlay` (instruments.csv, contracts.csv)"),
+        ("", "and 200 invented accounts for `trimtab accounts` (accounts.csv, account_holdings.csv)"),
         ("model/", "the fitted risk model"),
         ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
         ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),
         ("results/compare/report.html", "the four scenarios side by side, linking to each one's own report"),
         ("results/compare/*/", "one folder each (infeasible/report.html shows its relaxation table)"),
+        ("results/backtest/report.html", "base and alpha_factor backtested side by side on the alpha history"),
         ("*.yaml", "the scenarios and fit configs, ready to edit and rerun"),
     ]
     width = max(len(name) for name, _ in files) + 2

@@ -60,12 +60,13 @@ def risk(
     nav: Annotated[float | None, typer.Option("--nav", help="Net asset value (currency); default Σ shares·price + cash.", min=0.0)] = None,
     top: Annotated[int, typer.Option("--top", help="How many top contributors to list.", min=1)] = 10,
     out: Annotated[Path | None, typer.Option("--out", "-o", help="Also write the tables, JSON and HTML report to this folder.")] = None,
+    alpha: Annotated[Path | None, typer.Option("--alpha", help="Alpha file: asset, alpha. Adds how much of it the model's factors span.")] = None,
 ) -> None:
     """Attribute a book's risk to factors, factor groups and positions.
 
-    With --benchmark the risk attributed is active risk (tracking error).
+    With --benchmark the risk attributed is active risk (tracking error); --alpha adds how much of the alpha the factors span.
     """
-    from trimtab import FactorModel
+    from trimtab import FactorModel, alpha_alignment
     from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
     from trimtab.scenario._run import write_attribution
     from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
@@ -83,12 +84,14 @@ def risk(
             raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
         book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav}), attrs)
         bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
+        scores = load_series(SeriesFile.model_validate({"path": str(alpha)}), "alpha", "alpha") if alpha is not None else None
         aligned = align_inputs(
-            fm.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
-            files={"holdings": str(holdings), "benchmark": str(benchmark)},
+            fm.assets, holdings=book.weights, benchmark=bench, alpha=scores, attributes=attrs,
+            files={"holdings": str(holdings), "benchmark": str(benchmark), "alpha": str(alpha)},
         )
         step("attributing risk")
         attribution = fm.attribute(aligned.holdings, aligned.benchmark, attributes=aligned.attributes)
+        fit_of_alpha = alpha_alignment(fm, aligned.alpha) if aligned.alpha is not None else None
         if out is not None:
             step("writing the report")
             from trimtab.report._desk import holdings_line
@@ -103,6 +106,7 @@ def risk(
                 "by_factor": attribution.by_factor,
                 "by_factor_group": attribution.by_factor_group,
                 "top_assets": attribution.top_assets(top),
+                **({"alpha_alignment": fit_of_alpha.as_json()} if fit_of_alpha is not None else {}),
             }
         )
         return
@@ -115,6 +119,8 @@ def risk(
         from trimtab.report._desk import holdings_line
 
         ui.say(holdings_line(kind, book.nav, book.cash, nav is not None))
+        if fit_of_alpha is not None:
+            ui.out.print(fit_of_alpha.summary().as_text(), markup=False)
         if out is not None:
             ui.say(f"Wrote the tables, result.json and report.html to {out}")
 

@@ -218,25 +218,11 @@ def frontier_command(
 # ---------------------------------------------------------------------------------------------
 # backtest
 # ---------------------------------------------------------------------------------------------
-def fit_settings_mapping(settings: Any) -> dict[str, Any]:
-    """Estimator keywords from validated fit settings, for a per-window re-fit."""
-    if settings.method not in ("time_series", "statistical"):
-        raise InputError(f"fit method {settings.method}: the backtest re-fits time_series or statistical models only")
-    out: dict[str, Any] = {"method": settings.method, "periods_per_year": settings.periods_per_year}
-    for name in ("half_life", "min_periods", "factor_groups"):
-        if getattr(settings, name) is not None:
-            out[name] = getattr(settings, name)
-    if settings.method == "statistical" and settings.n_factors is not None:
-        out["n_factors"] = settings.n_factors
-    out.update(settings.options)
-    return out
-
-
 def backtest_command(
     ctx: typer.Context,
     scenarios: Annotated[list[Path], typer.Argument(help="One or more scenario YAML files, run side by side.", metavar="SCENARIO.yaml", show_default=False)],
     fit: Annotated[Path | None, typer.Option("--fit", help="Fit config (returns, factor returns, estimator); default: the first scenario's model.fit.", show_default=False)] = None,
-    alpha_history: Annotated[Path | None, typer.Option("--alpha-history", help="Dates × assets alpha file (annualised); default: each scenario's alpha at every date.", show_default=False)] = None,
+    alpha_history: Annotated[Path | None, typer.Option("--alpha-history", help="Alpha by date (annualised): long (date, asset, alpha) or wide (date, one column per asset); default: the scenario's one alpha at every date.", show_default=False)] = None,
     window: Annotated[int, typer.Option("--window", help="Rows in the trailing estimation window.", min=2)] = 250,
     every: Annotated[int, typer.Option("--every", help="Rebalance every n-th row.", min=1)] = 21,
     start: Annotated[str | None, typer.Option("--start", help="First rebalance on or after this date.", metavar="YYYY-MM-DD", show_default=False)] = None,
@@ -258,7 +244,7 @@ def backtest_command(
     """
     import pandas as pd
 
-    from trimtab.runs._backtest import backtest
+    from trimtab.runs._backtest import backtest, fit_settings_mapping
     from trimtab.report._pages import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
     from trimtab.scenario._run import variant_limits
@@ -283,7 +269,8 @@ def backtest_command(
     inputs = [first] + [load_inputs(s, model=first.model) for s in loaded[1:]]
     if alpha_history is not None:
         # model_validate: type checkers do not see the file spec's positional Field defaults
-        alpha = load_returns(ReturnsFile.model_validate({"path": str(alpha_history)}), what="alpha history")
+        # wide (a date column, one column per asset) or long (date, asset, alpha)
+        alpha = load_returns(ReturnsFile.model_validate({"path": str(alpha_history), "value_column": "alpha"}), what="alpha history")
     else:
         if first.alpha is None:
             raise InputError(f"{scenarios[0]}: data.alpha: give an alpha file or --alpha-history")

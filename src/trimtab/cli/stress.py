@@ -13,37 +13,12 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from trimtab.cli._app import _ui, add_commands, family
+from trimtab.cli._app import add_commands, family
+from trimtab.cli._book import AttributesOpt, BenchmarkOpt, CashOpt, HoldingsOpt, ModelOpt, NavOpt, OutOpt, read_book, show
 from trimtab.errors import InputError
 
 if TYPE_CHECKING:  # pandas is imported inside the commands: registering them keeps `trimtab --help` light
     import pandas as pd
-
-ModelOpt = Annotated[Path, typer.Option("--model", "-m", help="A model folder written by `trimtab fit`.", show_default=False)]
-HoldingsOpt = Annotated[Path, typer.Option("--holdings", help="Holdings file: asset, weight (or asset, shares with prices).", show_default=False)]
-BenchmarkOpt = Annotated[Path | None, typer.Option("--benchmark", help="Benchmark file: asset, weight. Adds the benchmark and active figures.")]
-AttributesOpt = Annotated[Path | None, typer.Option("--attributes", help="Attributes file (prices for shares; group columns).")]
-CashOpt = Annotated[float, typer.Option("--cash", help="Cash besides the positions (currency), for holdings given as shares.", min=0.0)]
-NavOpt = Annotated[float | None, typer.Option("--nav", help="Net asset value (currency); default Σ shares·price + cash.", min=0.0)]
-OutOpt = Annotated[Path | None, typer.Option("--out", "-o", help="Write the tables, result.json and report.html to this folder.", show_default=False)]
-
-
-# ---------------------------------------------------------------------- shared reading
-def _book(model: Any, holdings: Path, benchmark: Path | None, attributes: Path | None, cash: float, nav: float | None) -> SimpleNamespace:
-    """Holdings (weights or shares), benchmark and attributes read and aligned to the model's assets."""
-    from trimtab.scenario import align_inputs, load_attributes, load_holdings, load_series, read_table
-    from trimtab.scenario._schema import AttributesFile, HoldingsFile, SeriesFile
-
-    if nav is not None and not nav > 0:
-        raise InputError(f"--nav: expected a positive net asset value, got {nav:g}")
-    attrs = load_attributes(AttributesFile.model_validate({"path": str(attributes)})) if attributes is not None else None
-    columns = set(read_table(holdings, what="holdings").columns)
-    kind = "weights" if "weight" in columns or "shares" not in columns else "shares"
-    book = load_holdings(HoldingsFile.model_validate({"path": str(holdings), "kind": kind, "cash": cash, "nav": nav}), attrs)
-    bench = load_series(SeriesFile.model_validate({"path": str(benchmark)}), "benchmark", "weight") if benchmark is not None else None
-    aligned = align_inputs(model.assets, holdings=book.weights, benchmark=bench, attributes=attrs,
-                           files={"holdings": str(holdings), "benchmark": str(benchmark)})
-    return SimpleNamespace(holdings=aligned.holdings, benchmark=aligned.benchmark, attributes=aligned.attributes)
 
 
 def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | None:
@@ -54,19 +29,6 @@ def _groups(attributes: pd.DataFrame | None, column: str | None) -> pd.Series | 
     if column not in attributes.columns:
         raise InputError(f"--group-by {column}: the attributes file has no column {column!r}; it has: {', '.join(map(str, attributes.columns))}")
     return attributes[column]
-
-
-def _show(ctx: typer.Context, text: str, document: dict[str, Any], out: Path | None, files: list[str] | None,
-          realised: bool = False) -> None:
-    ui = _ui(ctx)
-    ui.emit({**document, "output": str(out) if out is not None else None, "files": files})
-    if ui.chatty:
-        ui.out.print(text, markup=False, highlight=False)
-        if out is not None and files:
-            ui.say(f"Wrote {len(files)} files to {out}")
-        from trimtab.report import CAUTION, REALISED_CAUTION
-
-        ui.out.print(f"[italic]{REALISED_CAUTION if realised else CAUTION}[/italic]")
 
 
 # ---------------------------------------------------------------------- stress
@@ -98,7 +60,7 @@ def stress_command(
 
     fm = FactorModel.load(model)
     entries = load_shocks(shocks)
-    book = _book(fm, holdings, benchmark, attributes, cash, nav)
+    book = read_book(fm, holdings, benchmark, attributes, cash, nav)
     result = stress(fm, book.holdings, factor_moves(entries), benchmark=book.benchmark, conditional=not unconditional,
                     horizon=horizon, specific=specific_moves(entries), groups=_groups(book.attributes, group_by))
     files = None
@@ -106,7 +68,7 @@ def stress_command(
         settings = {"model": str(model), "holdings": str(holdings), "shocks": str(shocks), "conditional": result.conditional,
                     "horizon": result.horizon}
         files = write_stress(result, out, [model, holdings, shocks, *(p for p in (benchmark, attributes) if p)], settings=settings)
-    _show(ctx, result.summary().as_text(), {"shocks": result.table(), "factor_moves": result.factor_moves}, out, files)
+    show(ctx, result.summary().as_text(), {"shocks": result.table(), "factor_moves": result.factor_moves}, out, files)
 
 
 # ---------------------------------------------------------------------- replay
@@ -149,7 +111,7 @@ def replay_command(
     from trimtab.stresstest import factor_history, replay
 
     fm = FactorModel.load(model)
-    book = _book(fm, holdings, benchmark, attributes, cash, nav)
+    book = read_book(fm, holdings, benchmark, attributes, cash, nav)
     chosen = _windows(window)
     if length is None and not chosen:
         length = max(1, round(fm.periods_per_year / 12))
@@ -165,7 +127,7 @@ def replay_command(
         settings = {"model": str(model), "holdings": str(holdings), "length": length, "worst": worst, "windows": chosen}
         files = write_replay(result, out, [model, holdings, *(p for p in (benchmark, attributes) if p)],
                              cumulative=cumulative, settings=settings)
-    _show(ctx, result.summary().as_text(), {"windows": result.windows, "factor_moves": result.factor_moves}, out, files)
+    show(ctx, result.summary().as_text(), {"windows": result.windows, "factor_moves": result.factor_moves}, out, files)
 
 
 # ---------------------------------------------------------------------- attribute-returns
@@ -267,7 +229,7 @@ def attribute_returns_command(
         all_returns = _dated_file(returns, "returns", unit)
         asset_returns = _span(all_returns, start, end)
         if holdings is not None:
-            book = _book(fm, holdings, benchmark, attributes, 0.0, None)
+            book = read_book(fm, holdings, benchmark, attributes, 0.0, None)
             held: Any = book.holdings
             bench = book.benchmark
             attrs = book.attributes
@@ -297,7 +259,7 @@ def attribute_returns_command(
     document: dict[str, Any] = {"linked": result.factor_table(), "total": float(result.linked["total"])}
     if backtest is not None:
         document["compounded_active_returns"] = chained
-    _show(ctx, text, document, out, files, realised=True)
+    show(ctx, text, document, out, files, realised=True)
 
 
 def _benchmark_and_attributes(model: Any, benchmark: Path | None, attributes: Path | None) -> tuple[pd.Series | None, pd.DataFrame | None]:

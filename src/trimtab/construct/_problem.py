@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _elastic, _fast, _heuristics, _passive, _solve
+from trimtab.construct import _alpha_factor, _elastic, _fast, _heuristics, _passive, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._data import ProblemData, prepare
@@ -112,6 +112,7 @@ class RebalanceProblem:
             )
             data = fresh.with_changes(attributes=data.attributes,
                                       sold_outside=data.sold_outside if holdings is None else fresh.sold_outside)
+            data = _alpha_factor.augment(data, spec.mapping)
         # a warm start pays for limit, λ, holdings and benchmark changes (measured at 1,000 × 20 to
         # 5,000 × 50: 12–22 iterations against 18–28 cold, even for an unrelated new book); with a new
         # alpha the old point costs iterations (28–33 against 19–23 cold), so that starts cold
@@ -301,6 +302,7 @@ def build_problem(
                    unknown_assets=unknown_assets, long_book=_long_book(spec))
     if spec.objective["kind"] in ("utility", "alpha") and alpha is None:
         raise InputError(f"rebalance: objective {spec.objective['kind']} needs alpha (pass alpha=...)")
+    data = _alpha_factor.augment(data, spec.mapping)
     check_listed_shocks(model, spec.mapping, source)
     problem = RebalanceProblem(spec, data, solvers, unknown_assets)
     problem.changed = _changed_keys(changed_limits)

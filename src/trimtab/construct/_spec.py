@@ -164,7 +164,7 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     'active_risk'
     """
     top = Path(source)
-    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay"], ["objective"])
+    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay", "alpha_factor", "orders"], ["objective"])
     problems: list[Problem] = []
     objective = _collect(problems, _objective, top / "objective", body["objective"])
     raw = body.get("constraints") or {}
@@ -188,6 +188,14 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
         normalised["stress"] = _stress_list(top / "stress", body["stress"], constraints.get("stress_loss"))
     if body.get("replay") is not None:
         normalised["replay"] = _replay(top / "replay", body["replay"])
+    if body.get("alpha_factor") is not None:
+        if objective.get("kind") not in ("utility", "alpha"):
+            raise (top / "alpha_factor").fail("prices the alpha the factors miss; the objective must maximize alpha or utility")
+        normalised["alpha_factor"] = _alpha_factor(top / "alpha_factor", body["alpha_factor"])
+    if body.get("orders") is not None:
+        from trimtab.construct._spec_orders import validate_orders
+
+        normalised["orders"] = validate_orders(top / "orders", body["orders"])
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
 
 
@@ -451,6 +459,14 @@ def _replay(path: Path, value: Any) -> dict[str, int]:
     body = f.mapping(path, value, ["length", "count"], ["length"])
     return {"length": f.integer(path / "length", body["length"], minimum=1),
             "count": f.integer(path / "count", body.get("count", 3), minimum=1)}
+
+
+def _alpha_factor(path: Path, value: Any) -> dict[str, float]:
+    """``{volatility: σ}``: risk the part of alpha the factors do not span as one more factor of
+    annualised volatility σ (Ceria, Saxena and Stubbs 2012; :func:`trimtab.model.with_alpha_factor`)."""
+    body = f.mapping(path, value, ["volatility"], ["volatility"])
+    sigma = f.number(path / "volatility", body["volatility"], minimum=0.0, strict=True, plausible=PLAUSIBLE_WEIGHT)
+    return {"volatility": float(sigma)}  # type: ignore[arg-type]
 
 
 def _liquidity(path: Path, value: Any) -> dict[str, Any]:

@@ -16,9 +16,13 @@ from trimtab.model._covariance import (
     newey_west,
 )
 from trimtab.model._specific_variance import specific_variance
+from trimtab.model._alpha import AlphaAlignment, alpha_alignment, with_alpha_factor
 from trimtab.model._diagnostics import BiasResult, ResidualCheck, bias_statistic, check_residuals
 
 __all__ = [
+    "AlphaAlignment",
+    "alpha_alignment",
+    "with_alpha_factor",
     "BiasResult",
     "CovarianceSettings",
     "ResidualCheck",

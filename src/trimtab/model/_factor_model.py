@@ -299,6 +299,16 @@ class FactorModel:
             provenance={**self.provenance, "subset_of_n_assets": self.n_assets},
         )
 
+    def with_alpha_factor(self, alpha: Any, volatility: float, weights: Any = None) -> FactorModel:
+        """This model with one more factor, ``alpha_factor``, along the part of ``alpha`` its factors do
+        not span: Σ' = Σ + (σ²/P)·y·yᵀ with y the orthogonal part scaled to a weighted RMS of 1.
+
+        See :func:`trimtab.model.with_alpha_factor` (Ceria, Saxena and Stubbs 2012).
+        """
+        from trimtab.model._alpha import with_alpha_factor
+
+        return with_alpha_factor(self, alpha, volatility, weights)
+
     def specific_share(self) -> pd.Series:
         """Per asset, the share of its variance that is specific: dᵢ / Σᵢᵢ (the risk diversification sheds)."""
         U = self._scaled_exposures

@@ -119,6 +119,8 @@ class ReportContent:
     checks: pd.DataFrame | None = None
     #: every asset before and after (the optimizer's columns, and the orders as sent when rounded)
     target_book: pd.DataFrame | None = None
+    #: the result whose alpha_alignment and alpha_factor the alpha section shows (trimtab.report._alpha)
+    alpha_source: Any = None
 
     @property
     def is_rebalance(self) -> bool:
@@ -185,6 +187,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         checks=final_limits(subject),
         target_book=target_book(subject, trades),
         stress=stress_frame(subject),
+        alpha_source=subject if getattr(subject, "alpha_alignment", None) is not None else None,
     )
 
 

@@ -49,8 +49,8 @@ def _plain_dates(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def bars_chart(frame: pd.DataFrame, *, xlabel: str, name: str) -> str:
-    """Horizontal bars per row, one colour per column (fractions shown as percentages)."""
+def bars_chart(frame: pd.DataFrame, *, xlabel: str, name: str, percent: bool = True) -> str:
+    """Horizontal bars per row, one colour per column (fractions shown as percentages unless not ``percent``)."""
     rows = len(frame)
     fig, ax = _figure(0.42 * rows * max(1, len(frame.columns)) ** 0.5 + 1.2)
     y = np.arange(rows)[::-1]
@@ -61,7 +61,8 @@ def bars_chart(frame: pd.DataFrame, *, xlabel: str, name: str) -> str:
     ax.set_yticks(y, [str(v) for v in frame.index])
     ax.axvline(0.0, color="#1d2125", linewidth=0.8)
     ax.set_xlabel(xlabel)
-    _percent(ax, "x")
+    if percent:
+        _percent(ax, "x")
     ax.grid(axis="x", alpha=0.3)
     if len(frame.columns) > 1:
         ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.0), frameon=False, ncols=len(frame.columns))

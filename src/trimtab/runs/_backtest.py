@@ -24,7 +24,7 @@ from trimtab.runs._executors import Executor, InProcessExecutor, Outcome
 
 FIT_METHODS = ("time_series", "statistical")
 
-__all__ = ["AsOf", "BacktestResult", "FIT_METHODS", "POLICIES", "backtest", "fit_window"]
+__all__ = ["AsOf", "BacktestResult", "FIT_METHODS", "POLICIES", "backtest", "fit_settings_mapping", "fit_window"]
 
 
 def _dated(frame: Any, name: str) -> pd.DataFrame:
@@ -235,8 +235,31 @@ def backtest(
             "impact": impact if not isinstance(impact, pd.Series) else "by asset",
             "fit": fit if isinstance(fit, Mapping) or fit is None else getattr(fit, "__name__", "callable"),
             "periods_per_year": done[order[0]].periods_per_year,
+            "alpha_rows_used": _alpha_rows_used(alpha, dates),
+            "alpha_factor": {t.name: float(t.scenario["alpha_factor"]["volatility"]) for t in tasks
+                             if t.name in done and isinstance(t.scenario.get("alpha_factor"), Mapping)},
         },
     )
+
+
+def _alpha_rows_used(alpha: pd.DataFrame, dates: Sequence[Any]) -> int:
+    """How many distinct rows of the alpha history the rebalance dates read (1: one vector reused)."""
+    positions = {AsOf(alpha, date).n_rows for date in dates}
+    return len(positions - {0})
+
+
+def fit_settings_mapping(settings: Any) -> dict[str, Any]:
+    """Estimator keywords from validated fit settings (a fit config's ``FitSettings``), for a per-window re-fit."""
+    if settings.method not in ("time_series", "statistical"):
+        raise InputError(f"fit method {settings.method}: the backtest re-fits time_series or statistical models only")
+    out: dict[str, Any] = {"method": settings.method, "periods_per_year": settings.periods_per_year}
+    for name in ("half_life", "min_periods", "factor_groups"):
+        if getattr(settings, name) is not None:
+            out[name] = getattr(settings, name)
+    if settings.method == "statistical" and settings.n_factors is not None:
+        out["n_factors"] = settings.n_factors
+    out.update(settings.options)
+    return out
 
 
 def _rates(value: float | pd.Series, name: str, assets: pd.Index) -> pd.Series:

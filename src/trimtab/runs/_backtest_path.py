@@ -196,6 +196,17 @@ def _moves_text(table: Any) -> str:
     return "; ".join(parts) + more
 
 
+def risk_model(model: FactorModel, scenario: Mapping[str, Any], alpha: pd.Series, solved: Any = None) -> FactorModel:
+    """The model a scenario's risk is forecast on: with its ``alpha_factor`` of ``alpha``, if it has
+    one (``solved``: the model the optimizer used, when it returned a book: the same, already built)."""
+    options = scenario.get("alpha_factor")
+    if not isinstance(options, Mapping):
+        return model
+    if isinstance(solved, FactorModel) and "alpha_factor" in solved.factors:
+        return solved
+    return model.with_alpha_factor(alpha, float(options["volatility"]))
+
+
 def _decide(rebalance: Callable[..., Any], model: FactorModel, task: PathTask, kwargs: dict[str, Any]) -> tuple[Any, str, str, str]:
     """(result or None, status, reason, relaxed) for one date under the path's policy."""
     try:
@@ -250,6 +261,8 @@ def run_path(task: PathTask, inputs: PathInputs) -> PathResult:
         if inputs.nav is not None:
             kwargs["nav"] = inputs.nav
         result, status, reason, relaxed = _decide(rebalance, model, task, kwargs)
+        # the forecast is the one the optimizer worked to: with the scenario's alpha factor, if any
+        model = risk_model(model, task.scenario, alpha, getattr(result, "_model", None))
         target = start if result is None else result.weights.reindex(assets).fillna(0.0).astype(np.float64)
         notes = list(getattr(result, "provenance", {}).get("notes", [])) if result is not None else []
         passive = sum(str(n).startswith("passive breach") for n in notes)

@@ -44,7 +44,9 @@ class BacktestResult:
     failures : Mapping[str, str]
         Scenario → error, for scenario paths that failed as a whole (the others are kept).
     settings : Mapping
-        Window, rebalance dates, costs and fit settings used.
+        Window, rebalance dates, costs and fit settings used; ``alpha_rows_used`` (distinct rows of the
+        alpha history the dates read: 1 means one vector reused at every date) and ``alpha_factor``
+        (scenario → the alpha factor's volatility, for scenarios that price it).
     """
 
     history: pd.DataFrame
@@ -124,6 +126,10 @@ class BacktestResult:
         lines = [f"Walk-forward backtest: {len(self.scenarios)} scenario(s), {n_dates} rebalance dates, "
                  f"window {self.settings.get('window')} periods"]
         bias = self.bias
+        if self.settings.get("alpha_rows_used") == 1 and n_dates > 1:
+            lines.append("  note: one alpha vector is reused at every date (no alpha history): the value added says "
+                         "nothing about the alpha's skill; give an alpha by date (--alpha-history)")
+        priced = self.settings.get("alpha_factor") or {}
         for name, row in self.totals.iterrows():
             counts = (f"{int(row['solved'])} of {int(row['dates'])} dates solved as written, {int(row['relaxed'])} relaxed, "
                       f"{int(row['held'])} held, {int(row['failed'])} failed")
@@ -136,6 +142,8 @@ class BacktestResult:
                            f"{int(part['n_passive_breaches'].sum())} positions the market had carried beyond a per-asset limit "
                            "were traded back as far as the trading limits allow")
             lines.append(f"  {name}: {counts}")
+            if name in priced:
+                lines.append(f"    risk forecast on the model with the alpha factor (volatility {priced[name]:.2%} a year)")
             if row["dates"] and row["solved"] < EVIDENCE_SHARE * row["dates"]:
                 lines.append(f"    most dates did not solve as written: this backtest is not evidence about scenario {name}")
             lines.append(

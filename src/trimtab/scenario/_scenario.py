@@ -47,7 +47,7 @@ class Scenario:
         return self.spec.name
 
     def rebalance_mapping(self) -> dict[str, Any]:
-        """The ``objective`` and ``constraints`` sections (and ``stress``, ``replay``), as :func:`trimtab.rebalance`
+        """The ``objective`` and ``constraints`` sections (and ``stress``, ``replay``, ``alpha_factor``), as :func:`trimtab.rebalance`
         takes them, with shock files read."""
         from trimtab.scenario._shocks import resolve_shock_files
 
@@ -56,6 +56,10 @@ class Scenario:
             mapping["stress"] = self.spec.stress
         if self.spec.replay is not None:
             mapping["replay"] = self.spec.replay
+        if self.spec.alpha_factor is not None:
+            mapping["alpha_factor"] = self.spec.alpha_factor
+        if self.spec.orders is not None:
+            mapping["orders"] = self.spec.orders
         return resolve_shock_files(mapping)
 
     @property

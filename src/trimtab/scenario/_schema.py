@@ -183,6 +183,12 @@ class ScenarioSpec(_Strict):
     replay: dict[str, Any] | None = Field(
         None, description="{length: periods, count: k}: the k worst windows of the model's history, before and after the trade"
     )
+    alpha_factor: dict[str, Any] | None = Field(
+        None, description="{volatility: σ}: price the part of alpha the factors do not span as one more factor (annualised σ)"
+    )
+    orders: dict[str, Any] | None = Field(
+        None, description="min_cash, min_trade_weight, tolerance {weight, exposure, beta, risk}, repair (docs/scenarios.md)"
+    )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
     alerts: AlertsSection = Field(default_factory=AlertsSection)  # type: ignore[arg-type]
     backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]
