@@ -12,23 +12,9 @@ import pandas as pd
 import pytest
 
 import trimtab
-from trimtab import FactorModel, InputError, fit_time_series
+from trimtab import FactorModel, InputError
 
-from ..conftest import french_monthly
-from ..hedge.test_overlay import baskets
-
-
-@pytest.fixture(scope="module")
-def model() -> FactorModel:
-    return fit_time_series(*french_monthly())
-
-
-@pytest.fixture(scope="module")
-def book(model) -> tuple[pd.Series, pd.Series]:
-    rng = np.random.default_rng(23)
-    w = pd.Series(rng.dirichlet(np.full(model.n_assets, 0.5)), index=model.assets)
-    b = pd.Series(1.0 / model.n_assets, index=model.assets)
-    return w, b
+from ..hedge.test_overlay import baskets, book, french_data, model  # noqa: F401 (fixtures)
 
 
 def _dense(model: FactorModel) -> np.ndarray:

@@ -129,3 +129,24 @@ def parse_targets(values: Sequence[str] | None, factors: pd.Index) -> dict[str, 
             raise InputError(f"--target: the factor {name!r} is given twice")
         out[name] = parsed
     return out
+
+
+def read_overlay(section: Any, assets: pd.Index) -> dict[str, Any]:
+    """The scenario's ``overlay:`` section with its files read: the ``overlay`` argument of
+    :func:`trimtab.rebalance` (basket instruments only: a return series cannot join the rebalance)."""
+    path = Path(section.instruments)
+    instruments = read_instruments([path], assets)
+    series = [name for name, values in instruments.items() if isinstance(values.index, pd.DatetimeIndex)]
+    if series:
+        raise InputError(f"{path}: overlay.instruments: return-series instruments cannot join the rebalance yet "
+                         f"({list_labels(series)}); give basket weights (instrument, asset, weight), or size them "
+                         "after the rebalance with trimtab overlay")
+    notional = dict(section.notional or {})
+    unknown = [name for name in notional if name not in instruments]
+    if unknown:
+        raise InputError(f"overlay.notional: instruments not in {path}: {list_labels(unknown)}")
+    out: dict[str, Any] = {"instruments": instruments, "max_gross": section.max_gross,
+                           "notional": {k: list(v) for k, v in notional.items()}}
+    if section.contracts is not None:
+        out["contracts"] = read_contracts(Path(section.contracts), list(instruments))
+    return out
