@@ -22,6 +22,7 @@ from trimtab._version import __version__
 from trimtab.attribution import HEADLINE_FIGURES, RiskAttribution, compare_many, figure_label
 from trimtab.errors import InputError
 from trimtab.report._content import CAUTION, DESK_FIGURES, gather, group_columns, warning_records
+from trimtab.report._overlay_section import overlay_document, overlay_tables
 from trimtab.report._stress import stress_frame, stress_records
 from trimtab.report._relaxation import Unsolved, is_unsolved, split_subjects, unsolved
 
@@ -106,6 +107,7 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         )
     if (stress := stress_frame(subject)) is not None:
         tables["stress"] = stress
+    tables.update(overlay_tables(subject))
     return tables
 
 
@@ -234,6 +236,7 @@ def report_document(subject: Any) -> dict[str, Any]:
         "verification": _records(content.verification, None),
         "limits": _records(content.checks, "limit"),
         "stress": stress_records(subject),
+        "overlay": overlay_document(subject),
         "provenance": content.provenance,
         "scenario": content.scenario,
     }
