@@ -159,7 +159,8 @@ def sweep_command(
         _emit({"scenario": inputs.scenario.name, "output": str(target), "parameters": result.parameters, "table": result.table})
     _say(result.summary(), not (as_json or quiet))
     if not (as_json or quiet):
-        columns = [*result.parameters, "status", "tracking_error", "turnover", "expected_alpha"]
+        hedged = [c for c in ("hedged_tracking_error", "overlay_gross") if c in result.table.columns]  # an overlay
+        columns = [*result.parameters, "status", "tracking_error", *hedged, "turnover", "expected_alpha"]
         _say_table(result.table[columns].reset_index(drop=True), "Sweep points", True)
         _say(f"Wrote the table and report to {target}", True)
     _report_failures(result.table)

@@ -22,7 +22,7 @@ from trimtab._version import __version__
 from trimtab.attribution import HEADLINE_FIGURES, RiskAttribution, compare_many, figure_label
 from trimtab.errors import InputError
 from trimtab.report._content import CAUTION, DESK_FIGURES, gather, group_columns, warning_records
-from trimtab.report._overlay_section import overlay_document, overlay_tables
+from trimtab.report._overlay_section import overlay_comparison_rows, overlay_document, overlay_tables
 from trimtab.report._stress import stress_frame, stress_records
 from trimtab.report._relaxation import Unsolved, is_unsolved, split_subjects, unsolved
 
@@ -292,6 +292,7 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
         values = dict(figures.loc[key].items())
         if any(pd.notna(v) for v in values.values()):
             rows.append((key, figure_label(key, kind), HEADLINE_FIGURES[key][1], values))
+    rows.extend(overlay_comparison_rows(solved))
     rows.append(("binding_limits", "Binding limits (assets at a per-asset limit)", "text",
                  {n: binding_text(c.constraints) for n, c in contents.items()}))
     table = pd.DataFrame(

@@ -4,6 +4,7 @@ the terminal. Lays out ``RebalanceResult.overlay`` (computed in :mod:`trimtab.co
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 import pandas as pd
@@ -22,7 +23,8 @@ RISK_NAMES = {"total_risk": "total risk", "tracking_error": "tracking error", "f
 NOTE = ("The overlay is sized in the same problem as the book: the tracking-error, exposure, beta and stress "
         "limits and the objective's risk read the hedged book (cash book + overlay); the budget, long-only, "
         "position, group, turnover and liquidity limits read the cash book. Notionals are fractions of NAV "
-        "(negative: short); every limit was verified on them before contract rounding.")
+        "(negative: short); every limit was verified on them before contract rounding. The other sections of this "
+        "report (risk figures, attribution, stress tests, trades) are the cash book's.")
 
 
 def overlay_of(subject: Any) -> Any:
@@ -52,10 +54,52 @@ def overlay_tables(subject: Any) -> dict[str, pd.DataFrame]:
     return {"overlay": part.table, "overlay_exposures": part.exposures, "overlay_risk": part.risk}
 
 
+def overlay_comparison_rows(subjects: Mapping[str, Any]) -> list[tuple[str, str, str, dict[str, Any]]]:
+    """Rows of the comparison table for scenarios with an overlay (none when no scenario has one):
+    the hedged book's tracking error and total risk, and the overlay's gross notional."""
+    parts = {name: overlay_of(subject) for name, subject in subjects.items()}
+    if all(p is None for p in parts.values()):
+        return []
+    nan = float("nan")
+
+    def figure(book: str, column: str) -> dict[str, Any]:
+        # a scenario without an overlay is its own hedged book
+        return {n: float(getattr(subjects[n], "figures", {}).get(column, nan)) if p is None
+                else float(p.risk.loc[book, column]) for n, p in parts.items()}
+
+    return [
+        ("hedged_tracking_error", "Tracking error, hedged book (cash book + overlay)", "fraction",
+         figure("hedged", "tracking_error")),
+        ("hedged_total_risk", "Total risk, hedged book", "fraction", figure("hedged", "total_risk")),
+        ("overlay_gross", "Overlay gross notional (Σ|notional|, of NAV)", "fraction",
+         {n: 0.0 if p is None else float(p.notional.abs().sum()) for n, p in parts.items()}),
+    ]
+
+
 def overlay_document(subject: Any) -> dict[str, Any] | None:
     """result.json ``overlay``: instruments, exposures and risk by book, or None."""
     part = overlay_of(subject)
     return None if part is None else {**part.to_dict(), "note": NOTE}
+
+
+def _tables_html(part: Any) -> str:
+    units = {"notional": "fraction", "contracts": "count", "notional_after_rounding": "fraction"}
+    risk = _risk_display(part)
+    return (
+        _table(part.table, units, "Instrument", headers={"notional_after_rounding": "notional, whole contracts"})
+        + _table(risk, {c: "fraction" for c in risk.columns}, "Figure",
+                 caption="Annualised volatility of each book; active against the benchmark except for the overlay alone.")
+    )
+
+
+def overlay_page_html(subject: Any, top: int = 8) -> str:
+    """The explore page's overlay box: the notionals, the three books' risk and exposures ('' without one)."""
+    part = overlay_of(subject)
+    if part is None:
+        return ""
+    exposures = _exposure_display(part, top)
+    return _tables_html(part) + _table(exposures, {c: "exposure" for c in exposures.columns}, "Factor",
+                                       caption="The factors the overlay moves most.")
 
 
 def overlay_html(subject: Any, h: str, key: str, top: int = 10) -> str:
@@ -63,18 +107,14 @@ def overlay_html(subject: Any, h: str, key: str, top: int = 10) -> str:
     part = overlay_of(subject)
     if part is None:
         return ""
-    table = part.table
-    units = {"notional": "fraction", "contracts": "count", "notional_after_rounding": "fraction"}
     exposures = _exposure_display(part, top)
-    chart = bars_chart(exposures, xlabel="exposure (the model's units)", name=f"{key}-overlay-exposures", percent=False)
-    risk = _risk_display(part)
+    shown = exposures.head(6)[[BOOK_NAMES[b] for b in ("cash_book", "overlay", "hedged")]]
+    chart = bars_chart(shown, xlabel="exposure (the model's units)", name=f"{key}-overlay-exposures", percent=False)
     return (
         f'<{h} id="{key}-overlay">Hedge overlay</{h}><p>{_e(NOTE)}</p>'
-        + _table(table, units, "Instrument", headers={"notional_after_rounding": "notional, whole contracts"})
-        + _table(risk, {c: "fraction" for c in risk.columns}, "Figure",
-                 caption="Annualised volatility of each book; active against the benchmark except for the overlay alone.")
+        + _tables_html(part)
         + _figure(chart, "Factor exposures of the cash book, the overlay and the hedged book (active for the books "
-                         "when there is a benchmark); the factors the overlay moves most.")
+                         "when there is a benchmark); the six factors the overlay moves most.")
         + _table(exposures, {c: "exposure" for c in exposures.columns}, "Factor")
     )
 
