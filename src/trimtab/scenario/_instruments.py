@@ -48,7 +48,7 @@ def _baskets(frame: pd.DataFrame, path: Path, assets: pd.Index) -> dict[str, pd.
 
 
 def _series(path: Path) -> dict[str, pd.Series]:
-    from trimtab.scenario import load_returns
+    from trimtab.scenario._loaders import load_returns
     from trimtab.scenario._schema import ReturnsFile
 
     frame = load_returns(ReturnsFile.model_validate({"path": str(path), "asset_column": "instrument"}), what="instrument returns")
@@ -57,7 +57,7 @@ def _series(path: Path) -> dict[str, pd.Series]:
 
 def read_instruments(paths: Sequence[Path], assets: pd.Index) -> dict[str, pd.Series]:
     """Every instrument of ``paths``: name → basket weights by asset, or returns by date."""
-    from trimtab.scenario import read_table
+    from trimtab.scenario._loaders import read_table
 
     out: dict[str, pd.Series] = {}
     seen: dict[str, Path] = {}
@@ -76,7 +76,7 @@ def read_instruments(paths: Sequence[Path], assets: pd.Index) -> dict[str, pd.Se
 
 def read_contracts(path: Path, instruments: Sequence[str]) -> pd.DataFrame:
     """The contract table, checked: known instruments, price and multiplier > 0, cost ≥ 0."""
-    from trimtab.scenario import read_table
+    from trimtab.scenario._loaders import read_table
 
     frame = read_table(path, what="contracts")
     allowed = ("instrument", "price", "multiplier", "cost", "held")
@@ -131,7 +131,7 @@ def parse_targets(values: Sequence[str] | None, factors: pd.Index) -> dict[str, 
     return out
 
 
-def read_overlay(section: Any, assets: pd.Index) -> dict[str, Any]:
+def read_overlay(section: Any, assets: pd.Index, source: Path | str = "scenario") -> dict[str, Any]:
     """The scenario's ``overlay:`` section with its files read: the ``overlay`` argument of
     :func:`trimtab.rebalance` (basket instruments only: a return series cannot join the rebalance)."""
     path = Path(section.instruments)
@@ -144,7 +144,8 @@ def read_overlay(section: Any, assets: pd.Index) -> dict[str, Any]:
     notional = dict(section.notional or {})
     unknown = [name for name in notional if name not in instruments]
     if unknown:
-        raise InputError(f"overlay.notional: instruments not in {path}: {list_labels(unknown)}")
+        raise InputError(f"{source}: overlay.notional.{unknown[0]}: not an instrument of {path} "
+                         f"(it has {list_labels(list(instruments))})")
     out: dict[str, Any] = {"instruments": instruments, "max_gross": section.max_gross,
                            "notional": {k: list(v) for k, v in notional.items()}}
     if section.contracts is not None:

@@ -278,5 +278,5 @@ def load_inputs(
         book=book,
         alignment=aligned.report,
         sold_outside=aligned.sold_outside,
-        overlay=None if scenario.spec.overlay is None else read_overlay(scenario.spec.overlay, model.assets),
+        overlay=None if scenario.spec.overlay is None else read_overlay(scenario.spec.overlay, model.assets, scenario.path.name),
     )
