@@ -5,36 +5,22 @@ strictly (unknown or repeated keys, bad values and return-series instruments are
 from __future__ import annotations
 
 import json
-import os
-import shutil
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
-from typer.testing import CliRunner
 
 from tests.demo_helpers import make_demo_folder
+from tests.test_cli_overlay import in_folder
 from trimtab.cli import EXIT_BAD_INPUT, app
 from trimtab.demo import DEMO_FILES
-
-runner = CliRunner()
-
 
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory: pytest.TempPathFactory) -> Path:
     folder = make_demo_folder(tmp_path_factory.mktemp("overlay-rebalance"))
     assert (folder / "overlay.yaml").read_text(encoding="utf-8") == DEMO_FILES["overlay.yaml"]
     return folder
-
-
-def in_folder(folder: Path, *args: str | Path) -> object:
-    here = os.getcwd()
-    os.chdir(folder)
-    try:
-        return runner.invoke(app, [str(a) for a in args])
-    finally:
-        os.chdir(here)
 
 
 def _baskets(folder: Path) -> dict[str, pd.Series]:

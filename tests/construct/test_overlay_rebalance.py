@@ -143,3 +143,28 @@ def test_bad_overlay_is_one_clear_error(model, book, overlay, match):
     w0, b = book
     with pytest.raises(InputError, match=match):
         trimtab.rebalance(model, SCENARIO, holdings=w0, benchmark=b, overlay=overlay)
+
+
+def test_relaxation_measures_the_hedged_book(model, book):
+    # an infeasible TE cap with an overlay: the relaxation's "needed" cap is measured on w + X·h of
+    # the diagnosis's own solve, so the cap it names holds (and one just below it does not)
+    _, b = book
+    index = baskets(model)["index"]
+    w0 = b + 0.15 * baskets(model)["size"].reindex(model.assets, fill_value=0.0)
+    overlay = {"instruments": {"index": index}, "max_gross": 0.1}
+
+    def scenario(te: float) -> dict:
+        return {"objective": {"minimize": "active_risk"},
+                "constraints": {"fully_invested": True, "long_only": True, "turnover": {"max": 0.005},
+                                "tracking_error": {"max": te}}}
+
+    with pytest.raises(trimtab.InfeasibleError) as caught:
+        trimtab.rebalance(model, scenario(0.001), holdings=w0, benchmark=b, overlay=overlay)
+    table = caught.value.relaxation.set_index("constraint")
+    needed = float(table.loc["constraints.tracking_error.max", "needed"])
+    cash_only = trimtab.rebalance(model, scenario(1.0), holdings=w0, benchmark=b).ex_ante["tracking_error"]
+    assert needed < cash_only - 1e-4  # the overlay lowers the reachable tracking error
+    solved = trimtab.rebalance(model, scenario(needed * (1 + 1e-4)), holdings=w0, benchmark=b, overlay=overlay)
+    assert solved.overlay.figures["hedged"]["tracking_error"] <= needed * (1 + 1e-4) * (1 + 1e-6)
+    with pytest.raises(trimtab.InfeasibleError):
+        trimtab.rebalance(model, scenario(needed * (1 - 1e-3)), holdings=w0, benchmark=b, overlay=overlay)

@@ -37,6 +37,7 @@ from trimtab.construct._conflict import (
     penalty,
 )
 from trimtab.construct._cvxpy import cp
+from trimtab.construct._overlay import take_notionals
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 from trimtab.errors import InfeasibleError
@@ -117,6 +118,7 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         attempt = _solve.run(cvx, solver, settings)
         if attempt.status == cp.OPTIMAL and variables.w.value is not None:
+            take_notionals(problem, variables)
             return np.asarray(variables.w.value, dtype=np.float64)
         if attempt.status in _solve.INFEASIBLE:
             return None

@@ -140,6 +140,14 @@ class HedgeState:
         return weights + self.overlay.baskets @ self.h
 
 
+def take_notionals(problem: Any, variables: Variables) -> None:
+    """After a cvxpy solve of ``problem``'s rows: the rows' numpy checks read the notionals it found
+    (a diagnosis measures each limit on that point's w + X·h, as the solve saw it)."""
+    hedge = getattr(problem, "hedge", None)
+    if hedge is not None and variables.h is not None and variables.h.value is not None:
+        hedge.h = np.asarray(variables.h.value, dtype=np.float64)
+
+
 class _Hedged:
     """The variables as a risk row sees them: ``w`` is the hedged book w + X·h."""
 
