@@ -131,3 +131,14 @@ def test_return_series_instruments_cannot_join_the_rebalance(demo: Path, tmp_pat
         series.unlink()
     assert result.exit_code == EXIT_BAD_INPUT, result.output
     assert "future_returns.csv: overlay.instruments: return-series instruments cannot join the rebalance" in result.output
+
+
+@pytest.mark.parametrize("command", [("frontier", "overlay.yaml"),
+                                     ("backtest", "base.yaml", "overlay.yaml", "--fit", "fit_backtest.yaml")],
+                         ids=["frontier", "backtest"])
+def test_commands_without_overlay_support_refuse_it(demo: Path, tmp_path: Path, command: tuple[str, ...]) -> None:
+    # never a silent choice: a command that cannot carry the overlay stops before it runs
+    result = in_folder(demo, *command, "--out", tmp_path / "out")
+    assert result.exit_code == EXIT_BAD_INPUT, result.output
+    assert f"overlay.yaml: overlay: trimtab {command[0]} does not take a hedge overlay yet" in result.output
+    assert not (tmp_path / "out").exists()

@@ -190,11 +190,13 @@ def frontier_command(
     """
     from trimtab.report._pages import write_frontier
     from trimtab.runs._frontier import frontier
+    from trimtab.scenario._instruments import refuse_overlay
 
     as_json, quiet = _flags(ctx, json_output, quiet)
     te = _check_floats(parse_values(tracking_error, "--te"), "--te") if tracking_error else None
     caps = _check_floats(parse_values(turnover, "--turnover"), "--turnover") if turnover else None
     inputs = _load(scenario)
+    refuse_overlay(inputs.scenario, "frontier")
     kwargs = inputs.rebalance_kwargs()
     if kwargs.get("alpha") is None:
         raise InputError(f"{scenario}: data.alpha: the frontier needs an alpha file (expected return is αᵀ(w − b))")
@@ -248,11 +250,14 @@ def backtest_command(
     from trimtab.runs._backtest import backtest, fit_settings_mapping
     from trimtab.report._pages import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
+    from trimtab.scenario._instruments import refuse_overlay
     from trimtab.scenario._run import variant_limits
     from trimtab.scenario._schema import FitSettings, ReturnsFile
 
     as_json, quiet = _flags(ctx, json_output, quiet)
     loaded = [load_scenario(s) for s in scenarios]
+    for each in loaded:
+        refuse_overlay(each, "backtest")
     names = [s.name for s in loaded]
     if len(set(names)) != len(names):
         dup = sorted({n for n in names if names.count(n) > 1})

@@ -151,3 +151,10 @@ def read_overlay(section: Any, assets: pd.Index, source: Path | str = "scenario"
     if section.contracts is not None:
         out["contracts"] = read_contracts(Path(section.contracts), list(instruments))
     return out
+
+
+def refuse_overlay(scenario: Any, command: str) -> None:
+    """Stop (exit 2) a command that cannot carry a scenario's ``overlay:`` rather than drop it silently."""
+    if scenario.spec.overlay is not None:
+        raise InputError(f"{scenario.path.name}: overlay: trimtab {command} does not take a hedge overlay yet "
+                         "(rebalance, compare, sweep and explore do); remove the section for this run")
