@@ -250,15 +250,21 @@ def test_rebalance_writes_a_complete_folder(work: Path) -> None:
     # trades.csv is the order list (issue #13): only names that trade, whole shares, named headers
     trades = pd.read_csv(work / "out" / "trades.csv")
     assert list(trades.columns[:6]) == ["asset", "side", "shares", "lot", "price", "notional"]
-    assert len(trades) == int((book["trade"].abs() > 1e-10).sum())
+    # the orders are the rounded and repaired book's trades (issue #19): a lot may go to a name the
+    # optimizer left alone, and the turnover cap holds within the rounding tolerance for weights (1e-4)
+    assert len(trades) == int((book["order_shares"] != 0).sum())
     assert (trades["shares"] == trades["shares"].round()).all() and (trades["shares"] > 0).all()
-    assert 0.5 * trades["weight_change"].abs().sum() <= 0.25 + 1e-6
+    assert 0.5 * trades["weight_change"].abs().sum() <= 0.25 + 1e-4
     # target_book.csv carries the orders as sent beside the optimizer's book: the same whole shares, signed,
-    # and the rounded book's weights, within a share of the optimizer's
+    # and the rounded book's weights: the holdings plus the orders (issue #19: the repair may move a few
+    # lots away from the optimizer's book, to keep every limit and pay the costs from cash)
     sent = book.set_index("asset")["order_shares"]
     signed = trades.set_index("asset").eval("shares * (2 * (side == 'buy') - 1)")
     assert (sent[sent != 0].sort_index() == signed.sort_index()).all() and len(sent[sent != 0]) == len(signed)
-    assert (book["weight_after_orders"] - book["target_weight"]).abs().max() < 1e-6
+    moved = trades.set_index("asset")
+    after = book.set_index("asset").loc[moved.index, "weight_after_orders"]
+    assert (after - moved["weight_after"]).abs().max() < 1e-12
+    assert (book["weight_after_orders"] - book["target_weight"]).abs().max() < 1e-3  # a few lots at most
     # --json: one document with the documented report inside
     result = invoke("--json", "rebalance", work / "low_turnover.yaml", "--out", work / "out2")
     document = json.loads(result.stdout)
@@ -274,7 +280,8 @@ def test_rebalance_infeasible_exits_1_with_the_relaxation_table(work: Path) -> N
     assert "how far each conflicting limit must move" in result.stdout
     # issue #12: the first line names the tracking-error cap the variant set
     first = result.stdout.strip().splitlines()[0]
-    assert first == "infeasible: These limits cannot all hold: constraints.tracking_error.max, constraints.turnover.max."
+    assert first.startswith("infeasible: These limits cannot all hold: constraints.tracking_error.max, constraints.turnover.max. ")
+    assert "constraints.tracking_error.max: " in first  # one sentence per conflicting limit follows (issue #19)
     one_error_line(result, r"infeasible\.yaml: infeasible: these limits cannot all hold: constraints\.tracking_error\.max")
     assert not (work / "out").exists()  # nothing written
     result = invoke("--json", "rebalance", work / "infeasible.yaml")

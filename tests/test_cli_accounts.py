@@ -58,6 +58,11 @@ def test_accounts_files_and_exit_code(demo) -> None:
         own = pd.read_csv(out / "orders" / f"{name}.csv")
         assert len(own) == (orders["account"] == name).sum() == summary.at[name, "orders"]
     assert not (out / "orders" / f"{bad}.csv").exists()
+    # the bad account's way out is written where its reason points, in the account's own words
+    relaxations = pd.read_csv(out / "relaxations.csv")
+    assert set(relaxations["account"]) == {bad}
+    assert relaxations["constraint"].str.contains("tracking_error.max").any()
+    assert "relaxation table" not in summary.at[bad, "reason"]
     blocks = pd.read_csv(out / "blocks.csv", index_col="asset")
     assert (blocks["pct_adv"] <= 0.05 * (1 + 1e-6)).all()
     page = (out / "report.html").read_text(encoding="utf-8")

@@ -92,23 +92,28 @@ class InfeasibleError(TrimtabError):
         for the conflict (drop any one and the others can hold).
     relaxed : callable or None
         Solves the same problem at the first option's relaxed limits and returns its result.
+    reasons : list of str or None
+        One plain sentence per limit of the conflict set: how far it alone must move, or why moving
+        it alone is not enough.
     """
 
     exit_code = 1
 
-    def __init__(self, message: str, relaxation: Any = None, *, conflict: Any = None, relaxed: Any = None) -> None:
+    def __init__(self, message: str, relaxation: Any = None, *, conflict: Any = None, relaxed: Any = None,
+                 reasons: Any = None) -> None:
         super().__init__(message)
         self.relaxation = relaxation
         self.conflict = conflict
         self.relaxed = relaxed
+        self.reasons = reasons
 
     def __reduce__(self) -> Any:
         # ``relaxed`` holds the built problem: it stays in the process that raised
-        return (_infeasible, (str(self), self.relaxation, self.conflict))
+        return (_infeasible, (str(self), self.relaxation, self.conflict, self.reasons))
 
 
-def _infeasible(message: str, relaxation: Any, conflict: Any) -> InfeasibleError:
-    return InfeasibleError(message, relaxation, conflict=conflict)
+def _infeasible(message: str, relaxation: Any, conflict: Any, reasons: Any = None) -> InfeasibleError:
+    return InfeasibleError(message, relaxation, conflict=conflict, reasons=reasons)
 
 
 class SolverError(TrimtabError):

@@ -93,8 +93,10 @@ def test_the_page_solve_shows_the_relaxation_not_an_error(client: TestClient) ->
     view = client.post("/page/solve", json={"limits": {"tracking_error.max": 0.002, "turnover.max": 0.01}}).json()
     assert view["status"] == "infeasible"
     assert '<table class="relaxation">' in view["html"]["relaxation"] and "Infeasible" in view["html"]["relaxation"]
+    # one sentence per conflicting limit (issue #19)
+    assert '<ul class="reasons">' in view["html"]["relaxation"] and "constraints.tracking_error.max: " in view["html"]["relaxation"]
     solved = client.post("/page/solve", json={"limits": {"tracking_error.max": 0.02}}).json()
-    assert solved["figures"]["tracking_error"] == pytest.approx(0.02, abs=1e-6)
+    assert solved["figures"]["tracking_error"] == pytest.approx(0.02, abs=1e-4)  # the rounded book, costs paid from cash: within the risk rounding tolerance (#19)
     assert set(solved["html"]) == {"headline", "exposures", "trades", "binding", "warnings", "stress", "overlay"}
     assert solved["seconds"]["solve"] > 0 and solved["seconds"]["render"] > 0
 
@@ -157,7 +159,7 @@ def test_concurrent_solves_queue_and_give_consistent_documents(client: TestClien
         answers = list(pool.map(one, caps))
     for cap, (seen_cap, post) in zip(caps, answers, strict=True):
         assert seen_cap == pytest.approx(cap)
-        assert post == pytest.approx(cap, abs=1e-6)  # the cap binds: each answer is its own request's
+        assert post == pytest.approx(cap, abs=1e-4)  # the cap binds (to the rounding tolerance): each answer is its own request's
 
 
 def test_save_writes_a_new_scenario_once(client: TestClient, demo_folder: Path) -> None:

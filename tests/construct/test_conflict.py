@@ -238,3 +238,48 @@ def test_the_edge_of_feasibility_is_diagnosed_on_the_default_path() -> None:
     # the first option applied solves, and its weights hold the loosened limits (verified from w)
     result = new.relaxed()
     assert float(result.weights.sum()) <= 1.0 + 1e-7
+
+
+# issue #19: one plain sentence per limit of the conflict set
+def _infeasible_with(constraints):
+    from trimtab.construct import rebalance
+    from trimtab.errors import InfeasibleError
+
+    from .conftest import make_fund
+
+    fund = make_fund(60, 4, seed=91)
+    base = {"fully_invested": True, "long_only": True, "weight": {"max": 0.1}}
+    with pytest.raises(InfeasibleError) as caught:
+        rebalance(fund.model, {"objective": {"maximize": "alpha"}, "constraints": {**base, **constraints}}, **fund.kwargs())
+    return fund, caught.value
+
+
+def test_each_conflicting_limit_has_a_sentence_with_its_own_way_out() -> None:
+    # the demo's infeasible scenario in small: a tracking-error cap and a turnover cap that cannot both hold
+    _, err = _infeasible_with({"liquidity": {"max_adv_fraction": 0.1}, "tracking_error": {"max": 0.005}, "turnover": {"max": 0.01}})
+    assert err.conflict == ["constraints.tracking_error.max", "constraints.turnover.max"]
+    te, turnover = err.reasons
+    table = err.relaxation.set_index("constraint")
+    needed_te = table.loc["constraints.tracking_error.max", "needed"]
+    assert te.startswith("constraints.tracking_error.max: enough on its own: from 0.5% to ")
+    assert f"{100 * needed_te:.3g}%" in te and "(option 1)" in te
+    assert turnover.startswith("constraints.turnover.max: enough on its own: from 1% to ") and "(option 2)" in turnover
+
+
+def test_a_te_cap_below_reach_says_why_turnover_alone_cannot_help() -> None:
+    fund, err = _infeasible_with({"liquidity": {"max_adv_fraction": 0.002}, "tracking_error": {"max": 0.0005}, "turnover": {"max": 0.05}})
+    assert set(err.conflict) == {"constraints.tracking_error.max", "constraints.turnover.max"}
+    reasons = dict(r.split(": ", 1) for r in err.reasons)
+    assert reasons["constraints.tracking_error.max"].startswith("enough on its own")
+    # the most one-way turnover the liquidity limit allows: what can be sold against what can be bought,
+    # each asset at most 0.2% of its ADV (a closed form checked here by hand)
+    cap = 0.002 * fund.attributes["adv"] * fund.attributes["price"] / fund.nav
+    w0 = fund.holdings
+    sell = np.minimum(w0, cap).sum()
+    buy = np.minimum(np.minimum(0.1, w0 + cap) - w0, cap).clip(lower=0).sum()
+    reach = min(sell, buy)
+    text = reasons["constraints.turnover.max"]
+    assert text.startswith("raising it from 5% alone is not enough: the liquidity limit (0.2% of ADV a day) allows at most ")
+    assert f"at most {100 * reach:.3g}% one-way today" in text
+    # the relaxation table offers the single-limit way out that exists (the cap), not turnover
+    assert list(err.relaxation["constraint"]) == ["constraints.tracking_error.max"]

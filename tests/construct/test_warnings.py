@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 
 from trimtab.construct import _solve, rebalance
-from trimtab.construct._result import _rounding_warnings
+from trimtab.construct._orders import rounding_notices
 from trimtab.construct._trade_list import TradeList
 from trimtab.construct._warnings import KINDS, AlertSettings, concentration_warnings, share_text
 from trimtab.scenario import align_inputs
@@ -82,22 +82,22 @@ def test_heuristic_applied() -> None:
     assert heuristics[0].message.startswith("max_names: ") and "re-solved" in heuristics[0].message
 
 
-def test_rounding_past_a_limit_is_stated() -> None:
+def test_a_limit_the_rounded_book_breaches_is_named_with_value_and_excess() -> None:
     verification = pd.DataFrame(
-        {"name": ["turnover", "fully_invested"], "kind": ["turnover", "budget"], "value": [0.250003, 1.000003],
-         "lower": [np.nan, 1.0], "upper": [0.25, 1.0], "breach": [3e-6, 3e-6], "tolerance": [1e-7, 1e-7],
-         "moved": [4e-6, 4e-6], "soft": [False, False], "ok": [True, True]}
+        {"name": ["turnover", "cash_after_costs"], "kind": ["turnover", "cash"], "value": [0.2504, 0.001],
+         "lower": [np.nan, 0.0], "upper": [0.25, 0.002], "breach": [4e-4, 0.0], "tolerance": [1e-4, 1e-12],
+         "excess": [3e-4, 0.0], "soft": [False, False], "ok": [False, True]}
     )
     empty = pd.DataFrame(columns=["optimal", "rounded", "change"])
     trade_list = TradeList(pd.DataFrame(), pd.Series(dtype=float), verification, 1e8, 0.0, 0.0, -30.0, empty)
-    (warning,) = _rounding_warnings(trade_list)
-    # the budget's residual is the cash left, stated with the trade list: not a warning
+    assert not trade_list.ok
+    (warning,) = rounding_notices(trade_list)
     assert warning.kind == "rounding" and warning.details["limit"] == "turnover"
-    assert "takes turnover past its limit by 3e-06" in warning.message
-    # a smaller excess (below 1e-6 in the limit's unit) shows in the limits table only
-    small = verification.assign(breach=[5e-7, 5e-7])
-    assert _rounding_warnings(TradeList(pd.DataFrame(), pd.Series(dtype=float), small, 1e8, 0.0, 0.0, -30.0, empty)) == []
-
+    assert warning.message.startswith("orders not fit to send: ")
+    assert "turnover is 0.2504 against a maximum of 0.25, 0.0003 beyond the tolerance 0.0001" in warning.message
+    # a book that holds every limit gives no warning
+    fine = verification.assign(ok=True, excess=0.0)
+    assert rounding_notices(TradeList(pd.DataFrame(), pd.Series(dtype=float), fine, 1e8, 0.0, 0.0, -30.0, empty)) == []
 
 def test_factor_and_asset_concentration_and_positions_pinned_at_caps() -> None:
     fund = make_fund(40, 4, seed=153)

@@ -1,13 +1,26 @@
-"""The Jinja2 partials and the rows they lay out (#15): escaping, formatting, empty tables."""
+"""The Jinja2 partials and the rows they lay out (#15): escaping, formatting, empty tables.
+
+Since #25 the rows hold numbers and the partials format them with the filters of
+``report/_filters.py``; the printed cells are checked on the rendered HTML.
+"""
 
 from __future__ import annotations
 
 import math
+import re
 
 import pandas as pd
 import pytest
 
-from trimtab.report._templates import binding_rows, bp, exposure_rows, num, pct, render_trades, trade_rows, warning_rows
+from trimtab.report._templates import (
+    binding_rows, bp, exposure_rows, num, pct, render, render_trades, trade_rows, warning_rows,
+)
+
+
+def _cells(html: str) -> list[list[str]]:
+    """The text of each body row's cells."""
+    body = html.split("<tbody>", 1)[1]
+    return [re.findall(r"<td[^>]*>(.*?)</td>", row) for row in re.findall(r"<tr[^>]*>(.*?)</tr>", body, flags=re.S)]
 
 
 def test_every_value_is_escaped() -> None:
@@ -26,10 +39,13 @@ def test_formatting_of_missing_and_finite_values() -> None:
 def test_trade_rows_give_the_side_and_the_shares() -> None:
     trades = pd.DataFrame({"initial_weight": [0.02, 0.0], "target_weight": [0.0, 0.015], "trade": [-0.02, 0.015]},
                           index=["A", "B"])
-    assert trade_rows(trades) == [
-        {"asset": "A", "side": "sell", "before": "2.00%", "after": "0.00%", "trade": "-2.00%", "shares": ""},
-        {"asset": "B", "side": "buy", "before": "0.00%", "after": "1.50%", "trade": "1.50%", "shares": ""},
+    assert [(r["asset"], r["side"], r["shares"]) for r in trade_rows(trades)] == [("A", "sell", None), ("B", "buy", None)]
+    assert _cells(render_trades(trade_rows(trades), caption="")) == [
+        ["A", "sell", "2.00%", "0.00%", "-2.00%", ""],
+        ["B", "buy", "0.00%", "1.50%", "1.50%", ""],
     ]
+    with_shares = trades.assign(shares=[-1234.0, 560.0])
+    assert [row[-1] for row in _cells(render_trades(trade_rows(with_shares), caption=""))] == ["-1,234", "560"]
     assert trade_rows(None) == [] and "No trades" in render_trades([], caption="")
 
 
@@ -46,9 +62,10 @@ def test_binding_rows_read_weights_in_percent_and_count_the_rest() -> None:
                            "n_binding": 4, "shadow_price": 0.0123456},
                           {"name": "beta", "kind": "beta", "value": 1.0, "unit": "ratio", "asset": None,
                            "n_binding": 1, "shadow_price": 0.5}])
-    assert binding_rows(table) == [
-        {"name": "weight", "kind": "weight", "value": "3.000%", "where": "A and 3 more", "shadow_price": "0.0123"},
-        {"name": "beta", "kind": "beta", "value": "1.0000", "where": "", "shadow_price": "0.5000"},
+    assert [(r["name"], r["where"]) for r in binding_rows(table)] == [("weight", "A and 3 more"), ("beta", "")]
+    assert _cells(render("partials/binding.html.j2", rows=binding_rows(table))) == [
+        ["weight", "weight", "3.000%", "A and 3 more", "0.0123"],
+        ["beta", "beta", "1.0000", "", "0.5000"],
     ]
 
 

@@ -123,6 +123,25 @@ def manifest_file(name: str, file: str) -> Callable[[Path], None]:
     return change
 
 
+def set_attribute(column: str, value: float, held: bool, lot: float | None = None) -> Callable[[Path], None]:
+    """Set ``column`` of the first held (or not held) asset in data/attributes.csv to ``value``; with
+    ``lot``, add a lot column of that size first."""
+
+    def change(work: Path) -> None:
+        import pandas as pd
+
+        attrs = pd.read_csv(work / "data" / "attributes.csv")
+        holdings = set(pd.read_csv(work / "data" / "holdings.csv")["asset"])
+        if lot is not None:
+            attrs["lot"] = lot
+        row = next(i for i, asset in enumerate(attrs["asset"]) if (asset in holdings) == held)
+        attrs.loc[row, column] = value
+        attrs.to_csv(work / "data" / "attributes.csv", index=False)
+
+    return change
+
+
+NO_LIQUIDITY = edit("  liquidity: {max_adv_fraction: 0.10, days: 1}\n", "")
 BOMB = "a: &a [x, x, x, x, x, x, x, x, x]\n" + "".join(
     f"{chr(98 + i)}: &{chr(98 + i)} [{', '.join([f'*{chr(97 + i)}'] * 9)}]\n" for i in range(9)
 )
@@ -233,6 +252,29 @@ CASES: list[tuple[str, Callable[[Path], None], list[str], int, str]] = [
     ("value-negative-cash", edit("cash: 6000000", "cash: -1"), ["check", "base.yaml"], BAD_INPUT, r"data\.holdings\.cash: must be ≥ 0 \(got -1\)"),
     ("value-objective-as-text", edit("objective:\n  maximize: alpha\n  costs: {spread: spread}\n", "objective: maximize\n"),
      ["check", "base.yaml"], BAD_INPUT, r"objective: expected a mapping, got 'maximize'"),
+    # ---------------------------------------------------------------- order inputs (issue #19)
+    ("orders-price-zero-held", set_attribute("price", 0.0, held=True), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"data/holdings\.csv: prices .*must be positive; not so for [A-Z]{4}"),
+    ("orders-price-zero-liquidity", set_attribute("price", 0.0, held=False), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"constraints\.liquidity\.price_column: data/attributes\.csv: column 'price' must be finite and > 0 for assets: [A-Z]{4}$"),
+    ("orders-price-negative-liquidity", set_attribute("price", -5.0, held=False), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"data/attributes\.csv: column 'price' must be finite and > 0 for assets: [A-Z]{4}$"),
+    ("orders-adv-zero-liquidity", set_attribute("adv", 0.0, held=False), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"constraints\.liquidity\.adv_column: data/attributes\.csv: column 'adv' must be finite and > 0 for assets: [A-Z]{4}$"),
+    ("orders-lot-zero-held", both(NO_LIQUIDITY, set_attribute("lot", 0.0, held=True, lot=100.0)), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"data/attributes\.csv: attributes: column 'lot' must be a number > 0 for assets held or traded: [A-Z]{4} \(0\)$"),
+    ("orders-lot-negative-held", both(NO_LIQUIDITY, set_attribute("lot", -100.0, held=True, lot=100.0)), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"column 'lot' must be a number > 0 for assets held or traded: [A-Z]{4} \(-100\)$"),
+    ("orders-lot-nan-held", both(NO_LIQUIDITY, set_attribute("lot", float("nan"), held=True, lot=100.0)), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"column 'lot' must be a number > 0 for assets held or traded: [A-Z]{4} \(nan\)$"),
+    ("orders-price-nan-held-no-liquidity", both(NO_LIQUIDITY, set_attribute("price", float("nan"), held=True)), ["rebalance", "base.yaml"], BAD_INPUT,
+     r"data/holdings\.csv: .*[A-Z]{4}"),
+    ("orders-min-cash-percent", append("orders: {min_cash: 2}\n"), ["check", "base.yaml"], BAD_INPUT,
+     r"base\.yaml: orders\.min_cash: must be ≤ 0\.5 \(got 2\)"),
+    ("orders-unknown-key", append("orders: {min_cash: 0.01, mincash: 0.02}\n"), ["check", "base.yaml"], BAD_INPUT,
+     r"base\.yaml: orders\.mincash: unknown key"),
+    ("orders-tolerance-text", append("orders: {tolerance: {weight: '1bp'}}\n"), ["check", "base.yaml"], BAD_INPUT,
+     r"base\.yaml: orders\.tolerance\.weight: "),
     # ---------------------------------------------------------------- files
     ("file-holdings-missing", edit("data/holdings.csv", "data/nope.csv"), ["check", "base.yaml"], BAD_INPUT, r"nope\.csv: holdings file not found"),
     ("file-holdings-is-fifo", fifo("data/holdings.csv"), ["check", "base.yaml"], BAD_INPUT, r"holdings\.csv: is a named pipe; expected a holdings file"),

@@ -42,7 +42,7 @@ def test_good_file_and_defaults(tmp_path: Path) -> None:
 @pytest.mark.parametrize(
     ("text", "message"),
     [
-        (GOOD + "colour: red\n", r"s\.yaml: colour: unknown key; allowed here: alerts, alpha_factor, backtest, constraints, data, description, model, name, objective, output"),
+        (GOOD + "colour: red\n", r"s\.yaml: colour: unknown key; allowed here: alerts, alpha_factor, backtest, constraints, data, description, model, name, objective, orders, output"),
         (GOOD.replace("kind: shares", "kind: shares, prise_column: p"), r"data\.holdings\.prise_column: unknown key; did you mean price_column\?"),
         (GOOD + "output: {jsn: true}\n", r"output\.jsn: unknown key; did you mean json\?"),
         (GOOD.replace("kind: shares", "kind: lots"), r"data\.holdings\.kind: expected 'weights' or 'shares', got 'lots'"),

@@ -1,8 +1,9 @@
 """What the page shows of one variant: its key figures (for the trail) and its sections as HTML.
 
 The sections are rendered from the report's Jinja2 partials (:mod:`trimtab.report._templates`),
-from the same :func:`trimtab.report.gather` content the report writers use; numbers are formatted
-here, the templates only lay them out (and escape every value).
+from the same :func:`trimtab.report.gather` content the report writers use. The view hands them
+numbers with the filter each is printed with; the templates format them (the filters of
+:mod:`trimtab.report._filters`) and escape every value.
 """
 
 from __future__ import annotations
@@ -14,8 +15,10 @@ from typing import Any
 import pandas as pd
 
 from trimtab.app._session import Variant
+from trimtab.report._filters import number, piece
+from trimtab.report._html_desk import cash_card
 from trimtab.report._templates import (
-    binding_rows, bp, exposure_rows, num, number, pct, render_cards, render_trades, trade_rows, warning_rows,
+    binding_rows, exposure_rows, render_cards, render_trades, trade_rows, warning_rows,
 )
 
 #: Trades and binding limits listed on the page.
@@ -28,19 +31,20 @@ def page_view(variant: Variant) -> dict[str, Any]:
     """The page's payload for one variant: status, figures, HTML sections and timing."""
     from trimtab.report import gather
     from trimtab.report._overlay_section import overlay_page_html
-    from trimtab.report._relaxation import display_relaxation, relaxation_sentence, unsolved
+    from trimtab.report._relaxation import RELAXATION_NUMBERS, relaxation_rows, relaxation_sentence, unsolved
     from trimtab.report._templates import render
 
     started = time.perf_counter()
     if variant.error is not None:
         failure = unsolved(variant.error)
-        rows = display_relaxation(failure.relaxation).to_dict(orient="records") if len(failure.relaxation) else []
+        columns, rows = relaxation_rows(failure.relaxation) if len(failure.relaxation) else ([], [])
         html = {
             "relaxation": render(
                 "partials/relaxation.html.j2", status=failure.status, message=_message(failure),
                 sentence=relaxation_sentence(failure.relaxation) if rows else "", rows=rows,
                 conflict=[str(c) for c in getattr(failure, "conflict", ()) or ()],
-                columns=list(rows[0]) if rows else [],
+                columns=columns, numbers=RELAXATION_NUMBERS,
+                reasons=list(failure.reasons),
             )
         }
         figures: dict[str, Any] = {}
@@ -48,7 +52,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
         content = gather(variant.result, top=TOP_TRADES)
         figures = key_figures(variant.result, content)
         html = {
-            "headline": render_cards(headline_cards(figures, content)),
+            "headline": render_cards(headline_cards(figures, content) + cash_card(content.rounding)),
             "exposures": render("partials/exposures.html.j2", rows=exposure_rows(content.exposures)),
             "trades": _trades(content),
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
@@ -109,27 +113,27 @@ def key_figures(result: Any, content: Any) -> dict[str, float | None]:
     }
 
 
-def headline_cards(figures: dict[str, float | None], content: Any) -> list[dict[str, str]]:
-    """Label, value and a note under it, for each key figure the result has."""
-    te_note = f"cap {pct(figures['cap'])}" if figures.get("cap") is not None else ""
+def headline_cards(figures: dict[str, float | None], content: Any) -> list[dict[str, Any]]:
+    """Label, value (with the filter that prints it) and a note under it, for each key figure the result has."""
+    te_note: list[Any] = ["cap ", piece(figures["cap"], "pct")] if figures.get("cap") is not None else []
     pre_te = _cell(content.headline, "risk", "pre")
     if pre_te is not None:
-        te_note = f"before {pct(pre_te)}" + (f" · {te_note}" if te_note else "")
+        te_note = ["before ", piece(pre_te, "pct")] + ([" · ", *te_note] if te_note else [])
     cards = [
-        ("alpha", "Expected active alpha", pct(figures["alpha"]), "a year, model forecast"),
-        ("information_ratio", "Information ratio", num(figures["information_ratio"], 2), "alpha ÷ tracking error"),
-        ("tracking_error", "Tracking error", pct(figures["tracking_error"]), te_note),
-        ("turnover", "Turnover (one-way)", pct(figures["turnover"], 1), "of NAV"),
-        ("cost", "Estimated cost", bp(figures["cost"]), "of NAV, once"),
-        ("names", "Names held", num(figures["names"], 0), _traded(figures)),
+        ("alpha", "Expected active alpha", ["pct"], "a year, model forecast"),
+        ("information_ratio", "Information ratio", ["num", 2], "alpha ÷ tracking error"),
+        ("tracking_error", "Tracking error", ["pct"], te_note),
+        ("turnover", "Turnover (one-way)", ["pct", 1], "of NAV"),
+        ("cost", "Estimated cost", ["bp"], "of NAV, once"),
+        ("names", "Names held", ["num", 0], _traded(figures)),
     ]
-    return [{"key": k, "label": label, "value": value, "note": note} for k, label, value, note in cards
-            if figures.get(k) is not None]
+    return [{"key": k, "label": label, "value": figures[k], "format": spec, "note": note}
+            for k, label, spec, note in cards if figures.get(k) is not None]
 
 
-def _traded(figures: dict[str, float | None]) -> str:
+def _traded(figures: dict[str, float | None]) -> list[Any]:
     bought, sold = figures.get("bought"), figures.get("sold")
-    return "" if bought is None or sold is None else f"{bought:,.0f} bought · {sold:,.0f} sold"
+    return [] if bought is None or sold is None else [piece(bought, "count"), " bought · ", piece(sold, "count"), " sold"]
 
 
 def _message(failure: Any) -> str:
@@ -140,7 +144,7 @@ def _message(failure: Any) -> str:
     return text.replace(" (see .relaxation for how far each must move)", "")
 
 
-# ---------------------------------------------------------------------- formatting
+# ---------------------------------------------------------------------- sections
 def _cell(table: pd.DataFrame | None, row: str, column: str) -> float | None:
     if table is None or row not in table.index or column not in table.columns:
         return None

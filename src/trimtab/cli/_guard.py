@@ -2,7 +2,8 @@
 
 Exit codes (docs/cli.md): 0 ok; 1 infeasible; 2 bad input; 3 solver failure; 4 a bug in trimtab;
 5 a problem with the environment the user can fix (read-only or full disk, permission denied, an
-output path below a file); 130 interrupted (SIGINT, Ctrl-C); 143 terminated (SIGTERM).
+output path below a file); 6 orders not fit to send (written, but no book in whole lots holds every
+limit); 130 interrupted (SIGINT, Ctrl-C); 143 terminated (SIGTERM).
 
 This module imports nothing heavy, so the console-script entry point (:mod:`trimtab.cli._entry`) can
 install the signal handlers before numpy, pandas or the optimizer are imported.
@@ -22,6 +23,7 @@ from typing import Any, TypeVar
 from trimtab._paths import environment_line  # noqa: F401 - an OS fault's cause in a user's words (shared with the explore page)
 
 EXIT_OK, EXIT_INFEASIBLE, EXIT_BAD_INPUT, EXIT_SOLVER, EXIT_INTERNAL, EXIT_ENVIRONMENT = 0, 1, 2, 3, 4, 5
+EXIT_NOT_FIT = 6
 EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
 F = TypeVar("F", bound=Callable[..., Any])
 

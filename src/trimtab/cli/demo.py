@@ -68,6 +68,7 @@ def demo(
     files = [
         ("data/", "the invented fund: returns, factor returns, holdings, benchmark, alpha, alpha history, attributes"),
         ("", "and an index future and two style baskets for `trimtab overlay` (instruments.csv, contracts.csv)"),
+        ("", "and 200 invented accounts for `trimtab accounts` (accounts.csv, account_holdings.csv)"),
         ("model/", "the fitted risk model"),
         ("results/base/report.html", "the base rebalance: risk budget, trades, constraints, risk before and after"),
         ("results/base/", "its tables (trades.csv, constraints.csv, …) and result.json"),

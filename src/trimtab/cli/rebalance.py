@@ -9,7 +9,7 @@ from typing import Annotated, Any
 import typer
 
 from trimtab.cli._app import Ui, _optional_report, _print_relaxation, _print_warnings, _report_module, _ui, add_commands, family
-from trimtab.cli._guard import EXIT_INFEASIBLE, EXIT_SOLVER
+from trimtab.cli._guard import EXIT_INFEASIBLE, EXIT_NOT_FIT, EXIT_SOLVER
 from trimtab.cli._guard import fail as _fail
 from trimtab.errors import InfeasibleError, InputError, SolverError
 
@@ -89,7 +89,8 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
 
     Solves, verifies every limit on the returned weights, and writes the weights, trades, constraint
     table, pre- and post-trade attributions, result.json and report.html. An infeasible scenario
-    prints its relaxation table, writes nothing and exits with 1.
+    prints its relaxation table, writes nothing and exits with 1. Orders that no book in whole lots
+    can make hold every limit are written as trades_not_fit_to_send.csv and the command exits with 6.
     """
     from trimtab.scenario import load_inputs, load_scenario
     from trimtab.scenario._run import solve, write_rebalance
@@ -111,10 +112,16 @@ def rebalance(ctx: typer.Context, scenario: ScenarioArg, out: OutOption = None) 
         step("writing the outputs")
         written = write_rebalance(run, out)
     _print_warnings(ui, run.result)
-    ui.emit({"scenario": loaded.name, "status": "solved", "output": str(written.folder), "files": written.files, **_result_document(run.result)})
+    fit = run.result.trade_list is None or run.result.trade_list.ok
+    ui.emit({"scenario": loaded.name, "status": "solved" if fit else "not_fit_to_send", "output": str(written.folder),
+             "files": written.files, **_result_document(run.result)})
     if ui.chatty:
         _print_result(ui, run.result)
         ui.say(f"Wrote {len(written.files)} files to {written.folder}")
+    if not fit:
+        from trimtab.construct._orders import not_fit_line
+
+        _fail(f"{loaded.path}: {not_fit_line(run.result.trade_list)}", EXIT_NOT_FIT)
 
 
 

@@ -63,6 +63,9 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
     if conflict is None:
         return
     table, moves = relaxation(problem, extra, conflict)
+    from trimtab.construct._conflict_text import member_sentences
+
+    reasons = member_sentences(problem, extra, conflict, table)
     source = problem.spec.source
     head = f"{source}: infeasible: {conflict.sentence()}"
     if not table.empty:
@@ -71,7 +74,7 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
                 else "; the relaxation table shows how far to move")
     else:
         tail = "; no relaxation of the numeric limits restores feasibility"
-    raise InfeasibleError(head + tail, table, conflict=conflict.paths,
+    raise InfeasibleError(head + tail, table, conflict=conflict.paths, reasons=reasons,
                           relaxed=(lambda: problem.relaxed(moves).solve()) if moves else None)
 
 
@@ -191,6 +194,11 @@ def relaxation(problem: RebalanceProblem, extra: Sequence[Rows], conflict: Confl
         option += 1
         records.extend({"option": str(option), **m} for m in moves)
         first = first or moves
+    if records and len(numeric) > 1:  # beside the single-limit options, the joint one (issue #19)
+        weights = elastic_weights(problem, extra, numeric)
+        moves = [m for g in numeric for m in _moves(problem, g, weights)] if weights is not None else []
+        if len({m["constraint"].split("[")[0] for m in moves}) > 1 and _meaningful(moves):
+            records.extend({"option": "together", **m} for m in moves)
     if not records:
         for movable in (numeric, [g for g in limit_groups(problem, extra) if not g.rule]):
             weights = elastic_weights(problem, extra, movable) if movable else None

@@ -10,11 +10,11 @@ Applied in this order after the convex solve, each followed by verification:
    re-solve creates new small trades. A trade that a hard per-asset limit requires (the current
    weight lies outside the asset's bounds, including a ``max_names`` exit) is exempt and kept.
 3. ``round_lots`` — each trade is rounded to the nearest whole lot (``lot`` shares at ``price``,
-   one lot = lot·price/NAV of weight). Rounding can move every limited quantity; the rounded book
-   is verified with the rule that a limit may be exceeded only by as much as rounding moved that
-   quantity (the ``allowance`` column), and every trade moves by less than one lot: to the nearer
-   whole lot, or to the other one when only that keeps the asset inside its bounds (an exit sells
-   the whole position, odd lot included).
+   one lot = lot·price/NAV of weight): to the nearer whole lot, or to the other one when only that
+   keeps the asset inside its bounds (an exit sells the whole position, odd lot included). Rounding
+   can move every limited quantity, so a repair then adds or removes single lots until each limit
+   holds on the rounded book itself within its rounding tolerance (issue #19; what rounding moved a
+   quantity is no allowance).
 
 Each heuristic adds a row to the constraint table and the verification (names held, smallest trade,
 largest rounding move).
@@ -28,17 +28,16 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from trimtab.construct._lots import NAME_TOL, TRADE_TOL, rounded_weights
+from trimtab.construct._lots import fixes as _fixes
+from trimtab.construct._lots import hard_box as _hard_box
 from trimtab.construct._verify import describe_failures, failures, verify
-from trimtab.construct.constraints._base import Rows, box_rows, merge_boxes
+from trimtab.construct.constraints._base import Rows, box_rows
 from trimtab.errors import SolverError
 
 if TYPE_CHECKING:
     from trimtab.construct._problem import Outcome, RebalanceProblem
 
-#: A weight above this (in absolute value) counts as a name held.
-NAME_TOL = 1e-8
-#: A trade above this (in absolute value) counts as a trade.
-TRADE_TOL = 1e-10
 MAX_ROUNDS = 5
 
 
@@ -67,10 +66,6 @@ def _lot_weight(problem: RebalanceProblem) -> np.ndarray:
     price = data.attributes[o["price_column"]].to_numpy(dtype=np.float64)  # type: ignore[index]
     return lot * price / data.nav  # type: ignore[operator]
 
-
-def _hard_box(problem: RebalanceProblem, extra: list[Rows] | None = None) -> tuple[np.ndarray, np.ndarray]:
-    hard = [r for r in problem.all_rows(extra or []) if r.box and r.soft is None]
-    return merge_boxes(hard, problem.data.n_assets)
 
 
 def _fix(name: str, mask: np.ndarray, offset: np.ndarray | None, labels: pd.Index) -> Rows:
@@ -135,48 +130,27 @@ def apply(problem: RebalanceProblem, outcome: Outcome) -> Outcome:
 
 
 def _round(problem: RebalanceProblem, outcome: Outcome, rows: list[Rows]) -> Outcome:
+    """Round each trade to whole lots, repair the book until every limit holds within its rounding
+    tolerance (:mod:`trimtab.construct._rounded_book`), and verify it against the limits themselves.
+    A book no repair can make hold is kept: the trade list marks its orders not fit to send."""
+    from trimtab.construct._orders import min_cash, order_settings
+    from trimtab.construct._rounded_book import book_limits, book_model, repair_book, rounding_tolerances, verification_table
+
     data = problem.data
     w0, w_star = data.holdings, outcome.weights
     lot_w = _lot_weight(problem)
-    w = rounded_weights(w0, w_star, lot_w, *_hard_box(problem, _fixes(rows)))
+    lower, upper = _hard_box(problem, _fixes(rows))
+    w = rounded_weights(w0, w_star, lot_w, lower, upper)
+    model = book_model(problem)
+    settings = order_settings(problem)
+    limits, boxes = book_limits(rows, model, w0, min_cash=min_cash(problem), fully_invested_lot=None,
+                                tolerances=rounding_tolerances(settings))
+    exits = (np.abs(w) <= NAME_TOL) & (np.abs(w0) > NAME_TOL)  # whole position sold, odd lot included
+    w = repair_book(w, w0, lot_w, lower, upper, ~exits, limits, model, method=settings.get("repair", "auto"))
+    table = verification_table([*limits, *boxes], [r for r in rows if r.soft is not None], w)
     lots = (w - w0) / lot_w
-    exits = (np.abs(w_star) <= NAME_TOL) & (np.abs(w0) > NAME_TOL)  # whole position sold, odd lot included
-    move = Rows(name="round_lots", kind="round_lots", unit="lots", labels=data.assets, per_asset=True,
-                lower=np.full(data.n_assets, -1.0), upper=np.full(data.n_assets, 1.0),
-                evaluate=lambda v: np.where(exits, 0.0, (v - w_star) / lot_w))
-    rows = [*rows, move]
-    before = verify(rows, w_star)
-    after = verify(rows, w)
-    allowance = np.zeros(len(after))
-    for k, r in enumerate(rows, start=1):
-        allowance[k] = float(np.max(np.abs(np.asarray(r.evaluate(w)) - np.asarray(r.evaluate(w_star))), initial=0.0))
-    after["allowance"] = allowance
-    after.loc[after["kind"].isin(["round_lots", "max_names"]), "allowance"] = 0.0
-    after["ok"] = after["soft"] | (after["breach"] <= after["tolerance"] + after["allowance"])
-    after["ok"] &= before["ok"].to_numpy() | before["soft"].to_numpy()
-    if len(failures(after)):
-        raise SolverError(f"{problem.spec.source}: after rounding to lots: {describe_failures(after)}")
     notes = [*outcome.notes, f"round_lots: {int((np.abs(lots) > TRADE_TOL).sum())} trades rounded to whole lots"]
-    return replace(outcome, weights=w, rows=rows, verification=after, notes=notes, status="optimal (rounded to lots)")
+    return replace(outcome, weights=w, rows=rows, verification=table, notes=notes, status="optimal (rounded to lots)")
 
 
-def _fixes(rows: list[Rows]) -> list[Rows]:
-    return [r for r in rows if r.name.endswith(".fixed")]
-
-
-def rounded_weights(w0: np.ndarray, target: np.ndarray, lot: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
-    """Round each trade to whole lots: the nearer of floor and ceiling that keeps w inside [lo, hi]
-    (the nearer one when neither does); an exit (target 0) sells the whole position, odd lot included."""
-    trade = (target - w0) / lot
-    down, up = np.floor(trade), np.ceil(trade)
-    w_down, w_up = w0 + down * lot, w0 + up * lot
-    inside_down = (w_down >= lo - NAME_TOL) & (w_down <= hi + NAME_TOL)
-    inside_up = (w_up >= lo - NAME_TOL) & (w_up <= hi + NAME_TOL)
-    nearer_up = (up - trade) < (trade - down)
-    choose_up = np.where(inside_up & ~inside_down, True, np.where(inside_down & ~inside_up, False, nearer_up))
-    w = np.where(choose_up, w_up, w_down)
-    exit_ = (np.abs(target) <= NAME_TOL) & (np.abs(w0) > NAME_TOL)
-    w[exit_] = 0.0
-    unchanged = np.abs(target - w0) <= TRADE_TOL
-    w[unchanged] = w0[unchanged]
-    return w
+__all__ = ["NAME_TOL", "TRADE_TOL", "apply", "check", "rounded_weights"]

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 from typing import TYPE_CHECKING, Any
 
@@ -15,7 +15,8 @@ from trimtab.construct._alpha_factor import alpha_lines, alpha_provenance, alpha
 from trimtab.construct._figures import desk_figures
 from trimtab.construct._overlay_result import OverlayResult, overlay_result
 from trimtab.construct._solve import SOLVER_SETTINGS
-from trimtab.construct._trade_list import TradeList, build_trade_list, weight_orders
+from trimtab.construct._orders import NOT_FIT_STATUS, rounding_notices, trade_list_for, weights_without_noise
+from trimtab.construct._trade_list import TradeList, weight_orders
 from trimtab.construct._warnings import (
     AlertSettings,
     RunWarning,
@@ -26,7 +27,6 @@ from trimtab.construct._warnings import (
 )
 from trimtab.construct._verify import OBJECTIVE_TOL
 from trimtab.construct.constraints._base import ABS_TOL, REL_TOL
-from trimtab.errors import SolverError
 
 if TYPE_CHECKING:
     from trimtab.model._alpha import AlphaAlignment
@@ -204,8 +204,6 @@ class RebalanceResult:
     ) -> RebalanceResult:
         """A copy with ``notices`` put first (e.g. the input alignment's), other alert thresholds and
         ``context`` (description, NAV and cash, model date: what the reports state) merged in."""
-        from dataclasses import replace
-
         return replace(
             self,
             notices=(*notices, *self.notices),
@@ -274,7 +272,9 @@ class RebalanceResult:
                 + (f"; estimated cost {1e4 * figures['cost']:.2f} bp of NAV" if np.isfinite(figures.get("cost", np.nan)) else "")
             )
         if self.trade_list is not None:
-            lines.append(f"Orders: {len(self.trade_list.orders)} in whole shares (cash after {self.trade_list.cash_after:,.0f})")
+            tl = self.trade_list
+            lines.append(f"Orders: {len(tl.orders)} in whole shares; cash after trades and costs {tl.cash_after_costs:,.2f}"
+                         + ("" if tl.ok else " (NOT FIT TO SEND: the rounded book breaches a limit)"))
         for warning in self.warnings:
             lines.append(f"Warning: {warning.message}")
         lines.append("Objective: " + ", ".join(f"{k} {v:.6g}" for k, v in self.objective.items()))
@@ -304,14 +304,23 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
     if len(data.sold_outside):
         initial = pd.concat([initial, data.sold_outside.rename("weight")])
     bench = None if data.benchmark is None else pd.Series(data.benchmark, index=assets, name="weight")
+    trade_list, input_notices = trade_list_for(problem, outcome)
+    if trade_list is None:
+        cleaned, note = weights_without_noise(problem, outcome)
+        if note is not None:
+            outcome = replace(outcome, weights=cleaned, notes=[*outcome.notes, note])
+            weights = pd.Series(outcome.weights, index=assets, name="weight")
+            trades = _trades(problem, outcome.weights)
     table = _constraint_table(problem, outcome)
     objective = problem.objective.breakdown(outcome.weights, _penalty(outcome))
-    trade_list = _trade_list(problem, outcome)
     final = outcome.weights if trade_list is None else trade_list.weights.to_numpy()
     rates = problem.objective.rates
-    notices = [*solver_warnings(outcome.notes, outcome.skipped, outcome.solver), *heuristic_warnings(outcome.notes)]
+    notices = [*input_notices, *solver_warnings(outcome.notes, outcome.skipped, outcome.solver), *heuristic_warnings(outcome.notes)]
+    status = outcome.status
     if trade_list is not None:
-        notices.extend(_rounding_warnings(trade_list))
+        notices.extend(rounding_notices(trade_list))
+        if not trade_list.ok:
+            status = NOT_FIT_STATUS
     notices.extend(alpha_warnings(problem))
     return RebalanceResult(
         weights=weights,
@@ -320,7 +329,7 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
         trades=trades,
         constraints=table,
         objective=objective,
-        status=outcome.status,
+        status=status,
         solver=outcome.solver,
         iterations=outcome.iterations,
         solve_time=outcome.solve_time,
@@ -387,7 +396,27 @@ def _constraint_table(problem: RebalanceProblem, outcome: Outcome) -> pd.DataFra
             records.extend(describe_rows(rows, rows.evaluate(outcome.weights), mu_up, mu_lo))
     table = pd.DataFrame.from_records(records, columns=CONSTRAINT_COLUMNS)
     table["binding_assets"] = table["name"].map(_binding_assets(list(outcome.rows), outcome.weights, BINDING_TOL))
-    return table
+    return _merge_same_binding(table)
+
+
+def _merge_same_binding(table: pd.DataFrame) -> pd.DataFrame:
+    """One row per binding per-asset limit: limits that bind the same assets at the same value (long_only
+    and weight.min at 0, say) become one row named ``long_only = weight``; the merged bound's dual is
+    given to each of them (``split_box_duals``), so the row keeps the largest, not the sum."""
+    per_asset = table["asset"].notna() & table["binding"].astype(bool)
+    if per_asset.sum() < 2:
+        return table
+    keys = table.loc[per_asset].apply(lambda r: (round(float(r["value"]), 12), int(r["n_binding"]), str(r["binding_assets"]),
+                                                 str(r["unit"])), axis=1)
+    drop = []
+    for _, group in table.loc[per_asset].groupby(keys, sort=False):
+        if len(group) < 2:
+            continue
+        first = group.index[0]
+        table.loc[first, "name"] = " = ".join(group["name"].astype(str))
+        table.loc[first, "shadow_price"] = float(group["shadow_price"].max())
+        drop.extend(group.index[1:])
+    return table.drop(index=drop).reset_index(drop=True)
 
 
 def _binding_assets(rows: list[Any], weights: np.ndarray, tol: float) -> dict[str, str]:
@@ -432,60 +461,3 @@ def _provenance(problem: RebalanceProblem, outcome: Outcome) -> dict[str, Any]:
         "periods_per_year": problem.data.periods_per_year,
         **alpha_provenance(problem),
     }
-
-
-def _trade_list(problem: RebalanceProblem, outcome: Outcome) -> TradeList | None:
-    """The order-ready list when the NAV and prices are known (None otherwise: the list is in weights)."""
-    from trimtab.construct._heuristics import _fixes, _hard_box
-
-    data = problem.data
-    attrs = data.attributes
-    options = problem.spec.constraints.get("round_lots") or {}
-    price_column = options.get("price_column", "price")
-    lot_column = options.get("lot_column", "lot")
-    if data.nav is None or attrs is None or price_column not in attrs.columns:
-        return None
-    price = pd.to_numeric(attrs[price_column], errors="coerce").to_numpy(dtype=np.float64)
-    if not np.all(np.isfinite(price) & (price > 0)):
-        return None
-    lot = None
-    if lot_column in attrs.columns:
-        lot = pd.to_numeric(attrs[lot_column], errors="coerce").to_numpy(dtype=np.float64)
-        lot = np.where(np.isfinite(lot) & (lot > 0), lot, 1.0)
-    adv = None
-    if "adv" in attrs.columns and pd.api.types.is_numeric_dtype(attrs["adv"]):
-        adv = attrs["adv"].to_numpy(dtype=np.float64)
-    lower, upper = _hard_box(problem, _fixes(outcome.rows))
-    rates = problem.objective.rates
-    rounded = build_trade_list(
-        assets=data.assets, holdings=data.holdings, target=outcome.weights, nav=data.nav, price=price, lot=lot,
-        lower=lower, upper=upper, rows=outcome.rows, adv=adv, cost=rates.cost if rates.any else None,
-        sold_outside=data.sold_outside if len(data.sold_outside) else None,
-    )
-    if not rounded.ok:
-        from trimtab.construct._verify import describe_failures
-
-        raise SolverError(f"{problem.spec.source}: rounding the trades to whole shares: {describe_failures(rounded.verification)}")
-    return rounded
-
-
-#: A limit exceeded after rounding by more than this (in its unit: 0.01 bp of NAV for a weight) is a
-#: ``rounding`` warning; smaller excesses show in the limits table only.
-ROUNDING_NOTE = 1e-6
-
-
-def _rounding_warnings(trade_list: TradeList) -> list[RunWarning]:
-    """Limits that hold on the rounded book only thanks to the rounding allowance (by more than ROUNDING_NOTE)."""
-    table = trade_list.verification
-    # the budget's residual is the cash left, stated with the trade list itself
-    over = table[(table["breach"] > np.maximum(table["tolerance"], ROUNDING_NOTE)) & ~table["soft"].astype(bool)
-                 & (table["kind"] != "budget")]
-    return [
-        RunWarning(
-            "rounding",
-            f"rounding to whole shares takes {r.name} past its limit by {r.breach:.3g} (within what rounding moved it, "
-            f"{r.moved:.3g})",
-            {"limit": str(r.name), "breach": float(r.breach), "moved": float(r.moved)},
-        )
-        for r in over.itertuples()
-    ]

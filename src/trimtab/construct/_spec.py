@@ -164,7 +164,7 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
     'active_risk'
     """
     top = Path(source)
-    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay", "alpha_factor"], ["objective"])
+    body = f.mapping(top, mapping, ["objective", "constraints", "stress", "replay", "alpha_factor", "orders"], ["objective"])
     problems: list[Problem] = []
     objective = _collect(problems, _objective, top / "objective", body["objective"])
     raw = body.get("constraints") or {}
@@ -192,6 +192,10 @@ def validate_scenario(mapping: Any, *, source: str = "scenario") -> RebalanceSpe
         if objective.get("kind") not in ("utility", "alpha"):
             raise (top / "alpha_factor").fail("prices the alpha the factors miss; the objective must maximize alpha or utility")
         normalised["alpha_factor"] = _alpha_factor(top / "alpha_factor", body["alpha_factor"])
+    if body.get("orders") is not None:
+        from trimtab.construct._spec_orders import validate_orders
+
+        normalised["orders"] = validate_orders(top / "orders", body["orders"])
     return RebalanceSpec(objective, constraints, json.loads(json.dumps(normalised, default=str)), source)
 
 

@@ -12,23 +12,28 @@ Rounding rule (see docs/outputs.md, "trades.csv"):
   while it buys more (net), the trades rounded up furthest are rounded down; while it buys less, the
   trades rounded down furthest are rounded up when that does not overspend (so cash left ≥ the
   optimizer's, by less than the largest lot);
-* the rounded book is checked with plain numpy against every limit of the scenario, plus the
-  ``rounding`` check that each trade moved by less than one lot (an exit sells the whole position).
-  A limit passes when its breach is within the verification tolerance (or the optimal book's own
-  breach, for a book the ``round_lots`` heuristic already rounded) plus what rounding moved that quantity (each such case is a ``rounding`` warning). Anything else fails
-  the run with the limit named.
+* orders below the noise floor are dropped: half a lot (half a share for the sale of a whole
+  position);
+* a repair then adds or removes single lots, cheapest for the objective first, until every hard limit
+  holds on the rounded book within its rounding tolerance and the cash after trades and costs is at
+  least ``orders.min_cash`` (:mod:`trimtab.construct._rounded_book`, :mod:`trimtab.construct._repair`);
+* the rounded book is verified with plain numpy against each limit itself plus its tolerance. When
+  no rounded book holds them all, the list is still returned with ``ok`` False and the breached
+  limits in :attr:`TradeList.breached`: the orders are not fit to send.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass, replace
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
-from trimtab.construct._heuristics import rounded_weights
-from trimtab.construct.constraints._base import Rows, check_rows
+from trimtab.construct._lots import rounded_weights
+from trimtab.construct._repair import ROUNDING_TOLERANCE
+from trimtab.construct._rounded_book import BookModel, book_limits, repair_book, verification_table
+from trimtab.construct.constraints._base import Rows
 
 #: A trade no larger than this (fraction of NAV) is no trade.
 TRADE_TOL = 1e-10
@@ -37,7 +42,6 @@ SHARE_SNAP = 1e-6
 
 ORDER_COLUMNS = ["side", "shares", "lot", "price", "notional", "cost_bp", "cost", "adv_percent", "weight_before",
                  "weight_after", "weight_change"]
-VERIFICATION_COLUMNS = ["name", "kind", "value", "lower", "upper", "breach", "tolerance", "moved", "soft", "ok"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -57,13 +61,20 @@ class TradeList:
     weights : pandas.Series
         The rounded book: target weights after the orders, by model asset.
     verification : pandas.DataFrame
-        Every limit on the rounded book: name, kind, value, lower, upper, breach, tolerance,
-        moved (how far rounding moved the quantity), soft, ok.
+        Every hard limit on the rounded book against the limit itself plus its tolerance: name,
+        kind, value, lower, upper, breach, tolerance, excess (beyond the tolerance), soft, ok; the
+        row ``cash_after_costs`` holds the cash after trades and costs (fraction of NAV).
     nav : float
     cash_before, cash_optimal, cash_after : float
-        NAV·(1 − Σw) of the holdings, of the optimizer's book and of the rounded book (currency).
+        NAV·(1 − Σw) of the holdings, of the optimizer's book and of the rounded book (currency,
+        before costs).
     moves : pandas.DataFrame
-        The largest weight changes rounding made: index asset; optimal, rounded, change.
+        The largest weight changes rounding and its repair made: index asset; optimal, rounded, change.
+    min_cash : float
+        The least cash after trades and costs (currency).
+    one_lot : float or None
+        Fully invested: the cash after costs may exceed ``min_cash`` by at most this (the largest lot
+        the book could still buy, currency); None when the scenario is not fully invested.
     """
 
     orders: pd.DataFrame
@@ -74,11 +85,42 @@ class TradeList:
     cash_optimal: float
     cash_after: float
     moves: pd.DataFrame
+    min_cash: float = 0.0
+    one_lot: float | None = None
 
     @property
     def ok(self) -> bool:
-        """Every limit holds on the rounded book."""
+        """Every limit holds on the rounded book: the orders are fit to send."""
         return bool(self.verification["ok"].all())
+
+    @property
+    def breached(self) -> pd.DataFrame:
+        """The limits the rounded book breaches beyond their tolerance (empty when fit to send)."""
+        return self.verification[~self.verification["ok"].astype(bool)]
+
+    def _side(self, side: str) -> float:
+        rows = self.orders[self.orders["side"] == side]
+        return float(rows["notional"].sum())
+
+    @property
+    def buys(self) -> float:
+        """Σ notional of the buy orders (currency)."""
+        return self._side("buy")
+
+    @property
+    def sells(self) -> float:
+        """Σ notional of the sell orders (currency), positions sold outside the optimizer included."""
+        return self._side("sell")
+
+    @property
+    def costs(self) -> float:
+        """Σ estimated cost of the orders (currency; spread, commission, impact)."""
+        return float(self.orders["cost"].fillna(0.0).sum())
+
+    @property
+    def cash_after_costs(self) -> float:
+        """cash before − buys + sells − costs (currency), from the orders as written."""
+        return self.cash_before - self.buys + self.sells - self.costs
 
     @property
     def n_buys(self) -> int:
@@ -100,12 +142,17 @@ def build_trade_list(
     lower: np.ndarray,
     upper: np.ndarray,
     rows: Sequence[Rows],
-    cost: Callable[[np.ndarray], np.ndarray] | None = None,
+    model: BookModel,
     adv: np.ndarray | None = None,
     sold_outside: pd.Series | None = None,
+    min_cash: float = 0.0,
+    fully_invested: bool = False,
+    tolerances: Mapping[str, float] | None = None,
+    method: str = "auto",
     top_moves: int = 10,
 ) -> TradeList:
-    """Round the trades ``target − holdings`` to whole lots and verify the rounded book.
+    """Round the trades ``target − holdings`` to whole lots, repair the rounded book until every limit
+    holds, and verify it.
 
     Parameters
     ----------
@@ -116,20 +163,29 @@ def build_trade_list(
     nav : float
         The fund's value in currency.
     price : ndarray, shape (N,)
-        Prices in the fund's currency, positive.
+        Prices in the fund's currency: positive on every asset held or traded, NaN on an asset whose
+        price is unusable (it is then neither bought nor sold).
     lot : ndarray, shape (N,), optional
-        Lot sizes in shares (positive); one share when None.
+        Lot sizes in shares (positive, NaN as for price); one share when None.
     lower, upper : ndarray, shape (N,)
         The hard per-asset weight bounds, which rounding keeps.
     rows : sequence of Rows
         Every limit of the scenario, checked on the rounded book.
-    cost : callable, optional
-        The cost model: trade weights (N,) → estimated cost per asset as a fraction of NAV.
+    model : BookModel
+        The factor form, objective and cost model (:func:`trimtab.construct._rounded_book.book_model`).
     adv : ndarray, shape (N,), optional
-        Average daily volume in shares.
+        Average daily volume in shares (positive on every asset traded).
     sold_outside : pandas.Series, optional
         Weights of held assets the model lacks, sold outside the optimizer (``unknown_assets: zero``):
         listed as sells of the whole position with their notional; shares and price unknown (NaN).
+    min_cash : float, default 0
+        Least cash after trades and costs, fraction of NAV.
+    fully_invested : bool, default False
+        The scenario is fully invested: the cash left after costs is at most one lot above ``min_cash``.
+    tolerances : mapping, optional
+        Rounding tolerance per kind (weight, exposure, beta, risk); defaults ROUNDING_TOLERANCE.
+    method : {"auto", "greedy", "milp"}
+        The repair search (module docstring of :mod:`trimtab.construct._repair`).
 
     Returns
     -------
@@ -138,20 +194,33 @@ def build_trade_list(
     Notes
     -----
     One lot of asset i is ``lotᵢ·priceᵢ / NAV`` of weight; the rounded weight is
-    ``w0ᵢ + kᵢ·lotᵢ·priceᵢ / NAV`` with kᵢ whole.
+    ``w0ᵢ + kᵢ·lotᵢ·priceᵢ / NAV`` with kᵢ whole. An order below half a lot (half a share for the
+    sale of a whole odd-lot position) is noise and dropped before the repair.
     """
     lots = np.ones_like(price) if lot is None else np.asarray(lot, dtype=np.float64)
-    lot_w = lots * price / nav
-    w = rounded_weights(holdings, target, lot_w, lower, upper)
+    usable = np.isfinite(price) & (price > 0) & np.isfinite(lots) & (lots > 0)
+    share_w = np.where(usable, np.where(usable, price, 1.0) / nav, 0.0)
+    lot_w = np.where(usable, lots, 0.0) * share_w
+    still = ~usable | (np.abs(target - holdings) <= TRADE_TOL)
+    safe_lot = np.where(usable, lot_w, 1.0)
+    w = rounded_weights(holdings, np.where(still, holdings, target), safe_lot, lower, upper)
     w = _keep_cash(holdings, target, w, lot_w, lower, upper)
+    w = drop_noise(holdings, w, lot_w, share_w, usable)
+    buyable = usable & (w + lot_w <= upper + 1e-12)
+    lot_room = float(np.max(lot_w[buyable], initial=0.0)) if fully_invested else None
+    tol = {**ROUNDING_TOLERANCE, **dict(tolerances or {})}
+    repair, boxes = book_limits(rows, model, holdings, min_cash=min_cash, fully_invested_lot=lot_room, tolerances=tol)
+    exited = (np.abs(w) <= TRADE_TOL) & (np.abs(holdings) > TRADE_TOL)  # whole position sold: stays off the lot grid
+    w = repair_book(w, holdings, lot_w, lower, upper, usable & ~exited, repair, model, method=method)
+    w = drop_noise(holdings, w, lot_w, share_w, usable)
     trade_w = w - holdings
-    shares = trade_w * nav / price
+    shares = np.where(usable, trade_w * nav / np.where(usable, price, 1.0), 0.0)
     snapped = np.round(shares)
     shares = np.where(np.abs(shares - snapped) < SHARE_SNAP * np.maximum(1.0, np.abs(snapped)), snapped, shares)
     exits = (np.abs(w) <= TRADE_TOL) & (np.abs(holdings) > TRADE_TOL)
     shares = np.where(exits, np.round(shares), shares)
     traded = np.abs(trade_w) > TRADE_TOL
-    notional = np.round(np.abs(shares) * price, 2)  # currency, to the cent
+    notional = np.round(np.abs(shares) * np.where(usable, price, 0.0), 2)  # currency, to the cent
     frame = pd.DataFrame(
         {
             "side": np.where(trade_w > 0, "buy", "sell"),
@@ -159,8 +228,8 @@ def build_trade_list(
             "lot": lots,
             "price": price,
             "notional": notional,
-            "cost_bp": np.nan,
-            "cost": np.nan,
+            "cost_bp": 0.0,
+            "cost": 0.0,
             "adv_percent": np.nan,
             "weight_before": holdings,
             "weight_after": w,
@@ -168,14 +237,12 @@ def build_trade_list(
         },
         index=pd.Index(assets, name="asset"),
     )
-    if cost is not None:
-        amount = np.asarray(cost(trade_w), dtype=np.float64) * nav
-        frame["cost"] = np.round(amount, 2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            frame["cost_bp"] = np.round(np.where(notional > 0, 1e4 * amount / notional, 0.0), 4)
+    amount = model.cost(trade_w) * nav
+    frame["cost"] = np.round(amount, 2)
+    frame["cost_bp"] = np.round(np.divide(1e4 * amount, notional, out=np.zeros_like(amount), where=notional > 0), 4)
     if adv is not None:
-        with np.errstate(divide="ignore", invalid="ignore"):
-            frame["adv_percent"] = np.round(100.0 * np.abs(shares) / np.asarray(adv, dtype=np.float64), 4)
+        volume = np.where(traded, adv, 1.0)  # ADV is checked > 0 on every asset traded
+        frame["adv_percent"] = np.round(100.0 * np.abs(shares) / volume, 4)
     orders = frame[traded]
     if sold_outside is not None and len(sold_outside):
         extra = pd.DataFrame(
@@ -197,16 +264,29 @@ def build_trade_list(
     moves = pd.DataFrame({"optimal": target, "rounded": w, "change": change}, index=pd.Index(assets, name="asset"))
     moves = moves.iloc[np.argsort(-np.abs(change), kind="stable")[:top_moves]]
     moves = moves[moves["change"].abs() > 0]
+    soft = [r for r in rows if r.soft is not None]
+    cash_before = float(nav * (1.0 - holdings.sum() - (0.0 if sold_outside is None else float(sold_outside.sum()))))
     return TradeList(
         orders=orders,
         weights=pd.Series(w, index=assets, name="weight"),
-        verification=verify_rounded([*rows, rounding_rows(pd.Index(assets), target, holdings, lot_w)], target, w),
+        verification=verification_table([*repair, *boxes], soft, w),
         nav=float(nav),
-        cash_before=float(nav * (1.0 - holdings.sum() - (0.0 if sold_outside is None else float(sold_outside.sum())))),
+        cash_before=cash_before,
         cash_optimal=float(nav * (1.0 - target.sum())),
         cash_after=float(nav * (1.0 - w.sum())),
         moves=moves,
+        min_cash=float(min_cash * nav),
+        one_lot=None if lot_room is None else float(lot_room * nav),
     )
+
+
+def drop_noise(w0: np.ndarray, w: np.ndarray, lot_w: np.ndarray, share_w: np.ndarray, usable: np.ndarray) -> np.ndarray:
+    """Cancel orders below the noise floor: half a lot, or half a share for the sale of a whole
+    position (an odd-lot exit); an asset without a usable price or lot keeps w0."""
+    trade = np.abs(w - w0)
+    exit_ = (np.abs(w) <= TRADE_TOL) & (np.abs(w0) > TRADE_TOL)
+    floor = np.where(exit_, 0.5 * share_w, 0.5 * lot_w)
+    return np.where(usable & (trade >= floor), w, w0)
 
 
 def _keep_cash(w0: np.ndarray, target: np.ndarray, w: np.ndarray, lot_w: np.ndarray, lo: np.ndarray,
@@ -234,41 +314,6 @@ def _keep_cash(w0: np.ndarray, target: np.ndarray, w: np.ndarray, lot_w: np.ndar
             out[i] += lot_w[i]
             excess += lot_w[i]
     return out
-
-
-def rounding_rows(assets: pd.Index, optimal: np.ndarray, w0: np.ndarray, lot_w: np.ndarray) -> Rows:
-    """The per-asset check that rounding moved each trade by less than one lot (exits excepted)."""
-    exits = (np.abs(optimal) <= TRADE_TOL) & (np.abs(w0) > TRADE_TOL)
-    n = len(assets)
-    return Rows(name="rounding", kind="rounding", unit="lots", labels=assets, per_asset=True,
-                lower=np.full(n, -1.0), upper=np.full(n, 1.0),
-                evaluate=lambda v: np.where(exits, 0.0, (v - optimal) / lot_w))
-
-
-def _constant(value: np.ndarray) -> Callable[[np.ndarray], np.ndarray]:
-    """An ``evaluate`` that returns a value already computed."""
-    return lambda _weights: value
-
-
-def verify_rounded(rows: Sequence[Rows], optimal: np.ndarray, rounded: np.ndarray) -> pd.DataFrame:
-    """Every limit on the rounded book, with how far rounding moved it (the module docstring's rule)."""
-    records = []
-    for r in rows:
-        if r.kind == "rounding":  # its own limit, no allowance
-            record = check_rows(r, rounded)
-            records.append({**record, "moved": 0.0})
-            continue
-        before = np.asarray(r.evaluate(optimal), dtype=np.float64)
-        after = np.asarray(r.evaluate(rounded), dtype=np.float64)
-        record = check_rows(replace(r, evaluate=_constant(after)), rounded)  # evaluated once
-        moved = float(np.max(np.abs(after - before), initial=0.0))
-        # the optimal book passed its own verification (a round_lots book with its rounding allowance)
-        breach_before = float(np.max(r.breach(before), initial=0.0))
-        within = record["breach"] <= max(record["tolerance"], breach_before) + moved
-        record["moved"] = moved
-        record["ok"] = bool(record["soft"] or record["ok"] or within)
-        records.append(record)
-    return pd.DataFrame.from_records(records, columns=VERIFICATION_COLUMNS)
 
 
 def weight_orders(trades: pd.DataFrame) -> pd.DataFrame:

@@ -117,13 +117,62 @@ def target_book(subject: Any, trades: pd.DataFrame | None) -> pd.DataFrame | Non
 def rounding_info(trade_list: Any) -> dict[str, Any] | None:
     if trade_list is None:
         return None
+    breached = trade_list.breached
     return {
         "nav": float(trade_list.nav),
         "cash_before": float(trade_list.cash_before),
         "cash_optimal": float(trade_list.cash_optimal),
         "cash_after": float(trade_list.cash_after),
+        "buys": float(trade_list.buys),
+        "sells": float(trade_list.sells),
+        "costs": float(trade_list.costs),
+        "cash_after_costs": float(trade_list.cash_after_costs),
+        "min_cash": float(trade_list.min_cash),
+        "one_lot": None if trade_list.one_lot is None else float(trade_list.one_lot),
+        "fit_to_send": bool(trade_list.ok),
+        "breached": breached[["name", "kind", "value", "lower", "upper", "tolerance", "excess"]].reset_index(drop=True),
         "largest_changes": trade_list.moves,
     }
+
+
+def verdict_lines(content: ReportContent) -> list[str]:
+    """Orders not fit to send: one line per limit the rounded book breaches beyond its tolerance
+    (its value and excess); empty when the orders hold every limit."""
+    r = content.rounding
+    if r is None or r.get("fit_to_send", True):
+        return []
+    lines = ["ORDERS NOT FIT TO SEND: no book in whole lots holds every limit within its rounding tolerance. "
+             "The orders are written for inspection only (trades_not_fit_to_send.csv)."]
+    for row in r["breached"].itertuples():
+        lines.append(f"{row.name}: {row.value:.6g} on the rounded book against {_bounds_text(row.lower, row.upper)}, "
+                     f"{row.excess:.3g} beyond the tolerance {row.tolerance:.1g}")
+    return lines
+
+
+def _bounds_text(lower: float, upper: float) -> str:
+    lo, hi = np.isfinite(lower), np.isfinite(upper)
+    if lo and hi:
+        return f"{lower:.6g}" if lower == upper else f"[{lower:.6g}, {upper:.6g}]"
+    return f"at most {upper:.6g}" if hi else f"at least {lower:.6g}"
+
+
+def cash_line(content: ReportContent) -> str | None:
+    """Cash after trades and costs (the headline figure), with the identity it comes from."""
+    r = content.rounding
+    if r is None:
+        return None
+    residual = f"; fully invested: at most one lot ({cents(r['one_lot'])}) above that" if r.get("one_lot") is not None else ""
+    return (f"Cash after trades and costs: {cents(r['cash_after_costs'])} = {cents(r['cash_before'])} before "
+            f"− buys {cents(r['buys'])} + sells {cents(r['sells'])} − estimated costs {cents(r['costs'])} "
+            f"(minimum {cents(r['min_cash'])}{residual}).")
+
+
+def cents(value: Any) -> str:
+    """A sum of money to the cent, with thousands separators."""
+    try:
+        return f"{float(value):,.2f}"
+    except (TypeError, ValueError):
+        return "n/a"
 
 
 def run_context(subject: Any, post: RiskAttribution) -> dict[str, Any]:
@@ -194,9 +243,9 @@ def rounding_lines(content: ReportContent) -> list[str]:
             return ["The trade list is in weights (fractions of NAV): give the fund's NAV and prices for shares."]
         return []
     lines = [
-        f"Trades rounded to whole shares (to the lot where a lot size is given) and re-verified against every "
-        f"limit; the figures after the trades are those of the rounded book. Cash: {amount_text(r['cash_before'])} "
-        f"before, {amount_text(r['cash_after'])} after (the unrounded book: {amount_text(r['cash_optimal'])})."
+        f"Trades rounded to whole shares (to the lot where a lot size is given), repaired lot by lot until every "
+        f"limit holds within its rounding tolerance, and re-verified; the figures after the trades are those of the "
+        f"rounded book.", *filter(None, [cash_line(content)]),
     ]
     moves = r["largest_changes"]
     if isinstance(moves, pd.DataFrame) and len(moves):

@@ -86,7 +86,8 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         for column in group_columns(attr, content.scenario):
             tables[f"{stem}_by_{_stem(column)}"] = attr.by_group(column)
     if content.orders is not None:
-        tables["trades"] = content.orders
+        fit = content.rounding is None or content.rounding.get("fit_to_send", True)
+        tables["trades" if fit else "trades_not_fit_to_send"] = content.orders
     if content.target_book is not None:
         tables["target_book"] = content.target_book
     if content.figures is not None:
@@ -226,7 +227,8 @@ def report_document(subject: Any) -> dict[str, Any]:
         "trades": _records(content.orders, "asset"),
         "trades_unit": "shares" if content.orders_in_shares else "weights",
         "rounding": None if content.rounding is None else {
-            **{k: v for k, v in content.rounding.items() if k != "largest_changes"},
+            **{k: v for k, v in content.rounding.items() if k not in ("largest_changes", "breached")},
+            "breached": _records(content.rounding["breached"], None),
             "largest_changes": _records(content.rounding["largest_changes"], "asset"),
         },
         "target_book": _records(content.target_book, "asset"),

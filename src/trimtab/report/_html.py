@@ -34,6 +34,7 @@ from trimtab.report._overlay_section import overlay_html
 from trimtab.report._stress import stress_html
 from trimtab.report._files import atomic_write_text
 from trimtab.report._html_parts import _cell, _e, _figure, _header, _plain, _table
+from trimtab.report._filters import piece
 from trimtab.report._templates import render_cards
 from trimtab.report._relaxation import (
     Unsolved,
@@ -172,14 +173,16 @@ def render_html(subject: Any, *, title: str = "Rebalance risk report", top: int 
 def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *, level: int) -> str:
     h = f"h{level}"
     post, pre = content.post, content.pre
-    parts = [_run_line(content) + desk.context_section(context_lines(content)), desk.desk_cards(content.figures) + _key_figures(content)]
+    parts = [_run_line(content) + desk.context_section(context_lines(content)) + desk.verdict_section(content),
+             desk.desk_cards(content.figures, content.rounding) + _key_figures(content)]
     if content.is_rebalance:
         parts.append(desk.warnings_section(content.warnings, h, f"{key}-warnings"))
     if content.figures is not None:
         parts.append(f"<{h}>What the trades do</{h}>" + desk.figures_table(content.figures))
     if content.orders is not None and len(content.orders):
         parts.append(f'<{h} id="{key}-orders">Trade list</{h}>'
-                     + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades))
+                     + desk.orders_section(content.orders, content.orders_in_shares, rounding_lines(content), max_trades,
+                                           fit=content.rounding is None or content.rounding.get("fit_to_send", True)))
     parts.append(f"<{h}>Risk figures</{h}>" + _headline_table(content))
     if content.alpha_source is not None:
         parts.append(alpha_html(content.alpha_source, h, key))
@@ -383,12 +386,13 @@ def _key_figures(content: ReportContent) -> str:
         if key not in headline.index:
             continue
         row = headline.loc[key]
-        was = f"before {format_figure(row['pre'], row['unit'])}" if "pre" in headline.columns else ""
-        cards.append({"key": key, "label": str(row["label"]), "value": format_figure(row["post"], row["unit"]), "note": was})
+        was = ["before ", piece(row["pre"], "figure", row["unit"])] if "pre" in headline.columns else ""
+        cards.append({"key": key, "label": str(row["label"]), "value": row["post"], "format": ["figure", row["unit"]],
+                      "note": was})
     if content.risk_budget is not None:
         budget = content.risk_budget
-        cards.insert(1, {"key": "risk_budget_used", "label": "Risk budget used", "value": format_figure(budget.used, "fraction"),
-                         "note": f"cap {format_figure(budget.cap, 'fraction')}"})
+        cards.insert(1, {"key": "risk_budget_used", "label": "Risk budget used", "value": budget.used,
+                         "format": ["figure", "fraction"], "note": ["cap ", piece(budget.cap, "figure", "fraction")]})
     note = ""
     if content.post.is_zero_risk:
         note = '<p class="note">The portfolio has zero risk: contributions are undefined and shown as n/a.</p>'

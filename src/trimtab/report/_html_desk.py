@@ -10,12 +10,13 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from trimtab.attribution import format_figure
 from trimtab.report._content import change_text, display_unit, settings_rows
+from trimtab.report._desk import cents, verdict_lines
 from trimtab.report._html_parts import _e
+from trimtab.report._filters import piece
 from trimtab.report._templates import render_cards, render_trades
 
 #: Desk figures shown as cards at the top of a rebalance report, in order.
@@ -41,22 +42,43 @@ def warnings_section(warnings: Sequence[Mapping[str, Any]], heading: str = "h2",
     return f'<{heading} id="{anchor}">Warnings ({len(warnings)})</{heading}><ul class="warnings">{items}</ul>'
 
 
-def desk_cards(figures: pd.DataFrame | None) -> str:
-    """Headline cards: expected alpha, information ratio, tracking error, turnover, cost, names bought
-    and sold, each after the trades with its value before (the headline partial the explore page uses)."""
-    if figures is None:
+def cash_card(rounding: Mapping[str, Any] | None) -> list[dict[str, str]]:
+    """The headline card of the cash after trades and costs (none for a list in weights); its note
+    says when the orders are not fit to send."""
+    if rounding is None:
+        return []
+    note = "NOT FIT TO SEND: a limit breached" if not rounding.get("fit_to_send", True) else f"before {cents(rounding['cash_before'])}"
+    return [{"key": "cash_after_costs", "kind": "desk", "label": "Cash after trades and costs",
+             "value": cents(rounding["cash_after_costs"]), "note": note}]
+
+
+def verdict_section(content: Any) -> str:
+    """A red box naming each limit the rounded book breaches, when the orders are not fit to send."""
+    lines = verdict_lines(content)
+    if not lines:
         return ""
+    items = "".join(f"<li>{_e(line)}</li>" for line in lines[1:])
+    return f'<div class="notfit"><p><strong>{_e(lines[0])}</strong></p><ul>{items}</ul></div>'
+
+
+def desk_cards(figures: pd.DataFrame | None, rounding: Mapping[str, Any] | None = None) -> str:
+    """Headline cards: expected alpha, information ratio, tracking error, turnover, cost, names bought
+    and sold, each after the trades with its value before, then the cash after trades and costs (the
+    headline partial the explore page uses)."""
+    if figures is None:
+        return render_cards(cash_card(rounding)) if rounding is not None else ""
     cards = []
     for key in DESK_CARDS:
         if key not in figures.index or pd.isna(figures.loc[key, "post"]):
             continue
         row = figures.loc[key]
         unit = display_unit(key, str(row["unit"]))
-        was = ""
+        was: list[Any] = []
         if pd.notna(row.get("pre")) and key not in ("turnover", "cost", "names_bought", "names_sold"):
-            was = f"before {format_figure(row['pre'], unit)} ({change_text(row['change'], unit)})"
+            was = ["before ", piece(row["pre"], "figure", unit), " (", piece(row["change"], "change", unit), ")"]
         cards.append({"key": str(key), "kind": "desk", "label": str(row["label"]),
-                      "value": format_figure(row["post"], unit), "note": was})
+                      "value": row["post"], "format": ["figure", unit], "note": was})
+    cards.extend(cash_card(rounding))
     return render_cards(cards) if cards else ""
 
 
@@ -97,23 +119,25 @@ def order_columns(orders: pd.DataFrame, in_shares: bool) -> list[tuple[str, str,
     return [(c, h, u) for c, h, u in candidates if c in orders.columns and not orders[c].isna().all()]
 
 
-def table_columns(columns: Sequence[tuple[str, str, str]]) -> list[tuple[str, str, bool]]:
-    """The top-trades partial's columns for an order list: asset, then each column (numeric unless text)."""
-    return [("asset", "Asset", False), *((c, h, u != "text") for c, h, u in columns)]
+def table_columns(columns: Sequence[tuple[str, str, str]]) -> list[tuple[str, str, bool, list[str]]]:
+    """The top-trades partial's columns for an order list: asset, then each column (numeric unless
+    text), printed by the ``order`` filter in its unit."""
+    return [("asset", "Asset", False, []), *((c, h, u != "text", ["order", u]) for c, h, u in columns)]
 
 
-def order_rows(orders: pd.DataFrame, columns: Sequence[tuple[str, str, str]]) -> list[dict[str, str]]:
-    """The orders as rows of formatted text: asset, each column, and side (the row's class)."""
+def order_rows(orders: pd.DataFrame, columns: Sequence[tuple[str, str, str]]) -> list[dict[str, Any]]:
+    """The orders as rows of values: asset, each column, and side (the row's class)."""
     rows = []
     for asset, row in orders.iterrows():
-        cells = {c: _order_text(row[c], u) for c, _, u in columns}
+        cells = {c: row[c] for c, _, _ in columns}
         rows.append({"asset": str(asset), **cells, "side": str(row.get("side", ""))})
     return rows
 
 
-def orders_section(orders: pd.DataFrame | None, in_shares: bool, rounding_lines: Sequence[str], max_rows: int) -> str:
+def orders_section(orders: pd.DataFrame | None, in_shares: bool, rounding_lines: Sequence[str], max_rows: int,
+                   fit: bool = True) -> str:
     """The largest orders as a desk would send them (the top-trades partial the explore page uses),
-    and what rounding to whole shares moved."""
+    and what rounding to whole shares moved; orders not fit to send are captioned so."""
     if orders is None:
         return ""
     shown = orders.head(max_rows)
@@ -122,26 +146,13 @@ def orders_section(orders: pd.DataFrame | None, in_shares: bool, rounding_lines:
     caption = (
         f"The largest {len(shown)} of {len(orders):,} orders by size, {what}; trades.csv holds every order "
         "and target_book.csv every asset's weight before and after."
+    ) if fit else (
+        f"NOT FIT TO SEND (a limit breached on the rounded book): the largest {len(shown)} of {len(orders):,} orders, "
+        f"{what}, for inspection only; trades_not_fit_to_send.csv holds every one."
     )
     table = render_trades(order_rows(shown, columns), caption=caption, css="orders", columns=table_columns(columns))
     notes = "".join(f'<p class="note">{_e(line)}</p>' for line in rounding_lines)
     return f'<div class="wide">{table}</div>{notes}'
-
-
-def _order_text(value: Any, unit: str) -> str:
-    if unit == "text":
-        return "" if value is None else str(value)
-    if value is None or (isinstance(value, float) and np.isnan(value)):
-        return "n/a"
-    number = float(value)
-    return {
-        "shares": f"{number:,.0f}",
-        "price": f"{number:,.2f}",
-        "amount": f"{number:,.0f}",
-        "bp1": f"{number:.1f}",
-        "pct1": f"{number:.1f}%",
-        "pp": f"{100 * number:+.3f}",
-    }.get(unit) or format_figure(number, unit)
 
 
 def limits_section(checks: pd.DataFrame | None, units: Mapping[str, str] | None = None) -> str:

@@ -97,6 +97,22 @@ def frontier_chart(table: pd.DataFrame, *, x: str = "tracking_error", y: str = "
     return _svg(fig, name)
 
 
+_MIN_SPAN = 0.01  # a y-axis spans at least 0.01 (1 pp on a percent axis), so noise does not fill it
+
+
+def _at_least_span(ax: Any, frames: list[pd.DataFrame], span: float) -> None:
+    """Widen the y-axis around its data to ``span`` when the data barely move.
+
+    A series held at its limit (turnover at a 25% cap) varies in its last digits; autoscaled, that
+    noise fills the chart and every tick prints the same label.
+    """
+    values = np.concatenate([f.to_numpy(dtype=float).ravel() for f in frames])
+    values = values[np.isfinite(values)]
+    if values.size and values.max() - values.min() < span:
+        middle = 0.5 * (values.max() + values.min())
+        ax.set_ylim(middle - span / 2, middle + span / 2)
+
+
 def lines_chart(frame: pd.DataFrame, *, ylabel: str, name: str, percent: bool = True, dashed: pd.DataFrame | None = None) -> str:
     """One line per column against the index (dates); optional dashed companions of the same colour."""
     fig, ax = _figure()
@@ -106,6 +122,7 @@ def lines_chart(frame: pd.DataFrame, *, ylabel: str, name: str, percent: bool = 
         if dashed is not None and column in dashed.columns:
             ax.plot(dashed.index, dashed[column].to_numpy(dtype=float), color=colour, linewidth=1.2, linestyle="--", label=f"{column} (realised)")
     ax.set_ylabel(ylabel)
+    _at_least_span(ax, [frame] if dashed is None else [frame, dashed], _MIN_SPAN)
     if percent:
         _percent(ax)
     ax.grid(alpha=0.3)

@@ -38,6 +38,8 @@ class Unsolved:
     relaxation: pd.DataFrame
     #: the conflict set: key paths of the limits that cannot all hold together
     conflict: tuple[str, ...] = ()
+    #: one sentence per limit of the conflict set: how far it alone must move, or why that is not enough
+    reasons: tuple[str, ...] = ()
 
 
 def is_unsolved(value: Any) -> bool:
@@ -57,7 +59,8 @@ def unsolved(error: InfeasibleError | SolverError) -> Unsolved:
     if sep and head.endswith((".yaml", ".yml")):
         text = rest
     conflict = tuple(getattr(error, "conflict", None) or ())
-    return Unsolved(status=status, message=text, relaxation=table.reset_index(drop=True), conflict=conflict)
+    reasons = tuple(getattr(error, "reasons", None) or ())
+    return Unsolved(status=status, message=text, relaxation=table.reset_index(drop=True), conflict=conflict, reasons=reasons)
 
 
 def conflict_sentence(failure: Unsolved | InfeasibleError) -> str:
@@ -65,7 +68,9 @@ def conflict_sentence(failure: Unsolved | InfeasibleError) -> str:
     conflict = failure.conflict if isinstance(failure, Unsolved) else tuple(getattr(failure, "conflict", None) or ())
     if not conflict:
         return "The optimizer found no set of conflicting limits for this infeasible scenario."
-    return f"These limits cannot all hold: {compact_limits(conflict)}."
+    reasons = failure.reasons if isinstance(failure, Unsolved) else tuple(getattr(failure, "reasons", None) or ())
+    why = (" " + " ".join(r.rstrip(".") + "." for r in reasons)) if reasons else ""
+    return f"These limits cannot all hold: {compact_limits(conflict)}.{why}"
 
 
 def split_subjects(subjects: Mapping[str, Any]) -> tuple[dict[str, Any], dict[str, Unsolved]]:
@@ -121,6 +126,17 @@ def unit_label(unit: Any) -> str:
     return str(unit)
 
 
+def relaxation_rows(table: pd.DataFrame) -> tuple[list[str], list[dict[str, Any]]]:
+    """The relaxation table's columns shown and its rows as raw values, each with its ``unit`` (the
+    explore page's partial prints them with the ``in_unit``, ``unit_label`` and ``text`` filters, as
+    :func:`display_relaxation` does)."""
+    columns = [c for c in RELAXATION_COLUMNS if c in table.columns]
+    units = table["unit"].tolist() if "unit" in table.columns else [""] * len(table)
+    rows = [{**{c: record[c] for c in columns}, "unit": unit}
+            for record, unit in zip(table.to_dict(orient="records"), units, strict=True)]
+    return columns, rows
+
+
 def display_relaxation(table: pd.DataFrame) -> pd.DataFrame:
     """The relaxation table as text, numbers in each row's unit (for the terminal and HTML)."""
     columns = [c for c in RELAXATION_COLUMNS if c in table.columns]
@@ -164,6 +180,11 @@ def relaxation_sentence(table: pd.DataFrame) -> str:
     more = f"; or one of {len(options) - MAX_NAMED} more options in the table" if len(options) > MAX_NAMED else ""
     if options == ["together"]:
         return f"No single limit is enough; together: {texts[0]}."
+    joint = ""
+    if "together" in options:
+        joint = f"; or all of them together: {_option_text(table[table['option'].astype(str) == 'together'])}"
+        options = [o for o in options if o != "together"]
+        texts = [_option_text(table[table["option"].astype(str) == o]) for o in options[:MAX_NAMED]]
     if len(options) == 1:
-        return f"The smallest way out, every other limit as written: {texts[0]}."
-    return "Any one of these alone restores feasibility, every other limit as written: " + "; or ".join(texts) + more + "."
+        return f"The smallest way out, every other limit as written: {texts[0]}{joint}."
+    return "Any one of these alone restores feasibility, every other limit as written: " + "; or ".join(texts) + more + joint + "."

@@ -15,6 +15,7 @@ from rich.console import Console
 from rich.table import Table
 
 from trimtab._format import format_percent
+from trimtab.report._filters import probability
 
 NOTE = (
     "Return of the book against its benchmark under each shock (negative is a loss), before and after the trade. "
@@ -57,17 +58,17 @@ def stress_html(subject: Any, heading: str, salt: str) -> str:
 
 def stress_table(frame: pd.DataFrame, brief: bool = False) -> dict[str, Any]:
     """Context of ``partials/stress.html.j2``: which return is shown (active, or book without a
-    benchmark), column headings and formatted rows. ``brief`` (the explore page) keeps the shock,
-    before, after, limit and tail probability."""
+    benchmark), column headings and rows of numbers (the template formats them). ``brief`` (the
+    explore page) keeps the shock, before, after, limit and tail probability."""
     column = "active" if frame["post_active"].notna().any() else "book"
     rows = []
     for name, row in frame.iterrows():
         named = isinstance(row["limit_on"], str)
         rows.append({
             "shock": str(name), "source": str(row["source"]),
-            "pre": format_percent(row[f"pre_{column}"]), "post": format_percent(row[f"post_{column}"]),
-            "limit": format_percent(row["limit"]) + (f" ({row['limit_on']})" if named and not brief else ""),
-            "band": format_percent(row["specific_band_active"]), "tail": _probability(row["tail_probability"]),
+            "pre": row[f"pre_{column}"], "post": row[f"post_{column}"],
+            "limit": row["limit"], "limit_on": row["limit_on"] if named and not brief else None,
+            "band": row["specific_band_active"], "tail": row["tail_probability"],
             "description": str(row["description"] or ""),
         })
     return {"column": column, "rows": rows, "brief": brief}
@@ -85,10 +86,5 @@ def print_stress(subject: Any, console: Console) -> None:
     for name, row in frame.iterrows():
         limit = format_percent(row["limit"]) if isinstance(row["limit_on"], str) else ""
         table.add_row(str(name), format_percent(row[f"pre_{column}"]), format_percent(row[f"post_{column}"]), limit,
-                      _probability(row["tail_probability"]))
+                      probability(row["tail_probability"]))
     console.print(table)
-
-
-def _probability(value: float) -> str:
-    """A tail probability to two significant digits; "–" where there is none (a replayed window)."""
-    return f"{value:.2g}" if isinstance(value, (int, float)) and math.isfinite(value) else "–"

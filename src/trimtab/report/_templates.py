@@ -1,9 +1,10 @@
 """The Jinja2 environment of the HTML views (templates shipped in this package, autoescaped), and
 the rows its partials lay out.
 
-Partials under ``templates/partials/`` lay out rows formatted here from the report's tables (top
-trades, binding limits, factor exposures, warnings); the live what-if page (``trimtab explore``)
-renders its sections from them. Numbers are formatted here; the templates escape every value.
+Partials under ``templates/partials/`` lay out rows taken from the report's tables (top trades,
+binding limits, factor exposures, warnings); the live what-if page (``trimtab explore``) renders its
+sections from them. The rows hold numbers; the templates format them with the filters of
+:mod:`trimtab.report._filters` (registered once, in :func:`environment`) and escape every value.
 """
 
 from __future__ import annotations
@@ -17,11 +18,17 @@ import pandas as pd
 
 from jinja2 import Environment, PackageLoader, StrictUndefined
 
+from trimtab.report._filters import bp, num, number, pct, register
+
+__all__ = ["binding_rows", "bp", "environment", "exposure_rows", "num", "number", "pct", "render", "render_cards",
+           "render_trades", "trade_rows", "warning_rows"]
+
 
 @functools.cache
 def environment() -> Environment:
-    """One environment per process: package templates, every value escaped, undefined names an error."""
-    return Environment(
+    """One environment per process, shared by the HTML report and the explore page: package templates,
+    every value escaped, undefined names an error, and the number filters of :mod:`._filters`."""
+    env = Environment(
         loader=PackageLoader("trimtab.report", "templates"),
         autoescape=True,
         undefined=StrictUndefined,
@@ -29,6 +36,8 @@ def environment() -> Environment:
         lstrip_blocks=True,
         keep_trailing_newline=False,
     )
+    register(env)
+    return env
 
 
 def render(name: str, **context: Any) -> str:
@@ -50,51 +59,58 @@ def exposure_rows(table: pd.DataFrame | None) -> list[dict[str, Any]]:
         post = number(row.get("post"))
         rows.append({
             "factor": str(factor), "group": str(row.get("group", "")),
-            "pre": num(pre, 3), "post": num(post, 3), "change": num(number(row.get("change")), 3),
+            "pre": pre, "post": post, "change": number(row.get("change")),
             "pre_bar": _bar(pre, scale), "post_bar": _bar(post, scale),
         })
     return rows
 
 
-def trade_rows(table: pd.DataFrame | None) -> list[dict[str, str]]:
-    """The largest trades: asset, side, weight before and after, trade, and shares when known."""
+def trade_rows(table: pd.DataFrame | None) -> list[dict[str, Any]]:
+    """The largest trades: asset, side, weight before and after, trade, and shares when known
+    (numbers; :data:`TRADE_COLUMNS` says how each is printed)."""
     if table is None or table.empty:
         return []
     rows = []
     for asset, row in table.iterrows():
         trade = number(row.get("trade")) or 0.0
-        shares = number(row.get("shares"))
         rows.append({
             "asset": str(asset), "side": "buy" if trade > 0 else "sell",
-            "before": pct(row.get("initial_weight")), "after": pct(row.get("target_weight")),
-            "trade": pct(trade), "shares": "" if shares is None else f"{shares:,.0f}",
+            "before": row.get("initial_weight"), "after": row.get("target_weight"),
+            "trade": trade, "shares": number(row.get("shares")),
         })
     return rows
 
 
-#: The page's trade columns: key, heading, numeric.
-TRADE_COLUMNS = (("asset", "Asset", False), ("side", "Side", False), ("before", "Before", True),
-                 ("after", "After", True), ("trade", "Trade", True), ("shares", "Shares", True))
+#: The page's trade columns: key, heading, numeric, and the filter that prints the value (:mod:`._filters`).
+TRADE_COLUMNS = (("asset", "Asset", False), ("side", "Side", False), ("before", "Before", True, ["pct"]),
+                 ("after", "After", True, ["pct"]), ("trade", "Trade", True, ["pct"]),
+                 ("shares", "Shares", True, ["count", ""]))
 
 
-def render_trades(rows: list[dict[str, str]], *, caption: str, columns: Any = TRADE_COLUMNS, empty: str | None = None,
+def render_trades(rows: list[dict[str, Any]], *, caption: str, columns: Any = TRADE_COLUMNS, empty: str | None = None,
                   css: str = "trades") -> str:
-    """The top-trades partial: ``columns`` as (key, heading, numeric), ``rows`` of formatted text,
-    ``css`` the table's class."""
-    spec = [{"key": key, "label": label, "numeric": numeric} for key, label, numeric in columns]
+    """The top-trades partial: ``columns`` as (key, heading, numeric[, filter spec]), ``rows`` keyed by
+    column (values printed through the column's filter spec, ``[name, *arguments]``; as they are
+    without one), ``css`` the table's class."""
+    spec = [{"key": key, "label": label, "numeric": numeric, "format": list(rest[0]) if rest else None}
+            for key, label, numeric, *rest in columns]
     context: dict[str, Any] = {"rows": rows, "columns": spec, "caption": caption, "css": css}
     if empty is not None:
         context["empty"] = empty
     return render("partials/top_trades.html.j2", **context)
 
 
-def render_cards(cards: list[dict[str, str]]) -> str:
-    """The headline-cards partial: each card a label, a value and a note (key names the figure)."""
+def render_cards(cards: list[dict[str, Any]]) -> str:
+    """The headline-cards partial: each card a label, a value and a note (key names the figure).
+
+    A card's ``format`` is the filter spec its value is printed with (``["pct", 1]``; none: the value
+    is text); its ``note`` is text or a list of text and :func:`trimtab.report._filters.piece` numbers."""
     return render("partials/headline.html.j2", cards=cards)
 
 
-def binding_rows(table: pd.DataFrame | None) -> list[dict[str, str]]:
-    """Binding limits: name, the value it binds at, how many rows bind and the shadow price."""
+def binding_rows(table: pd.DataFrame | None) -> list[dict[str, Any]]:
+    """Binding limits: name, the value it binds at (with the filter spec for its unit: percent with three
+    decimals for weights and fractions, else four decimals), how many rows bind and the shadow price."""
     if table is None or table.empty:
         return []
     rows = []
@@ -104,9 +120,10 @@ def binding_rows(table: pd.DataFrame | None) -> list[dict[str, str]]:
         asset = row.get("asset")
         rows.append({
             "name": str(row.get("name", "")), "kind": str(row.get("kind", "")),
-            "value": pct(row.get("value"), 3) if unit.startswith("weight") or unit in ("fraction", "annualised volatility") else num(number(row.get("value")), 4),
+            "value": row.get("value"),
+            "value_format": ["pct", 3] if unit.startswith(("weight", "fraction")) or unit == "annualised volatility" else ["num", 4],
             "where": "" if asset is None or (isinstance(asset, float) and math.isnan(asset)) else f"{asset}" + (f" and {int(count) - 1} more" if count and count > 1 else ""),
-            "shadow_price": num(number(row.get("shadow_price")), 4),
+            "shadow_price": row.get("shadow_price"),
         })
     return rows
 
@@ -122,36 +139,6 @@ def warning_rows(result: Any) -> list[dict[str, str]]:
         rows.append({"kind": str(record.get("kind", "note")).replace("_", " "), "message": str(record.get("message", ""))})
     return rows
 
-
-
-# ---------------------------------------------------------------------- formatting
-def pct(value: Any, digits: int = 2) -> str:
-    """A fraction as a percentage (0.0312 → "3.12%"); "–" when missing."""
-    x = number(value)
-    return "–" if x is None else f"{100 * x:.{digits}f}%"
-
-
-def bp(value: Any) -> str:
-    """A fraction in basis points (0.000179 → "1.79 bp"); "–" when missing."""
-    x = number(value)
-    return "–" if x is None else f"{1e4 * x:.2f} bp"
-
-
-def num(value: Any, digits: int = 4) -> str:
-    """A number with ``digits`` decimals (0: whole, with thousands separators); "–" when missing."""
-    x = number(value)
-    if x is None:
-        return "–"
-    return f"{x:,.0f}" if digits == 0 else f"{x:.{digits}f}"
-
-
-def number(value: Any) -> float | None:
-    """A finite float, or None (missing, NaN, infinite or not a number)."""
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        return None
-    return x if math.isfinite(x) else None
 
 
 def _bar(value: float | None, scale: float) -> float:

@@ -25,6 +25,7 @@ from trimtab.report._content import (
     no_bound,
     rounding_lines,
 )
+from trimtab.report._desk import cash_line, verdict_lines
 from trimtab.report._relaxation import Unsolved, conflict_sentence, display_relaxation, relaxation_sentence, split_subjects, unsolved
 
 
@@ -79,6 +80,10 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
         out.print("Rebalance: " + ", ".join(bits))
     for line in context_lines(content):
         out.print(line, markup=False, highlight=False)
+    for line in verdict_lines(content):
+        out.print(line, style="bold red", markup=False, highlight=False)
+    if (cash := cash_line(content)) is not None:
+        out.print(cash, style="bold", markup=False, highlight=False)
     if content.risk_budget is not None:
         budget = content.risk_budget
         out.print(

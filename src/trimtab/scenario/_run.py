@@ -80,12 +80,18 @@ def build(inputs: ScenarioInputs) -> Any:
 
 
 def _file_named(message: str, inputs: ScenarioInputs) -> str:
-    """A message about a rebalance argument (``holdings: …``) under the file the scenario read it from."""
+    """A message about a rebalance argument (``holdings: …``) under the file the scenario read it from;
+    an attribute column named inside a scenario key's message gets its file too."""
     data = inputs.scenario.spec.data
     files = {"holdings": data.holdings, "benchmark": data.benchmark, "alpha": data.alpha, "attributes": data.attributes}
     for name, spec in files.items():
         if spec is not None and message.startswith(f"{name}: "):
             return f"{spec.path}: {message}"
+    if data.attributes is not None:  # a value of a column (not a missing column): name its file
+        import re
+
+        return re.sub(r"attribute column ('[^']*') (must|has)", lambda m: f"{data.attributes.path}: column {m[1]} {m[2]}",  # type: ignore[union-attr]
+                      message, count=1)
     return message
 
 
@@ -110,6 +116,8 @@ def solve(inputs: ScenarioInputs) -> ScenarioRun:
         result = problem.solve()
     except (InfeasibleError, SolverError) as err:
         return ScenarioRun(inputs, error=err)
+    except InputError as err:  # an order input (price, lot, ADV) of an asset the orders use
+        raise type(err)(_file_named(str(err), inputs)) from None
     return ScenarioRun(inputs, result=with_run_context(inputs, result))
 
 

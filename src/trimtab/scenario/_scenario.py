@@ -59,6 +59,8 @@ class Scenario:
             mapping["replay"] = self.spec.replay
         if self.spec.alpha_factor is not None:
             mapping["alpha_factor"] = self.spec.alpha_factor
+        if self.spec.orders is not None:
+            mapping["orders"] = self.spec.orders
         return resolve_shock_files(mapping)
 
     @property

@@ -216,6 +216,9 @@ class ScenarioSpec(_Strict):
     overlay: OverlaySection | None = Field(
         None, description="{instruments: FILE, contracts: FILE, max_gross: G, notional: {name: [lo, hi]}}: hedge instruments sized with the book"
     )
+    orders: dict[str, Any] | None = Field(
+        None, description="min_cash, min_trade_weight, tolerance {weight, exposure, beta, risk}, repair (docs/scenarios.md)"
+    )
     output: OutputSection = Field(default_factory=OutputSection)  # type: ignore[arg-type]
     alerts: AlertsSection = Field(default_factory=AlertsSection)  # type: ignore[arg-type]
     backtest: BacktestSection = Field(default_factory=BacktestSection)  # type: ignore[arg-type]

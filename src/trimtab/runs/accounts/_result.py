@@ -49,6 +49,9 @@ class AccountsResult:
     convergence : pandas.DataFrame
         Per round: price_change (largest move of an impact price, fraction of the price),
         capped (names capped so far), solved.
+    relaxations : pandas.DataFrame
+        For every infeasible account, its relaxation options (the rebalance's relaxation table with
+        an ``account`` column first): which limit to move, and how far, to make it solvable.
     """
 
     summary: pd.DataFrame
@@ -62,6 +65,7 @@ class AccountsResult:
     settings: Mapping[str, Any] = field(default_factory=dict)
     _results: dict[str, Any] = field(default_factory=dict, repr=False)
     _resolve: Callable[[str], Any] | None = field(default=None, repr=False)
+    relaxations: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=["account"]))
 
     def __getitem__(self, name: str) -> Any:
         """The account's own :class:`~trimtab.RebalanceResult` (re-solved here when it ran on workers)."""
@@ -120,7 +124,7 @@ def build_result(
 ) -> AccountsResult:
     """Assemble the tables from the final round's answers."""
     assets = model.assets
-    rows, weights, order_frames, results = [], {}, [], {}
+    rows, weights, order_frames, results, relaxations = [], {}, [], {}, []
     cut = given_up.groupby("account")["given_up_notional"].sum() if len(given_up) else pd.Series(dtype=float)
     for name in order:
         a = answers[name]
@@ -133,6 +137,8 @@ def build_result(
             order_frames.append(_orders(name, w - a["holdings"], a["nav"], prices, a.get("costs"), assets))
             if "result" in a:
                 results[name] = replace(a["result"], _model=model)
+        if a.get("relaxation") is not None:
+            relaxations.append(a["relaxation"].assign(account=name))
         rows.append(row)
     summary = pd.DataFrame(rows, index=pd.Index(order, name="account"), columns=list(SUMMARY_COLUMNS))
     weight_frame = pd.DataFrame(weights, index=assets)
@@ -141,7 +147,15 @@ def build_result(
     blocks = _blocks(orders, assets, adv, cap, capped, pool_price)
     return AccountsResult(summary, weight_frame, orders, blocks, given_up, rounds, converged,
                           pd.DataFrame(convergence).set_index("round") if convergence else pd.DataFrame(),
-                          dict(settings), results, resolve)
+                          dict(settings), results, resolve, relaxations=_relaxations(relaxations))
+
+
+def _relaxations(frames: list[pd.DataFrame]) -> pd.DataFrame:
+    """Every infeasible account's relaxation options, the account first."""
+    if not frames:
+        return pd.DataFrame(columns=["account"])
+    table = pd.concat(frames, ignore_index=True)
+    return table[["account", *[c for c in table.columns if c != "account"]]]
 
 
 def _orders(name: str, trade: np.ndarray, nav: float, prices: np.ndarray | None, costs: np.ndarray | None,

@@ -152,8 +152,12 @@ def solve_account(shared: SharedInputs, account: Account, pool_price: np.ndarray
         if result is not None:
             answer["result"] = replace(result, _model=None, _attributes=None)
     except InfeasibleError as err:
-        answer.update(status=STATUS_INFEASIBLE, reason=_account_words(_first_line(err)),
-                      conflict=[_account_words(p) for p in (err.conflict or [])])
+        reason = (_account_words(_first_line(err))  # the table it points to is the account's rows in relaxations
+                  .replace("(see the relaxation table)", "(see the account's rows in relaxations.csv)")
+                  .replace("the relaxation table shows", "the account's rows in relaxations.csv show"))
+        answer.update(status=STATUS_INFEASIBLE, reason=reason,
+                      conflict=[_account_words(p) for p in (err.conflict or [])],
+                      relaxation=_account_relaxation(err.relaxation))
     except SolverError as err:
         answer.update(status=STATUS_SOLVER, reason=_first_line(err), conflict=None)
     except TrimtabError as err:
@@ -210,6 +214,16 @@ def _figures(problem: Any, w: np.ndarray) -> dict[str, Any]:
         # cash after the trades settle, before their estimated costs (currency)
         "cash_after": float(data.nav) * (1.0 - float(w.sum())),
     }
+
+
+def _account_relaxation(table: Any) -> pd.DataFrame | None:
+    """The account's relaxation table, its limit names in the account's words (None when there is none)."""
+    if not isinstance(table, pd.DataFrame) or table.empty:
+        return None
+    table = table.copy()
+    if "constraint" in table.columns:
+        table["constraint"] = table["constraint"].map(lambda v: _account_words(v) if isinstance(v, str) else v)
+    return table
 
 
 def _account_words(text: str) -> str:

@@ -34,7 +34,8 @@ def file_stem(name: str) -> str:
 def write_accounts(result: AccountsResult, target: str | Path, *, inputs: Sequence[str | Path] = (),
                    title: str = "Accounts") -> list[str]:
     """summary.csv, orders.csv, orders/<account>.csv, blocks.csv, given_up.csv, weights.csv,
-    convergence.csv, result.json and report.html into ``target``; returns the files written."""
+    convergence.csv, relaxations.csv (when an account is infeasible), result.json and report.html into
+    ``target``; returns the files written."""
     from trimtab._output import output_folder
 
     files: list[str] = []
@@ -44,6 +45,9 @@ def write_accounts(result: AccountsResult, target: str | Path, *, inputs: Sequen
         for name, table in tables.items():
             table.to_csv(tmp / f"{name}.csv")
             files.append(f"{name}.csv")
+        if len(result.relaxations):
+            result.relaxations.to_csv(tmp / "relaxations.csv", index=False)
+            files.append("relaxations.csv")
         result.orders.to_csv(tmp / "orders.csv", index=False)
         files.append("orders.csv")
         (tmp / "orders").mkdir()
