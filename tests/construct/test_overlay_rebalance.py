@@ -127,8 +127,10 @@ def test_exposure_bounds_read_the_hedged_book(model, book):
 def test_overlay_is_exempt_from_budget_and_long_only(model, book):
     w0, b = book
     result = trimtab.rebalance(model, SCENARIO, holdings=w0, benchmark=b, overlay={"instruments": baskets(model)})
-    assert result.weights.sum() == pytest.approx(1.0, abs=1e-8)
-    assert (result.weights >= -1e-9).all()
+    # the cash rows read w alone, within the verification's tolerance (ABS_TOL = 1e-7, docs/construction.md)
+    assert result.weights.sum() == pytest.approx(1.0, abs=1e-7)
+    assert (result.weights >= -1e-7).all()
+    assert abs(result.overlay.notional.sum()) > 1e-3  # while the overlay is outside the budget
     assert (result.overlay.notional < 0).any()  # a short hedge
 
 
