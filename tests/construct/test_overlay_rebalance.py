@@ -170,3 +170,16 @@ def test_relaxation_measures_the_hedged_book(model, book):
     assert solved.overlay.figures["hedged"]["tracking_error"] <= needed * (1 + 1e-4) * (1 + 1e-6)
     with pytest.raises(trimtab.InfeasibleError):
         trimtab.rebalance(model, scenario(needed * (1 - 1e-3)), holdings=w0, benchmark=b, overlay=overlay)
+
+
+def test_notional_bounds_and_gross_cap_hold_and_are_rows_of_the_table(model, book):
+    w0, b = book
+    overlay = {"instruments": baskets(model), "max_gross": 0.04, "notional": {"index": [-0.01, 0.0]}}
+    result = trimtab.rebalance(model, SCENARIO, holdings=w0, benchmark=b, overlay=overlay)
+    h = result.overlay.notional
+    assert -0.01 - 1e-7 <= h["index"] <= 1e-7
+    assert h.abs().sum() <= 0.04 + 1e-7
+    names = set(result.constraints["name"])
+    assert {"overlay.max_gross", "overlay.notional[index]"} <= names
+    checked = result.verification.set_index("name")
+    assert checked.loc["overlay.max_gross", "ok"] and checked.loc["overlay.max_gross", "value"] == pytest.approx(h.abs().sum())
