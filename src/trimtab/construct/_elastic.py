@@ -17,6 +17,7 @@ fraction of ADV the scenario sets (``max_adv_fraction``) asset by asset.
 
 from __future__ import annotations
 
+import contextlib
 from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
@@ -61,7 +62,10 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
     Returns without raising when the limits turn out to be satisfiable together (the solver's
     infeasibility was numerical).
     """
-    with _diagnosis_memo.remembering():  # answers one solve implies are not solved for again
+    # answers one solve implies are not solved for again; not with a hedge overlay, whose points are
+    # (w, h) pairs: a remembered w would be judged with another solve's notionals
+    memory = contextlib.nullcontext() if getattr(problem, "hedge", None) is not None else _diagnosis_memo.remembering()
+    with memory:
         conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
         if conflict is None:
             return
