@@ -30,6 +30,7 @@ TRADE_TOLERANCE = 1e-8
 def page_view(variant: Variant) -> dict[str, Any]:
     """The page's payload for one variant: status, figures, HTML sections and timing."""
     from trimtab.report import gather
+    from trimtab.report._overlay_section import overlay_page_html
     from trimtab.report._relaxation import RELAXATION_NUMBERS, relaxation_rows, relaxation_sentence, unsolved
     from trimtab.report._templates import render
 
@@ -57,6 +58,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
             "warnings": render("partials/warnings.html.j2", rows=warning_rows(variant.result)),
             "stress": _stress(content),
+            "overlay": overlay_page_html(variant.result),
         }
     seconds = dict(variant.seconds)
     seconds["render"] = time.perf_counter() - started

@@ -35,6 +35,7 @@ from trimtab._format import compact_limits
 from trimtab.construct import _diagnosis_ipm, _diagnosis_memo, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._cvxpy import cp
+from trimtab.construct._overlay import take_notionals
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 
@@ -213,6 +214,7 @@ def _feasible(problem: RebalanceProblem, hard: list[Rows], solvers: Sequence[str
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         status = _solve.run(cvx, solver, settings).status
         if status in (cp.OPTIMAL, cp.OPTIMAL_INACCURATE):
+            take_notionals(problem, variables)
             if variables.w.value is not None and _diagnosis_ipm.holds(hard, np.asarray(variables.w.value, dtype=np.float64)):
                 _diagnosis_memo.point(np.asarray(variables.w.value, dtype=np.float64))
                 return True
@@ -241,6 +243,7 @@ def elastic_feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: S
         attempt = _solve.run(cvx, solver, settings)
         if attempt.status != cp.OPTIMAL or variables.w.value is None:
             continue
+        take_notionals(problem, variables)
         weights = np.asarray(variables.w.value, dtype=np.float64)
         if _diagnosis_ipm.holds(rows, weights):
             return True

@@ -17,6 +17,7 @@ fraction of ADV the scenario sets (``max_adv_fraction``) asset by asset.
 
 from __future__ import annotations
 
+import contextlib
 from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
@@ -39,6 +40,7 @@ from trimtab.construct._conflict import (
     penalty,
 )
 from trimtab.construct._cvxpy import cp
+from trimtab.construct._overlay import take_notionals
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 from trimtab.errors import InfeasibleError
@@ -60,7 +62,10 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
     Returns without raising when the limits turn out to be satisfiable together (the solver's
     infeasibility was numerical).
     """
-    with _diagnosis_memo.remembering():  # answers one solve implies are not solved for again
+    # answers one solve implies are not solved for again; not with a hedge overlay, whose points are
+    # (w, h) pairs: a remembered w would be judged with another solve's notionals
+    memory = contextlib.nullcontext() if getattr(problem, "hedge", None) is not None else _diagnosis_memo.remembering()
+    with memory:
         conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
         if conflict is None:
             return
@@ -133,6 +138,7 @@ def _elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: 
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         attempt = _solve.run(cvx, solver, settings)
         if attempt.status == cp.OPTIMAL and variables.w.value is not None:
+            take_notionals(problem, variables)
             return np.asarray(variables.w.value, dtype=np.float64)
         if attempt.status in _solve.INFEASIBLE:
             return None

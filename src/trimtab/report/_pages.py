@@ -259,7 +259,8 @@ def write_page(path: str | Path, title: str, sections: Sequence[tuple[str, str]]
 # Output folders
 # ---------------------------------------------------------------------------------------------
 _PERCENT = ("tracking_error", "total_risk", "turnover", "expected_alpha", "limit", "forecast_te", "realised_te",
-            "mean_forecast_te", "active_return", "net_active_return", "total_cost", "mean_turnover")
+            "mean_forecast_te", "active_return", "net_active_return", "total_cost", "mean_turnover",
+            "hedged_tracking_error", "hedged_total_risk", "overlay_gross")
 
 
 def _write_tables(folder: Path, tables: Mapping[str, pd.DataFrame | None]) -> None:
