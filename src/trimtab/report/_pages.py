@@ -177,7 +177,10 @@ def _cell(value: Any, column: str, percent_columns: Sequence[str]) -> str:
     if isinstance(value, (float, np.floating)):
         if not np.isfinite(value):
             return "–"
-        return f"{100 * value:.2f}%" if column in percent_columns else f"{value:.4g}"
+        if column in percent_columns:
+            return f"{100 * value:.2f}%"
+        # shares, ADV and currency amounts print whole with separators (21,000), not as 2.1e+04
+        return f"{value:,.0f}" if abs(value) >= 1e4 else f"{value:.4g}"
     return html.escape(str(value))
 
 
