@@ -8,7 +8,9 @@ after a first run of each (imports, cvxpy's first compile), so the ratio is take
 load. The infeasible run is timed twice: on the default path (FACTOR_IPM, then the diagnosis with
 its feasibility tests and one-limit relaxations in factor form) and on the cvxpy/Clarabel path
 (``solvers=["CLARABEL"]``: the diagnosis as it ran before #21, apart from the FACTOR_IPM attempt).
-Both must name the same conflict set, which is printed. The issue's figures (measured before #21,
+Both must name the same conflict set, which is printed. Beside the wall-clock ratio: the ratio of
+this process's CPU seconds (steadier on shared cores) and FACTOR_IPM's iterations in each run
+(noise-free: the infeasible run's diagnosis makes several solves). The issue's figures (measured before #21,
 2 shared cores, load under 1.1) are printed beside them. Asserts nothing but the equal conflict sets.
 
 Funds: the demo (1,500 stocks, 15 factors, scenarios/base.yaml and infeasible.yaml: TE cap 0.5%,
@@ -32,7 +34,7 @@ from typing import Any
 sys.path.insert(0, os.path.dirname(__file__))
 from _instances import speed_instance  # noqa: E402
 
-from trimtab.construct import rebalance  # noqa: E402
+from trimtab.construct import _ipm, rebalance  # noqa: E402
 from trimtab.errors import InfeasibleError  # noqa: E402
 
 #: issue #21's table: (infeasible s, feasible s, ratio) before #21
@@ -70,14 +72,31 @@ def speed_cases(n: int, k: int) -> tuple[Callable[..., Any], Callable[..., Any]]
     return case(0.02), case(0.002 if n < 5000 else 0.0002)
 
 
-def timed(run: Callable[[], Any]) -> tuple[float, list[str] | None]:
-    start = time.perf_counter()
+#: FACTOR_IPM iterations of the run being timed (counted by a wrapper around _ipm.solve)
+ITERATIONS = [0]
+
+
+def _counting() -> None:
+    original = _ipm.solve
+
+    def counted(qp: Any, **kwargs: Any) -> Any:
+        solution = original(qp, **kwargs)
+        ITERATIONS[0] += solution.iterations
+        return solution
+
+    _ipm.solve = counted
+
+
+def timed(run: Callable[[], Any]) -> tuple[float, list[str] | None, float, int]:
+    """Wall seconds, the conflict set (None: solved), CPU seconds of this process, FACTOR_IPM iterations."""
+    ITERATIONS[0] = 0
+    start, cpu = time.perf_counter(), time.process_time()
     try:
         run()
         conflict = None
     except InfeasibleError as err:
         conflict = err.conflict
-    return time.perf_counter() - start, conflict
+    return time.perf_counter() - start, conflict, time.process_time() - cpu, ITERATIONS[0]
 
 
 def main() -> None:
@@ -86,8 +105,10 @@ def main() -> None:
     parser.add_argument("--repeat", type=int, default=3)
     parser.add_argument("--sizes", default="demo,1500x15,5000x50")
     args = parser.parse_args()
-    print("| fund | feasible | infeasible | ratio | cvxpy/Clarabel path | its ratio | before #21 (inf / feas / ratio) | conflict set |")
-    print("|---|---|---|---|---|---|---|---|")
+    _counting()
+    print("| fund | feasible | infeasible | ratio | CPU ratio | FACTOR_IPM iterations (inf / feas) | cvxpy/Clarabel path "
+          "| its ratio | before #21 (inf / feas / ratio) | conflict set |")
+    print("|---|---|---|---|---|---|---|---|---|---|")
     for size in args.sizes.split(","):
         if size == "demo":
             feasible, infeasible = demo_cases(args.quick)
@@ -98,13 +119,18 @@ def main() -> None:
         timed(infeasible)
         timed(lambda: infeasible(["CLARABEL"]))
         times: dict[str, list[float]] = {"feasible": [], "infeasible": [], "clarabel": []}
+        cpu: dict[str, list[float]] = {"feasible": [], "infeasible": []}
+        iterations: dict[str, int] = {}
         conflicts = set()
         for _ in range(args.repeat):
-            times["feasible"].append(timed(feasible)[0])
-            t, conflict = timed(infeasible)
+            t, _, c, iterations["feasible"] = timed(feasible)
+            times["feasible"].append(t)
+            cpu["feasible"].append(c)
+            t, conflict, c, iterations["infeasible"] = timed(infeasible)
             times["infeasible"].append(t)
+            cpu["infeasible"].append(c)
             conflicts.add(tuple(conflict or ()))
-            t, conflict = timed(lambda: infeasible(["CLARABEL"]))
+            t, conflict, _, _ = timed(lambda: infeasible(["CLARABEL"]))
             times["clarabel"].append(t)
             conflicts.add(tuple(conflict or ()))
         assert len(conflicts) == 1, f"the paths name different conflict sets: {conflicts}"
@@ -113,7 +139,10 @@ def main() -> None:
         spread = {key: f"{min(v):.3f}–{max(v):.3f}" for key, v in times.items()}
         before = BEFORE.get(size, ("", "", ""))
         print(f"| {size} | {med['feasible']:.3f} s ({spread['feasible']}) | {med['infeasible']:.3f} s ({spread['infeasible']})"
-              f" | {med['infeasible'] / med['feasible']:.1f}× | {med['clarabel']:.3f} s ({spread['clarabel']})"
+              f" | {med['infeasible'] / med['feasible']:.1f}×"
+              f" | {statistics.median(cpu['infeasible']) / statistics.median(cpu['feasible']):.1f}×"
+              f" | {iterations['infeasible']} / {iterations['feasible']}"
+              f" | {med['clarabel']:.3f} s ({spread['clarabel']})"
               f" | {med['clarabel'] / med['feasible']:.1f}× | {before[0]} / {before[1]} / {before[2]} "
               f"| {', '.join(next(iter(conflicts)))} |", flush=True)
     print(f"\nmedians of {args.repeat} alternating runs (min–max); load average {', '.join(f'{x:.2f}' for x in os.getloadavg())}")

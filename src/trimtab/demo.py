@@ -342,6 +342,21 @@ description: Base, with active size and momentum exposures held at zero
 constraints:
   factor_exposure: {active: true, bounds: {size: [0, 0], momentum: [0, 0]}}
 """,
+    "overlay.yaml": """\
+# As base, with no active market or size exposure, and the demo's hedge instruments (an index future
+# on the benchmark, a small-cap and a value basket) sized in the same problem: the overlay carries
+# the market and size hedge instead of the stock selection. It is exempt from the budget, long-only
+# and the book's position, group, turnover and liquidity limits, and inside the tracking-error,
+# exposure and stress limits (docs/overlay.md, "With the rebalance").
+extends: base.yaml
+description: Base, market and size neutral, hedged by an overlay of the demo instruments
+constraints:
+  factor_exposure: {active: true, bounds: {market: [0, 0], size: [0, 0]}}
+overlay:
+  instruments: data/instruments.csv
+  contracts: data/contracts.csv
+  max_gross: 0.5
+""",
     "low_turnover.yaml": """\
 # As base, but trading at most 10% of the fund one way: what does a lighter touch give up?
 extends: base.yaml

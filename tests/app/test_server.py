@@ -97,7 +97,7 @@ def test_the_page_solve_shows_the_relaxation_not_an_error(client: TestClient) ->
     assert '<ul class="reasons">' in view["html"]["relaxation"] and "constraints.tracking_error.max: " in view["html"]["relaxation"]
     solved = client.post("/page/solve", json={"limits": {"tracking_error.max": 0.02}}).json()
     assert solved["figures"]["tracking_error"] == pytest.approx(0.02, abs=1e-4)  # the rounded book, costs paid from cash: within the risk rounding tolerance (#19)
-    assert set(solved["html"]) == {"verdict", "headline", "exposures", "trades", "binding", "warnings", "stress"}
+    assert set(solved["html"]) == {"verdict", "headline", "exposures", "trades", "binding", "warnings", "stress", "overlay"}
     assert solved["status"] == "solved" and solved["html"]["verdict"] == "" and solved["breached"] == []
     assert solved["seconds"]["solve"] > 0 and solved["seconds"]["render"] > 0
 

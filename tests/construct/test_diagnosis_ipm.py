@@ -130,3 +130,37 @@ def test_feasibility_tests_in_factor_form_answer_both_ways() -> None:
     # a scenario without FACTOR_IPM in its order is left to the cvxpy path
     clarabel = build_problem(fund.model, problem.spec, solvers=["CLARABEL"], **fund.kwargs())
     assert _diagnosis_ipm.feasible(clarabel, rows) is None
+
+
+@pytest.mark.parametrize("objective", [{"minimize": "active_risk"},
+                                       {"maximize": "utility", "risk_aversion": 2, "costs": {"spread": "spread"}}],
+                         ids=["min-active-risk", "utility"])
+def test_what_the_diagnosis_remembers_changes_no_answer(monkeypatch, objective: dict) -> None:
+    """The diagnosis' memory (_diagnosis_memo: remembered points, infeasible row sets, one-limit
+    elastic optima, nearest-point starts) only saves solves: with it switched off (each question
+    solved afresh, as before it existed) every case names the same conflict set and relaxations,
+    and over all cases the diagnosis takes fewer FACTOR_IPM iterations with it."""
+    import contextlib
+
+    from trimtab.construct import _diagnosis_memo, _ipm
+
+    original = _ipm.solve
+    iterations = [0]
+
+    def counted(qp, **kwargs):
+        solution = original(qp, **kwargs)
+        iterations[0] += solution.iterations
+        return solution
+
+    monkeypatch.setattr(_ipm, "solve", counted)
+    runs = [(fund, {"objective": objective, "constraints": constraints})
+            for fund, constraints in (make() for make in CASES.values())]
+    remembered = [_diagnosis(f.model, s, f.kwargs(), None) for f, s in runs]
+    with_memory, iterations[0] = iterations[0], 0
+    with monkeypatch.context() as m:
+        m.setattr(_diagnosis_memo, "remembering", contextlib.nullcontext)
+        afresh = [_diagnosis(f.model, s, f.kwargs(), None) for f, s in runs]
+    assert _diagnosis_memo.current() is None
+    for new, old in zip(remembered, afresh):
+        assert_same_diagnosis(new, old)
+    assert with_memory < iterations[0]

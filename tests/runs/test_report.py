@@ -93,3 +93,13 @@ def test_page_and_table_escape_text() -> None:
     page = render_page("T & U", [("S", table)])
     html5lib.HTMLParser(strict=True).parse(page)
     assert "<title>T &amp; U</title>" in page
+
+
+def test_page_tables_print_large_amounts_whole_not_in_e_notation() -> None:
+    # an ADV of 21,035 shares read "2.1e+04" in the accounts overview's blocks table
+    from trimtab.report._pages import html_table
+
+    frame = pd.DataFrame({"adv": [21034.6], "gross": [1050.0], "impact": [0.012345]}, index=pd.Index(["HUJY"], name="asset"))
+    text = html_table(frame)
+    assert "21,035" in text and "1050" in text and "0.01235" in text
+    assert "e+0" not in text

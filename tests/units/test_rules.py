@@ -85,13 +85,15 @@ def test_alpha_spread() -> None:
     [
         ([0.6, 0.4], None),
         ([0.5, 0.3], None),  # 20% cash
+        ([0.6, 0.4000005], None),  # fully invested to a solver's tolerance, not a unit slip
+        ([0.6, 0.402], r"holdings weights sum to 1\.002, more than the whole NAV \(1\)"),
         ([1.3, -0.3], None),  # 130/30
         ([1.0, -1.0], None),  # market neutral, gross 2
         ([0.6, 0.6], r"holdings weights sum to 1\.2, more than the whole NAV \(1\)"),
         ([60.0, 37.0], r"sum to 97, .*these look like percent$"),
         ([2.0, -1.5], r"gross Σ\|w\| 3\.5, above the 3 a book may hold"),
     ],
-    ids=["full", "cash", "130-30", "neutral", "over-1", "percent", "gross-3.5"],
+    ids=["full", "cash", "solver-tolerance", "over-0.2pct", "130-30", "neutral", "over-1", "percent", "gross-3.5"],
 )
 def test_one_book_rule(weights: list[float], message: str | None) -> None:
     if message is None:

@@ -37,6 +37,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
     rounded orders breach (``breached``: name, kind, value, lower, upper, tolerance, excess; empty
     unless the status is ``orders not fit to send``)."""
     from trimtab.report import gather
+    from trimtab.report._overlay_section import overlay_page_html
     from trimtab.report._relaxation import RELAXATION_NUMBERS, relaxation_rows, relaxation_sentence, unsolved
     from trimtab.report._templates import render
 
@@ -67,6 +68,7 @@ def page_view(variant: Variant) -> dict[str, Any]:
             "binding": render("partials/binding.html.j2", rows=binding_rows(content.binding_constraints)),
             "warnings": render("partials/warnings.html.j2", rows=warning_rows(variant.result)),
             "stress": _stress(content),
+            "overlay": overlay_page_html(variant.result),
         }
     seconds = dict(variant.seconds)
     seconds["render"] = time.perf_counter() - started

@@ -304,7 +304,8 @@ def _say(text: str, chatty: bool) -> None:
 
 
 #: Table columns that are fractions of NAV or annualised fractions, shown as percentages.
-_PERCENT_COLUMNS = ("tracking_error", "turnover", "expected_alpha", "tracking_error.max", "turnover.max", "limit")
+_PERCENT_COLUMNS = ("tracking_error", "turnover", "expected_alpha", "tracking_error.max", "turnover.max", "limit",
+                    "hedged_tracking_error", "overlay_gross")
 
 
 def _say_table(frame: pd.DataFrame, title: str, chatty: bool) -> None:

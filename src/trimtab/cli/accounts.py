@@ -56,9 +56,11 @@ def accounts_command(
     from trimtab.scenario._accounts import read_accounts
     from trimtab.runs.accounts._writer import write_accounts
     from trimtab.scenario import load_inputs, load_scenario
+    from trimtab.scenario._instruments import refuse_overlay
 
     as_json, quiet = _flags(ctx, json_output, quiet)
     loaded = load_scenario(scenario)
+    refuse_overlay(loaded, "accounts")
     inputs = load_inputs(loaded)
     mapping = inputs.scenario.rebalance_mapping()
     from trimtab.construct import validate_scenario

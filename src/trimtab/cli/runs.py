@@ -159,7 +159,8 @@ def sweep_command(
         _emit({"scenario": inputs.scenario.name, "output": str(target), "parameters": result.parameters, "table": result.table})
     _say(result.summary(), not (as_json or quiet))
     if not (as_json or quiet):
-        columns = [*result.parameters, "status", "tracking_error", "turnover", "expected_alpha"]
+        hedged = [c for c in ("hedged_tracking_error", "overlay_gross") if c in result.table.columns]  # an overlay
+        columns = [*result.parameters, "status", "tracking_error", *hedged, "turnover", "expected_alpha"]
         _say_table(result.table[columns].reset_index(drop=True), "Sweep points", True)
         _say(f"Wrote the table and report to {target}", True)
     _report_failures(result.table)
@@ -189,11 +190,13 @@ def frontier_command(
     """
     from trimtab.report._pages import write_frontier
     from trimtab.runs._frontier import frontier
+    from trimtab.scenario._instruments import refuse_overlay
 
     as_json, quiet = _flags(ctx, json_output, quiet)
     te = _check_floats(parse_values(tracking_error, "--te"), "--te") if tracking_error else None
     caps = _check_floats(parse_values(turnover, "--turnover"), "--turnover") if turnover else None
     inputs = _load(scenario)
+    refuse_overlay(inputs.scenario, "frontier")
     kwargs = inputs.rebalance_kwargs()
     if kwargs.get("alpha") is None:
         raise InputError(f"{scenario}: data.alpha: the frontier needs an alpha file (expected return is αᵀ(w − b))")
@@ -247,11 +250,14 @@ def backtest_command(
     from trimtab.runs._backtest import backtest, fit_settings_mapping
     from trimtab.report._pages import write_backtest
     from trimtab.scenario import load_fit_config, load_inputs, load_returns, load_scenario
+    from trimtab.scenario._instruments import refuse_overlay
     from trimtab.scenario._run import variant_limits
     from trimtab.scenario._schema import FitSettings, ReturnsFile
 
     as_json, quiet = _flags(ctx, json_output, quiet)
     loaded = [load_scenario(s) for s in scenarios]
+    for each in loaded:
+        refuse_overlay(each, "backtest")
     names = [s.name for s in loaded]
     if len(set(names)) != len(names):
         dup = sorted({n for n in names if names.count(n) > 1})

@@ -32,9 +32,10 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from trimtab._format import compact_limits
-from trimtab.construct import _diagnosis_ipm, _solve
+from trimtab.construct import _diagnosis_ipm, _diagnosis_memo, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._cvxpy import cp
+from trimtab.construct._overlay import take_notionals
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 
@@ -186,6 +187,19 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[
     """Whether the rows hold together (True/False), or None when neither the solvers nor the elastic
     measure could tell (see the module notes)."""
     hard = [r for r in rows if np.isfinite(r.lower).any() or np.isfinite(r.upper).any()]
+    memo = _diagnosis_memo.current()
+    if memo is not None:
+        known = memo.answer(hard)  # implied by an earlier solve of this diagnosis
+        if known is not None:
+            return known
+    answer = _feasible(problem, hard, solvers)
+    if memo is not None:
+        memo.learn(hard, answer)
+    return answer
+
+
+def _feasible(problem: RebalanceProblem, hard: list[Rows], solvers: Sequence[str]) -> bool | None:
+    """:func:`feasible` by solving: FACTOR_IPM first, then the cvxpy solvers, then the elastic measure."""
     answer = _diagnosis_ipm.feasible(problem, hard)  # FACTOR_IPM first, when in the solver order
     if answer is not None:
         return answer
@@ -200,7 +214,9 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: Sequence[
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         status = _solve.run(cvx, solver, settings).status
         if status in (cp.OPTIMAL, cp.OPTIMAL_INACCURATE):
+            take_notionals(problem, variables)
             if variables.w.value is not None and _diagnosis_ipm.holds(hard, np.asarray(variables.w.value, dtype=np.float64)):
+                _diagnosis_memo.point(np.asarray(variables.w.value, dtype=np.float64))
                 return True
             continue  # a point beyond the limits proves nothing
         if status in _solve.INFEASIBLE:
@@ -227,6 +243,7 @@ def elastic_feasible(problem: RebalanceProblem, rows: Sequence[Rows], solvers: S
         attempt = _solve.run(cvx, solver, settings)
         if attempt.status != cp.OPTIMAL or variables.w.value is None:
             continue
+        take_notionals(problem, variables)
         weights = np.asarray(variables.w.value, dtype=np.float64)
         if _diagnosis_ipm.holds(rows, weights):
             return True

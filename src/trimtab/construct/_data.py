@@ -49,6 +49,8 @@ class ProblemData:
     nav : float or None
     sold_outside : pandas.Series
         Holdings of assets the model does not know, sold under the ``zero`` policy.
+    overlay : Overlay or None
+        Basket instruments sized jointly with the book (:mod:`trimtab.construct._overlay`).
     """
 
     model: FactorModel
@@ -58,6 +60,8 @@ class ProblemData:
     attributes: pd.DataFrame | None
     nav: float | None
     sold_outside: pd.Series
+    #: a hedge overlay of basket instruments (construct/_overlay.py), or None
+    overlay: Any = None
 
     @property
     def assets(self) -> pd.Index:

@@ -23,13 +23,14 @@ path otherwise (``None`` or :data:`UNANSWERED` below means: ask cvxpy).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from trimtab.construct import _fast, _ipm
+from trimtab.construct import _diagnosis_memo, _fast, _ipm
+from trimtab.construct._diagnosis_memo import holds
 from trimtab.construct._solve import FACTOR_IPM
 from trimtab.construct.constraints._base import Rows
 
@@ -38,12 +39,6 @@ if TYPE_CHECKING:
 
 #: :func:`extreme` could not answer (the cvxpy path must).
 UNANSWERED = object()
-
-
-def holds(rows: Sequence[Rows], weights: np.ndarray) -> bool:
-    """Every row within its verification tolerance at ``weights``."""
-    return all(bool(np.all(r.breach(np.asarray(r.evaluate(weights), dtype=np.float64)) <= r.tolerance()))
-               for r in rows)
 
 
 def available(problem: RebalanceProblem) -> bool:
@@ -66,9 +61,22 @@ def _least_trading(qp: _ipm.QP) -> _ipm.QP:
     return replace(qp, risk_weight=0.0, alpha=np.zeros(n), cost=np.ones(n), impact=None, trade_regularizer=0.0)
 
 
-def _run(qp: _ipm.QP) -> _ipm.Solution:
+def _run(qp: _ipm.QP, stop: Callable[[np.ndarray], bool] | None = None, warm: _ipm.Warm | None = None) -> _ipm.Solution:
     with _fast._blas_limit():
-        return _ipm.solve(qp)
+        return _ipm.solve(qp, stop=stop, warm=warm)
+
+
+def nearest_point(rows: Sequence[Rows]) -> _ipm.Warm | None:
+    """A primal start at the remembered point of this diagnosis that breaches ``rows`` least
+    (relative to their tolerances; None outside a diagnosis or without points)."""
+    memo = _diagnosis_memo.current()
+    if memo is None or not memo.points:
+        return None
+
+    def excess(w: np.ndarray) -> float:
+        return sum(float(np.sum(r.breach(np.asarray(r.evaluate(w), dtype=np.float64)) / r.tolerance())) for r in rows)
+
+    return _ipm.Warm.from_weights(min(memo.points, key=excess))
 
 
 def feasible(problem: RebalanceProblem, rows: Sequence[Rows]) -> bool | None:
@@ -76,11 +84,23 @@ def feasible(problem: RebalanceProblem, rows: Sequence[Rows]) -> bool | None:
     tr = _translation(problem, rows)
     if not isinstance(tr, _fast.Translation):
         return None if tr is None else False  # empty weight boxes cannot hold
-    sol = _run(_least_trading(tr.qp))
+    memo = _diagnosis_memo.current()
+    known = None if memo is None else memo.answer(rows)
+    if known is not None:
+        return known
+    qp = tr.qp
+    # a feasibility test needs no optimum: the run stops at the first iterate that holds every row
+    sol = _run(_least_trading(qp), stop=lambda x: holds(rows, qp.weights(x)))
     if sol.status == "infeasible":
+        if memo is not None:
+            memo.learn(rows, False)
         return False
     # a point that holds every row answers the question, converged or not
-    return True if holds(rows, tr.qp.weights(sol.x)) else None
+    weights = qp.weights(sol.x)
+    if holds(rows, weights):
+        _diagnosis_memo.point(weights)
+        return True
+    return None
 
 
 def extreme(problem: RebalanceProblem, others: Sequence[Rows], moved: Rows) -> object:
@@ -98,11 +118,12 @@ def extreme(problem: RebalanceProblem, others: Sequence[Rows], moved: Rows) -> o
         sides.append(1.0)  # minimise the value
     if np.isfinite(moved.lower[i]):
         sides.append(-1.0)  # maximise it
+    start = nearest_point(others)  # an elastic optimum of the same limits is usually close
     for sign in sides:
         qp = _objective(problem, tr.qp, moved, i, sign)
         if qp is None:
             return UNANSWERED
-        sol = _run(qp)
+        sol = _run(qp, warm=start)
         if sol.status == "infeasible":
             return None
         weights = tr.qp.weights(sol.x)

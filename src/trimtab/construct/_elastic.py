@@ -17,6 +17,7 @@ fraction of ADV the scenario sets (``max_adv_fraction``) asset by asset.
 
 from __future__ import annotations
 
+import contextlib
 from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
@@ -24,19 +25,22 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _diagnosis_ipm, _elastic_ipm, _solve
+from trimtab.construct import _diagnosis_ipm, _diagnosis_memo, _elastic_ipm, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._conflict import (
     ELASTIC_TOL,
     FEASIBILITY_SETTINGS,
     Conflict,
+    LazySolvers,
     LimitGroup,
     conflict_set,
+    feasible,
     cvxpy_solvers,
     limit_groups,
     penalty,
 )
 from trimtab.construct._cvxpy import cp
+from trimtab.construct._overlay import take_notionals
 from trimtab.construct._variables import Variables
 from trimtab.construct.constraints._base import Rows
 from trimtab.errors import InfeasibleError
@@ -58,10 +62,14 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
     Returns without raising when the limits turn out to be satisfiable together (the solver's
     infeasibility was numerical).
     """
-    conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
-    if conflict is None:
-        return
-    table, moves = relaxation(problem, extra, conflict)
+    # answers one solve implies are not solved for again; not with a hedge overlay, whose points are
+    # (w, h) pairs: a remembered w would be judged with another solve's notionals
+    memory = contextlib.nullcontext() if getattr(problem, "hedge", None) is not None else _diagnosis_memo.remembering()
+    with memory:
+        conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
+        if conflict is None:
+            return
+        table, moves = relaxation(problem, extra, conflict)
     from trimtab.construct._conflict_text import member_sentences
 
     reasons = member_sentences(problem, extra, conflict, table)
@@ -82,6 +90,16 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
 # ---------------------------------------------------------------------------------------------
 def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: Sequence[LimitGroup]) -> np.ndarray | None:
     """The weights minimising the weighted moves of ``movable`` with every other hard limit as written."""
+    memo = _diagnosis_memo.current()
+    if len(movable) == 1 and memo is not None and movable[0].path in memo.single:
+        return memo.single[movable[0].path]  # an earlier elastic optimum moved this limit alone
+    weights = _elastic_weights(problem, extra, movable)
+    _diagnosis_memo.point(weights)
+    return weights
+
+
+def _elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: Sequence[LimitGroup]) -> np.ndarray | None:
+    """:func:`elastic_weights` by solving."""
     if len(movable) == 1 and _diagnosis_ipm.available(problem):
         weights = _extreme(problem, extra, movable[0])
         if weights is not _diagnosis_ipm.UNANSWERED:
@@ -120,6 +138,7 @@ def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: S
     for solver, settings in [(s, FEASIBILITY_SETTINGS.get(s, {})) for s in solvers] + _solve.plan(solvers):
         attempt = _solve.run(cvx, solver, settings)
         if attempt.status == cp.OPTIMAL and variables.w.value is not None:
+            take_notionals(problem, variables)
             return np.asarray(variables.w.value, dtype=np.float64)
         if attempt.status in _solve.INFEASIBLE:
             return None
@@ -164,7 +183,12 @@ def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str
     filter that follows need not visit every group of the scenario. None when it finds nothing."""
     groups = limit_groups(problem, extra)
     enforced: list[LimitGroup] = []
+    memo = _diagnosis_memo.current()
     for _ in range(len(groups)):
+        if len(enforced) > 1 and feasible(problem, [g.restricted() for g in enforced], LazySolvers(problem)) is False:
+            # the hard groups alone cannot hold, so the next elastic problem has no solution: its answer,
+            # from a feasibility test (a Farkas certificate) the deletion filter then asks again for free
+            return [g.path for g in enforced]
         movable = [g for g in groups if g not in enforced]
         weights = elastic_weights(problem, extra, movable) if movable else None
         if weights is None:
@@ -172,8 +196,17 @@ def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str
         moved = [g for g in movable if _moves(problem, g, weights)]
         if not moved:
             return None
+        if len(moved) == 1 and memo is not None and _one_element(moved[0]):
+            memo.single[moved[0].path] = weights  # also the optimum with that group alone movable
         enforced.extend(moved)
     return None
+
+
+def _one_element(group: LimitGroup) -> bool:
+    """The group bounds one number (a cap, one row, one band): its elastic optimum's move is unique.
+    A group of many elements (per-asset caps) has many optimal ways to share a move between them."""
+    rows = group.restricted()
+    return not rows.box and int(np.count_nonzero(np.isfinite(rows.lower) | np.isfinite(rows.upper))) == 1
 
 
 def relaxation(problem: RebalanceProblem, extra: Sequence[Rows], conflict: Conflict) -> tuple[pd.DataFrame, list[dict[str, Any]]]:

@@ -66,6 +66,7 @@ def elastic(problem: RebalanceProblem, rows: Sequence[Rows], movable: Mapping[in
     if tr is None:
         return UNANSWERED
     qp, columns, caps = _with_slacks(tr, movable)
+    # cold: a primal start at an earlier round's optimum (tried) stalled twice at the boundary on 1,500 x 15
     sol = _majorised(qp, caps)
     if sol is None:
         return UNANSWERED

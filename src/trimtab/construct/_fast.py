@@ -93,6 +93,8 @@ def _blas_limit() -> contextlib.AbstractContextManager[object]:
 def unsupported(problem: RebalanceProblem, rows: Sequence[Rows]) -> str | None:
     """Why the problem cannot go to the interior-point method, or None when it can."""
     objective = problem.objective
+    if problem.data.overlay is not None:
+        return "a hedge overlay (its notionals are extra columns; the cvxpy path takes them)"
     if objective.kind not in ("utility", "alpha", "active_risk", "total_risk"):
         return f"objective {objective.kind}"
     for r in rows:

@@ -41,13 +41,25 @@ solution are in :mod:`trimtab.construct._ipm_problem`, the Newton system in
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 
 import numpy as np
 
+from trimtab.construct._ipm_boxes import (
+    FARKAS_DUAL_TOL,
+    FIXED_WIDTH,
+    START_OFFSET,
+    _objective_gradient,
+    _start,
+    box_minimum,
+    fixed_coordinates,
+    implied_upper,
+)
 from trimtab.construct._ipm_newton import _expand, _Newton
 from trimtab.construct._ipm_problem import IMPACT_SMOOTHING, QP, Cap, Solution, Warm, _impact
 
-__all__ = ["IMPACT_SMOOTHING", "QP", "Cap", "Solution", "Warm", "fixed_coordinates", "solve"]
+__all__ = ["FARKAS_DUAL_TOL", "FIXED_WIDTH", "IMPACT_SMOOTHING", "QP", "START_OFFSET", "Cap", "Solution", "Warm",
+           "box_minimum", "fixed_coordinates", "implied_upper", "solve"]
 
 #: Stop when the primal and dual residuals and the duality measure are below these.
 TOL_PRIMAL = 1e-9
@@ -64,12 +76,8 @@ ACCEPT_GAP = 1e-6
 MAX_ITER = 80
 #: Fraction of the distance to the boundary a step may go.
 STEP_FRACTION = 0.995
-#: A box narrower than this (relative to max(1, |lower|)) fixes its variable at the lower bound.
-FIXED_WIDTH = 1e-13
 #: Starting slack of the inequality rows (at least) and starting complementarity MU0/N.
 SLACK_FLOOR = 0.1
-#: The cold start sits START_OFFSET/N inside each box (or half-way, in a narrower box).
-START_OFFSET = 1.0
 MU0 = 0.1
 #: A step shorter than this ends the run (stalled); |x| beyond DIVERGED ends it (unbounded).
 MIN_STEP = 1e-10
@@ -81,8 +89,6 @@ DIVERGED = 1e8
 #: A Farkas bound (see :meth:`_Run.farkas`) above this, in units of the rows with the multipliers
 #: scaled to a largest of 1, certifies that no point of the boxes satisfies the rows and caps.
 FARKAS_TOL = 1e-9
-#: ... with entries of J_hᵀy (y so scaled) this small counted as 0 where a coordinate is unbounded.
-FARKAS_DUAL_TOL = 1e-9
 #: A diverging iterate's direction d certifies an unbounded objective when it stays within the
 #: limits' recession cone and lowers the objective, to this relative accuracy (see _Run.unbounded).
 RECESSION_TOL = 1e-7
@@ -91,6 +97,8 @@ WARM_GAP = 1e-1
 WARM_MU = 1e-1
 #: A cap's slack is reset to −h(x) when −h(x) is at least this fraction of it.
 SLACK_RESET = 0.1
+#: A caller's stop test (see :func:`solve`) is asked only below this primal residual.
+STOP_PRIMAL = 1e-6
 
 
 class _Rows:
@@ -106,11 +114,6 @@ class _Rows:
         self.ineq = np.concatenate([self.factor_only, self.general])
 
 
-def fixed_coordinates(qp: QP) -> np.ndarray:
-    """Coordinates of x whose box is narrower than FIXED_WIDTH: held at their lower bound."""
-    return qp.ub - qp.lb <= FIXED_WIDTH * np.maximum(1.0, np.abs(qp.lb))
-
-
 def _row_columns(qp: QP) -> np.ndarray:
     """The rows' gradients in w-space (N × rows): Awᵀ + B·Ayᵀ (the trade part is ``qp.at``)."""
     return qp.Aw.T + qp.B @ qp.Ay.T
@@ -123,7 +126,8 @@ def _step_to_boundary(v: np.ndarray, dv: np.ndarray) -> float:
     return float(np.min(-v[neg] / dv[neg]))
 
 
-def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False, warm: Warm | None = None) -> Solution:
+def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False, warm: Warm | None = None,
+          stop: Callable[[np.ndarray], bool] | None = None) -> Solution:
     """Minimise the QP of the module docstring; see :class:`Solution`.
 
     The iterate with the smallest residuals (relative to their tolerances) is kept; the run stops
@@ -137,11 +141,12 @@ def solve(qp: QP, *, max_iter: int = MAX_ITER, verbose: bool = False, warm: Warm
     certifying multipliers in the solution (``row_upper``, ``row_lower``, ``cap_duals``). An iterate
     beyond DIVERGED stops it as ``unbounded`` when its direction is a ray along which the objective
     falls without bound (:meth:`_Run.unbounded`; the direction is the solution's x), else as
-    ``diverged``.
+    ``diverged``. ``stop(x)``, asked once the primal residual is below STOP_PRIMAL, ends the run at
+    that iterate as ``stopped`` when it returns True (a feasibility test needs no optimum).
     """
     # overflow or 0/0 near a failing end is caught by the finiteness checks, not by warnings
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
-        return _Run(qp, verbose, warm).run(max_iter)
+        return _Run(qp, verbose, warm).run(max_iter, stop)
 
 
 class _Run:
@@ -192,7 +197,7 @@ class _Run:
             self.warm_start(warm, mu0)
 
     def compatible(self, warm: Warm) -> bool:
-        return (len(warm.x) == len(self.x) and len(warm.z) == len(self.z) and len(warm.nu) == len(self.nu)
+        return (len(warm.x) == len(self.x) and (warm.primal_only or (len(warm.z) == len(self.z) and len(warm.nu) == len(self.nu)))
                 and bool(np.all(np.isfinite(warm.x))))
 
     def warm_start(self, warm: Warm, mu0: float) -> None:
@@ -218,11 +223,14 @@ class _Run:
         self.x = x
         h = self.evaluate()
         ratio = warm.scale / self.scale
-        mu = WARM_MU * mu0
+        mu = mu0 if warm.primal_only else WARM_MU * mu0
         self.s = np.maximum(-h, WARM_GAP * SLACK_FLOOR)
-        self.z = np.maximum(warm.z * ratio, mu / self.s)
         self.gap_l = np.where(self.has_lb, x - qp.lb, 1.0)
         self.gap_u = np.where(self.has_ub, qp.ub - x, 1.0)
+        if warm.primal_only:  # multipliers on the central path at the cold start's complementarity
+            self.z, self.zl, self.zu = mu / self.s, np.where(self.has_lb, mu / self.gap_l, 0.0), np.where(self.has_ub, mu / self.gap_u, 0.0)
+            return
+        self.z = np.maximum(warm.z * ratio, mu / self.s)
         self.zl = np.where(self.has_lb, np.maximum(warm.zl * ratio, mu / self.gap_l), 0.0)
         self.zu = np.where(self.has_ub, np.maximum(warm.zu * ratio, mu / self.gap_u), 0.0)
         self.nu = warm.nu * ratio
@@ -463,7 +471,7 @@ class _Run:
         return step
 
     # ------------------------------------------------------------------ the loop
-    def run(self, max_iter: int) -> Solution:
+    def run(self, max_iter: int, stop: Callable[[np.ndarray], bool] | None = None) -> Solution:
         start = time.perf_counter()
         status = "max_iter"
         best: tuple[float, tuple[np.ndarray, ...], dict[str, float]] | None = None
@@ -486,6 +494,9 @@ class _Run:
                       f"gap {res['gap']:.1e} mu {self.mu:.1e}")
             if merit <= 1.0:
                 status = "optimal"
+                break
+            if stop is not None and res["primal"] <= STOP_PRIMAL and stop(self.x):
+                status = "stopped"
                 break
             if acceptable is None and res["primal"] > TOL_PRIMAL and self.farkas() > FARKAS_TOL:
                 status = "infeasible"
@@ -510,7 +521,7 @@ class _Run:
                 status = "stalled"
                 break
         assert best is not None
-        if status in ("infeasible", "unbounded"):
+        if status in ("infeasible", "unbounded", "stopped"):
             # the last iterate is the certificate: its multipliers (infeasible), its direction (unbounded)
             state = self.state()
         elif status != "optimal" and acceptable is not None:
@@ -539,51 +550,3 @@ class _Run:
             warm=Warm(self.x.copy(), self.s.copy(), self.z.copy(), self.zl.copy(), self.zu.copy(), self.nu.copy(),
                       self.scale, qp.w0.copy()),
         )
-
-
-def implied_upper(qp: QP) -> np.ndarray:
-    """Upper bounds on x that every feasible point keeps: ub, and from a row on trades alone
-    (at·1ᵀ(u + v) + c ≤ hi with at > 0, as a turnover cap) each uⱼ, vⱼ ≤ (hi − c)/at."""
-    ub = qp.ub.copy()
-    only_trades = ~np.any(qp.Aw != 0, axis=1) & ~np.any(qp.Ay != 0, axis=1) & (qp.at > 0) & np.isfinite(qp.hi)
-    for i in np.flatnonzero(only_trades):
-        ub = np.minimum(ub, max((qp.hi[i] - qp.const[i]) / qp.at[i], 0.0))
-    return np.maximum(ub, qp.lb)
-
-
-def box_minimum(base: float, c: np.ndarray, qp: QP, x: np.ndarray, free: np.ndarray,
-                upper: np.ndarray | None = None) -> float:
-    """base + min over lb ≤ x′ ≤ upper of cᵀ(x′ − x) on the free coordinates (see _Run.farkas);
-    ``upper`` defaults to :func:`implied_upper`."""
-    ub = implied_upper(qp) if upper is None else upper
-    # a side without a bound contributes −∞ unless |cⱼ| ≤ FARKAS_DUAL_TOL (then 0)
-    c = np.where(np.abs(c) <= FARKAS_DUAL_TOL, 0.0, c)
-    with np.errstate(invalid="ignore"):
-        down = np.where(c > 0, c * (qp.lb - x), 0.0)
-        up = np.where(c < 0, c * (ub - x), 0.0)
-    bound = base + float(down[free].sum() + up[free].sum())
-    return bound if np.isfinite(bound) else -np.inf
-
-
-def _objective_gradient(qp: QP, x: np.ndarray, sa: np.ndarray | None = None) -> np.ndarray:
-    """∇φ in x-space; ``sa`` is Σ(w − b_o) when the caller has it."""
-    gw = -qp.alpha
-    if qp.risk_weight:
-        risk = qp.sigma(qp.weights(x) - qp.risk_center) if sa is None else sa
-        gw = gw + 2.0 * qp.risk_weight * risk
-    gt = qp.cost
-    if qp.impact is not None:
-        n = qp.n
-        gt = gt + qp.impact * _impact(x[:n] + x[n:])[1]
-    return np.concatenate([gw + gt, -gw + gt])
-
-
-def _start(qp: QP, fixed: np.ndarray) -> np.ndarray:
-    """Strictly inside every box, u and v moved alike (so w starts at the holdings where it can)."""
-    n = qp.n
-    delta = START_OFFSET / max(n, 1)
-    width = qp.ub - qp.lb
-    step = np.where(np.isfinite(width), np.minimum(0.5 * width, delta), delta)
-    x = qp.lb + step
-    x[fixed] = qp.lb[fixed]
-    return x

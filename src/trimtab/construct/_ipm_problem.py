@@ -100,6 +100,16 @@ class Warm:
     scale: float
     #: the holdings of the run's problem: with other holdings the same weights are other trades
     w0: np.ndarray | None = None
+    #: only x is meant (a point of a problem with other rows): the multipliers start as from cold
+    primal_only: bool = False
+
+    @classmethod
+    def from_weights(cls, weights: np.ndarray) -> Warm:
+        """A primal-only start at ``weights`` (re-expressed as trades from the run's holdings)."""
+        w = np.asarray(weights, dtype=np.float64)
+        empty = np.zeros(0)
+        return cls(np.concatenate([w, np.zeros_like(w)]), empty, empty, empty, empty, empty, 1.0,
+                   np.zeros_like(w), primal_only=True)
 
 
 @dataclass(frozen=True, eq=False)

@@ -8,13 +8,15 @@ With a = w − b (active; a = w without a benchmark), σ²ₐ = ppy·aᵀΣa the
 - active_risk: U = −σ²ₐ − κ·C(t)            (κ·C only when costs are named)
 - total_risk:  U = −σ²_w − κ·C(t)
 
-minus Σ penalty·slack for soft constraints. Transaction costs C(t) = Σ (spreadᵢ/2 + commissionᵢ)·|tᵢ|
+minus Σ penalty·slack for soft constraints. With a hedge overlay, a and σ² read the hedged book
+w + X·h (construct/_overlay.py) and the costs the cash book's trades only. Transaction costs C(t) = Σ (spreadᵢ/2 + commissionᵢ)·|tᵢ|
 + Σ impactᵢ·|tᵢ|^{3/2} (fractions of NAV; the impact term is a power cone), with |t| written as
 buy + sell on the trade split.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -75,6 +77,8 @@ class Objective:
         self.risk_aversion = float(spec.objective.get("risk_aversion", 0.0))
         self.cost_aversion = float(spec.objective.get("cost_aversion", 0.0))
         self.rates = cost_rates(spec, data)
+        #: w → the book the alpha and risk terms read: w + X·h with an overlay (set by the problem), else w
+        self.hedge: Callable[[np.ndarray], np.ndarray] = lambda w: w
 
     @property
     def risk_weight(self) -> float:
@@ -91,7 +95,7 @@ class Objective:
         terms: list[Any] = []
         if self.kind in ("utility", "alpha") and np.any(data.alpha):
             held = np.flatnonzero(data.alpha)
-            scored = v.w if len(held) == data.n_assets else v.w[held]
+            scored = v.hedged if len(held) == data.n_assets else v.hedged[held]
             terms.append(data.alpha[held] @ scored - float(data.alpha @ data.bench))
         if self.risk_weight > 0:
             active = self.risk_active
@@ -120,8 +124,9 @@ class Objective:
     def breakdown(self, weights: np.ndarray, penalties: float = 0.0) -> dict[str, float]:
         """alpha, risk_penalty, costs, penalties and total, recomputed with numpy from w."""
         data = self.data
-        alpha = float(data.alpha @ (weights - data.bench)) if self.kind in ("utility", "alpha") else 0.0
-        fv, sv = variance_numpy(data, weights, self.risk_active)
+        hedged = self.hedge(weights)
+        alpha = float(data.alpha @ (hedged - data.bench)) if self.kind in ("utility", "alpha") else 0.0
+        fv, sv = variance_numpy(data, hedged, self.risk_active)
         risk = -self.risk_weight * data.periods_per_year * (fv + sv)
         costs = 0.0
         if self.rates.any and self.cost_aversion > 0:

@@ -33,3 +33,5 @@ class Outcome:
     notes: list[str] = field(default_factory=list)
     #: Solvers passed over because the problem is outside their class, with the reason.
     skipped: list[str] = field(default_factory=list)
+    #: The hedge overlay's notionals h (fractions of NAV), verified with w; None without an overlay.
+    overlay: np.ndarray | None = None

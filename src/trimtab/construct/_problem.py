@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab.construct import _alpha_factor, _elastic, _fast, _heuristics, _passive, _solve
+from trimtab.construct import _alpha_factor, _elastic, _fast, _heuristics, _overlay, _passive, _solve
 from trimtab.construct._assembly import Assembly
 from trimtab.construct._cvxpy import cp
 from trimtab.construct._data import ProblemData, prepare
@@ -58,6 +58,16 @@ class RebalanceProblem:
         self.objective = Objective(spec, data)
         for c in self.constraints:
             _ = c.rows  # build (and check against the data) now, before any solve
+        #: the hedge overlay's notionals under check, its own rows; risk rows re-read on w + X·h
+        self.hedge: _overlay.HedgeState | None = None
+        self.overlay_rows: list[Rows] = []
+        if data.overlay is not None:
+            self.hedge = _overlay.HedgeState(data.overlay)
+            self.objective.hedge = self.hedge.hedged
+            for c in self.constraints:
+                if c.key in _overlay.RISK_KEYS:
+                    c.__dict__["rows"] = [_overlay.wrap(r, self.hedge) for r in c.rows]
+            self.overlay_rows = _overlay.overlay_rows(self.hedge)
         #: positions the market carried beyond a per-asset limit, moved back as far as trading allows
         self.passive_notes = _passive.cure(self)
         #: scenario keys a variant scenario set itself: named first when limits conflict
@@ -110,7 +120,7 @@ class RebalanceProblem:
                 alpha=alpha if alpha is not None else pd.Series(data.alpha, index=model.assets),
                 attributes=None, nav=data.nav, unknown_assets=self.unknown_assets, long_book=_long_book(spec),
             )
-            data = fresh.with_changes(attributes=data.attributes,
+            data = fresh.with_changes(attributes=data.attributes, overlay=data.overlay,
                                       sold_outside=data.sold_outside if holdings is None else fresh.sold_outside)
             data = _alpha_factor.augment(data, spec.mapping)
         # a warm start pays for limit, λ, holdings and benchmark changes (measured at 1,000 × 20 to
@@ -150,6 +160,9 @@ class RebalanceProblem:
         """The same problem with the limits of a relaxation option loosened (see ``_elastic.relaxation``)."""
         fresh = RebalanceProblem(self.spec, self.data, self.solvers, self.unknown_assets, self.warm)
         moved = {id(m["rows"]) for m in moves}
+        if self.hedge is not None:  # the copied risk rows read this problem's notionals
+            fresh.hedge, fresh.overlay_rows = self.hedge, self.overlay_rows
+            fresh.objective.hedge = self.hedge.hedged
         for old, new in zip(self.constraints, fresh.constraints, strict=True):
             new.__dict__["rows"] = [_elastic.loosen(r, moves) if id(r) in moved else r for r in old.rows]
         fresh.changed = self.changed
@@ -157,7 +170,7 @@ class RebalanceProblem:
 
     # ------------------------------------------------------------------ the convex solve
     def all_rows(self, extra: Sequence[Rows] = ()) -> list[Rows]:
-        return [r for c in self.constraints for r in c.rows] + list(extra)
+        return [r for c in self.constraints for r in c.rows] + self.overlay_rows + list(extra)
 
     def build(self, extra: Sequence[Rows] = ()) -> tuple[cp.Problem, Variables, Assembly]:
         """The cvxpy problem in factor form: maximise U − soft-limit penalties."""
@@ -165,7 +178,7 @@ class RebalanceProblem:
         assembly = Assembly(variables)
         for c in self.constraints:
             c.add(assembly)
-        for r in extra:
+        for r in [*self.overlay_rows, *extra]:
             assembly.add(r)
         # the objective may create variables (trades, impact) whose definitions finish() must collect
         goal = self.objective.expression(variables) - assembly.penalty
@@ -183,7 +196,10 @@ class RebalanceProblem:
         built: tuple[cp.Problem, Variables, Assembly] | None = None
         build_time = 0.0
 
-        def accept(raw: np.ndarray, solver_objective: float, name: str) -> tuple[np.ndarray, pd.DataFrame] | None:
+        def accept(raw: np.ndarray, solver_objective: float, name: str,
+                   notionals: np.ndarray | None = None) -> tuple[np.ndarray, pd.DataFrame] | None:
+            if self.hedge is not None:  # the risk rows check w + X·h with the h that leaves with w
+                self.hedge.h = np.zeros(self.hedge.overlay.size) if notionals is None else notionals
             for weights in (_without_noise(raw), raw):
                 numpy_objective = self.objective.breakdown(weights, soft_penalty(rows, weights))["total"]
                 table = verify(rows, weights, solver_objective=solver_objective, numpy_objective=numpy_objective)
@@ -249,12 +265,14 @@ class RebalanceProblem:
                 continue
             # every rung, relaxed ones included, is verified from w with numpy
             solver_objective = float(problem.value)
-            accepted = accept(np.asarray(variables.w.value, dtype=np.float64), solver_objective, name)
+            notionals = None if variables.h is None else np.asarray(variables.h.value, dtype=np.float64)
+            accepted = accept(np.asarray(variables.w.value, dtype=np.float64), solver_objective, name, notionals)
             if accepted is None:
                 continue
             weights, table = accepted
             return Outcome(weights, attempt.status, solver, attempt.iterations, attempt.seconds, build_time,
-                           attempts, table, assembly.duals(), rows, solver_objective, notes(name), skipped)
+                           attempts, table, assembly.duals(), rows, solver_objective, notes(name), skipped,
+                           overlay=None if self.hedge is None else self.hedge.h.copy())
         # a solver that fails near infeasibility gets the same diagnosis as an infeasible status
         _elastic.diagnose(self, extra, attempts)
         raise SolverError(f"{self.spec.source}: no solver returned verified weights: " + " | ".join(skipped + rejected))
@@ -288,6 +306,7 @@ def build_problem(
     unknown_assets: str = "error",
     source: str = "scenario",
     changed_limits: Sequence[str] = (),
+    overlay: Mapping[str, Any] | None = None,
 ) -> RebalanceProblem:
     """Validate the scenario and the inputs and return the problem, ready to :meth:`~RebalanceProblem.solve`.
 
@@ -303,6 +322,10 @@ def build_problem(
     if spec.objective["kind"] in ("utility", "alpha") and alpha is None:
         raise InputError(f"rebalance: objective {spec.objective['kind']} needs alpha (pass alpha=...)")
     data = _alpha_factor.augment(data, spec.mapping)
+    if overlay is not None:
+        if spec.objective["kind"] == "risk_budget":
+            raise InputError("overlay: a hedge overlay needs a convex objective (not risk_budget)")
+        data = data.with_changes(overlay=_overlay.make_overlay(overlay, model))
     check_listed_shocks(model, spec.mapping, source)
     problem = RebalanceProblem(spec, data, solvers, unknown_assets)
     problem.changed = _changed_keys(changed_limits)
@@ -330,6 +353,7 @@ def rebalance(
     solvers: Sequence[str] | None = None,
     unknown_assets: str = "error",
     changed_limits: Sequence[str] = (),
+    overlay: Mapping[str, Any] | None = None,
 ) -> Any:
     """Target weights and trades inside the risk budget and mandate, verified from the weights.
 
@@ -383,4 +407,5 @@ def rebalance(
     ...                    benchmark=benchmark)  # doctest: +SKIP
     """
     return build_problem(model, scenario, holdings=holdings, benchmark=benchmark, alpha=alpha, attributes=attributes,
-                         nav=nav, solvers=solvers, unknown_assets=unknown_assets, changed_limits=changed_limits).solve()
+                         nav=nav, solvers=solvers, unknown_assets=unknown_assets, changed_limits=changed_limits,
+                         overlay=overlay).solve()

@@ -13,6 +13,7 @@ import pandas as pd
 from trimtab._version import __version__
 from trimtab.construct._alpha_factor import alpha_lines, alpha_provenance, alpha_warnings
 from trimtab.construct._figures import desk_figures
+from trimtab.construct._overlay_result import OverlayResult, overlay_result
 from trimtab.construct._solve import SOLVER_SETTINGS
 from trimtab.construct._orders import NOT_FIT_STATUS, rounding_notices, trade_list_for, weights_without_noise
 from trimtab.construct._trade_list import TradeList, weight_orders
@@ -83,6 +84,10 @@ class RebalanceResult:
         Thresholds of the concentration alerts.
     pinned : pandas.Series or None
         Assets at an upper weight limit (asset → limit name) in the final book.
+    overlay : OverlayResult or None
+        The hedge overlay sized with the book (scenario ``overlay:``): notionals, contracts, and
+        the cash book, the overlay and the hedged book side by side. :attr:`weights`,
+        :attr:`ex_ante` and the attributions are the cash book's.
     """
 
     weights: pd.Series
@@ -109,6 +114,7 @@ class RebalanceResult:
     nav: float | None = None
     cost_per_asset: pd.Series | None = None
     context: Mapping[str, Any] = field(default_factory=dict)
+    overlay: OverlayResult | None = None
     # the inputs of the lazy pre/post attribution (the model's own factor groups apply)
     _model: FactorModel | None = field(default=None, repr=False, compare=False)
     _holdings: pd.Series | None = field(default=None, repr=False, compare=False)
@@ -339,6 +345,7 @@ def make_result(problem: RebalanceProblem, outcome: Outcome) -> RebalanceResult:
         pinned=pinned_positions(outcome.rows, outcome.weights),  # the optimizer's: rounding moves them by < 1 lot
         nav=data.nav,
         cost_per_asset=pd.Series(rates.cost(final - data.holdings), index=assets, name="cost") if rates.any else None,
+        overlay=None if outcome.overlay is None else overlay_result(data, outcome.weights, outcome.overlay),
         _model=problem.model,
         _holdings=pd.Series(data.holdings, index=assets),
         _attributes=data.attributes,

@@ -23,7 +23,16 @@ class Variables:
         self.data = data
         self.w = cp.Variable(data.n_assets, name="w")
         self.y = cp.Variable(data.model.n_factors, name="y")
-        self.definitions: list[cp.Constraint] = [self.y == data.exposures.T @ self.w]
+        overlay = data.overlay
+        #: overlay notionals h (fractions of NAV) and the hedged book w + X·h the risk terms read
+        #: (construct/_overlay.py); without an overlay the hedged book is w itself
+        self.h = None if overlay is None else cp.Variable(overlay.size, name="h")
+        self.hedged: cp.Expression = self.w if self.h is None else self.w + overlay.baskets @ self.h
+        self.definitions: list[cp.Constraint] = [self.y == data.exposures.T @ self.hedged]
+
+    def cp_norm1_h(self) -> cp.Expression:
+        """Σⱼ|hⱼ|, the overlay's gross notional."""
+        return cp.norm1(self.h)
 
     @cached_property
     def _trades(self) -> tuple[cp.Variable, cp.Variable]:
@@ -78,16 +87,17 @@ class Variables:
         L = data.factor_sqrt
         F = L @ L.T
         D = sp.diags(data.specific_variance)
-        quadratic = cp.quad_form(self.y, cp.psd_wrap(F)) + cp.quad_form(self.w, cp.psd_wrap(D))
+        v = self.hedged
+        quadratic = cp.quad_form(self.y, cp.psd_wrap(F)) + cp.quad_form(v, cp.psd_wrap(D))
         if not active:
             return quadratic
         xb, b, d = data.bench_exposure, data.bench, data.specific_variance
-        linear = -2.0 * ((F @ xb) @ self.y + (d * b) @ self.w)
+        linear = -2.0 * ((F @ xb) @ self.y + (d * b) @ v)
         return quadratic + linear + float(xb @ F @ xb + d @ (b * b))
 
     def specific_part(self, active: bool) -> cp.Expression:
         """√d∘(w − b) (active) or √d∘w: its squared norm is the specific variance per period."""
-        base = self.w - self.data.bench if active else self.w
+        base = self.hedged - self.data.bench if active else self.hedged
         return cp.multiply(self.data.specific_sqrt, base)
 
 

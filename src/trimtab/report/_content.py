@@ -124,6 +124,8 @@ class ReportContent:
     target_book: pd.DataFrame | None = None
     #: the result whose alpha_alignment and alpha_factor the alpha section shows (trimtab.report._alpha)
     alpha_source: Any = None
+    #: the rebalance whose hedge overlay the overlay section shows (trimtab.report._overlay_section)
+    overlay: Any = None
 
     @property
     def is_rebalance(self) -> bool:
@@ -165,7 +167,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         pre=pre,
         post=post,
         headline=headline,
-        risk_budget=_risk_budget(constraints, scenario, pre, post),
+        risk_budget=_hedged_budget(_risk_budget(constraints, scenario, pre, post), getattr(subject, "overlay", None)),
         exposures=_exposures(pre, post),
         contributions=_contributions(pre, post),
         groups=_groups(pre, post),
@@ -192,6 +194,7 @@ def gather(subject: Any, *, top: int = 10) -> ReportContent:
         target_book=target_book(subject, trades),
         stress=stress_frame(subject),
         alpha_source=subject if getattr(subject, "alpha_alignment", None) is not None else None,
+        overlay=subject if getattr(subject, "overlay", None) is not None else None,
     )
 
 
@@ -342,6 +345,15 @@ def _risk_budget(
             post_value = post.risk
         return RiskBudget(name=name, cap=float(cap), pre=pre_value, post=post_value, used=post_value / cap)
     return None
+
+
+def _hedged_budget(budget: RiskBudget | None, overlay: Any) -> RiskBudget | None:
+    """With a hedge overlay the risk caps hold on the hedged book: its figure is the one used."""
+    if budget is None or overlay is None:
+        return budget
+    figure = "total_risk" if budget.name == "total_risk" else "tracking_error"
+    post = float(overlay.risk.loc["hedged", figure])
+    return RiskBudget(name=budget.name, cap=budget.cap, pre=budget.pre, post=post, used=post / budget.cap)
 
 
 def _cap_from_table(constraints: pd.DataFrame | None, name: str) -> float | None:

@@ -22,6 +22,7 @@ from trimtab._version import __version__
 from trimtab.attribution import HEADLINE_FIGURES, RiskAttribution, compare_many, figure_label
 from trimtab.errors import InputError
 from trimtab.report._content import CAUTION, DESK_FIGURES, gather, group_columns, warning_records
+from trimtab.report._overlay_section import overlay_comparison_rows, overlay_document, overlay_tables
 from trimtab.report._stress import stress_frame, stress_records
 from trimtab.report._relaxation import Unsolved, is_unsolved, split_subjects, unsolved
 
@@ -107,6 +108,7 @@ def report_tables(subject: Any) -> dict[str, pd.DataFrame]:
         )
     if (stress := stress_frame(subject)) is not None:
         tables["stress"] = stress
+    tables.update(overlay_tables(subject))
     return tables
 
 
@@ -236,6 +238,7 @@ def report_document(subject: Any) -> dict[str, Any]:
         "verification": _records(content.verification, None),
         "limits": _records(content.checks, "limit"),
         "stress": stress_records(subject),
+        "overlay": overlay_document(subject),
         "provenance": content.provenance,
         "scenario": content.scenario,
     }
@@ -291,6 +294,7 @@ def comparison_table(subjects: Mapping[str, Any]) -> pd.DataFrame:
         values = dict(figures.loc[key].items())
         if any(pd.notna(v) for v in values.values()):
             rows.append((key, figure_label(key, kind), HEADLINE_FIGURES[key][1], values))
+    rows.extend(overlay_comparison_rows(solved))
     rows.append(("binding_limits", "Binding limits (assets at a per-asset limit)", "text",
                  {n: binding_text(c.constraints) for n, c in contents.items()}))
     table = pd.DataFrame(

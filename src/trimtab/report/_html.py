@@ -30,6 +30,7 @@ from trimtab.report._content import (
     rounding_lines,
 )
 from trimtab.report._alpha import alpha_html
+from trimtab.report._overlay_section import overlay_html
 from trimtab.report._stress import stress_html
 from trimtab.report._tolerance import tolerance_lines
 from trimtab.report._files import atomic_write_text
@@ -273,6 +274,8 @@ def _report_body(content: ReportContent, key: str, top: int, max_trades: int, *,
         )
     if content.stress is not None:
         parts.append(stress_html(content, h, key))
+    if content.overlay is not None:
+        parts.append(overlay_html(content.overlay, h, key, top))
     if content.constraints is not None:
         parts.append(f"<{h}>Constraints</{h}>" + _constraint_table(content.constraints))
     if content.checks is not None:

@@ -177,7 +177,10 @@ def _cell(value: Any, column: str, percent_columns: Sequence[str]) -> str:
     if isinstance(value, (float, np.floating)):
         if not np.isfinite(value):
             return "–"
-        return f"{100 * value:.2f}%" if column in percent_columns else f"{value:.4g}"
+        if column in percent_columns:
+            return f"{100 * value:.2f}%"
+        # shares, ADV and currency amounts print whole with separators (21,000), not as 2.1e+04
+        return f"{value:,.0f}" if abs(value) >= 1e4 else f"{value:.4g}"
     return html.escape(str(value))
 
 
@@ -259,7 +262,8 @@ def write_page(path: str | Path, title: str, sections: Sequence[tuple[str, str]]
 # Output folders
 # ---------------------------------------------------------------------------------------------
 _PERCENT = ("tracking_error", "total_risk", "turnover", "expected_alpha", "limit", "forecast_te", "realised_te",
-            "mean_forecast_te", "active_return", "net_active_return", "total_cost", "mean_turnover")
+            "mean_forecast_te", "active_return", "net_active_return", "total_cost", "mean_turnover",
+            "hedged_tracking_error", "hedged_total_risk", "overlay_gross")
 
 
 def _write_tables(folder: Path, tables: Mapping[str, pd.DataFrame | None]) -> None:

@@ -10,6 +10,7 @@ from rich.console import Console, JustifyMethod
 from rich.table import Table
 
 from trimtab.attribution import compare_many, format_figure
+from trimtab.report._overlay_section import print_overlay
 from trimtab.report._stress import print_stress
 from trimtab.report._content import (
     CAUTION,
@@ -87,14 +88,16 @@ def print_rebalance(result: Any, console: Console | None = None, top: int = 10) 
     if content.risk_budget is not None:
         budget = content.risk_budget
         out.print(
-            f"Risk budget ({budget.name.replace('_', ' ')}): {format_figure(budget.post, 'fraction')} of "
+            f"Risk budget ({budget.name.replace('_', ' ')}{', hedged book' if content.overlay else ''}): "
+            f"{format_figure(budget.post, 'fraction')} of "
             f"{format_figure(budget.cap, 'fraction')} cap, {format_figure(budget.used, 'fraction')} used"
         )
     if content.figures is not None:
         out.print(_figures_table(content.figures, "What the trades do"))
     for line in tolerance_lines(content.within_tolerance):
         out.print(line, markup=False, highlight=False)
-    out.print(_headline_table(content, "Risk before and after"))
+    out.print(_headline_table(content, "Risk before and after" + (" (the cash book)" if content.overlay else "")))
+    print_overlay(result, out, top)
     _print_body(out, content, top)
     print_stress(content, out)
     binding = content.binding_constraints

@@ -202,6 +202,18 @@ def figures(model: FactorModel, result: Any, inputs: Mapping[str, Any]) -> dict[
         "expected_alpha": float(a @ (weights - b)),
         "n_holdings": int((np.abs(weights) > 1e-8).sum()),
     }
+    hedge = getattr(result, "overlay", None)
+    if hedge is not None and inputs.get("overlay") is not None:
+        # the hedged book w + Σⱼ hⱼ·basketⱼ, from the notionals and the baskets themselves
+        hedged = weights.copy()
+        for name, notional in hedge.notional.items():
+            basket = inputs["overlay"]["instruments"][name].reindex(model.assets, fill_value=0.0)
+            hedged = hedged + float(notional) * basket.to_numpy(dtype=np.float64)
+        row["hedged_tracking_error"] = model.volatility(hedged - b)
+        row["hedged_total_risk"] = model.volatility(hedged)
+        row["overlay_gross"] = float(hedge.notional.abs().sum())
+        for name, notional in hedge.notional.items():
+            row[f"overlay.{name}"] = float(notional)
     parts = getattr(result, "objective", None)
     if isinstance(parts, (Mapping, pd.Series)):
         for name, value in dict(parts).items():
@@ -360,6 +372,7 @@ def sweep(
     keep_results: bool = False,
     build: Callable[..., Any] | None = None,
     progress: Callable[[Outcome], None] | None = None,
+    overlay: Mapping[str, Any] | None = None,
 ) -> SweepResult:
     """Solve one scenario at every point of a parameter grid.
 
@@ -373,8 +386,10 @@ def sweep(
         parameter is a dotted key path into the scenario: ``risk_aversion`` (objective),
         ``tracking_error.max``, ``turnover.max``, ``factor_exposure.bounds.momentum`` (constraints;
         a leading ``constraints.`` or ``objective.`` may be written).
-    holdings, benchmark, alpha, attributes, nav
-        As for :func:`trimtab.rebalance`.
+    holdings, benchmark, alpha, attributes, nav, overlay
+        As for :func:`trimtab.rebalance`; with an overlay the table adds the hedged book's
+        ``hedged_tracking_error`` and ``hedged_total_risk``, ``overlay_gross`` and each
+        instrument's notional (``overlay.<name>``).
     executor : Executor, optional
         Where chunks of points run (default: in this process, one chunk).
     reuse : bool, default True
@@ -418,6 +433,8 @@ def sweep(
     inputs = {"holdings": holdings, "benchmark": benchmark, "alpha": alpha, "attributes": attributes}
     if nav is not None:
         inputs["nav"] = nav
+    if overlay is not None:
+        inputs["overlay"] = overlay
     inputs = {k: v for k, v in inputs.items() if v is not None or k == "benchmark"}
     runner = executor if executor is not None else InProcessExecutor()
     parts = chunks(points, runner.n_workers)

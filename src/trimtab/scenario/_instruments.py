@@ -48,7 +48,7 @@ def _baskets(frame: pd.DataFrame, path: Path, assets: pd.Index) -> dict[str, pd.
 
 
 def _series(path: Path) -> dict[str, pd.Series]:
-    from trimtab.scenario import load_returns
+    from trimtab.scenario._loaders import load_returns
     from trimtab.scenario._schema import ReturnsFile
 
     frame = load_returns(ReturnsFile.model_validate({"path": str(path), "asset_column": "instrument"}), what="instrument returns")
@@ -57,7 +57,7 @@ def _series(path: Path) -> dict[str, pd.Series]:
 
 def read_instruments(paths: Sequence[Path], assets: pd.Index) -> dict[str, pd.Series]:
     """Every instrument of ``paths``: name → basket weights by asset, or returns by date."""
-    from trimtab.scenario import read_table
+    from trimtab.scenario._loaders import read_table
 
     out: dict[str, pd.Series] = {}
     seen: dict[str, Path] = {}
@@ -76,7 +76,7 @@ def read_instruments(paths: Sequence[Path], assets: pd.Index) -> dict[str, pd.Se
 
 def read_contracts(path: Path, instruments: Sequence[str]) -> pd.DataFrame:
     """The contract table, checked: known instruments, price and multiplier > 0, cost ≥ 0."""
-    from trimtab.scenario import read_table
+    from trimtab.scenario._loaders import read_table
 
     frame = read_table(path, what="contracts")
     allowed = ("instrument", "price", "multiplier", "cost", "held")
@@ -129,3 +129,32 @@ def parse_targets(values: Sequence[str] | None, factors: pd.Index) -> dict[str, 
             raise InputError(f"--target: the factor {name!r} is given twice")
         out[name] = parsed
     return out
+
+
+def read_overlay(section: Any, assets: pd.Index, source: Path | str = "scenario") -> dict[str, Any]:
+    """The scenario's ``overlay:`` section with its files read: the ``overlay`` argument of
+    :func:`trimtab.rebalance` (basket instruments only: a return series cannot join the rebalance)."""
+    path = Path(section.instruments)
+    instruments = read_instruments([path], assets)
+    series = [name for name, values in instruments.items() if isinstance(values.index, pd.DatetimeIndex)]
+    if series:
+        raise InputError(f"{path}: overlay.instruments: return-series instruments cannot join the rebalance yet "
+                         f"({list_labels(series)}); give basket weights (instrument, asset, weight), or size them "
+                         "after the rebalance with trimtab overlay")
+    notional = dict(section.notional or {})
+    unknown = [name for name in notional if name not in instruments]
+    if unknown:
+        raise InputError(f"{source}: overlay.notional.{unknown[0]}: not an instrument of {path} "
+                         f"(it has {list_labels(list(instruments))})")
+    out: dict[str, Any] = {"instruments": instruments, "max_gross": section.max_gross,
+                           "notional": {k: list(v) for k, v in notional.items()}}
+    if section.contracts is not None:
+        out["contracts"] = read_contracts(Path(section.contracts), list(instruments))
+    return out
+
+
+def refuse_overlay(scenario: Any, command: str) -> None:
+    """Stop (exit 2) a command that cannot carry a scenario's ``overlay:`` rather than drop it silently."""
+    if scenario.spec.overlay is not None:
+        raise InputError(f"{scenario.path.name}: overlay: trimtab {command} does not take a hedge overlay yet "
+                         "(rebalance, compare, sweep and explore do); remove the section for this run")

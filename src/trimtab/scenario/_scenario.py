@@ -15,6 +15,7 @@ from trimtab.errors import InputError, Problem, ScenarioError
 from trimtab.model import FactorModel
 from trimtab.scenario._align import AlignmentReport, align_inputs
 from trimtab.scenario._fit import fit_model
+from trimtab.scenario._instruments import read_overlay
 from trimtab.scenario._loaders import Holdings, load_attributes, load_holdings, load_series
 from trimtab.scenario._schema import ScenarioSpec
 from trimtab.scenario._yaml import load_merged, validate_model
@@ -194,6 +195,7 @@ class ScenarioInputs:
     book: Holdings
     alignment: AlignmentReport
     sold_outside: pd.Series | None = None
+    overlay: dict[str, Any] | None = None
 
     def rebalance_kwargs(self) -> dict[str, Any]:
         """Keyword arguments for :func:`trimtab.rebalance` besides the model and the mapping.
@@ -211,6 +213,8 @@ class ScenarioInputs:
         if self.sold_outside is not None and len(self.sold_outside):
             kwargs["holdings"] = pd.concat([self.holdings, self.sold_outside])
             kwargs["unknown_assets"] = "zero"
+        if self.overlay is not None:
+            kwargs["overlay"] = self.overlay
         return kwargs
 
 
@@ -276,4 +280,5 @@ def load_inputs(
         book=book,
         alignment=aligned.report,
         sold_outside=aligned.sold_outside,
+        overlay=None if scenario.spec.overlay is None else read_overlay(scenario.spec.overlay, model.assets, scenario.path.name),
     )

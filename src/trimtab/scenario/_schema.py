@@ -168,6 +168,33 @@ class BacktestSection(_Strict):
     )
 
 
+class OverlaySection(_Strict):
+    """A hedge overlay sized with the rebalance: basket instruments exempt from the cash limits,
+    inside the risk limits (docs/overlay.md, "With the rebalance")."""
+
+    instruments: str = Field(min_length=1, description="basket file: instrument, asset, weight (long format)")
+    contracts: str | None = Field(None, min_length=1, description="contract terms: instrument, price, multiplier[, cost][, held]")
+    max_gross: float | None = Field(None, gt=0, strict=False, description="Σ|notional| of the overlay at most this (fraction of NAV)")
+    notional: dict[str, tuple[float | None, float | None]] | None = Field(
+        None, description="instrument → [lower, upper] notional (fraction of NAV, negative short; null unbounded)")
+
+    _instruments_text = field_validator("instruments", "contracts")(_no_control)
+
+    @field_validator("max_gross", mode="before")
+    @classmethod
+    def _number(cls, value: Any) -> Any:
+        if isinstance(value, bool) or (value is not None and not isinstance(value, (int, float))):
+            raise ValueError(f"expected a number (fraction of NAV), got {value!r}")
+        return value
+
+    @model_validator(mode="after")
+    def _ordered(self) -> OverlaySection:
+        for name, (lo, hi) in (self.notional or {}).items():
+            if lo is not None and hi is not None and lo > hi:
+                raise ValueError(f"notional.{name}: lower {lo:g} is above upper {hi:g}")
+        return self
+
+
 class ScenarioSpec(_Strict):
     """A whole scenario file after ``extends`` has been merged."""
 
@@ -185,6 +212,9 @@ class ScenarioSpec(_Strict):
     )
     alpha_factor: dict[str, Any] | None = Field(
         None, description="{volatility: σ}: price the part of alpha the factors do not span as one more factor (annualised σ)"
+    )
+    overlay: OverlaySection | None = Field(
+        None, description="{instruments: FILE, contracts: FILE, max_gross: G, notional: {name: [lo, hi]}}: hedge instruments sized with the book"
     )
     orders: dict[str, Any] | None = Field(
         None, description="min_cash, min_trade_weight, tolerance {weight, exposure, beta, risk}, repair (docs/scenarios.md)"

@@ -34,6 +34,8 @@ SCENARIO_PATHS: tuple[tuple[str, ...], ...] = (
     ("output", "dir"),
     ("stress",),
     ("constraints", "stress_loss", "shocks"),
+    ("overlay", "instruments"),
+    ("overlay", "contracts"),
 )
 #: The same for a standalone fit config.
 FIT_PATHS: tuple[tuple[str, ...], ...] = (("returns",), ("factor_returns",), ("exposures",))

@@ -38,8 +38,10 @@ RETURN_SIZE_LIMIT = 2.0
 ALPHA_SPREAD_LIMIT = 0.5
 #: The largest gross Σ|w| a book may have (200% long, 100% short).
 MAX_GROSS = 3.0
-#: Slack on net Σw ≤ 1 for weights rounded in a file.
-NET_TOL = 1e-6
+#: Slack on net Σw ≤ 1: weights rounded in a file, and a solver's fully invested book (Σw = 1 to its
+#: tolerance) drifted with returns and fed back as the next date's holdings. A tenth of a percent of
+#: NAV is far below every unit slip the rule exists for (percent: 100; weights counted twice: 2).
+NET_TOL = 1e-3
 #: The smallest shock move, in absolute value, that is refused as a percentage typed as a fraction.
 MOVE_LIMIT = 1.0
 #: Normal-consistency factor of the median absolute deviation (1/Φ⁻¹(3/4); common practice).

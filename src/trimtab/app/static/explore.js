@@ -156,6 +156,8 @@
     $("warnings").innerHTML = solved ? variant.html.warnings || "" : "";
     $("stress").innerHTML = solved ? variant.html.stress || "" : "";
     $("stress-box").hidden = !(solved && variant.html.stress);
+    $("overlay").innerHTML = solved ? variant.html.overlay || "" : "";
+    $("overlay-box").hidden = !(solved && variant.html.overlay);
     for (const part of ["trades", "binding", "exposures"]) {
       $(part).innerHTML = solved ? variant.html[part] : '<p class="note">No portfolio for these limits: see above.</p>';
     }

@@ -28,7 +28,8 @@ class AccountsResult:
         ``reason`` and ``conflict`` (the limits that cannot all hold) when not solved, ``nav``,
         forecast ``tracking_error`` and ``expected_alpha`` (annualised, from the weights),
         one-way ``turnover``, estimated ``cost`` (fraction of NAV, pooled impact included),
-        ``orders`` (names traded), ``cash_after`` (currency, before costs), ``given_up`` (notional
+        ``orders`` (names traded), ``cash_after`` (currency, after the trades and their
+        estimated costs), ``given_up`` (notional
         the aggregate cap cut from the account's trades, fraction of its NAV), ``seconds``.
     weights : pandas.DataFrame
         Target weights, assets × solved accounts.

@@ -13,7 +13,7 @@ import pandas as pd
 from trimtab.errors import ConvergenceWarning, InputError
 from trimtab.runs._executors import Executor, InProcessExecutor, Outcome
 from trimtab.runs.accounts._inputs import Account, Aggregate, check_accounts, check_aggregate
-from trimtab.runs.accounts._pool import impact_price, pooled_shares, share_caps
+from trimtab.runs.accounts._pool import damped_prices, impact_price, pooled_shares, share_caps
 from trimtab.runs.accounts._result import AccountsResult, build_result
 from trimtab.runs.accounts._worker import STATUS_SOLVED, SharedInputs, Task, _Where, solve_account, solve_chunk
 
@@ -22,8 +22,6 @@ from trimtab.runs.accounts._worker import STATUS_SOLVED, SharedInputs, Task, _Wh
 CHUNKS_PER_WORKER = 4
 #: A name's pooled gross above cap·(1 + CAP_SLACK) has its cap shared out (solver noise below).
 CAP_SLACK = 1e-9
-#: The impact-price update when the secant step is not usable: π ← π + θ·(η√(G/ADV) − π).
-DAMPING = 0.5
 
 
 def rebalance_accounts(
@@ -230,35 +228,13 @@ def _equilibrium(runner: Executor, handle: Any, listed: list[Account], agg: Aggr
             target = impact_price(eta, gross, adv)
             current = np.zeros(n) if price is None else price
             change = float(np.max(np.abs(target - current))) if n else 0.0
-            price, memory = next_price(current, target, memory)
+            price, memory = damped_prices(current, target, memory)
         log.append({"round": rounds, "price_change": change, "capped": int(capped.sum()), "solved": len(active)})
         if not newly.any() and change <= agg.tolerance:
             converged = True
             break
     return {"answers": answers, "price": seen, "allot": allot, "capped": capped, "rounds": rounds,
             "converged": converged, "log": log, "given_up": _given_up(given, prices, assets)}
-
-
-def next_price(current: np.ndarray, target: np.ndarray,
-               memory: tuple[np.ndarray, np.ndarray] | None) -> tuple[np.ndarray, tuple[np.ndarray, np.ndarray]]:
-    """The next impact prices: a secant step per name on r(π) = η√(G(π)/ADV) − π, else a damped step.
-
-    The pooled trade falls as its price rises, so r has slope ≤ −1 name by name (other names move it
-    only a little); the secant slope is held to ≤ −1 so a step never overshoots further than the plain
-    fixed-point step π ← η√(G/ADV), and a name whose slope cannot be measured takes a damped step.
-    Prices stay ≥ 0.
-    """
-    residual = target - current
-    if memory is None:  # round 1 starts from zero prices: go all the way
-        return target.copy(), (current, residual)
-    before, before_residual = memory
-    dp, dr = current - before, residual - before_residual
-    with np.errstate(divide="ignore", invalid="ignore"):
-        slope = np.where(np.abs(dp) > 1e-15, dr / dp, np.nan)
-    usable = np.isfinite(slope) & (slope < 0)
-    slope = np.minimum(np.where(usable, slope, -1.0), -1.0)
-    step = np.where(usable, -residual / slope, DAMPING * residual)
-    return np.maximum(current + step, 0.0), (current, residual)
 
 
 def _given_up(given: list[dict[str, Any]], prices: np.ndarray | None, assets: pd.Index) -> pd.DataFrame:

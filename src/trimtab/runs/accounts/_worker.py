@@ -200,6 +200,8 @@ def _solve(problem: Any, full: bool) -> tuple[np.ndarray, str, int, Any]:
 
 def _figures(problem: Any, w: np.ndarray) -> dict[str, Any]:
     """The summary figures, recomputed from the weights with the model's own algebra."""
+    from trimtab.construct._orders import cash_after_costs_weights
+
     data, model = problem.data, problem.model
     trade = w - data.holdings
     rates = problem.objective.rates
@@ -211,8 +213,9 @@ def _figures(problem: Any, w: np.ndarray) -> dict[str, Any]:
         "turnover": 0.5 * float(np.abs(trade).sum()) + data.outside_turnover,
         "cost": float(costs.sum()),
         "orders": int((np.abs(trade) > ORDER_NOISE).sum()),
-        # cash after the trades settle, before their estimated costs (currency)
-        "cash_after": float(data.nav) * (1.0 - float(w.sum())),
+        # cash after the trades and their estimated costs, pooled impact included (currency), as a
+        # single rebalance's trade list reports it
+        "cash_after": float(data.nav) * cash_after_costs_weights(problem, w),
     }
 
 

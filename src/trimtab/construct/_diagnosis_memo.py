@@ -1,0 +1,87 @@
+"""What one infeasibility diagnosis has already learnt, so it does not solve for it again (#21).
+
+A diagnosis (:func:`trimtab.construct._elastic.diagnose`) asks many related questions of the same
+limits: the elastic filter's rounds, the deletion filter's feasibility tests, one elastic problem
+per limit of the conflict set. Three kinds of answer carry over from one question to the next, each
+exactly (none changes which conflict set or which relaxation is found):
+
+- **a point that holds limits**: weights from any solve of the diagnosis (an elastic optimum, a
+  feasibility test's point) that hold every row of a later test within its verification tolerance
+  answer that test "feasible", the same rule a solver's own point is judged by;
+- **limits that cannot hold together**: a set of rows once found infeasible is infeasible when it
+  is asked again (the elastic filter's last test is the deletion filter's first);
+- **a one-limit elastic optimum**: when an elastic problem with a set M of movable limits had to
+  move exactly one limit g, its weights are also optimal for the elastic problem in which g alone
+  may move (that problem's feasible points are among M's, its objective is M's there, up to the
+  price of g's elements, which is one number for all of them), so the relaxation of g reuses them.
+  Only for a limit of one number (a risk cap, one row, one band): its move at the optimum is unique,
+  while per-asset caps can share a move among their assets in many optimal ways, and another
+  optimum would print another relaxation table than a solve of g alone.
+
+The memory lives for one diagnosis (:func:`remembering`); outside one, nothing is remembered.
+"""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import Iterator, Sequence
+from contextvars import ContextVar
+
+import numpy as np
+
+from trimtab.construct.constraints._base import Rows
+
+
+def holds(rows: Sequence[Rows], weights: np.ndarray) -> bool:
+    """Every row within its verification tolerance at ``weights``."""
+    return all(bool(np.all(r.breach(np.asarray(r.evaluate(weights), dtype=np.float64)) <= r.tolerance()))
+               for r in rows)
+
+
+def _key(rows: Sequence[Rows]) -> frozenset[tuple[object, ...]]:
+    """The rows as a set of limits (a restricted copy of a block keys as its own bounds)."""
+    return frozenset((r.name, r.kind, id(r.evaluate), r.lower.tobytes(), r.upper.tobytes()) for r in rows)
+
+
+class Memo:
+    """Points, infeasible row sets and one-limit elastic optima of one diagnosis (see the module notes)."""
+
+    def __init__(self) -> None:
+        self.points: list[np.ndarray] = []
+        self.infeasible: set[frozenset[tuple[object, ...]]] = set()
+        self.single: dict[str, np.ndarray] = {}
+
+    def answer(self, rows: Sequence[Rows]) -> bool | None:
+        """False for rows known infeasible, True when a remembered point holds them, else None."""
+        if _key(rows) in self.infeasible:
+            return False
+        return True if any(holds(rows, w) for w in reversed(self.points)) else None
+
+    def learn(self, rows: Sequence[Rows], answer: bool | None) -> None:
+        if answer is False:
+            self.infeasible.add(_key(rows))
+
+
+_MEMO: ContextVar[Memo | None] = ContextVar("trimtab_diagnosis_memo", default=None)
+
+
+@contextlib.contextmanager
+def remembering() -> Iterator[Memo]:
+    """A fresh memory for the diagnosis run inside the block."""
+    token = _MEMO.set(Memo())
+    try:
+        yield _MEMO.get()  # type: ignore[misc]
+    finally:
+        _MEMO.reset(token)
+
+
+def current() -> Memo | None:
+    """The running diagnosis' memory, or None outside one."""
+    return _MEMO.get()
+
+
+def point(weights: np.ndarray | None) -> None:
+    """Remember weights from a solve of the running diagnosis (checked against rows when asked)."""
+    memo = current()
+    if memo is not None and weights is not None and np.all(np.isfinite(weights)):
+        memo.points.append(np.asarray(weights, dtype=np.float64))
