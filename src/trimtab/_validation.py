@@ -31,6 +31,13 @@ def closest_key_hint(key: Any, allowed: Iterable[str]) -> str:
     return f"did you mean {close[0]}?" if close else f"allowed here: {', '.join(options)}"
 
 
+def check_known_keys(mapping: Any, allowed: Sequence[str], where: str) -> None:
+    """Refuse the first key of ``mapping`` not in ``allowed``: "WHERE.KEY: unknown key; did you mean …?"."""
+    for key in mapping:
+        if key not in allowed:
+            raise InputError(f"{where}.{key}: unknown key; {closest_key_hint(str(key), allowed)}")
+
+
 def number_as_text(value: str) -> str:
     """The message for a number written as text: quotes removed, percentages as fractions."""
     body = value.strip()

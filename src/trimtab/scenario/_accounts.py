@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._validation import closest_key_hint, list_labels
+from trimtab._validation import check_known_keys, closest_key_hint, list_labels
 from trimtab.errors import InputError, ScenarioError
 
 #: Columns of the accounts file besides the limit overrides.
@@ -121,13 +121,10 @@ def _read_overrides(path: Path, known: set[str]) -> dict[str, dict[str, Any]]:
     for name, entry in body.items():
         label = str(name)
         if label not in known:
-            raise InputError(f"{path}: {label}: not an account of the accounts file{closest_key_hint(label, sorted(known))}")
+            raise InputError(f"{path}: {label}: not an account of the accounts file; {closest_key_hint(label, sorted(known))}")
         if not isinstance(entry, dict):
             raise InputError(f"{path}: {label}: expected limits: and/or exclude:, got {entry!r}")
-        for key in entry:
-            if key not in OVERRIDE_KEYS:
-                raise InputError(f"{path}: {label}.{key}: unknown key{closest_key_hint(str(key), OVERRIDE_KEYS)}; "
-                                 f"allowed: {', '.join(OVERRIDE_KEYS)}")
+        check_known_keys(entry, OVERRIDE_KEYS, f"{path}: {label}")
         limits = entry.get("limits") or {}
         if not isinstance(limits, dict):
             raise InputError(f"{path}: {label}.limits: expected dotted key paths to values, got {limits!r}")

@@ -75,11 +75,11 @@ def test_a_lost_chunk_fails_its_accounts_only(small) -> None:
 @pytest.mark.parametrize(("kwargs", "message"), [
     ({"accounts": []}, r"accounts: expected a mapping of account name"),
     ({"accounts": {}}, r"accounts: no accounts given"),
-    ({"accounts": {"a": {"holdings": pd.Series(dtype=float), "nav": 1.0, "navv": 2}}}, r"accounts\['a'\]\.navv: unknown key"),
+    ({"accounts": {"a": {"holdings": pd.Series(dtype=float), "nav": 1.0, "navv": 2}}}, r"accounts\['a'\]\.navv: unknown key; did you mean nav\?$"),
     ({"accounts": {"a": {"nav": 1.0}}}, r"accounts\['a'\]: holdings missing"),
     ({"accounts": {"a": {"holdings": pd.Series(dtype=float), "kind": "lots"}}}, r"accounts\['a'\]\.kind: expected one of weights, shares"),
     ({"aggregate": {"max_adv_fraction": 5}}, r"aggregate.max_adv_fraction: expected a number in \[0, 1\], got 5"),
-    ({"aggregate": {"max_adv_frac": 0.05}}, r"aggregate.max_adv_frac: unknown key"),
+    ({"aggregate": {"max_adv_frac": 0.05}}, r"aggregate.max_adv_frac: unknown key; did you mean max_adv_fraction\?$"),
     ({"aggregate": {"max_adv_fraction": 0.05, "adv_column": "volume"}}, r"aggregate.adv_column: needs the attribute column 'volume'"),
 ], ids=["not-a-mapping", "empty", "unknown-account-key", "no-holdings", "bad-kind", "cap-as-percent", "unknown-aggregate-key", "no-adv-column"])
 def test_caller_mistakes_raise_before_anything_is_solved(small, kwargs, message) -> None:

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from trimtab._validation import closest_key_hint, list_labels
+from trimtab._validation import check_known_keys, list_labels
 from trimtab.errors import InputError
 
 #: The keys an account's mapping may hold.
@@ -103,9 +103,7 @@ def check_aggregate(aggregate: Mapping[str, Any] | None) -> Aggregate:
         return Aggregate()
     if not isinstance(aggregate, Mapping):
         raise InputError(f"aggregate: expected a mapping like {{max_adv_fraction: 0.05}}, got {type(aggregate).__name__}")
-    for key in aggregate:
-        if key not in AGGREGATE_KEYS:
-            raise InputError(f"aggregate.{key}: unknown key{closest_key_hint(key, AGGREGATE_KEYS)}; allowed: {', '.join(AGGREGATE_KEYS)}")
+    check_known_keys(aggregate, AGGREGATE_KEYS, "aggregate")
     out: dict[str, Any] = {}
     if aggregate.get("max_adv_fraction") is not None:
         out["max_adv_fraction"] = _number(aggregate["max_adv_fraction"], "aggregate.max_adv_fraction", low=0.0, high=1.0)
@@ -142,10 +140,7 @@ def check_accounts(accounts: Mapping[str, Any]) -> list[Account]:
         seen.add(label)
         if not isinstance(body, Mapping):
             raise InputError(f"accounts[{label!r}]: expected a mapping with holdings and nav, got {type(body).__name__}")
-        for key in body:
-            if key not in ACCOUNT_KEYS:
-                raise InputError(f"accounts[{label!r}].{key}: unknown key{closest_key_hint(str(key), ACCOUNT_KEYS)}; "
-                                 f"allowed: {', '.join(ACCOUNT_KEYS)}")
+        check_known_keys(body, ACCOUNT_KEYS, f"accounts[{label!r}]")
         if "holdings" not in body:
             raise InputError(f"accounts[{label!r}]: holdings missing (a Series of weights, or of shares with kind='shares')")
         kind = body.get("kind", "weights")
