@@ -11,11 +11,14 @@ exactly (none changes which conflict set or which relaxation is found):
 - **limits that cannot hold together**: a set of rows once found infeasible is infeasible when it
   is asked again (the elastic filter's last test is the deletion filter's first);
 - **a one-limit elastic optimum**: when an elastic problem with a set M of movable limits had to
-  move exactly one limit g, its weights are also optimal for the elastic problem in which g alone
-  may move (that problem's feasible points are among M's, its objective is M's there, up to the
-  price of g's elements, which is one number for all of them), so the relaxation of g reuses them.
-  Only for a limit of one number (a risk cap, one row, one band): its move at the optimum is unique,
-  while per-asset caps can share a move among their assets in many optimal ways, and another
+  move exactly one limit g, its weights are also optimal for every elastic problem whose movable
+  set M′ lies between, g ∈ M′ ⊆ M: g alone, or g with some others (the relaxation's joint option).
+  That problem's feasible points are among M's and include these weights, and its objective is M's
+  there. Its moves are the same too: M′'s optimal points are M's optimal points that hold the
+  limits outside M′, and on every one of M's only g moves (an interior-point optimum lies inside
+  its optimal face, so a face on which another limit could move would have shown that move), by
+  the one amount the optimal value fixes. Only for a limit of one number (a risk cap, one row, one
+  band): per-asset caps can share a move among their assets in many optimal ways, and another
   optimum would print another relaxation table than a solve of g alone.
 
 The memory lives for one diagnosis (:func:`remembering`); outside one, nothing is remembered.
@@ -49,7 +52,21 @@ class Memo:
     def __init__(self) -> None:
         self.points: list[np.ndarray] = []
         self.infeasible: set[frozenset[tuple[object, ...]]] = set()
-        self.single: dict[str, np.ndarray] = {}
+        #: a limit's path → (the movable paths of the elastic problem that moved it alone, its weights)
+        self.single: dict[str, tuple[frozenset[str], np.ndarray]] = {}
+
+    def remember_alone(self, path: str, movable: Sequence[str], weights: np.ndarray) -> None:
+        """An elastic optimum over ``movable`` moved the one-number limit ``path`` alone."""
+        self.single[path] = (frozenset(movable), weights)
+
+    def moved_alone(self, movable: Sequence[str]) -> np.ndarray | None:
+        """Weights of a remembered optimum that answers the elastic problem over ``movable``, if any."""
+        wanted = frozenset(movable)
+        for path in movable:
+            entry = self.single.get(path)
+            if entry is not None and wanted <= entry[0]:
+                return entry[1]
+        return None
 
     def answer(self, rows: Sequence[Rows]) -> bool | None:
         """False for rows known infeasible, True when a remembered point holds them, else None."""

@@ -56,16 +56,20 @@ WEIGHT_RANGE = ("weight", "active_weight", "trade", "group", "active_group", "mu
 RELAX_MARGIN = 1e-6
 
 
-def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[Any], changed: Sequence[str] = ()) -> None:
+def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[Any], changed: Sequence[str] = (),
+             seed: np.ndarray | None = None) -> None:
     """Find the conflict set and the relaxation options; raise InfeasibleError with both when infeasible.
 
     Returns without raising when the limits turn out to be satisfiable together (the solver's
-    infeasibility was numerical).
+    infeasibility was numerical). ``seed``: weights to remember as a first point (FACTOR_IPM's last
+    iterate when it certified infeasibility): the elastic problems start from it with their slacks
+    covering what it breaches (:func:`trimtab.construct._elastic_ipm.elastic`).
     """
     # answers one solve implies are not solved for again; not with a hedge overlay, whose points are
     # (w, h) pairs: a remembered w would be judged with another solve's notionals
     memory = contextlib.nullcontext() if getattr(problem, "hedge", None) is not None else _diagnosis_memo.remembering()
     with memory:
+        _diagnosis_memo.point(seed)
         conflict = conflict_set(problem, extra, changed or getattr(problem, "changed", ()), elastic_filter(problem, extra))
         if conflict is None:
             return
@@ -91,8 +95,9 @@ def diagnose(problem: RebalanceProblem, extra: Sequence[Rows], attempts: list[An
 def elastic_weights(problem: RebalanceProblem, extra: Sequence[Rows], movable: Sequence[LimitGroup]) -> np.ndarray | None:
     """The weights minimising the weighted moves of ``movable`` with every other hard limit as written."""
     memo = _diagnosis_memo.current()
-    if len(movable) == 1 and memo is not None and movable[0].path in memo.single:
-        return memo.single[movable[0].path]  # an earlier elastic optimum moved this limit alone
+    known = None if memo is None else memo.moved_alone([g.path for g in movable])
+    if known is not None:
+        return known  # an earlier elastic optimum, over more movable limits, moved one of these alone
     weights = _elastic_weights(problem, extra, movable)
     _diagnosis_memo.point(weights)
     return weights
@@ -197,7 +202,7 @@ def elastic_filter(problem: RebalanceProblem, extra: Sequence[Rows]) -> list[str
         if not moved:
             return None
         if len(moved) == 1 and memo is not None and _one_element(moved[0]):
-            memo.single[moved[0].path] = weights  # also the optimum with that group alone movable
+            memo.remember_alone(moved[0].path, [g.path for g in movable], weights)
         enforced.extend(moved)
     return None
 

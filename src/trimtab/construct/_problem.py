@@ -228,7 +228,8 @@ class RebalanceProblem:
                                                _fast.settings()))
                 if sol.status == "infeasible":
                     # a Farkas certificate (_ipm._Run.farkas): no general solver need say it again
-                    _elastic.diagnose(self, extra, attempts)  # raises InfeasibleError when confirmed
+                    # raises InfeasibleError when confirmed; the certificate's iterate seeds the diagnosis' starts
+                    _elastic.diagnose(self, extra, attempts, seed=answer.weights)
                     rejected.append(f"{name}: infeasible but the limits can all hold (no conflict set)")
                     continue
                 if not sol.converged:
