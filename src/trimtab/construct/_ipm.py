@@ -467,10 +467,29 @@ class _Run:
         # drift apart by the curvature of q; where the cap holds (−h > 0) and the slack is not far
         # from −h, the slack is set to −h, so an inactive cap's residual is zero, not slowly shrinking
         caps = slice(self.m_lin, None)
+        self._cover_with_slack_columns()
         held = -self.h[caps]
         reset = (held > 0) & (held >= SLACK_RESET * self.s[caps])
         self.s[caps] = np.where(reset, held, self.s[caps])
         return step
+
+    def _cover_with_slack_columns(self) -> None:
+        """A cap with an elastic slack column σ (:mod:`trimtab.construct._elastic_ipm`) that the step
+        left breached beyond its slack s (h + s > 0: the step is exact for linear rows, but q curves
+        by step²·dwᵀQdw/τ², which a tight cap magnifies) has σ raised by the breach, so the cap's
+        residual is zero again. σ enters no other row (its trade is netted out) and only its lower
+        bound limits it, so the point stays inside every box; the objective pays σ's price for it.
+        Measured at 5,000 × 50 with a 0.02% TE cap: without it the cap's residual fell by about half
+        an iteration and the run stalled at 7.8e-4."""
+        for k, cap in enumerate(self.qp.caps):
+            j = self.m_lin + k
+            if cap.slack is None or not self.free[cap.slack]:
+                continue
+            excess = float(self.h[j] + self.s[j])
+            if excess > 0:
+                self.x[cap.slack] += excess
+                self.gap_l[cap.slack] += excess if self.has_lb[cap.slack] else 0.0
+                self.h[j] -= excess
 
     # ------------------------------------------------------------------ the loop
     def run(self, max_iter: int, stop: Callable[[np.ndarray], bool] | None = None) -> Solution:
