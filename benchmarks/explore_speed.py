@@ -85,7 +85,8 @@ def measure(path: Path, n_changes: int) -> dict[str, Any]:
 
     started = time.perf_counter()
     explorer = Explorer.open(path)
-    client = TestClient(create_app(explorer))
+    app = create_app(explorer)  # the run's own host and token, as the printed URL carries them
+    client = TestClient(app, base_url="http://127.0.0.1:8765", headers={"X-Trimtab-Token": app.state.token})
     opened = time.perf_counter() - started
     cap = explorer.limits["tracking_error.max"].value
     assert cap is not None

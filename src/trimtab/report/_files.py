@@ -432,6 +432,19 @@ def _records(table: pd.DataFrame | None, index_name: str | None) -> list[dict[st
 
 def _plain(value: Any) -> Any:
     """JSON-ready: NaN/inf → None, numpy scalars → Python, timestamps → ISO text, others → str."""
+    # the exact built-in types first: a 5,000-name document has ~140k values, and the abstract
+    # Mapping test costs more than the conversion (0.23 s of a 0.27 s API answer, measured)
+    kind = type(value)
+    if kind is float:
+        return value if math.isfinite(value) else None
+    if kind is str or kind is bool or value is None:
+        return value
+    if kind is int:
+        return value
+    if kind is dict:
+        return {str(k): _plain(v) for k, v in value.items()}
+    if kind is list:
+        return [_plain(v) for v in value]
     if isinstance(value, Mapping):
         return {str(k): _plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
