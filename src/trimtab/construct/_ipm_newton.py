@@ -99,7 +99,7 @@ class _Newton:
         return np.concatenate([p * top + q * bottom, q * top + r * bottom])
 
     def factor(self, W: np.ndarray, T: np.ndarray, W_eq: np.ndarray, T_eq: np.ndarray) -> None:
-        """U = [Eᵀ·B·R, EᵀW + 1Tᵀ]; M_A = I + U_Aᵀ·Bd_A⁻¹·U_A by one product (Bᵀ·diag(δ1))·[B, W];
+        """U = [Eᵀ·B·R, EᵀW + 1Tᵀ]; M_A = I + U_Aᵀ·Bd_A⁻¹·U_A from the products (Bᵀ·diag(δ1))·[B, W] and (Wᵀ·diag(δ1))·W;
         the dense block S_I of the split assets; the Schur complement of the equality rows."""
         B, R, n = self.B, self.R, self.n
         kb, kx, ke = R.shape[1], W.shape[1], W_eq.shape[1]
@@ -116,16 +116,16 @@ class _Newton:
         self.d1 = self.p - 2.0 * self.q + self.r
         self.d2 = self.p - self.r
         self.d3 = float(np.sum(self.p + 2.0 * self.q + self.r))
-        wide = np.hstack([B, W])
-        lead = wide.T * self.d1  # (K + kx) × N
-        P = lead @ wide  # [[BᵀD1B, BᵀD1W], [WᵀD1B, WᵀD1W]]
-        k = B.shape[1]
+        # the blocks BᵀD1B, BᵀD1W and WᵀD1W, each once (no stacked copy of B, no second off-diagonal block)
+        lead = B.T * self.d1  # K × N
+        P_BB, P_BW = lead @ B, lead @ W
+        P_WW = (W.T * self.d1) @ W
         d2B, d2W = self.d2 @ B, self.d2 @ W
         M = np.empty((kb + kx, kb + kx))
-        M[:kb, :kb] = R.T @ P[:k, :k] @ R
-        M[:kb, kb:] = R.T @ (P[:k, k:] + np.outer(d2B, T))
+        M[:kb, :kb] = R.T @ P_BB @ R
+        M[:kb, kb:] = R.T @ (P_BW + np.outer(d2B, T))
         M[kb:, :kb] = M[:kb, kb:].T
-        M[kb:, kb:] = P[k:, k:] + np.outer(d2W, T) + np.outer(T, d2W) + self.d3 * np.outer(T, T)
+        M[kb:, kb:] = P_WW + np.outer(d2W, T) + np.outer(T, d2W) + self.d3 * np.outer(T, T)
         M[np.diag_indices_from(M)] += 1.0
         self.chol = la.cho_factor(M, lower=True, check_finite=False)
         if len(I):
