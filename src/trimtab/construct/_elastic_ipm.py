@@ -168,9 +168,8 @@ def _close_enough(sol: _ipm.Solution) -> bool:
     and often stalls again (measured: 1,500 × 15 stalled at a cap residual of 1.2e-6, 5,000 × 50
     at 3.6e-6, both with a dual residual near 6e-6, and their cvxpy fall-back took 1.3–1.5 s)."""
     res = sol.residuals
-    caps = res.get("primal_caps", np.inf)
-    rows = res.get("primal", np.inf) if res.get("primal", np.inf) > caps else 0.0  # the largest is a row's
-    return (rows <= DIAGNOSIS_ACCEPT["primal_rows"] and caps <= DIAGNOSIS_ACCEPT["primal_caps"]
+    return (res.get("primal_rows", np.inf) <= DIAGNOSIS_ACCEPT["primal_rows"]
+            and res.get("primal_caps", np.inf) <= DIAGNOSIS_ACCEPT["primal_caps"]
             and res.get("dual", np.inf) <= DIAGNOSIS_ACCEPT["dual"] and res.get("gap", np.inf) <= DIAGNOSIS_ACCEPT["gap"])
 
 

@@ -370,7 +370,10 @@ class _Run:
         obj = self.qp.objective(self.x, self.sa) / self.scale
         return {
             "primal": float(max(np.max(np.abs(self.r_h), initial=0.0), np.max(np.abs(self.r_eq), initial=0.0))),
-            # the same, on the caps alone (in q/τ² − 1: a cap's risk is off by about half of it, relative)
+            # the same, on the linear rows and on the caps alone (in q/τ² − 1: a cap's risk is off
+            # by about half of it, relative)
+            "primal_rows": float(max(np.max(np.abs(self.r_h[: self.m_lin]), initial=0.0),
+                                     np.max(np.abs(self.r_eq), initial=0.0))),
             "primal_caps": float(np.max(np.abs(self.r_h[self.m_lin:]), initial=0.0)),
             "dual": float(np.max(np.abs(self.r_d), initial=0.0)),
             "gap": self.comp / (1.0 + abs(obj)),
