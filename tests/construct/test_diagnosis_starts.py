@@ -66,6 +66,14 @@ def test_only_one_cap_moved_reads_the_slack_columns() -> None:
     assert not _elastic_ipm._only_one_cap_moved(w, caps, 3)
     w[3], w[5] = 0.0, 0.0  # nothing moved
     assert not _elastic_ipm._only_one_cap_moved(w, caps, 3)
+    # σ = 0.4 is priced next at 1 × 0.01 / (2√1.4) = 0.004226: settled when the run priced it at
+    # least that high (a tangent at a smaller σ), not when it priced it lower (a start beyond 0.4)
+    w[5] = 0.4
+    alpha = np.zeros(6)
+    alpha[5] = -0.005
+    assert _elastic_ipm._only_one_cap_moved(w, caps, 3, alpha)
+    alpha[5] = -0.004
+    assert not _elastic_ipm._only_one_cap_moved(w, caps, 3, alpha)
 
 
 def test_a_tight_cap_is_diagnosed_in_factor_form(monkeypatch) -> None:

@@ -147,7 +147,7 @@ def _majorised(qp: _ipm.QP, caps: list[tuple[int, float, float]], n_assets: int,
         if sol.status == "infeasible" or not sol.converged or not caps:
             return sol
         w = qp.weights(sol.x)
-        if _only_one_cap_moved(w, caps, n_assets):
+        if _only_one_cap_moved(w, caps, n_assets, alpha):
             return sol  # settled already: see _only_one_cap_moved
         settled = True
         for column, price, cap in caps:
@@ -173,20 +173,29 @@ def _close_enough(sol: _ipm.Solution) -> bool:
             and res.get("dual", np.inf) <= DIAGNOSIS_ACCEPT["dual"] and res.get("gap", np.inf) <= DIAGNOSIS_ACCEPT["gap"])
 
 
-def _only_one_cap_moved(w: np.ndarray, caps: list[tuple[int, float, float]], n_assets: int) -> bool:
-    """One cap's slack σ is positive and every other slack is zero: the point is then the fixed point.
+def _only_one_cap_moved(w: np.ndarray, caps: list[tuple[int, float, float]], n_assets: int,
+                        alpha: np.ndarray | None = None) -> bool:
+    """One cap's slack σ is positive, every other slack is zero, and the next price of σ is no higher
+    than the one just solved with (``alpha``: the run's objective): the point is then the fixed point.
 
     With every linear slack at zero the objective Σ pₐ·sₐ + P·σ is met at this point by multipliers
     that all scale with P (the elastic problem has no other objective term, but the trade
     regulariser of 1e-9 of its gradient). The next step prices σ lower, P′ = pₐ·cap/(2√(1 + σ)) < P:
     the multipliers scaled by P′/P still satisfy the optimality conditions (a zero slack's price
     pₐ only has to be at least its multiplier, and a held box bound's multiplier only falls), so this
-    point is optimal at P′ too, σ does not change, and neither would the price after it.
+    point is optimal at P′ too, σ does not change, and neither would the price after it. A price that
+    would rise (the run priced σ at a start beyond this σ) scales the multipliers up, past a zero
+    slack's price perhaps, so then the iteration goes on.
     """
-    moved = [column for column, _, _ in caps if w[column] > ZERO_SLACK]
+    moved = [(column, price, cap) for column, price, cap in caps if w[column] > ZERO_SLACK]
     cap_columns = {column for column, _, _ in caps}
     linear = [j for j in range(n_assets, len(w)) if j not in cap_columns]  # the slack columns follow the assets
-    return len(moved) == 1 and not np.any(w[linear] > ZERO_SLACK)
+    if len(moved) != 1 or np.any(w[linear] > ZERO_SLACK):
+        return False
+    if alpha is None:
+        return True
+    column, price, cap = moved[0]
+    return price * cap / (2.0 * np.sqrt(1.0 + float(w[column]))) <= -float(alpha[column]) * (1.0 + MM_TOL)
 
 
 def _with_slacks(tr: _fast.Translation, movable: Mapping[int, tuple[np.ndarray, float]]
