@@ -61,16 +61,16 @@ def test_only_one_cap_moved_reads_the_slack_columns() -> None:
 
     caps = [(5, 1.0, 0.01)]
     w = np.array([0.2, 0.3, 0.5, 0.0, 0.0, 0.4])  # 3 assets, linear slacks at 3 and 4, the cap's at 5
-    assert _elastic_ipm._only_one_cap_moved(w, caps, 3)
+    alpha = np.zeros(6)
+    alpha[5] = -0.005  # σ priced at the tangent at σ = 0: 1 × 0.01 / 2
+    assert _elastic_ipm._only_one_cap_moved(w, caps, 3, alpha)
     w[3] = 1e-4  # a linear limit moved too: its price is then a multiplier, and σ's re-pricing matters
-    assert not _elastic_ipm._only_one_cap_moved(w, caps, 3)
+    assert not _elastic_ipm._only_one_cap_moved(w, caps, 3, alpha)
     w[3], w[5] = 0.0, 0.0  # nothing moved
-    assert not _elastic_ipm._only_one_cap_moved(w, caps, 3)
+    assert not _elastic_ipm._only_one_cap_moved(w, caps, 3, alpha)
     # σ = 0.4 is priced next at 1 × 0.01 / (2√1.4) = 0.004226: settled when the run priced it at
     # least that high (a tangent at a smaller σ), not when it priced it lower (a start beyond 0.4)
     w[5] = 0.4
-    alpha = np.zeros(6)
-    alpha[5] = -0.005
     assert _elastic_ipm._only_one_cap_moved(w, caps, 3, alpha)
     alpha[5] = -0.004
     assert not _elastic_ipm._only_one_cap_moved(w, caps, 3, alpha)

@@ -174,7 +174,7 @@ def _close_enough(sol: _ipm.Solution) -> bool:
 
 
 def _only_one_cap_moved(w: np.ndarray, caps: list[tuple[int, float, float]], n_assets: int,
-                        alpha: np.ndarray | None = None) -> bool:
+                        alpha: np.ndarray) -> bool:
     """One cap's slack σ is positive, every other slack is zero, and the next price of σ is no higher
     than the one just solved with (``alpha``: the run's objective): the point is then the fixed point.
 
@@ -192,8 +192,6 @@ def _only_one_cap_moved(w: np.ndarray, caps: list[tuple[int, float, float]], n_a
     linear = [j for j in range(n_assets, len(w)) if j not in cap_columns]  # the slack columns follow the assets
     if len(moved) != 1 or np.any(w[linear] > ZERO_SLACK):
         return False
-    if alpha is None:
-        return True
     column, price, cap = moved[0]
     return price * cap / (2.0 * np.sqrt(1.0 + float(w[column]))) <= -float(alpha[column]) * (1.0 + MM_TOL)
 

@@ -368,13 +368,14 @@ class _Run:
         self.comp = float(self.s @ self.z + (self.gap_l * self.zl)[hl].sum() + (self.gap_u * self.zu)[hu].sum())
         self.mu = self.comp / max(self.n_comp, 1)
         obj = self.qp.objective(self.x, self.sa) / self.scale
+        # the linear rows' and the caps' largest residuals apart (a cap's is in q/τ² − 1: its risk is
+        # off by about half of it, relative), and the larger of the two
+        rows = float(max(np.max(np.abs(self.r_h[: self.m_lin]), initial=0.0), np.max(np.abs(self.r_eq), initial=0.0)))
+        caps = float(np.max(np.abs(self.r_h[self.m_lin:]), initial=0.0))
         return {
-            "primal": float(max(np.max(np.abs(self.r_h), initial=0.0), np.max(np.abs(self.r_eq), initial=0.0))),
-            # the same, on the linear rows and on the caps alone (in q/τ² − 1: a cap's risk is off
-            # by about half of it, relative)
-            "primal_rows": float(max(np.max(np.abs(self.r_h[: self.m_lin]), initial=0.0),
-                                     np.max(np.abs(self.r_eq), initial=0.0))),
-            "primal_caps": float(np.max(np.abs(self.r_h[self.m_lin:]), initial=0.0)),
+            "primal": max(rows, caps),
+            "primal_rows": rows,
+            "primal_caps": caps,
             "dual": float(np.max(np.abs(self.r_d), initial=0.0)),
             "gap": self.comp / (1.0 + abs(obj)),
             "objective": obj,
